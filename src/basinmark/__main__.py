@@ -1,0 +1,3 @@
+from basinmark.cli import main
+
+raise SystemExit(main())

@@ -1,0 +1,11 @@
+"""Test configuration: Qt always offscreen (set here, not only in the Makefile)."""
+
+import os
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+os.environ.setdefault("QT_QUICK_BACKEND", "software")
+
+from hypothesis import HealthCheck, settings  # noqa: E402
+
+settings.register_profile("ci", deadline=None, suppress_health_check=[HealthCheck.too_slow], max_examples=60)
+settings.load_profile("ci")
