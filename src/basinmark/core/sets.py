@@ -1,0 +1,367 @@
+"""Open a folder of runs as a :class:`~basinmark.core.model.TrajectorySet`.
+
+Finds the runs (halves by the layout's patterns, or already-joined files), reads
+them in parallel, joins each backward half (time-reversed, negative times) and
+forward half into one run sharing the t = 0 frame, and keeps a cache of the
+joined arrays keyed by the source files' SHA-256 so that reopening a set costs
+little more than hashing its files.  Failures are collected, never fatal.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import re
+import tempfile
+import threading
+import warnings
+from concurrent.futures import ThreadPoolExecutor, as_completed
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable, Iterator
+
+import numpy as np
+
+from basinmark.core.errors import BasinmarkError, SetError, TrajectoryFileError
+from basinmark.core.manifest import SetLayout, load_layout
+from basinmark.core.model import LoadFailure, SourceFile, Trajectory, TrajectorySet
+
+JOURNAL_NAME = "basinmark-labels.jsonl"
+RULES_NAME = "basins.toml"
+CACHE_NAME = ".basinmark-cache"
+CACHE_VERSION = "1"
+#: first frames of the two halves must agree this well (Å) to be the same transition-state point
+TS_MATCH_TOLERANCE = 1e-3
+
+Progress = Callable[[int, int, "str | None"], None]
+
+
+def journal_path(root: str | Path) -> Path:
+    """Default location of a set's label journal."""
+    return Path(root) / JOURNAL_NAME
+
+
+def rules_path(root: str | Path) -> Path:
+    """Default location of a set's rules file."""
+    return Path(root) / RULES_NAME
+
+
+@dataclass
+class RunSpec:
+    """The files that make one run."""
+
+    run_id: str
+    backward: Path | None = None
+    forward: Path | None = None
+    joined: Path | None = None
+
+    @property
+    def files(self) -> list[Path]:
+        return [p for p in (self.backward, self.forward, self.joined) if p is not None]
+
+
+@dataclass
+class SetPlan:
+    root: Path
+    layout: SetLayout
+    runs: list[RunSpec]
+    failures: list[LoadFailure] = field(default_factory=list)
+
+
+def _natural_key(text: str):
+    return [int(tok) if tok.isdigit() else tok for tok in re.split(r"(\d+)", text)]
+
+
+def discover(root: str | Path) -> SetPlan:
+    """Find the runs of a set folder without reading them."""
+    root = Path(root).expanduser()
+    if not root.exists():
+        raise SetError(f"{root}: no such folder")
+    if not root.is_dir():
+        raise SetError(f"{root}: not a folder (a set is a folder of run files)")
+    layout = load_layout(root)
+    specs: dict[str, RunSpec] = {}
+    failures: list[LoadFailure] = []
+    for folder in layout.folders:
+        base = (root / folder).resolve()
+        if not base.is_dir():
+            continue
+        for path in sorted(base.iterdir()):
+            if not path.is_file() or path.name.startswith("."):
+                continue
+            hit = layout.role_of(path.name)
+            if hit is None:
+                continue
+            role, run_id = hit
+            spec = specs.setdefault(run_id, RunSpec(run_id))
+            if getattr(spec, role) is not None and getattr(spec, role) != path:
+                failures.append(LoadFailure(path, f"{path}: run {run_id} already has a {role} file "
+                                                  f"({getattr(spec, role).name}); this one is ignored"))
+                continue
+            setattr(spec, role, path)
+    runs = []
+    for run_id in sorted(specs, key=_natural_key):
+        spec = specs[run_id]
+        if spec.joined is not None and (spec.backward or spec.forward):
+            failures.append(LoadFailure(spec.joined, f"{spec.joined}: run {run_id} has both a joined file and "
+                                                     "halves; the halves are used"))
+            spec.joined = None
+        if spec.joined is None and (spec.backward is None) != (spec.forward is None):
+            have = spec.backward or spec.forward
+            missing = "forward" if spec.forward is None else "backward"
+            failures.append(LoadFailure(have, f"{have}: run {run_id} has no {missing} half; the run is left out"))
+            continue
+        runs.append(spec)
+    return SetPlan(root, layout, runs, failures)
+
+
+# --- reading and joining ---------------------------------------------------------------------
+
+def _sha256_file(path: Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for chunk in iter(lambda: fh.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+def _pick(info: dict, candidates) -> np.ndarray | None:
+    for key in candidates:
+        for k in (key, key.lower(), key.upper(), key.capitalize()):
+            if k in info:
+                return np.asarray(info[k], dtype=np.float64)
+    return None
+
+
+@dataclass
+class _Half:
+    numbers: np.ndarray
+    positions: np.ndarray
+    times: np.ndarray | None
+    energies: dict
+    problems: list
+
+
+def _read_half(path: Path, layout: SetLayout) -> _Half:
+    from basinmark.core.io import read_frames
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # partial reads are reported through block.warnings
+        block = read_frames(path, dtype=np.float32)
+    positions = block.positions
+    if layout.length_factor != 1.0:
+        positions = positions * np.float32(layout.length_factor)
+    times = _pick(block.info, layout.keys["time"])
+    if times is not None:
+        if np.isnan(times).any():
+            bad = int(np.flatnonzero(np.isnan(times))[0])
+            raise TrajectoryFileError(path, f"frame {bad + 1} has no time although others do",
+                                      int(block.frame_lines[bad]))
+        times = times * layout.time_factor
+    energies = {}
+    for role in ("potential", "kinetic", "total"):
+        values = _pick(block.info, layout.keys[role])
+        if values is not None:
+            energies[role] = values * layout.energy_factor
+    return _Half(block.numbers, positions, times, energies, list(block.warnings))
+
+
+def _half_times(half: _Half, layout: SetLayout, path: Path, backward: bool) -> np.ndarray:
+    n = half.positions.shape[0]
+    if half.times is None:
+        if layout.step_fs is None:
+            half.problems.append(f"{path.name} has no time key; 1 fs per frame assumed "
+                                 "(state [time] step_fs in basinmark-set.toml)")
+            step = 1.0
+        else:
+            step = layout.step_fs
+        t = np.arange(n) * step
+    else:
+        t = half.times - half.times[0]  # elapsed from the transition state
+    if backward:
+        mode = layout.backward_time
+        if mode == "auto":
+            mode = "signed" if (half.times is not None and n > 1 and half.times[-1] < half.times[0]) else "elapsed"
+        t = -np.abs(t) if mode == "elapsed" else t
+        if n > 1 and not np.all(np.diff(t) < 0):
+            raise TrajectoryFileError(path, "backward half: times do not move steadily away from t = 0")
+    elif n > 1 and not np.all(np.diff(t) > 0):
+        bad = int(np.flatnonzero(np.diff(t) <= 0)[0]) + 1
+        raise TrajectoryFileError(path, f"times are not increasing at frame {bad + 1}")
+    return t
+
+
+def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
+    problems: list[str] = []
+    if spec.joined is not None:
+        half = _read_half(spec.joined, layout)
+        times = half.times
+        if times is None:
+            step = layout.step_fs or 1.0
+            if layout.step_fs is None:
+                problems.append(f"{spec.joined.name} has no time key; 1 fs per frame from t = 0 assumed")
+            times = np.arange(half.positions.shape[0]) * step
+        if half.positions.shape[0] > 1 and not np.all(np.diff(times) > 0):
+            raise TrajectoryFileError(spec.joined, "times are not increasing (a joined run must run from "
+                                                   "negative to positive times)")
+        sources = (SourceFile(spec.joined, _sha256_file(spec.joined), "joined"),)
+        return Trajectory(spec.run_id, half.numbers, half.positions, times, half.energies,
+                          sources=sources, problems=problems + half.problems)
+    bwd = _read_half(spec.backward, layout)
+    fwd = _read_half(spec.forward, layout)
+    if not np.array_equal(bwd.numbers, fwd.numbers):
+        if bwd.numbers.size != fwd.numbers.size:
+            why = f"{bwd.numbers.size} atoms in the backward half, {fwd.numbers.size} in the forward half"
+        else:
+            i = int(np.flatnonzero(bwd.numbers != fwd.numbers)[0])
+            why = f"atom {i + 1} is element {bwd.numbers[i]} in the backward half, {fwd.numbers[i]} forward"
+        raise TrajectoryFileError(spec.forward, f"the halves of run {spec.run_id} do not match: {why}")
+    tb = _half_times(bwd, layout, spec.backward, backward=True)
+    tf = _half_times(fwd, layout, spec.forward, backward=False)
+    gap = float(np.max(np.abs(bwd.positions[0] - fwd.positions[0])))
+    if gap > TS_MATCH_TOLERANCE:
+        problems.append(f"the halves start {gap:.3g} Å apart (not the same transition-state point)")
+    positions = np.concatenate([bwd.positions[:0:-1], fwd.positions])
+    times = np.concatenate([tb[:0:-1], tf])
+    energies = {}
+    for key in set(bwd.energies) & set(fwd.energies):
+        energies[key] = np.concatenate([bwd.energies[key][:0:-1], fwd.energies[key]])
+    sources = (SourceFile(spec.backward, _sha256_file(spec.backward), "backward"),
+               SourceFile(spec.forward, _sha256_file(spec.forward), "forward"))
+    return Trajectory(spec.run_id, bwd.numbers, positions, times, energies, sources=sources,
+                      problems=problems + bwd.problems + fwd.problems)
+
+
+# --- cache -------------------------------------------------------------------------------------
+
+class RunCache:
+    """Joined runs as ``.npz`` files named by a hash of their sources and of the set layout.
+
+    The cache folder is safe to delete at any time.  When the set folder is not writable the
+    cache lives under ``$XDG_CACHE_HOME/basinmark`` (``~/.cache/basinmark``).
+    """
+
+    def __init__(self, root: Path, layout: SetLayout):
+        self.layout = layout
+        self.folder = root / CACHE_NAME
+        if not os.access(root, os.W_OK):
+            base = Path(os.environ.get("XDG_CACHE_HOME", Path.home() / ".cache"))
+            self.folder = base / "basinmark" / hashlib.sha256(str(root.resolve()).encode()).hexdigest()[:16]
+
+    def key(self, spec: RunSpec, hashes: list[tuple[str, str]]) -> str:
+        h = hashlib.sha256(f"{CACHE_VERSION}\n{self.layout.fingerprint}\n{spec.run_id}\n".encode())
+        for role, sha in hashes:
+            h.update(f"{role}:{sha}\n".encode())
+        return h.hexdigest()
+
+    def load(self, spec: RunSpec) -> Trajectory | None:
+        roles = [(r, getattr(spec, r)) for r in ("backward", "forward", "joined") if getattr(spec, r)]
+        hashes = [(r, _sha256_file(p)) for r, p in roles]
+        path = self.folder / f"{self.key(spec, hashes)}.npz"
+        if not path.exists():
+            return None
+        try:
+            with np.load(path, allow_pickle=False) as z:
+                energies = {k[7:]: z[k] for k in z.files if k.startswith("energy_")}
+                problems = [str(p) for p in z["problems"]] if "problems" in z.files else []
+                return Trajectory(spec.run_id, z["numbers"], z["positions"], z["times"], energies,
+                                  sources=tuple(SourceFile(p, sha, r) for (r, sha), (_, p) in zip(hashes, roles)),
+                                  problems=problems)
+        except Exception:  # a damaged cache entry is simply rebuilt
+            return None
+
+    def store(self, spec: RunSpec, traj: Trajectory) -> None:
+        hashes = [(s.role, s.sha256) for s in traj.sources]
+        try:
+            self.folder.mkdir(parents=True, exist_ok=True)
+            arrays = {"numbers": traj.numbers, "positions": traj.positions, "times": traj.times,
+                      "problems": np.array(traj.problems, dtype=str)}
+            arrays.update({f"energy_{k}": v for k, v in traj.energies.items()})
+            fd, tmp = tempfile.mkstemp(dir=self.folder, suffix=".tmp")
+            with os.fdopen(fd, "wb") as fh:
+                np.savez(fh, **arrays)
+            os.replace(tmp, self.folder / f"{self.key(spec, hashes)}.npz")
+        except OSError:
+            pass  # no cache is no failure
+
+
+# --- the public entry points -------------------------------------------------------------------
+
+def _load_one(spec: RunSpec, layout: SetLayout, cache: RunCache | None) -> Trajectory:
+    if cache is not None:
+        hit = cache.load(spec)
+        if hit is not None:
+            return hit
+    traj = _join(spec, layout)
+    if cache is not None:
+        cache.store(spec, traj)
+    return traj
+
+
+def _failure(spec: RunSpec, exc: Exception) -> LoadFailure:
+    if isinstance(exc, TrajectoryFileError):
+        return LoadFailure(exc.path, str(exc), exc.line)
+    path = spec.files[0] if spec.files else Path(spec.run_id)
+    if isinstance(exc, BasinmarkError):
+        return LoadFailure(path, f"{path}: {exc}")
+    return LoadFailure(path, f"{path}: could not be read ({type(exc).__name__}: {exc})")
+
+
+def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = None,
+              cancel: Callable[[], bool] | None = None) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure]]:
+    """Load the runs of a plan in parallel, yielding each as soon as it is ready (any order)."""
+    cache = RunCache(plan.root, plan.layout) if use_cache else None
+    workers = workers or min(8, (os.cpu_count() or 2) + 2)
+    stop = threading.Event()
+    with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="basinmark-load") as pool:
+        futures = {pool.submit(_load_one, spec, plan.layout, cache): spec for spec in plan.runs}
+        try:
+            for fut in as_completed(futures):
+                spec = futures[fut]
+                try:
+                    yield spec, fut.result()
+                except Exception as exc:  # collected, never fatal for the set
+                    yield spec, _failure(spec, exc)
+                if cancel is not None and cancel():
+                    stop.set()
+                    break
+        finally:
+            for fut in futures:
+                fut.cancel()
+
+
+def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: bool = True,
+             workers: int | None = None, cancel: Callable[[], bool] | None = None,
+             on_run: Callable[[Trajectory], None] | None = None) -> TrajectorySet:
+    """Open a set folder: every run that loads, plus a list of what failed and why.
+
+    ``progress(done, total, run_id)`` is called after each run; ``cancel()`` returning True
+    stops loading (the set then holds what was loaded, and says so in ``warnings``);
+    ``on_run(traj)`` sees each run as soon as it is ready.
+    """
+    plan = discover(path)
+    total = len(plan.runs)
+    loaded: dict[str, Trajectory] = {}
+    failures = list(plan.failures)
+    done = 0
+    if progress:
+        progress(0, total, None)
+    for spec, result in iter_runs(plan, use_cache=use_cache, workers=workers, cancel=cancel):
+        done += 1
+        if isinstance(result, LoadFailure):
+            failures.append(result)
+        else:
+            loaded[spec.run_id] = result
+            if on_run:
+                on_run(result)
+        if progress:
+            progress(done, total, spec.run_id)
+    order = {spec.run_id: i for i, spec in enumerate(plan.runs)}
+    runs = {rid: loaded[rid] for rid in sorted(loaded, key=order.__getitem__)}
+    tset = TrajectorySet(plan.root, runs, failures, metadata={"name": plan.layout.name})
+    if done < total:
+        tset.warnings.append(f"loading was cancelled after {done} of {total} runs")
+    if total == 0:
+        tset.warnings.append(f"{plan.root}: no run files found (expected names like run-0001.bwd.xyz.gz and "
+                             "run-0001.fwd.xyz.gz, or joined run-0001.xyz; see basinmark-set.toml to change this)")
+    return tset
