@@ -1,0 +1,95 @@
+"""The on-disk form of label journal events: canonical JSON, event hashes, times, the head file.
+
+One event per line.  An event's ``hash`` is the SHA-256 (FIPS 180-4) of its canonical
+serialisation with the ``hash`` field left out: keys sorted, no whitespace, ASCII only
+(``json.dumps(..., sort_keys=True, separators=(",", ":"), ensure_ascii=True)``).  The line
+written to the file is the canonical serialisation of the whole event (``hash`` included),
+so any change of a byte in a line is visible either as a different hash or as a line that is
+not in canonical form.  Each event carries the previous event's hash in ``prev``.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+from datetime import datetime, timezone
+from pathlib import Path
+
+from basinmark.core.errors import BasinmarkError
+
+SCHEMA_VERSION = 1
+HEADER_KIND = "header"
+KINDS = ("header", "label", "undo", "lock_broken", "review_complete")
+
+
+class JournalError(BasinmarkError):
+    """The label journal cannot be opened, read or written as asked."""
+
+
+def canonical(obj: dict) -> str:
+    """The canonical serialisation: sorted keys, no whitespace, ASCII only."""
+    return json.dumps(obj, sort_keys=True, separators=(",", ":"), ensure_ascii=True, allow_nan=False)
+
+
+def event_hash(event: dict) -> str:
+    """SHA-256 hex digest of the canonical serialisation of ``event`` without its ``hash`` field."""
+    body = {k: v for k, v in event.items() if k != "hash"}
+    return hashlib.sha256(canonical(body).encode("ascii")).hexdigest()
+
+
+def seal(event: dict) -> str:
+    """Set ``event['hash']`` and return the line to write (canonical, with a trailing newline)."""
+    event.pop("hash", None)
+    event["hash"] = event_hash(event)
+    return canonical(event) + "\n"
+
+
+def utc_now() -> str:
+    """The current UTC time in RFC 3339 form with milliseconds and ``Z``."""
+    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%f")[:-3] + "Z"
+
+
+def utc_stamp() -> str:
+    """A compact UTC time usable in a file name (``20260102T030405.123456Z``)."""
+    return datetime.now(timezone.utc).strftime("%Y%m%dT%H%M%S.%fZ")
+
+
+# --- the head file: the last event's seq and hash, kept beside the journal ----------------------
+# A hash chain on its own cannot show that events were cut from its end; the head file
+# records the last event written so that verify can.  It is replaced atomically after each
+# write.  A crash between the journal's fsync and the head update leaves the head one write
+# behind, which verify accepts (and the next writer brings up to date).
+
+def head_path(journal: str | Path) -> Path:
+    return Path(str(journal) + ".head")
+
+
+def write_head(journal: str | Path, seq: int, digest: str) -> None:
+    path = head_path(journal)
+    tmp = Path(f"{path}.tmp-{os.getpid()}")
+    data = canonical({"seq": seq, "hash": digest}) + "\n"
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
+    try:
+        os.write(fd, data.encode("ascii"))
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+    os.replace(tmp, path)
+
+
+def read_head(journal: str | Path) -> tuple[int, str] | None:
+    """The (seq, hash) in the head file, or None when it is missing or unreadable."""
+    try:
+        obj = json.loads(head_path(journal).read_text(encoding="ascii"))
+        return int(obj["seq"]), str(obj["hash"])
+    except (OSError, ValueError, KeyError, TypeError, UnicodeDecodeError):
+        return None
+
+
+def split_lines(data: bytes) -> tuple[list[bytes], bytes]:
+    """Complete lines (without their newline) and the torn tail after the last newline (maybe b"")."""
+    cut = data.rfind(b"\n") + 1
+    body, tail = data[:cut], data[cut:]
+    lines = body.split(b"\n")[:-1] if body else []
+    return lines, tail

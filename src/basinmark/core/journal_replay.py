@@ -1,0 +1,123 @@
+"""Replay of label journal events into current labels (no file access here).
+
+Each run keeps a stack of its effective label events.  A label event pushes onto the stack,
+an undo pops the latest one.  The automatic label is the latest ``rule`` event on the stack,
+the hand label the latest ``hand``/``import``/``review`` event, and the final label is the
+hand label if there is one, else the automatic one.
+"""
+
+from __future__ import annotations
+
+from typing import Mapping
+
+import pandas as pd
+
+from basinmark.core.labels import HAND_SOURCES
+
+STATE_COLUMNS = ["run", "auto_label", "hand_label", "final_label", "labeler", "time", "reason", "events",
+                 "data_changed"]
+HISTORY_COLUMNS = ["seq", "time", "kind", "source", "labeler", "label", "replaces", "reason", "content_hash",
+                   "undoes"]
+SIDE_COLUMNS = ["run", "label", "labeler", "reason", "time", "content_hash"]
+
+
+class Replay:
+    """Current labels built from events applied in order."""
+
+    def __init__(self) -> None:
+        self.stacks: dict[str, list[dict]] = {}
+        self.counts: dict[str, int] = {}
+        self.events: list[dict] = []
+
+    # --- applying events -----------------------------------------------------------------
+    def apply(self, event: dict) -> None:
+        self.events.append(event)
+        kind = event.get("kind")
+        run = event.get("run")
+        if kind == "label" and isinstance(run, str):
+            self.stacks.setdefault(run, []).append(event)
+            self.counts[run] = self.counts.get(run, 0) + 1
+        elif kind == "undo" and isinstance(run, str):
+            stack = self.stacks.setdefault(run, [])
+            if stack:
+                stack.pop()
+            self.counts[run] = self.counts.get(run, 0) + 1
+
+    # --- queries ---------------------------------------------------------------------------
+    @staticmethod
+    def _latest(stack: list[dict], hand: bool) -> dict | None:
+        for ev in reversed(stack):
+            if (ev.get("source") in HAND_SOURCES) == hand:
+                return ev
+        return None
+
+    def auto_event(self, run: str) -> dict | None:
+        return self._latest(self.stacks.get(run, []), hand=False)
+
+    def hand_event(self, run: str) -> dict | None:
+        return self._latest(self.stacks.get(run, []), hand=True)
+
+    def final_event(self, run: str) -> dict | None:
+        return self.hand_event(run) or self.auto_event(run)
+
+    def top_event(self, run: str) -> dict | None:
+        stack = self.stacks.get(run)
+        return stack[-1] if stack else None
+
+    def track_label(self, run: str, source: str) -> str | None:
+        """The label a new event of ``source`` replaces: the latest one of the same kind (hand or automatic)."""
+        ev = self._latest(self.stacks.get(run, []), hand=source in HAND_SOURCES)
+        return None if ev is None else ev["label"]
+
+    def final_label(self, run: str) -> str | None:
+        ev = self.final_event(run)
+        return None if ev is None else ev["label"]
+
+    def state(self, current_hashes: Mapping[str, str] | None = None) -> pd.DataFrame:
+        rows = []
+        for run, stack in self.stacks.items():
+            auto = self._latest(stack, hand=False)
+            hand = self._latest(stack, hand=True)
+            final = hand or auto
+            changed = None
+            if current_hashes is not None and final is not None and run in current_hashes:
+                changed = final.get("content_hash") != current_hashes[run]
+            rows.append((run, auto and auto["label"], hand and hand["label"], final and final["label"],
+                         final and final.get("labeler"), final and final.get("time"),
+                         final and final.get("reason", ""), self.counts.get(run, 0), changed))
+        df = pd.DataFrame(rows, columns=STATE_COLUMNS)
+        df["events"] = df["events"].astype("int64")
+        df["data_changed"] = df["data_changed"].astype("boolean")
+        return df
+
+    def history(self, run: str) -> pd.DataFrame:
+        rows = [[ev.get(c) for c in HISTORY_COLUMNS] for ev in self.events
+                if ev.get("run") == run and ev.get("kind") in ("label", "undo")]
+        df = pd.DataFrame(rows, columns=HISTORY_COLUMNS)
+        df["seq"] = df["seq"].astype("int64")
+        df["undoes"] = df["undoes"].astype("Int64")
+        return df
+
+    def side(self, which: str) -> pd.DataFrame:
+        """One label per run: ``final``, ``auto``, ``hand``, or the latest by a named labeler."""
+        rows = []
+        for run, stack in self.stacks.items():
+            if which == "final":
+                ev = self._latest(stack, True) or self._latest(stack, False)
+            elif which == "auto":
+                ev = self._latest(stack, False)
+            elif which == "hand":
+                ev = self._latest(stack, True)
+            else:
+                ev = next((e for e in reversed(stack) if e.get("labeler") == which), None)
+            if ev is not None:
+                rows.append([run, ev["label"], ev.get("labeler"), ev.get("reason", ""), ev.get("time"),
+                             ev.get("content_hash")])
+        return pd.DataFrame(rows, columns=SIDE_COLUMNS).set_index("run", drop=False)
+
+    def labelers(self) -> list[str]:
+        seen: dict[str, None] = {}
+        for ev in self.events:
+            if ev.get("kind") == "label" and ev.get("labeler"):
+                seen.setdefault(ev["labeler"], None)
+        return list(seen)
