@@ -1,0 +1,327 @@
+"""Automatic classification: per-frame basin track, commitment with dwell, outcome and flags.
+
+Definitions (all times in fs, t = 0 at the transition state):
+
+* basin track: for each frame, the basin whose conditions all hold (index into
+  ``rules.basin_names``), -1 when none holds *or when several hold at once* (such frames are
+  reported as conflicting and never count towards a commitment);
+* a half is the frames from the TS to one end: forward = t >= 0 to the last frame, backward =
+  t <= 0 back to the first frame;
+* the committed basin at an end is the basin the half's last frame is in, provided the half has
+  stayed in it without a break for at least ``dwell_fs`` (time of the end frame minus time of the
+  first frame of that final stay, inclusive comparison within 1e-6 fs); else None;
+* the commit time is when that final stay began (if the run left and came back, the later entry);
+  forward commit times are positive, backward ones negative (the run's time axis);
+* outcome: an end with no commitment -> "unfinished"; the end frame in two basins -> "ambiguous";
+  both ends in the same basin -> "recrossing"; reactant at one end and a product at the other ->
+  that product's name; two different products -> "ambiguous".
+
+Flags: ``late_commit`` (a commit further than ``late_commit_fs`` from t = 0, either half),
+``several_visits`` (a half enters basins more than once, counting each unbroken stay), ``conflicting_basins``,
+``energy_drift`` (drift of the total energy above ``max_energy_drift``), ``short_run`` (a half shorter than
+``min_length_fs``); ``data_changed`` is added by callers that compare content hashes.
+
+Everything is a deterministic function of (positions, times, energies, rules); the work is vectorised
+over all frames of all runs at once, with only the monitor evaluation looping over runs.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable, Iterable
+
+import numpy as np
+import pandas as pd
+
+from basinmark.core.geometry import monitor_arrays
+from basinmark.core.rules import Rules, RulesError
+from basinmark.core.timing import _TOL_FS, formation_pair
+
+FLAG_NAMES = ("late_commit", "several_visits", "conflicting_basins", "energy_drift", "short_run", "data_changed")
+TABLE_COLUMNS = ["run", "outcome", "backward_basin", "forward_basin", "commit_time_fs", "backward_commit_time_fs",
+                 "flags", "time_gap_fs", "content_hash"]
+
+
+@dataclass
+class RunResult:
+    """The classification of one run."""
+
+    run_id: str
+    outcome: str
+    backward_basin: str | None
+    forward_basin: str | None
+    commit_time_fs: float | None  # forward commit time (> = 0)
+    backward_commit_time_fs: float | None  # backward commit time (<= 0, run time axis)
+    flags: list[str]
+    basin_track: np.ndarray  # (F,) int16: -1 none (or conflict), else index into rules.basin_names
+    monitors: dict[str, np.ndarray]  # name -> (F,) values (Å or degrees)
+    conflict: np.ndarray = field(default_factory=lambda: np.zeros(0, bool))  # (F,) frames in two basins
+    time_gap_fs: float | None = None
+    content_hash: str = ""
+
+
+@dataclass
+class Prepared:
+    """Monitors of many runs stacked end to end, computed once and reused across rule changes."""
+
+    run_ids: list[str]
+    content_hashes: list[str]
+    starts: np.ndarray  # (R,) first index of each run
+    ends: np.ndarray  # (R,) one past the last index
+    ts: np.ndarray  # (R,) absolute index of each run's TS frame
+    times: np.ndarray  # (T,) fs
+    monitors: dict[str, np.ndarray]  # name -> (T,)
+    drift_ev: np.ndarray  # (R,) NaN where a run has no energies
+
+    def run_slice(self, r: int) -> slice:
+        return slice(int(self.starts[r]), int(self.ends[r]))
+
+
+@dataclass
+class Classified:
+    """Per-run results of :func:`classify_prepared` as parallel arrays/lists."""
+
+    outcome: list[str]
+    backward_basin: list[str | None]
+    forward_basin: list[str | None]
+    commit_time_fs: np.ndarray
+    backward_commit_time_fs: np.ndarray
+    flags: list[list[str]]
+    track: np.ndarray  # (T,)
+    conflict: np.ndarray  # (T,)
+    time_gap_fs: np.ndarray
+
+
+def _trajectories(tset) -> list:
+    return list(tset.runs.values()) if hasattr(tset, "runs") else list(tset)
+
+
+def prepare(tset, rules: Rules, progress: Callable[[int, int, str | None], None] | None = None) -> Prepared:
+    """Evaluate the rules' monitors for every run (a TrajectorySet or an iterable of Trajectory)."""
+    trajs = _trajectories(tset)
+    idx = rules.monitor_indices()
+    need = max((max(i) for i in idx.values()), default=-1) + 1
+    mons: dict[str, list[np.ndarray]] = {m: [] for m in idx}
+    lengths, ts, drift, times = [], [], [], []
+    total = len(trajs)
+    for k, t in enumerate(trajs):
+        if t.n_atoms < need:
+            raise RulesError(rules.source, f"run {t.run_id} has {t.n_atoms} atoms but the monitors use atom "
+                             f"{need}", key="monitors")
+        for name, values in monitor_arrays(t.positions, idx).items():
+            mons[name].append(values)
+        lengths.append(t.n_frames)
+        ts.append(t.ts_index)
+        times.append(t.times)
+        d = t.energy_drift()
+        drift.append(np.nan if d is None else d)
+        if progress is not None:
+            progress(k + 1, total, t.run_id)
+    lengths_a = np.asarray(lengths, dtype=np.intp)
+    ends = np.cumsum(lengths_a)
+    starts = ends - lengths_a
+    cat = (lambda parts: np.concatenate(parts) if parts else np.zeros(0))
+    return Prepared(
+        run_ids=[t.run_id for t in trajs],
+        content_hashes=[t.content_hash for t in trajs],
+        starts=starts, ends=ends, ts=starts + np.asarray(ts, dtype=np.intp),
+        times=cat(times).astype(np.float64),
+        monitors={m: cat(v).astype(np.float64) for m, v in mons.items()},
+        drift_ev=np.asarray(drift, dtype=np.float64),
+    )
+
+
+def basin_membership(monitors: dict[str, np.ndarray], rules: Rules) -> tuple[np.ndarray, np.ndarray]:
+    """``(track, conflict)`` for every frame: track int16 (-1 none or several), conflict bool."""
+    n = next(iter(monitors.values())).shape[0] if monitors else 0
+    count = np.zeros(n, dtype=np.int16)
+    track = np.full(n, -1, dtype=np.int16)
+    for b, basin in enumerate(rules.basins.values()):
+        inside = np.ones(n, dtype=bool)
+        for c in basin.conditions:
+            inside &= c.holds(monitors[c.monitor])
+        count += inside
+        track[inside] = b
+    conflict = count > 1
+    track[conflict] = -1
+    return track, conflict
+
+
+def classify_prepared(prep: Prepared, rules: Rules, with_gap: bool = True) -> Classified:
+    """Classify prepared runs with ``rules`` (whose monitors must match those of ``prepare``)."""
+    track, conflict = basin_membership(prep.monitors, rules)
+    t = prep.times
+    n = track.size
+    r = prep.starts.size
+    names = rules.basin_names
+    if r == 0:
+        e = np.zeros(0)
+        return Classified([], [], [], e, e, [], track, conflict, e)
+    idx = np.arange(n)
+    first = np.zeros(n, dtype=bool)
+    first[prep.starts] = True
+    last = np.zeros(n, dtype=bool)
+    last[prep.ends - 1] = True
+    seg_start = first.copy()
+    seg_start[1:] |= track[1:] != track[:-1]
+    seg_end = last.copy()
+    seg_end[:-1] |= track[:-1] != track[1:]
+    s_of = np.maximum.accumulate(np.where(seg_start, idx, 0))
+    e_of = np.minimum.accumulate(np.where(seg_end, idx, n - 1)[::-1])[::-1]
+
+    ts, b0, e1 = prep.ts, prep.starts, prep.ends - 1
+    # forward end: last frame e1, final stay began at max(stretch start, ts)
+    f_entry = np.maximum(s_of[e1], ts)
+    f_basin = track[e1].astype(np.intp)
+    f_ok = (f_basin >= 0) & (t[e1] - t[f_entry] >= rules.dwell_fs - _TOL_FS)
+    # backward end: first frame b0, final stay (in reversed time) began at min(stretch end, ts)
+    b_entry = np.minimum(e_of[b0], ts)
+    b_basin = track[b0].astype(np.intp)
+    b_ok = (b_basin >= 0) & (t[b_entry] - t[b0] >= rules.dwell_fs - _TOL_FS)
+
+    inb = track >= 0
+    c_start = np.concatenate([[0], np.cumsum(seg_start & inb)])
+    c_end = np.concatenate([[0], np.cumsum(seg_end & inb)])
+    at_ts = inb[ts].astype(np.intp)
+    f_visits = c_start[e1 + 1] - c_start[ts + 1] + at_ts
+    b_visits = c_end[ts] - c_end[b0] + at_ts
+    c_conf = np.concatenate([[0], np.cumsum(conflict)])
+    any_conf = (c_conf[prep.ends] - c_conf[prep.starts]) > 0
+    end_conf = conflict[e1] | conflict[b0]
+
+    fl = rules.flags
+    f_commit = np.where(f_ok, t[f_entry], np.nan)
+    b_commit = np.where(b_ok, t[b_entry], np.nan)
+    late = np.zeros(r, dtype=bool)
+    if fl.late_commit_fs is not None:
+        with np.errstate(invalid="ignore"):
+            late = (np.abs(f_commit) > fl.late_commit_fs) | (np.abs(b_commit) > fl.late_commit_fs)
+    drift = np.zeros(r, dtype=bool)
+    if fl.max_energy_drift_ev is not None:
+        with np.errstate(invalid="ignore"):
+            drift = prep.drift_ev > fl.max_energy_drift_ev
+    short = np.zeros(r, dtype=bool)
+    if fl.min_length_fs is not None:
+        short = ((t[e1] - t[ts]) < fl.min_length_fs - _TOL_FS) | ((t[ts] - t[b0]) < fl.min_length_fs - _TOL_FS)
+    several = (f_visits > 1) | (b_visits > 1)
+
+    fwd_name = [names[k] if ok else None for k, ok in zip(f_basin, f_ok)]
+    bwd_name = [names[k] if ok else None for k, ok in zip(b_basin, b_ok)]
+    products = set(rules.products)
+    outcome = []
+    for bw, fw, ec in zip(bwd_name, fwd_name, end_conf):
+        if ec:
+            outcome.append("ambiguous")
+        elif bw is None or fw is None:
+            outcome.append("unfinished")
+        elif bw == fw:
+            outcome.append("recrossing")
+        elif bw == rules.reactant and fw in products:
+            outcome.append(fw)
+        elif fw == rules.reactant and bw in products:
+            outcome.append(bw)
+        else:
+            outcome.append("ambiguous")
+    columns = [(late, "late_commit"), (several, "several_visits"), (any_conf, "conflicting_basins"),
+               (drift, "energy_drift"), (short, "short_run")]
+    flags = [[name for arr, name in columns if arr[k]] for k in range(r)]
+
+    gap = np.full(r, np.nan)
+    if with_gap and rules.time_gap is not None:
+        res = Classified(outcome, bwd_name, fwd_name, f_commit, b_commit, flags, track, conflict, gap)
+        t1, t2, _ = formation_pair(prep, res, rules)
+        gap = np.abs(t2 - t1)
+    return Classified(outcome, bwd_name, fwd_name, f_commit, b_commit, flags, track, conflict, gap)
+
+
+def _opt(x: float) -> float | None:
+    return None if not np.isfinite(x) else float(x)
+
+
+def classify_run(traj, rules: Rules) -> RunResult:
+    """Classify one run (see the module docstring for the definitions)."""
+    prep = prepare([traj], rules)
+    res = classify_prepared(prep, rules)
+    return RunResult(
+        run_id=traj.run_id, outcome=res.outcome[0], backward_basin=res.backward_basin[0],
+        forward_basin=res.forward_basin[0], commit_time_fs=_opt(res.commit_time_fs[0]),
+        backward_commit_time_fs=_opt(res.backward_commit_time_fs[0]), flags=res.flags[0],
+        basin_track=res.track, monitors=prep.monitors, conflict=res.conflict,
+        time_gap_fs=_opt(res.time_gap_fs[0]), content_hash=prep.content_hashes[0],
+    )
+
+
+def results_table(prep: Prepared, res: Classified, rules: Rules) -> pd.DataFrame:
+    """The per-run DataFrame of :func:`classify_set` from prepared runs and their results."""
+    df = pd.DataFrame({
+        "run": prep.run_ids,
+        "outcome": res.outcome,
+        "backward_basin": res.backward_basin,
+        "forward_basin": res.forward_basin,
+        "commit_time_fs": res.commit_time_fs,
+        "backward_commit_time_fs": res.backward_commit_time_fs,
+        "flags": [";".join(f) for f in res.flags],
+        "time_gap_fs": res.time_gap_fs,
+        "content_hash": prep.content_hashes,
+    }, columns=TABLE_COLUMNS)
+    df.attrs["rules_sha256"] = rules.sha256
+    df.attrs["notes"] = classification_notes(prep, rules)
+    return df
+
+
+def classification_notes(prep: Prepared, rules: Rules) -> list[str]:
+    """Plain sentences about checks that could not be made."""
+    notes = []
+    missing = int(np.isnan(prep.drift_ev).sum())
+    if rules.flags.max_energy_drift is not None and missing:
+        notes.append(f"{missing} of {len(prep.run_ids)} runs carry no total energy: their energy drift was "
+                     f"not checked.")
+    return notes
+
+
+def classify_set(tset, rules: Rules, progress: Callable[[int, int, str | None], None] | None = None) -> pd.DataFrame:
+    """Classify every run of a set; one row per run with the columns :data:`TABLE_COLUMNS`.
+
+    ``df.attrs["rules_sha256"]`` is the rules hash; ``df.attrs["notes"]`` lists checks not made.
+    """
+    prep = prepare(tset, rules, progress=progress)
+    return results_table(prep, classify_prepared(prep, rules), rules)
+
+
+def mark_changed(table: pd.DataFrame, current_hashes: dict[str, str]) -> pd.DataFrame:
+    """Copy of ``table`` with ``data_changed`` added to the flags of runs whose hash differs from ``current_hashes``."""
+    out = table.copy()
+    changed = [current_hashes.get(r, h) != h for r, h in zip(out["run"], out["content_hash"])]
+    out["flags"] = [";".join([f for f in fl.split(";") if f] + ["data_changed"]) if c else fl
+                    for fl, c in zip(out["flags"], changed)]
+    return out
+
+
+def write_automatic_labels(journal, table: pd.DataFrame, rules: Rules) -> int:
+    """Write every run's outcome into the journal as one batch with source "rule"; returns events written."""
+    import basinmark
+
+    entries = []
+    for row in table.itertuples(index=False):
+        reason = f"flags: {row.flags.replace(';', ', ')}" if row.flags else ""
+        entries.append({"run_id": row.run, "label": row.outcome, "content_hash": row.content_hash, "reason": reason})
+    if not entries:
+        return 0
+    written = journal.record_batch(entries, source="rule", rules_hash=rules.sha256,
+                                   tool_version=basinmark.__version__)
+    return len(written)
+
+
+def outcome_counts(table: pd.DataFrame, rules: Rules) -> pd.DataFrame:
+    """Counts per outcome in a stable order (products, recrossing, unfinished, ambiguous), zeros included."""
+    order = rules.outcome_labels + ["ambiguous"]
+    counts = table["outcome"].value_counts()
+    order += [o for o in counts.index if o not in order]
+    return pd.DataFrame({"outcome": order, "count": [int(counts.get(o, 0)) for o in order]})
+
+
+def iter_flagged(table: pd.DataFrame) -> Iterable[tuple[str, str, str]]:
+    """(run, outcome, flags) of the runs with at least one flag."""
+    for row in table.itertuples(index=False):
+        if row.flags:
+            yield row.run, row.outcome, row.flags

@@ -1,0 +1,607 @@
+"""The rules file (TOML): monitors, basins, dwell, flag limits and the time-gap setting.
+
+The file is read with :mod:`tomllib` only; nothing in it is ever evaluated as code.
+Atom numbers in the file are **1-based**; :attr:`Monitor.indices` gives the 0-based
+indices the geometry code uses.  See docs/rules-file.md for the reference.
+
+Condition semantics (per monitor value v): ``below = x`` is v < x, ``above = x`` is
+v > x, ``between = [lo, hi]`` is lo <= v <= hi.  All conditions of a basin must hold.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any, Mapping
+
+import numpy as np
+
+from basinmark.core.errors import BasinmarkError
+from basinmark.core.units import ENERGY_UNITS
+
+#: outcome names the classifier and the journal reserve; must match core.labels.FIXED_LABELS
+RESERVED_LABELS = ("recrossing", "unfinished", "ambiguous", "excluded")
+MONITOR_KINDS = {2: "distance", 3: "angle", 4: "dihedral"}
+MONITOR_UNITS = {"distance": "Å", "angle": "deg", "dihedral": "deg"}
+#: values a monitor can take: (lo, lo_closed, hi, hi_closed)
+_DOMAINS = {
+    "distance": (0.0, True, math.inf, False),
+    "angle": (0.0, True, 180.0, True),
+    "dihedral": (-180.0, False, 180.0, True),
+}
+BOUNDS = ("below", "above")
+DEFAULT_MAX_DRIFT = 1.0  # kcal/mol over a run; common practice, no source
+DEFAULT_CONCERTED_FS = 60.0  # common practice in the dynamics literature, from memory
+
+_TOP_KEYS = {"name", "reactant", "dwell_fs", "allow_overlap", "monitors", "basins", "flags", "time_gap"}
+_FLAG_KEYS = {"late_commit_fs", "max_energy_drift", "energy_unit", "min_length_fs"}
+_GAP_KEYS = {"bonds", "form_below", "concerted_fs"}
+
+
+class RulesError(BasinmarkError):
+    """A rules file is unusable: names the file, the TOML key path (and the line when known)."""
+
+    def __init__(self, source: str | Path, problem: str, key: str | None = None, line: int | None = None):
+        self.source = str(source)
+        self.key = key
+        self.line = line
+        self.problem = problem
+        where = self.source
+        if line is not None:
+            where += f", line {line}"
+        if key:
+            where += f", key {key}"
+        super().__init__(f"{where}: {problem}")
+
+
+# --- the model --------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Monitor:
+    """A distance (2 atoms, Å), angle (3, deg) or dihedral (4, deg) by **1-based** atom numbers."""
+
+    name: str
+    atoms: tuple[int, ...]
+
+    @property
+    def kind(self) -> str:
+        return MONITOR_KINDS[len(self.atoms)]
+
+    @property
+    def unit(self) -> str:
+        return MONITOR_UNITS[self.kind]
+
+    @property
+    def indices(self) -> tuple[int, ...]:
+        """0-based atom indices."""
+        return tuple(a - 1 for a in self.atoms)
+
+    def label(self) -> str:
+        return f"{self.name} ({'-'.join(map(str, self.atoms))})"
+
+
+@dataclass(frozen=True)
+class Condition:
+    """One condition on one monitor: ``below`` (v < hi), ``above`` (v > lo) or ``between`` (lo <= v <= hi)."""
+
+    monitor: str
+    kind: str
+    lo: float | None = None
+    hi: float | None = None
+
+    def holds(self, values: np.ndarray) -> np.ndarray:
+        v = np.asarray(values)
+        if self.kind == "below":
+            return v < self.hi
+        if self.kind == "above":
+            return v > self.lo
+        return (v >= self.lo) & (v <= self.hi)
+
+    def interval(self) -> tuple[float, bool, float, bool]:
+        """(lo, lo_closed, hi, hi_closed)."""
+        if self.kind == "below":
+            return (-math.inf, False, self.hi, False)
+        if self.kind == "above":
+            return (self.lo, False, math.inf, False)
+        return (self.lo, True, self.hi, True)
+
+    def describe(self) -> str:
+        if self.kind == "below":
+            return f"{self.monitor} < {self.hi:g}"
+        if self.kind == "above":
+            return f"{self.monitor} > {self.lo:g}"
+        return f"{self.lo:g} <= {self.monitor} <= {self.hi:g}"
+
+    def toml_value(self) -> str:
+        if self.kind == "below":
+            return f"{{ below = {_num(self.hi)} }}"
+        if self.kind == "above":
+            return f"{{ above = {_num(self.lo)} }}"
+        return f"{{ between = [{_num(self.lo)}, {_num(self.hi)}] }}"
+
+
+@dataclass(frozen=True)
+class Basin:
+    name: str
+    conditions: tuple[Condition, ...]
+
+    def condition(self, monitor: str) -> Condition | None:
+        return next((c for c in self.conditions if c.monitor == monitor), None)
+
+    def describe(self) -> str:
+        return " and ".join(c.describe() for c in self.conditions)
+
+
+@dataclass(frozen=True)
+class FlagLimits:
+    """Limits beyond which a run is flagged; None switches a check off."""
+
+    late_commit_fs: float | None = None
+    max_energy_drift: float | None = DEFAULT_MAX_DRIFT
+    energy_unit: str = "kcal/mol"
+    min_length_fs: float | None = None
+
+    @property
+    def max_energy_drift_ev(self) -> float | None:
+        if self.max_energy_drift is None:
+            return None
+        return self.max_energy_drift * ENERGY_UNITS[self.energy_unit]
+
+
+@dataclass(frozen=True)
+class TimeGapRule:
+    bonds: tuple[str, str]
+    form_below: float
+    concerted_fs: float = DEFAULT_CONCERTED_FS
+
+
+@dataclass(frozen=True)
+class Rules:
+    """A validated rules file.  Treat the dicts as read-only; derive changed rules with
+    :meth:`with_threshold` or :func:`dataclasses.replace` + :meth:`validated`."""
+
+    monitors: dict[str, Monitor]
+    basins: dict[str, Basin]
+    reactant: str
+    dwell_fs: float
+    flags: FlagLimits = field(default_factory=FlagLimits)
+    time_gap: TimeGapRule | None = None
+    name: str = ""
+    allow_overlap: bool = False
+    sha256: str = field(default="", compare=False)
+    path: Path | None = field(default=None, compare=False)
+    warnings: tuple[str, ...] = field(default=(), compare=False)
+
+    def __hash__(self) -> int:
+        return hash(self.to_toml())
+
+    @property
+    def basin_names(self) -> list[str]:
+        return list(self.basins)
+
+    @property
+    def products(self) -> list[str]:
+        return [b for b in self.basins if b != self.reactant]
+
+    @property
+    def outcome_labels(self) -> list[str]:
+        return self.products + ["recrossing", "unfinished"]
+
+    @property
+    def source(self) -> str:
+        return str(self.path) if self.path else "<rules>"
+
+    def monitor_indices(self) -> dict[str, tuple[int, ...]]:
+        """``{name: 0-based indices}`` for :func:`basinmark.core.geometry.monitor_arrays`."""
+        return {m.name: m.indices for m in self.monitors.values()}
+
+    # --- checks ------------------------------------------------------------------------------
+    def check_atoms(self, n_atoms: int) -> None:
+        """Raise RulesError when a monitor names an atom beyond ``n_atoms``."""
+        for m in self.monitors.values():
+            for a in m.atoms:
+                if a > n_atoms:
+                    raise RulesError(self.source, f"atom {a} is out of range: the runs have {n_atoms} atoms "
+                                     f"(atoms are numbered from 1)", key=f"monitors.{m.name}")
+
+    def overlaps(self) -> list[str]:
+        """Sentences naming each pair of basins that can hold at once (empty when none)."""
+        out = []
+        names = self.basin_names
+        for a in range(len(names)):
+            for b in range(a + 1, len(names)):
+                region = _shared_region(self.basins[names[a]], self.basins[names[b]], self.monitors)
+                if region is not None:
+                    out.append(f"basins {names[a]!r} and {names[b]!r} can both hold at once, where "
+                               f"{region}; no monitor separates them")
+        return out
+
+    def validated(self) -> "Rules":
+        """Re-check cross-field consistency (overlap, order of bounds); returns self."""
+        _check_semantics(self, self.source)
+        return self
+
+    # --- derivation --------------------------------------------------------------------------
+    def with_threshold(self, basin: str, monitor: str, bound: str, value: float, *, check: bool = True) -> "Rules":
+        """Rules with one bound of one basin's condition set to ``value``.
+
+        ``bound`` is "below" (upper limit) or "above" (lower limit); on a ``between`` condition they move
+        its hi and lo ends.  A basin without a condition on ``monitor`` gains one.  The result has no path
+        and the hash of its canonical TOML text.  ``check=False`` skips the overlap check (sweeps report
+        overlap themselves).
+        """
+        src = self.source
+        key = f"basins.{basin}.{monitor}"
+        if basin not in self.basins:
+            raise RulesError(src, f"no basin {basin!r}; basins are {', '.join(self.basins)}", key=f"basins.{basin}")
+        if monitor not in self.monitors:
+            raise RulesError(src, f"no monitor {monitor!r}; monitors are {', '.join(self.monitors)}", key=key)
+        if bound not in BOUNDS:
+            raise RulesError(src, f"bound must be 'below' or 'above', got {bound!r}", key=key)
+        value = _number(value, src, key)
+        b = self.basins[basin]
+        old = b.condition(monitor)
+        if old is None:
+            new = Condition(monitor, bound, lo=value if bound == "above" else None, hi=value if bound == "below" else None)
+        elif old.kind == "between":
+            new = replace(old, lo=value) if bound == "above" else replace(old, hi=value)
+        elif old.kind != bound:
+            raise RulesError(src, f"this condition is {old.kind!r}, so its {bound!r} bound cannot be set", key=key)
+        else:
+            new = replace(old, lo=value) if bound == "above" else replace(old, hi=value)
+        conds = tuple(new if c.monitor == monitor else c for c in b.conditions)
+        if old is None:
+            conds = conds + (new,)
+        basins = dict(self.basins)
+        basins[basin] = Basin(basin, conds)
+        out = replace(self, basins=basins, path=None, warnings=())
+        text = out.to_toml()
+        out = replace(out, sha256=hashlib.sha256(text.encode("utf-8")).hexdigest())
+        _check_condition(new, self.monitors[monitor], src, key)
+        if check:
+            _check_semantics(out, src)
+        return out
+
+    # --- writing -----------------------------------------------------------------------------
+    def to_toml(self) -> str:
+        """The rules as TOML text that :func:`parse_rules` reads back to equal rules.
+
+        Written here (a small fixed subset of TOML) because no TOML writer ships with Python.
+        """
+        lines = []
+        if self.name:
+            lines.append(f"name = {_str(self.name)}")
+        lines.append(f"reactant = {_str(self.reactant)}")
+        lines.append(f"dwell_fs = {_num(self.dwell_fs)}")
+        if self.allow_overlap:
+            lines.append("allow_overlap = true")
+        lines += ["", "[monitors]"]
+        for m in self.monitors.values():
+            lines.append(f"{_key(m.name)} = [{', '.join(map(str, m.atoms))}]")
+        for b in self.basins.values():
+            lines += ["", f"[basins.{_key(b.name)}]"]
+            lines += [f"{_key(c.monitor)} = {c.toml_value()}" for c in b.conditions]
+        lines += ["", "[flags]"]
+        f = self.flags
+        for k in ("late_commit_fs", "max_energy_drift", "min_length_fs"):
+            if getattr(f, k) is not None:
+                lines.append(f"{k} = {_num(getattr(f, k))}")
+        lines.append(f"energy_unit = {_str(f.energy_unit)}")
+        if self.time_gap is not None:
+            g = self.time_gap
+            lines += ["", "[time_gap]", f"bonds = [{_str(g.bonds[0])}, {_str(g.bonds[1])}]",
+                      f"form_below = {_num(g.form_below)}", f"concerted_fs = {_num(g.concerted_fs)}"]
+        return "\n".join(lines) + "\n"
+
+    def save(self, path: str | Path) -> "Rules":
+        """Write :meth:`to_toml` to ``path``; returns the rules as loaded from it (with path and hash)."""
+        p = Path(path)
+        p.write_text(self.to_toml(), encoding="utf-8")
+        return load_rules(p)
+
+
+# --- TOML writing helpers ------------------------------------------------------------------------
+
+_BARE = re.compile(r"^[A-Za-z0-9_-]+$")
+
+
+def _str(s: str) -> str:
+    return json.dumps(s, ensure_ascii=False)  # JSON string escapes are a subset of TOML basic strings
+
+
+def _key(s: str) -> str:
+    return s if _BARE.match(s) else _str(s)
+
+
+def _num(x: float) -> str:
+    x = float(x)
+    if math.isnan(x):
+        return "nan"
+    if math.isinf(x):
+        return "inf" if x > 0 else "-inf"
+    return repr(x)
+
+
+# --- loading ---------------------------------------------------------------------------------------
+
+def load_rules(path: str | Path, n_atoms: int | None = None) -> Rules:
+    """Read and validate a rules file; ``n_atoms`` also checks atom numbers against the set."""
+    p = Path(path)
+    try:
+        data = p.read_bytes()
+    except OSError as exc:
+        raise RulesError(p, f"cannot read the rules file ({exc.strerror or exc})") from None
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise RulesError(p, f"not UTF-8 text (byte {exc.start})") from None
+    rules = parse_rules(text, source=str(p), n_atoms=n_atoms)
+    return replace(rules, sha256=hashlib.sha256(data).hexdigest(), path=p)
+
+
+def parse_rules(text: str, source: str = "<string>", n_atoms: int | None = None) -> Rules:
+    """Parse and validate rules from TOML text; ``sha256`` is the hash of the UTF-8 text."""
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        msg = str(exc)
+        m = re.search(r"\(at line (\d+), column \d+\)", msg)
+        line = int(m.group(1)) if m else getattr(exc, "lineno", None)
+        problem = re.sub(r" \(at line.*\)", "", msg)
+        raise RulesError(source, f"TOML syntax error: {problem}", line=line) from None
+    b = _Builder(source, text)
+    rules = b.build(doc)
+    rules = replace(rules, sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(), warnings=tuple(b.warnings))
+    if n_atoms is not None:
+        rules.check_atoms(n_atoms)
+    return rules
+
+
+def _number(v: Any, source: str, key: str) -> float:
+    if isinstance(v, bool) or not isinstance(v, (int, float, np.integer, np.floating)):
+        raise RulesError(source, f"must be a number, got {v!r}", key=key)
+    x = float(v)
+    if math.isnan(x):
+        raise RulesError(source, "must be a number, got nan", key=key)
+    return x
+
+
+class _Builder:
+    def __init__(self, source: str, text: str):
+        self.source = source
+        self.text = text
+        self.warnings: list[str] = []
+
+    def err(self, problem: str, key: str) -> RulesError:
+        return RulesError(self.source, problem, key=key, line=_find_line(self.text, key))
+
+    def num(self, v: Any, key: str, minimum: float | None = None) -> float:
+        try:
+            x = _number(v, self.source, key)
+        except RulesError as e:
+            raise self.err(e.problem, key) from None
+        if minimum is not None and x < minimum:
+            raise self.err(f"must be at least {minimum:g}, got {x:g}", key)
+        if math.isinf(x):
+            raise self.err("must be finite", key)
+        return x
+
+    def unknown(self, table: Mapping, allowed: set[str], prefix: str) -> None:
+        for k in table:
+            if k not in allowed:
+                self.warnings.append(f"{self.source}: unknown key {prefix}{k} is ignored")
+
+    def build(self, doc: dict) -> Rules:
+        self.unknown(doc, _TOP_KEYS, "")
+        name = doc.get("name", "")
+        if not isinstance(name, str):
+            raise self.err(f"must be a string, got {name!r}", "name")
+        monitors = self.monitors(doc.get("monitors"))
+        basins = self.basins(doc.get("basins"), monitors)
+        reactant = doc.get("reactant", "reactant")
+        if not isinstance(reactant, str):
+            raise self.err(f"must be a basin name (a string), got {reactant!r}", "reactant")
+        if reactant not in basins:
+            raise self.err(f"the reactant {reactant!r} is not a basin; basins are {', '.join(basins)}", "reactant")
+        if len(basins) < 2:
+            raise self.err("needs at least one product basin besides the reactant", "basins")
+        if "dwell_fs" not in doc:
+            raise self.err("is missing: how long (fs) a run must stay in a basin to commit", "dwell_fs")
+        dwell = self.num(doc["dwell_fs"], "dwell_fs", minimum=0.0)
+        allow = doc.get("allow_overlap", False)
+        if not isinstance(allow, bool):
+            raise self.err(f"must be true or false, got {allow!r}", "allow_overlap")
+        flags = self.flags(doc.get("flags", {}))
+        gap = self.time_gap(doc.get("time_gap"), monitors)
+        rules = Rules(monitors=monitors, basins=basins, reactant=reactant, dwell_fs=dwell, flags=flags,
+                      time_gap=gap, name=name, allow_overlap=allow)
+        try:
+            _check_semantics(rules, self.source)
+        except RulesError as e:
+            raise self.err(e.problem, e.key or "basins") from None
+        return rules
+
+    def monitors(self, table: Any) -> dict[str, Monitor]:
+        if not isinstance(table, dict) or not table:
+            raise self.err("a [monitors] table with at least one monitor is required", "monitors")
+        out = {}
+        for name, atoms in table.items():
+            key = f"monitors.{name}"
+            if not isinstance(atoms, list) or not all(isinstance(a, int) and not isinstance(a, bool) for a in atoms):
+                raise self.err(f"must be a list of 1-based atom numbers, got {atoms!r}", key)
+            if len(atoms) not in MONITOR_KINDS:
+                raise self.err(f"needs 2 atoms (distance), 3 (angle) or 4 (dihedral), got {len(atoms)}", key)
+            if any(a < 1 for a in atoms):
+                raise self.err(f"atom numbers start at 1, got {atoms}", key)
+            if len(set(atoms)) != len(atoms):
+                raise self.err(f"an atom is repeated in {atoms}", key)
+            out[name] = Monitor(name, tuple(atoms))
+        return out
+
+    def basins(self, table: Any, monitors: dict[str, Monitor]) -> dict[str, Basin]:
+        if not isinstance(table, dict) or not table:
+            raise self.err("[basins.NAME] tables are required (the reactant and at least one product)", "basins")
+        out = {}
+        for bname, conds in table.items():
+            bkey = f"basins.{bname}"
+            if bname in RESERVED_LABELS:
+                raise self.err(f"{bname!r} is reserved for an outcome; choose another basin name", bkey)
+            if not isinstance(conds, dict):
+                raise self.err("must be a table of conditions", bkey)
+            if not conds:
+                raise self.err("has no conditions", bkey)
+            items = []
+            for mname, spec in conds.items():
+                key = f"{bkey}.{mname}"
+                if mname not in monitors:
+                    raise self.err(f"unknown monitor {mname!r}; monitors are {', '.join(monitors)}", key)
+                items.append(self.condition(mname, spec, key, monitors[mname]))
+            out[bname] = Basin(bname, tuple(items))
+        return out
+
+    def condition(self, mname: str, spec: Any, key: str, monitor: Monitor) -> Condition:
+        if not isinstance(spec, dict) or len(spec) != 1:
+            raise self.err("must be one of { below = x }, { above = x }, { between = [lo, hi] }", key)
+        (kind, v), = spec.items()
+        if kind == "below":
+            c = Condition(mname, "below", hi=self.num(v, f"{key}.below"))
+        elif kind == "above":
+            c = Condition(mname, "above", lo=self.num(v, f"{key}.above"))
+        elif kind == "between":
+            if not isinstance(v, list) or len(v) != 2:
+                raise self.err(f"must be a list [lo, hi] of two numbers, got {v!r}", f"{key}.between")
+            lo, hi = (self.num(x, f"{key}.between") for x in v)
+            c = Condition(mname, "between", lo=lo, hi=hi)
+        else:
+            raise self.err(f"unknown condition {kind!r}; use below, above or between", key)
+        try:
+            _check_condition(c, monitor, self.source, key)
+        except RulesError as e:
+            raise self.err(e.problem, key) from None
+        return c
+
+    def flags(self, table: Any) -> FlagLimits:
+        if not isinstance(table, dict):
+            raise self.err("must be a table", "flags")
+        self.unknown(table, _FLAG_KEYS, "flags.")
+        unit = table.get("energy_unit", "kcal/mol")
+        canon = next((u for u in ENERGY_UNITS if isinstance(unit, str) and u.lower() == unit.strip().lower()), None)
+        if canon is None:
+            raise self.err(f"unknown energy unit {unit!r}; use one of {', '.join(ENERGY_UNITS)}", "flags.energy_unit")
+        vals = {}
+        for k in ("late_commit_fs", "max_energy_drift", "min_length_fs"):
+            if k in table:
+                vals[k] = self.num(table[k], f"flags.{k}", minimum=0.0)
+        return FlagLimits(energy_unit=canon, **vals)
+
+    def time_gap(self, table: Any, monitors: dict[str, Monitor]) -> TimeGapRule | None:
+        if table is None:
+            return None
+        if not isinstance(table, dict):
+            raise self.err("must be a table", "time_gap")
+        self.unknown(table, _GAP_KEYS, "time_gap.")
+        bonds = table.get("bonds")
+        if not isinstance(bonds, list) or len(bonds) != 2 or not all(isinstance(b, str) for b in bonds):
+            raise self.err(f"must name two distance monitors, e.g. [\"r_a\", \"r_b\"]; got {bonds!r}",
+                           "time_gap.bonds")
+        for b in bonds:
+            if b not in monitors:
+                raise self.err(f"unknown monitor {b!r}; monitors are {', '.join(monitors)}", "time_gap.bonds")
+            if monitors[b].kind != "distance":
+                raise self.err(f"monitor {b!r} is an {monitors[b].kind}, not a distance", "time_gap.bonds")
+        if bonds[0] == bonds[1]:
+            raise self.err("must name two different monitors", "time_gap.bonds")
+        if "form_below" not in table:
+            raise self.err("is missing: the distance (Å) below which a bond has formed", "time_gap.form_below")
+        form = self.num(table["form_below"], "time_gap.form_below", minimum=0.0)
+        conc = self.num(table.get("concerted_fs", DEFAULT_CONCERTED_FS), "time_gap.concerted_fs", minimum=0.0)
+        return TimeGapRule((bonds[0], bonds[1]), form, conc)
+
+
+# --- semantic checks ---------------------------------------------------------------------------------
+
+def _nonempty(lo: float, lo_c: bool, hi: float, hi_c: bool) -> bool:
+    return lo < hi or (lo == hi and lo_c and hi_c)
+
+
+def _intersect(a: tuple, b: tuple) -> tuple:
+    lo, lo_c = max((a[0], a[1]), (b[0], b[1]), key=lambda t: (t[0], not t[1]))
+    hi, hi_c = min((a[2], a[3]), (b[2], b[3]), key=lambda t: (t[0], t[1]))
+    return (lo, lo_c, hi, hi_c)
+
+
+def _check_condition(c: Condition, m: Monitor, source: str, key: str) -> None:
+    if c.kind == "between" and c.lo > c.hi:
+        raise RulesError(source, f"between [{c.lo:g}, {c.hi:g}] is not ordered (lo must not exceed hi)", key=key)
+    dom = _DOMAINS[m.kind]
+    if not _nonempty(*_intersect(c.interval(), dom)):
+        raise RulesError(source, f"{c.describe()} can never hold for a {m.kind} "
+                         f"({m.unit} values from {dom[0]:g} to {dom[2]:g})", key=key)
+
+
+def _fmt_interval(name: str, iv: tuple, unit: str) -> str:
+    lo, lo_c, hi, hi_c = iv
+    if lo == hi:
+        return f"{name} = {lo:g} {unit}"
+    left = "" if math.isinf(lo) else f"{lo:g} {'<=' if lo_c else '<'} "
+    right = "" if math.isinf(hi) else f" {'<=' if hi_c else '<'} {hi:g}"
+    if not left and not right:
+        return f"{name} any"
+    return f"{left}{name}{right}" + (f" {unit}" if unit else "")
+
+
+def _shared_region(a: Basin, b: Basin, monitors: Mapping[str, Monitor]) -> str | None:
+    """Description of where both basins hold, or None when a monitor separates them."""
+    parts = []
+    for mname in dict.fromkeys([c.monitor for c in a.conditions] + [c.monitor for c in b.conditions]):
+        m = monitors[mname]
+        iv = _DOMAINS[m.kind]
+        for basin in (a, b):
+            c = basin.condition(mname)
+            if c is not None:
+                iv = _intersect(iv, c.interval())
+        if not _nonempty(*iv):
+            return None
+        parts.append(_fmt_interval(mname, iv, m.unit))
+    return ", ".join(parts)
+
+
+def _check_semantics(rules: Rules, source: str) -> None:
+    if rules.reactant not in rules.basins:
+        raise RulesError(source, f"the reactant {rules.reactant!r} is not a basin", key="reactant")
+    if not rules.products:
+        raise RulesError(source, "needs at least one product basin besides the reactant", key="basins")
+    for b in rules.basins.values():
+        for c in b.conditions:
+            _check_condition(c, rules.monitors[c.monitor], source, f"basins.{b.name}.{c.monitor}")
+    if not rules.allow_overlap:
+        problems = rules.overlaps()
+        if problems:
+            raise RulesError(source, problems[0] + " (tighten a condition, or set allow_overlap = true to "
+                             "accept it; such frames are then flagged conflicting_basins)", key="basins")
+
+
+def _find_line(text: str, key: str) -> int | None:
+    """Best-effort line of a dotted key path (for messages only)."""
+    parts = key.split(".")
+    table: list[str] = []
+    header = re.compile(r"^\s*\[\s*([^\[\]]+?)\s*\]\s*(#.*)?$")
+    assign = re.compile(r"^\s*(\"[^\"]*\"|[A-Za-z0-9_-]+)\s*=")
+    for no, line in enumerate(text.splitlines(), 1):
+        h = header.match(line)
+        if h:
+            table = [p.strip().strip('"') for p in h.group(1).split(".")]
+            if table == parts:
+                return no
+            continue
+        a = assign.match(line)
+        if a:
+            full = table + [a.group(1).strip('"')]
+            if full == parts[:len(full)] and len(full) >= min(len(parts), len(table) + 1):
+                return no
+    return None
