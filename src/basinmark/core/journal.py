@@ -41,7 +41,7 @@ from basinmark.core.journal_lock import (JournalLockedError, acquire, describe, 
                                          release)
 from basinmark.core.journal_replay import Replay
 from basinmark.core.journal_verify import Problem, verify_journal
-from basinmark.core.labels import SOURCES, validate_label
+from basinmark.core.labels import SOURCES, LabelError, validate_label
 
 __all__ = ["LabelJournal", "JournalError", "JournalLockedError", "verify_journal", "Problem", "default_labeler"]
 
@@ -278,7 +278,7 @@ class LabelJournal:
                                        labeler, pending)
             except KeyError as exc:
                 raise JournalError(f"batch entry {i + 1} lacks {exc.args[0]!r}") from None
-            except JournalError as exc:
+            except (JournalError, LabelError) as exc:
                 raise type(exc)(f"batch entry {i + 1}: {exc}") from None
             if source == "rule":
                 ev["rules_hash"] = rules_hash
