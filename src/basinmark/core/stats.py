@@ -489,8 +489,8 @@ def reliability_warnings(
         for name in compared:
             k = counts.get(name, 0)
             if k == 0:
-                warnings.append(f"No run gave {name}: its share may be small but is not known to be zero, "
-                                f"and any ratio with {name} below has no finite bound.")
+                warnings.append(f"No run gave {name}: its share may be small but is not shown to be zero, "
+                                f"and a ratio over {name} has no finite upper bound.")
             elif k < MIN_MINOR_PRODUCT_RUNS:
                 warnings.append(f"Only {k} run{'s' if k != 1 else ''} gave {name}; a ratio resting on fewer than "
                                 f"{MIN_MINOR_PRODUCT_RUNS} events of the minor product is very uncertain (rule of thumb).")

@@ -1,0 +1,141 @@
+"""``basinmark summary SET``: outcome counts, product ratio with its interval, TST comparison.
+
+Labels come from the set's label journal (final labels: the latest hand label, else the
+automatic one).  When the journal holds no labels yet, the runs are classified in memory
+with the set's rules, nothing is written, and the report says so.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import pandas as pd
+
+from basinmark.commands._output import emit
+from basinmark.core.errors import SetError
+
+FORMATS = ("table", "csv", "json", "markdown")
+UNITS = ("kcal/mol", "kJ/mol")
+
+NOT_CLASSIFIED_NOTE = ("these labels are not yet classified into the journal; run `basinmark classify SET` "
+                       "to record these labels")
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "summary", help="count outcomes and report the product ratio with intervals, next to TST",
+        description="Count the final label of every run of a set, with intervals, the product ratio between "
+                    "two products, the TST ratio for a given ΔΔG‡, and warnings where the numbers are thin.")
+    p.add_argument("set", metavar="SET", help="the set folder")
+    p.add_argument("--ratio", nargs=2, metavar=("A", "B"),
+                   help="the two products to compare as A : B (default: the two most common)")
+    p.add_argument("--ddg", type=float, metavar="X",
+                   help="ΔΔG‡ = G‡(B) − G‡(A), to show the ratio transition state theory predicts")
+    p.add_argument("--unit", choices=UNITS, default="kcal/mol", help="energy unit of --ddg and of the report")
+    p.add_argument("--temperature", type=float, default=298.15, metavar="K", help="temperature in kelvin")
+    p.add_argument("--method", choices=("wilson", "exact"), default="wilson",
+                   help="interval for proportions: Wilson score (default) or Clopper–Pearson exact")
+    p.add_argument("--confidence", type=float, default=0.95, help="confidence level (default 0.95)")
+    p.add_argument("--half-width", type=float, default=0.05, metavar="H",
+                   help="target ± half-width on the share of A among A + B, for the runs-needed estimate")
+    p.add_argument("--journal", metavar="FILE", help="read this label journal instead of the set's own")
+    p.add_argument("--no-cache", action="store_true", help="ignore and do not write the parsed-array cache")
+    p.add_argument("--quiet", "-q", action="store_true", help="no progress line on stderr")
+    p.add_argument("--format", choices=FORMATS, default="table", help="output format (default: table)")
+    p.set_defaults(func=run)
+
+
+def journal_labels(path: Path, current_hashes: dict[str, str]) -> tuple[pd.DataFrame | None, list[str]]:
+    """Final labels from the journal at ``path`` (None if it has none), and its warnings."""
+    from basinmark.core.journal import LabelJournal
+
+    if not path.is_file():
+        return None, []
+    with LabelJournal.open(path, readonly=True) as journal:
+        state = journal.state(current_hashes=current_hashes)
+        notes = [f"journal: {w}" for w in journal.warnings]
+    if state.empty or state["final_label"].isna().all():
+        return None, notes
+    return state, notes
+
+
+def classified_labels(tset, rules) -> pd.DataFrame:
+    """Classify every run in memory (nothing written) and return run / final_label rows."""
+    from basinmark.core.classify import classify_set
+
+    table = classify_set(tset, rules)
+    return pd.DataFrame({"run": table["run"].astype(str), "final_label": table["outcome"]})
+
+
+def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame, list[str]]:
+    """Labels ordered as the set's runs (unlabelled runs added with no label), plus notes."""
+    notes = []
+    labels = labels.drop_duplicates("run", keep="last").set_index("run", drop=False)
+    known = [r for r in run_ids if r in labels.index]
+    missing = [r for r in run_ids if r not in labels.index]
+    gone = [r for r in labels.index if r not in set(run_ids)]
+    parts = [labels.loc[known]]
+    if missing:
+        parts.append(pd.DataFrame({"run": missing, "final_label": [None] * len(missing)}))
+    if gone:
+        parts.append(labels.loc[gone])
+        notes.append(f"{len(gone)} labelled run{'s are' if len(gone) != 1 else ' is'} not in the set folder "
+                     f"(or failed to load) and {'are' if len(gone) != 1 else 'is'} still counted: "
+                     + ", ".join(gone[:5]) + (" ..." if len(gone) > 5 else ""))
+    out = pd.concat(parts, ignore_index=True) if parts else labels.reset_index(drop=True)
+    return out, notes
+
+
+def make_summary(args):
+    """Open the set and its labels and build the :class:`~basinmark.core.summary.Summary`."""
+    from basinmark.commands.info import progress_printer
+    from basinmark.core.rules import load_rules
+    from basinmark.core.sets import journal_path, open_set, rules_path
+    from basinmark.core.summary import build_summary
+
+    root = Path(args.set)
+    if not root.is_dir():
+        raise SetError(f"{root}: not a folder (a set is a folder of runs)")
+    tset = open_set(root, progress=progress_printer(args.quiet), use_cache=not args.no_cache)
+    rules_file = rules_path(root)
+    rules = load_rules(rules_file, n_atoms=tset.n_atoms) if rules_file.is_file() else None
+    jpath = Path(args.journal) if args.journal else journal_path(root)
+    labels, notes = journal_labels(jpath, dict(tset.content_hashes()))
+    if labels is None:
+        if rules is None:
+            raise SetError(f"{root}: no labels in {jpath.name} and no rules file {rules_file.name} to classify with")
+        labels = classified_labels(tset, rules)
+        notes.insert(0, NOT_CLASSIFIED_NOTE)
+    labels, order_notes = in_set_order(labels, tset.run_ids)
+    notes += order_notes
+    if rules is not None:
+        products = list(rules.products)
+    else:
+        from basinmark.core.labels import FIXED_LABELS
+        products = sorted({str(v) for v in labels["final_label"].dropna()} - set(FIXED_LABELS))
+        notes.append(f"no rules file {rules_file.name}: taking every label other than the fixed ones as a "
+                     f"product ({', '.join(products)})")
+    if tset.failures:
+        notes.append(f"{len(tset.failures)} file(s) of the set failed to load; `basinmark info SET` lists them")
+    notes += tset.warnings
+    a, b = args.ratio if args.ratio else (None, None)
+    return build_summary(labels, products, a, b, ddg=args.ddg, unit=args.unit, temperature=args.temperature,
+                         confidence=args.confidence, method=args.method, half_width=args.half_width, notes=notes)
+
+
+def run(args) -> int:
+    summary = make_summary(args)
+    out = sys.stdout
+    if args.format == "csv":
+        emit(summary.to_frame(), "csv", out)
+    elif args.format == "json":
+        out.write(summary.to_json() + "\n")
+    elif args.format == "markdown":
+        out.write(summary.to_markdown())
+    else:
+        out.write(summary.to_text())
+    if args.format in ("csv", "json"):  # keep machine output clean; say the important things on stderr
+        for line in summary.notes + summary.warnings:
+            print(f"basinmark: {line}", file=sys.stderr)
+    return 0 if summary.n_counted > 0 else 1

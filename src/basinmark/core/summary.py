@@ -1,0 +1,336 @@
+"""The summary of a set's labels: outcome table, product ratio, TST comparison, warnings.
+
+:func:`build_summary` computes everything from a label table (one row per run with
+a ``final_label``); :class:`Summary` renders it as a DataFrame, Markdown, JSON or a
+plain-text report.  Nothing here reads files: the command and the GUI pass the labels in.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from typing import Sequence
+
+import pandas as pd
+
+from basinmark.core import stats
+from basinmark.core.errors import BasinmarkError
+from basinmark.core.units import ENERGY_UNITS
+
+FIXED_ORDER = ("recrossing", "unfinished", "ambiguous")
+
+
+class SummaryError(BasinmarkError):
+    """The summary cannot be made as asked (unknown product, bad settings)."""
+
+
+@dataclass
+class Summary:
+    """Everything the report shows.  Ratios compare ``a`` to ``b``; ΔΔG is G‡(b) − G‡(a)."""
+
+    table: pd.DataFrame  # stats.outcome_table: label, count, fraction, lo, hi[, simultaneous_lo/hi]
+    products: list[str]
+    a: str | None
+    b: str | None
+    k_a: int
+    k_b: int
+    ratio: tuple[float, float, float]  # (ratio, lo, hi), NaN when undefined
+    tst_ratio: float | None  # None when no ΔΔG‡ was given
+    effective_ddg: tuple[float, float, float]  # (ΔΔG, lo, hi) in settings['unit']
+    warnings: list[str]
+    n_runs: int  # rows given (labelled or not)
+    n_counted: int  # runs in the denominator of the fractions
+    n_excluded: int
+    n_unlabelled: int
+    runs_needed: int | None  # total runs for the share of a among a+b to reach ± half_width
+    convergence: pd.DataFrame
+    settings: dict
+    notes: list[str] = field(default_factory=list)  # where the labels came from, etc.
+
+    # --- derived ----------------------------------------------------------------------------
+    @property
+    def n_pair(self) -> int:
+        return self.k_a + self.k_b
+
+    @property
+    def n_reactive(self) -> int:
+        return int(self.table.loc[self.table["label"].isin(self.products), "count"].sum())
+
+    @property
+    def confidence_text(self) -> str:
+        return f"{100 * self.settings['confidence']:g} %"
+
+    # --- renderings -------------------------------------------------------------------------
+    def to_frame(self) -> pd.DataFrame:
+        """One tidy table: a row per outcome (value = fraction), then ratio, TST ratio, effective ΔΔG."""
+        rows = []
+        has_sim = "simultaneous_lo" in self.table
+        for r in self.table.itertuples(index=False):
+            rows.append({"quantity": "fraction", "label": r.label, "count": r.count, "value": r.fraction,
+                         "lo": r.lo, "hi": r.hi,
+                         "simultaneous_lo": r.simultaneous_lo if has_sim else math.nan,
+                         "simultaneous_hi": r.simultaneous_hi if has_sim else math.nan, "unit": ""})
+        if self.a and self.b:
+            pair = f"{self.a}:{self.b}"
+            rows.append({"quantity": "ratio", "label": pair, "count": self.n_pair, "value": self.ratio[0],
+                         "lo": self.ratio[1], "hi": self.ratio[2], "unit": ""})
+            if self.tst_ratio is not None:
+                rows.append({"quantity": "tst_ratio", "label": pair, "value": self.tst_ratio, "unit": ""})
+            ddg = self.effective_ddg
+            rows.append({"quantity": "effective_ddg", "label": pair, "count": self.n_pair, "value": ddg[0],
+                         "lo": ddg[1], "hi": ddg[2], "unit": self.settings["unit"]})
+        frame = pd.DataFrame(rows, columns=["quantity", "label", "count", "value", "lo", "hi",
+                                            "simultaneous_lo", "simultaneous_hi", "unit"])
+        frame["count"] = frame["count"].astype("Int64")
+        if not has_sim:
+            frame = frame.drop(columns=["simultaneous_lo", "simultaneous_hi"])
+        return frame
+
+    def to_dict(self) -> dict:
+        """Plain data (JSON-ready: infinities as the strings "inf"/"-inf", undefined values as null)."""
+        out = {
+            "settings": dict(self.settings),
+            "n_runs": self.n_runs, "n_counted": self.n_counted, "n_excluded": self.n_excluded,
+            "n_unlabelled": self.n_unlabelled, "n_reactive": self.n_reactive,
+            "outcomes": [{k: _json_number(v) for k, v in row.items()}
+                         for row in self.table.to_dict(orient="records")],
+            "ratio": None, "tst_ratio": None, "effective_ddg": None,
+            "runs_needed": self.runs_needed, "warnings": list(self.warnings), "notes": list(self.notes),
+        }
+        if self.a and self.b:
+            out["ratio"] = {"a": self.a, "b": self.b, "k_a": self.k_a, "k_b": self.k_b,
+                            **dict(zip(("value", "lo", "hi"), map(_json_number, self.ratio)))}
+            out["effective_ddg"] = {"unit": self.settings["unit"],
+                                    **dict(zip(("value", "lo", "hi"), map(_json_number, self.effective_ddg)))}
+            out["tst_ratio"] = _json_number(self.tst_ratio)
+        return out
+
+    def to_json(self, indent: int | None = 2) -> str:
+        return json.dumps(self.to_dict(), indent=indent, ensure_ascii=False, allow_nan=False)
+
+    def _outcome_rows(self) -> tuple[list[str], list[list[str]]]:
+        ci = f"{self.confidence_text} interval"
+        head = ["outcome", "runs", "fraction", ci]
+        sim = "simultaneous_lo" in self.table
+        if sim:
+            head.append("all outcomes at once")
+        rows = []
+        for r in self.table.itertuples(index=False):
+            row = [r.label, str(r.count), _fixed(r.fraction), f"{_fixed(r.lo)}–{_fixed(r.hi)}"]
+            if sim:
+                row.append(f"{_fixed(r.simultaneous_lo)}–{_fixed(r.simultaneous_hi)}")
+            rows.append(row)
+        return head, rows
+
+    def lines(self) -> list[str]:
+        """The sentences of the report after the table (ratio, TST, effective ΔΔG, runs needed)."""
+        s = self.settings
+        out: list[str] = []
+        if not (self.a and self.b):
+            out.append("No product ratio: the rules name fewer than two products." if len(self.products) < 2
+                       else "No product ratio: no two products to compare.")
+            return out
+        r, lo, hi = self.ratio
+        ci = self.confidence_text
+        group = "reactive runs" if set(self.products) == {self.a, self.b} else f"runs ending in {self.a} or {self.b}"
+        if math.isnan(r):
+            out.append(f"{self.a} : {self.b} is undefined: no run ended in either.")
+        else:
+            out.append(f"{self.a} : {self.b} = {_num(r)} ({ci} CI {_num(lo)}–{_num(hi)}) from {self.n_pair} {group}"
+                       f" ({self.k_a} : {self.k_b})")
+        unit, temp = s["unit"], s["temperature"]
+        if self.tst_ratio is not None:
+            line = (f"TST with ΔΔG‡ = {s['ddg']:.2f} {unit} at {temp:.2f} K predicts {_num(self.tst_ratio)}")
+            if not math.isnan(r):
+                inside = lo <= self.tst_ratio <= hi
+                line += (", inside the observed interval" if inside
+                         else ", outside the observed interval: the runs do not bear out the TST prediction")
+            out.append(line)
+        d, dlo, dhi = self.effective_ddg
+        if not math.isnan(d):
+            out.append(f"Effective ΔΔG = {_energy(d)} {unit} ({ci} CI {_energy(dlo)} to {_energy(dhi)}) at "
+                       f"{temp:.2f} K: the barrier difference TST would need to give the observed ratio")
+        target = f"For ±{s['half_width']:g} on the share of {self.a} among {self.a} + {self.b}"
+        if self.runs_needed is not None:
+            still = self.runs_needed - self.n_runs
+            tail = (f"{still} more than the {self.n_runs} here" if still > 0
+                    else f"the {self.n_runs} here are enough")
+            out.append(f"{target}, about {self.runs_needed} runs in all are needed at the present mix "
+                       f"({tail}; normal approximation)")
+        elif self.n_pair > 0:
+            out.append(f"{target}, the number of runs needed cannot be estimated until both products have "
+                       f"appeared")
+        return out
+
+    def to_text(self) -> str:
+        """A readable report: the outcome table, the ratio sentences, then warnings in plain words."""
+        head, rows = self._outcome_rows()
+        widths = [max(len(h), *(len(r[i]) for r in rows)) if rows else len(h) for i, h in enumerate(head)]
+
+        def fmt(cells: list[str]) -> str:
+            return "  ".join(c.ljust(w) if i == 0 else c.rjust(w) for i, (c, w) in enumerate(zip(cells, widths))).rstrip()
+
+        method = "Wilson" if self.settings["method"] == "wilson" else "Clopper–Pearson"
+        out = [self._headline(), ""]
+        if rows:
+            out += [fmt(head), fmt(["-" * w for w in widths])] + [fmt(r) for r in rows]
+            out.append(f"(intervals: {method}; 'all outcomes at once': Goodman simultaneous)" if len(head) > 4
+                       else f"(intervals: {method})")
+            out.append("")
+        out += self.lines()
+        if self.notes:
+            out += [""] + [f"Note: {n}" for n in self.notes]
+        if self.warnings:
+            out += ["", "Warnings:"] + [f"  - {w}" for w in self.warnings]
+        return "\n".join(out) + "\n"
+
+    def to_markdown(self) -> str:
+        head, rows = self._outcome_rows()
+        out = [f"## Summary", "", self._headline(), "",
+               "| " + " | ".join(head) + " |", "|" + "|".join([" --- "] + [" ---: "] * (len(head) - 1)) + "|"]
+        out += ["| " + " | ".join(r) + " |" for r in rows]
+        out += [""] + [f"- {line}" for line in self.lines()]
+        if self.notes:
+            out += [""] + [f"*Note:* {n}" for n in self.notes]
+        if self.warnings:
+            out += ["", "### Warnings", ""] + [f"- {w}" for w in self.warnings]
+        return "\n".join(out) + "\n"
+
+    def _headline(self) -> str:
+        parts = [f"{self.n_counted} runs counted"]
+        if self.n_excluded:
+            parts.append(f"{self.n_excluded} excluded")
+        if self.n_unlabelled:
+            parts.append(f"{self.n_unlabelled} without a label")
+        return f"Outcomes of {self.n_runs} runs: " + ", ".join(parts) + "."
+
+
+def _json_number(value):
+    if isinstance(value, float) or hasattr(value, "dtype"):
+        try:
+            value = float(value)
+        except (TypeError, ValueError):
+            return value
+        if math.isnan(value):
+            return None
+        if math.isinf(value):
+            return "inf" if value > 0 else "-inf"
+        return value
+    return value
+
+
+def _fixed(x: float) -> str:
+    return "" if x is None or math.isnan(x) else f"{x:.3f}"
+
+
+def _num(x: float) -> str:
+    if x is None or math.isnan(x):
+        return "undefined"
+    if math.isinf(x):
+        return "∞" if x > 0 else "−∞"
+    if x >= 100:
+        return f"{x:.0f}"
+    if x >= 10:
+        return f"{x:.1f}"
+    return f"{x:.2f}" if x >= 0.01 else f"{x:.2g}"
+
+
+def _energy(x: float) -> str:
+    if math.isinf(x):
+        return "∞" if x > 0 else "−∞"
+    return f"{x:.2f}"
+
+
+def _pick_pair(counts: dict[str, int], products: Sequence[str], a: str | None, b: str | None):
+    for name in (a, b):
+        if name is not None and name not in products:
+            raise SummaryError(f"{name!r} is not a product of the rules; choose from: {', '.join(products) or '(none)'}")
+    if a is not None and a == b:
+        raise SummaryError(f"cannot compare {a!r} with itself; name two different products")
+    rank = sorted(products, key=lambda p: (-counts.get(p, 0), list(products).index(p)))
+    if a is None:
+        a = next((p for p in rank if p != b), None)
+    if b is None:
+        b = next((p for p in rank if p != a), None)
+    return a, b
+
+
+def build_summary(
+    labels: pd.DataFrame,
+    products: Sequence[str],
+    a: str | None = None,
+    b: str | None = None,
+    ddg: float | None = None,
+    unit: str = "kcal/mol",
+    temperature: float = 298.15,
+    confidence: float = 0.95,
+    method: str = "wilson",
+    *,
+    half_width: float = 0.05,
+    notes: Sequence[str] = (),
+) -> Summary:
+    """Summarise a label table (columns ``run``, ``final_label``; rows in the set's own order).
+
+    ``a``/``b`` default to the two most common products.  ``ddg`` (ΔΔG‡ = G‡(b) − G‡(a), in
+    ``unit``) adds the TST ratio.  Runs without a label and ``excluded`` runs are left out of
+    the fractions.  A ``data_changed`` column (from the journal) adds a warning for labels set
+    on files that have changed since.
+    """
+    if "final_label" not in labels:
+        raise SummaryError("the label table has no 'final_label' column")
+    if method not in stats.METHODS:
+        raise SummaryError(f"unknown interval method {method!r}; use one of: {', '.join(stats.METHODS)}")
+    if not 0.0 < confidence < 1.0:
+        raise SummaryError(f"the confidence must lie between 0 and 1 (e.g. 0.95), got {confidence}")
+    if not temperature > 0:
+        raise SummaryError(f"the temperature must be positive (kelvin), got {temperature}")
+    if not any(unit.lower() == u.lower() for u in ENERGY_UNITS):
+        raise SummaryError(f"unknown energy unit {unit!r}; use one of: {', '.join(ENERGY_UNITS)}")
+    if not 0.0 < half_width < 1.0:
+        raise SummaryError(f"the interval half-width must lie between 0 and 1, got {half_width}")
+    products = [str(p) for p in products]
+    final = list(labels["final_label"])
+    order = products + [name for name in FIXED_ORDER if name in set(map(str, final))]
+    table = stats.outcome_table(final, confidence, method, order=order)
+    counts = dict(zip(table["label"], table["count"].astype(int)))
+    n_excluded, n_missing = table.attrs["n_excluded"], table.attrs["n_missing"]
+    a, b = _pick_pair(counts, products, a, b)
+
+    if a and b:
+        k_a, k_b = counts.get(a, 0), counts.get(b, 0)
+        ratio = stats.ratio_interval(k_a, k_b, confidence, method)
+        eff = tuple(stats.effective_ddg(v, unit, temperature) for v in ratio)
+        conv = stats.convergence(final, a, b, confidence, method)
+    else:
+        k_a = counts.get(a, 0) if a else 0
+        k_b = 0
+        ratio = eff = (math.nan, math.nan, math.nan)
+        conv = pd.DataFrame()
+    tst = stats.tst_ratio(ddg, unit, temperature) if ddg is not None and a and b else None
+
+    counts_all = dict(counts, excluded=n_excluded)
+    warnings = stats.reliability_warnings(counts_all, products, ratio=ratio if a and b else None,
+                                          pair=(a, b) if a and b else None)
+    if n_missing:
+        warnings.append(f"{n_missing} run{'s have' if n_missing != 1 else ' has'} no label yet and "
+                        f"{'are' if n_missing != 1 else 'is'} not counted.")
+    if "data_changed" in labels:
+        changed = int(labels["data_changed"].fillna(False).astype(bool).sum())
+        if changed:
+            warnings.append(f"{changed} label{'s were' if changed != 1 else ' was'} set on run files that have "
+                            f"changed since: check those runs again before trusting the counts.")
+
+    needed = None
+    n_counted = int(table.attrs["n"])
+    if a and b and k_a > 0 and k_b > 0:  # at p = 0 or 1 the normal approximation says nothing
+        pair_share = (k_a + k_b) / n_counted
+        pair_runs = stats.runs_needed(k_a / (k_a + k_b), half_width, confidence)
+        needed = math.ceil(pair_runs / pair_share - 1e-9)
+
+    settings = {"confidence": confidence, "method": method, "unit": unit, "temperature": temperature,
+                "ddg": ddg, "half_width": half_width, "a": a, "b": b}
+    return Summary(table=table, products=products, a=a, b=b, k_a=k_a, k_b=k_b, ratio=ratio, tst_ratio=tst,
+                   effective_ddg=eff, warnings=warnings, n_runs=len(labels), n_counted=n_counted,
+                   n_excluded=n_excluded, n_unlabelled=n_missing, runs_needed=needed, convergence=conv,
+                   settings=settings, notes=list(notes))
