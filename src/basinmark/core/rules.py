@@ -176,6 +176,7 @@ class Rules:
     sha256: str = field(default="", compare=False)
     path: Path | None = field(default=None, compare=False)
     warnings: tuple[str, ...] = field(default=(), compare=False)
+    origin: str = field(default="", compare=False)  # where the text came from, for messages
 
     def __hash__(self) -> int:
         return hash(self.to_toml())
@@ -194,7 +195,7 @@ class Rules:
 
     @property
     def source(self) -> str:
-        return str(self.path) if self.path else "<rules>"
+        return str(self.path) if self.path else (self.origin or "<rules>")
 
     def monitor_indices(self) -> dict[str, tuple[int, ...]]:
         """``{name: 0-based indices}`` for :func:`basinmark.core.geometry.monitor_arrays`."""
@@ -259,7 +260,7 @@ class Rules:
             conds = conds + (new,)
         basins = dict(self.basins)
         basins[basin] = Basin(basin, conds)
-        out = replace(self, basins=basins, path=None, warnings=())
+        out = replace(self, basins=basins, path=None, warnings=(), origin=f"{src} (edited)")
         text = out.to_toml()
         out = replace(out, sha256=hashlib.sha256(text.encode("utf-8")).hexdigest())
         _check_condition(new, self.monitors[monitor], src, key)
@@ -356,7 +357,8 @@ def parse_rules(text: str, source: str = "<string>", n_atoms: int | None = None)
         raise RulesError(source, f"TOML syntax error: {problem}", line=line) from None
     b = _Builder(source, text)
     rules = b.build(doc)
-    rules = replace(rules, sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(), warnings=tuple(b.warnings))
+    rules = replace(rules, sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(), warnings=tuple(b.warnings),
+                    origin=source)
     if n_atoms is not None:
         rules.check_atoms(n_atoms)
     return rules
