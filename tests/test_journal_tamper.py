@@ -1,0 +1,103 @@
+"""Tamper detection (hypothesis): every single-byte change, deleted, duplicated, swapped or forged line
+is reported by verify_journal at the line where it happened."""
+
+from __future__ import annotations
+
+import json
+import shutil
+
+import pytest
+from hypothesis import given
+from hypothesis import strategies as st
+
+from basinmark.core.journal import LabelJournal, verify_journal
+from basinmark.core.journal_format import head_path, seal
+
+H = "ab" * 32
+
+
+@pytest.fixture(scope="module")
+def base(tmp_path_factory):
+    d = tmp_path_factory.mktemp("tamper")
+    path = d / "basinmark-labels.jsonl"
+    with LabelJournal.open(path, labeler="mira", set_id="ringfork-demo") as j:
+        j.record_batch([{"run_id": f"r{i:03d}", "label": ["alpha", "beta", "recrossing"][i % 3],
+                         "content_hash": H} for i in range(6)], rules_hash="0f" * 32)
+        j.record("r001", "beta", content_hash=H, reason="bond C2-C9 forms first — see frame 310")
+        j.record("r004", "excluded", content_hash=H, reason="drift 2.4 kcal/mol")
+        j.undo("r001", reason="wrong run")
+        j.adjudicate("r002", "alpha", content_hash=H, label_a="alpha", label_b="beta", reviewer="chief")
+        j.review_complete(reviewer="chief")
+    assert verify_journal(path) == []
+    work = d / "work"
+    work.mkdir()
+    return path.read_bytes(), head_path(path), work / "basinmark-labels.jsonl"
+
+
+def check(base, data: bytes) -> list:
+    _, head, target = base
+    target.write_bytes(data)
+    shutil.copyfile(head, head_path(target))
+    return verify_journal(target)
+
+
+def first_line(problems) -> int:
+    lines = [p.line for p in problems if p.line is not None]
+    assert lines, problems
+    return min(lines)
+
+
+def test_untouched_copy_verifies(base):
+    assert check(base, base[0]) == []
+
+
+@given(st.data())
+def test_any_changed_byte_is_found_on_its_line(base, data):
+    raw = base[0]
+    pos = data.draw(st.integers(0, len(raw) - 1))
+    new = data.draw(st.integers(0, 255).filter(lambda b: b != raw[pos]))
+    changed = raw[:pos] + bytes([new]) + raw[pos + 1:]
+    expected = raw[:pos].count(b"\n") + 1  # the line holding the byte (its own newline included)
+    assert first_line(check(base, changed)) == expected
+
+
+@given(st.data())
+def test_deleted_line_is_found(base, data):
+    lines = base[0].splitlines(keepends=True)
+    k = data.draw(st.integers(0, len(lines) - 1))
+    probs = check(base, b"".join(lines[:k] + lines[k + 1:]))
+    # the next event now sits on line k+1; removing the last line is seen through the head file
+    assert first_line(probs) == k + 1
+
+
+@given(st.data())
+def test_duplicated_line_is_found(base, data):
+    lines = base[0].splitlines(keepends=True)
+    k = data.draw(st.integers(0, len(lines) - 1))
+    probs = check(base, b"".join(lines[:k + 1] + [lines[k]] + lines[k + 1:]))
+    assert first_line(probs) == k + 2  # the copy
+
+
+@given(st.data())
+def test_swapped_pair_is_found(base, data):
+    lines = base[0].splitlines(keepends=True)
+    k = data.draw(st.integers(0, len(lines) - 2))
+    swapped = lines[:k] + [lines[k + 1], lines[k]] + lines[k + 2:]
+    assert first_line(check(base, b"".join(swapped))) == k + 1
+
+
+@given(st.data())
+def test_inserted_forged_line_is_found(base, data):
+    lines = base[0].splitlines(keepends=True)
+    p = data.draw(st.integers(0, len(lines)))  # insert before line p (0-based); p == len: at the end
+    m = data.draw(st.integers(0, len(lines) - 1))  # the event the forger starts from
+    ev = json.loads(lines[m])
+    ev["reason"] = "forged"
+    ev["seq"] = data.draw(st.sampled_from([ev["seq"], p, p + 1]))
+    forged = seal(ev).encode("ascii")  # its own hash is correct: only the chain can tell
+    probs = check(base, b"".join(lines[:p] + [forged] + lines[p:]))
+    prev_there = json.loads(lines[p - 1])["hash"] if p > 0 else ""
+    fits = ev["seq"] == p and ev["prev"] == prev_there and (p > 0) == (ev["kind"] != "header")
+    # a forgery that fits the chain exactly at its place can only be told from the event it
+    # imitates by what follows: that event now repeats the sequence number, one line later
+    assert first_line(probs) == (p + 2 if fits else p + 1)
