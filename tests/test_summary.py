@@ -177,7 +177,8 @@ def set_dir(tmp_path, monkeypatch):
 
     def classify_set(ts, rules, progress=None):
         calls.append(rules.products)
-        return pd.DataFrame({"run": ts.run_ids, "outcome": [t.metadata["outcome"] for t in ts]})
+        return pd.DataFrame({"run": ts.run_ids, "outcome": [t.metadata["outcome"] for t in ts],
+                             "flags": [t.metadata.get("flags", "") for t in ts]})
 
     fake = types.ModuleType("basinmark.core.classify")
     fake.classify_set = classify_set
@@ -215,7 +216,7 @@ def test_command_reads_final_labels_from_the_journal(set_dir, capsys):
     code, out, err = run_cli(["summary", str(root), "--format", "json", "--method", "exact"], capsys)
     assert code == 0, err
     data = json.loads(out)
-    assert calls == []  # the journal had labels: no classification
+    assert calls == [["alpha", "beta"]]  # classified once in memory, only to re-check flags
     assert (data["ratio"]["k_a"], data["ratio"]["k_b"]) == (28, 11)
     assert data["n_excluded"] == 1 and data["settings"]["method"] == "exact"
     assert data["ratio"]["lo"] == pytest.approx(stats.ratio_interval(28, 11, method="exact")[1])
@@ -239,3 +240,35 @@ def test_command_reports_unlabelled_runs_and_bad_choices(set_dir, capsys):
     assert code == 2 and "'gamma' is not a product" in err
     code, _, err = run_cli(["summary", str(root / "nowhere")], capsys)
     assert code == 2 and "not a folder" in err
+
+
+def test_command_rechecks_flags_and_stale_automatic_labels(set_dir, capsys):
+    from basinmark.core.journal import LabelJournal
+    root, tset, calls = set_dir
+    with LabelJournal.open(root / "basinmark-labels.jsonl", labeler="tester") as j:
+        j.record_batch([{"run_id": t.run_id, "label": t.metadata["outcome"], "content_hash": t.content_hash}
+                        for t in tset], rules_hash="0" * 64)
+        j.record("run-002", "alpha", content_hash=tset["run-002"].content_hash, reason="checked, fine")
+    # the current rules now see three runs differently, and some runs are flagged
+    tset["run-000"].metadata.update(outcome="beta", flags="energy_drift")
+    tset["run-001"].metadata.update(outcome="unfinished", flags="late_commit;several_visits")
+    tset["run-002"].metadata.update(outcome="recrossing", flags="energy_drift")
+    code, out, _ = run_cli(["summary", str(root)], capsys)
+    assert code == 0
+    assert "3 of 46 automatic labels in the journal differ from what the current rules give" in out
+    assert "2 counted runs failed the energy check" in out and "1 of them kept by hand" in out
+    assert "1 counted run flagged for a look (late_commit 1, several_visits 1) has no hand label yet" in out
+    # the counts still come from the journal: run-000 and run-001 are alpha there
+    assert "alpha : beta = 3.00" in out
+    calls.clear()
+    code, out, _ = run_cli(["summary", str(root), "--no-recheck"], capsys)
+    assert calls == [] and "energy check" not in out and "alpha : beta = 3.00" in out
+
+
+def test_energy_check_warning_in_the_fallback_path(set_dir, capsys):
+    root, tset, _ = set_dir
+    for t in list(tset)[:4]:
+        t.metadata["flags"] = "energy_drift;short_run"
+    code, out, _ = run_cli(["summary", str(root)], capsys)
+    assert "4 counted runs failed the energy check" in out and "none of them looked at by hand" in out
+    assert "short_run 4" in out

@@ -40,6 +40,9 @@ def register(sub) -> None:
     p.add_argument("--half-width", type=float, default=0.05, metavar="H",
                    help="target ± half-width on the share of A among A + B, for the runs-needed estimate")
     p.add_argument("--journal", metavar="FILE", help="read this label journal instead of the set's own")
+    p.add_argument("--no-recheck", dest="recheck", action="store_false",
+                   help="with journal labels, skip classifying again in memory (which finds flagged runs, such as "
+                        "failed energy checks, and automatic labels the current rules no longer give)")
     p.add_argument("--no-cache", action="store_true", help="ignore and do not write the parsed-array cache")
     p.add_argument("--quiet", "-q", action="store_true", help="no progress line on stderr")
     p.add_argument("--format", choices=FORMATS, default="table", help="output format (default: table)")
@@ -60,12 +63,29 @@ def journal_labels(path: Path, current_hashes: dict[str, str]) -> tuple[pd.DataF
     return state, notes
 
 
-def classified_labels(tset, rules) -> pd.DataFrame:
-    """Classify every run in memory (nothing written) and return run / final_label rows."""
+def classify_in_memory(tset, rules) -> pd.DataFrame:
+    """Classify every run in memory (nothing written): run, outcome, flags; notes in ``attrs``."""
     from basinmark.core.classify import classify_set
 
     table = classify_set(tset, rules)
-    return pd.DataFrame({"run": table["run"].astype(str), "final_label": table["outcome"]})
+    out = pd.DataFrame({"run": table["run"].astype(str), "outcome": table["outcome"].astype(str),
+                        "flags": table["flags"].fillna("").astype(str) if "flags" in table else ""})
+    out.attrs["notes"] = list(table.attrs.get("notes", []))
+    return out
+
+
+def stale_auto_labels(labels: pd.DataFrame, classified: pd.DataFrame) -> list[str]:
+    """A warning when the journal's automatic labels differ from what the current rules give."""
+    if "auto_label" not in labels:
+        return []
+    now = dict(zip(classified["run"], classified["outcome"]))
+    pairs = [(a, now[r]) for r, a in zip(labels["run"], labels["auto_label"]) if isinstance(a, str) and r in now]
+    differ = sum(1 for a, b in pairs if a != b)
+    if not differ:
+        return []
+    return [f"{differ} of {len(pairs)} automatic labels in the journal differ from what the current rules give: "
+            f"the rules (or the runs) have changed since they were recorded, so run `basinmark classify SET` "
+            f"again before trusting the counts."]
 
 
 def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame, list[str]]:
@@ -102,11 +122,20 @@ def make_summary(args):
     rules = load_rules(rules_file, n_atoms=tset.n_atoms) if rules_file.is_file() else None
     jpath = Path(args.journal) if args.journal else journal_path(root)
     labels, notes = journal_labels(jpath, dict(tset.content_hashes()))
+    extra: list[str] = []
     if labels is None:
         if rules is None:
             raise SetError(f"{root}: no labels in {jpath.name} and no rules file {rules_file.name} to classify with")
-        labels = classified_labels(tset, rules)
+        classified = classify_in_memory(tset, rules)
+        labels = classified.rename(columns={"outcome": "final_label"})
         notes.insert(0, NOT_CLASSIFIED_NOTE)
+        notes += classified.attrs["notes"]
+    elif rules is not None and args.recheck:
+        # classify again in memory for the flags (energy check, ...) and to catch stale automatic labels
+        classified = classify_in_memory(tset, rules)
+        labels = labels.merge(classified[["run", "flags"]], on="run", how="left")
+        extra += stale_auto_labels(labels, classified)
+        notes += classified.attrs["notes"]
     labels, order_notes = in_set_order(labels, tset.run_ids)
     notes += order_notes
     if rules is not None:
@@ -121,7 +150,8 @@ def make_summary(args):
     notes += tset.warnings
     a, b = args.ratio if args.ratio else (None, None)
     return build_summary(labels, products, a, b, ddg=args.ddg, unit=args.unit, temperature=args.temperature,
-                         confidence=args.confidence, method=args.method, half_width=args.half_width, notes=notes)
+                         confidence=args.confidence, method=args.method, half_width=args.half_width, notes=notes,
+                         extra_warnings=extra)
 
 
 def run(args) -> int:

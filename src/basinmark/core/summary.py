@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 import math
+from collections import Counter
 from dataclasses import dataclass, field
 from typing import Sequence
 
@@ -242,6 +243,36 @@ def _energy(x: float) -> str:
     return f"{x:.2f}"
 
 
+def flag_warnings(labels: pd.DataFrame) -> list[str]:
+    """Warnings about flagged runs that are still counted (see :func:`build_summary`)."""
+    if "flags" not in labels:
+        return []
+    final = labels["final_label"]
+    counted = final.notna() & (final.astype(str).str.strip() != "") & (final != "excluded")
+    flags = labels["flags"].fillna("").astype(str)
+    if "hand_label" in labels:
+        by_hand = labels["hand_label"].notna()
+    else:
+        by_hand = pd.Series(False, index=labels.index)
+    out = []
+    drift = counted & flags.str.split(";").apply(lambda f: "energy_drift" in f)
+    if drift.any():
+        n, looked = int(drift.sum()), int((drift & by_hand).sum())
+        seen = f"; {looked} of them kept by hand" if looked else ", none of them looked at by hand"
+        out.append(f"{n} counted run{'s' if n != 1 else ''} failed the energy check (total energy drifted more "
+                   f"than the rules allow){seen}. Their outcomes may be artefacts of a poor integration: look at "
+                   f"them and exclude the bad ones.")
+    tally: Counter = Counter()
+    for fl in flags[counted & ~by_hand]:
+        tally.update(f for f in fl.split(";") if f and f not in ("energy_drift", "data_changed"))
+    if tally:
+        n = int((counted & ~by_hand & flags.apply(lambda f: bool(set(f.split(";")) & set(tally)))).sum())
+        listed = ", ".join(f"{name} {k}" for name, k in sorted(tally.items()))
+        out.append(f"{n} counted run{'s' if n != 1 else ''} flagged for a look ({listed}) "
+                   f"{'have' if n != 1 else 'has'} no hand label yet.")
+    return out
+
+
 def _pick_pair(counts: dict[str, int], products: Sequence[str], a: str | None, b: str | None):
     for name in (a, b):
         if name is not None and name not in products:
@@ -269,13 +300,16 @@ def build_summary(
     *,
     half_width: float = 0.05,
     notes: Sequence[str] = (),
+    extra_warnings: Sequence[str] = (),
 ) -> Summary:
     """Summarise a label table (columns ``run``, ``final_label``; rows in the set's own order).
 
     ``a``/``b`` default to the two most common products.  ``ddg`` (ΔΔG‡ = G‡(b) − G‡(a), in
     ``unit``) adds the TST ratio.  Runs without a label and ``excluded`` runs are left out of
-    the fractions.  A ``data_changed`` column (from the journal) adds a warning for labels set
-    on files that have changed since.
+    the fractions.  Optional columns add warnings: ``data_changed`` (from the journal) for labels
+    set on files that have changed since; ``flags`` (';'-joined, from classification) for counted
+    runs that failed the energy check or await a look, using ``hand_label`` when present to tell
+    which ones a person has labelled.
     """
     if "final_label" not in labels:
         raise SummaryError("the label table has no 'final_label' column")
@@ -320,6 +354,9 @@ def build_summary(
         if changed:
             warnings.append(f"{changed} label{'s were' if changed != 1 else ' was'} set on run files that have "
                             f"changed since: check those runs again before trusting the counts.")
+
+    warnings += flag_warnings(labels)
+    warnings += list(extra_warnings)
 
     needed = None
     n_counted = int(table.attrs["n"])
