@@ -272,3 +272,52 @@ def test_energy_check_warning_in_the_fallback_path(set_dir, capsys):
     code, out, _ = run_cli(["summary", str(root)], capsys)
     assert "4 counted runs failed the energy check" in out and "none of them looked at by hand" in out
     assert "short_run 4" in out
+
+
+# --- end to end: real files, real set loading, classification and journal ----------------
+
+
+def write_half(path, r_a, r_b, step_fs=5.0):
+    """A three-atom XYZ half: atom 2 at distance r_a from atom 1, atom 3 at r_b (one value per frame)."""
+    lines = []
+    for i, (a, b) in enumerate(zip(r_a, r_b)):
+        lines += ["3", f"time={i * step_fs:.1f} epot=-1.000 ekin=0.500",
+                  "C 0.0 0.0 0.0", f"H {a:.4f} 0.0 0.0", f"H 0.0 {b:.4f} 0.0"]
+    path.write_text("\n".join(lines) + "\n")
+
+
+def ramp(start, end, frames=21, reach=6):
+    """From start to end over ``reach`` frames, then stay (frames are 5 fs apart: 100 fs per half)."""
+    return np.concatenate([np.linspace(start, end, reach), np.full(frames - reach, end)])
+
+
+def test_command_end_to_end_on_a_small_written_set(tmp_path, capsys):
+    ends = {"alpha": (1.5, 3.0), "beta": (3.0, 1.5), "recrossing": (3.0, 3.0), "unfinished": (2.0, 2.0)}
+    plan = ["alpha"] * 9 + ["beta"] * 3 + ["recrossing"] * 2 + ["unfinished"]
+    for i, outcome in enumerate(plan):
+        write_half(tmp_path / f"run-{i:03d}.bwd.xyz", ramp(2.0, 3.0), ramp(2.0, 3.0))
+        fa, fb = ends[outcome]
+        write_half(tmp_path / f"run-{i:03d}.fwd.xyz", ramp(2.0, fa), ramp(2.0, fb))
+    (tmp_path / "basins.toml").write_text(RULES_TOML)
+    code, out, err = run_cli(["summary", str(tmp_path), "--quiet", "--no-cache"], capsys)
+    assert code == 0, err
+    assert "not yet classified into the journal" in out
+    r, lo, hi = stats.ratio_interval(9, 3)
+    assert (round(lo, 2), round(hi, 1)) == (0.88, 10.2)
+    assert "alpha : beta = 3.00 (95 % CI 0.88–10.2) from 12 reactive runs (9 : 3)" in out
+    assert "Only 12 runs reached a product" in out and "Only 3 runs gave beta" in out
+    assert "unfinished" in out and not (tmp_path / "basinmark-labels.jsonl").exists()
+    # record the automatic labels with the real classify/journal interfaces, then relabel one run by hand
+    from basinmark.core.classify import classify_set, write_automatic_labels
+    from basinmark.core.journal import LabelJournal
+    from basinmark.core.rules import load_rules
+    from basinmark.core.sets import journal_path, open_set, rules_path
+    tset = open_set(tmp_path, use_cache=False)
+    rules = load_rules(rules_path(tmp_path), n_atoms=tset.n_atoms)
+    with LabelJournal.open(journal_path(tmp_path), labeler="tester") as j:
+        assert write_automatic_labels(j, classify_set(tset, rules), rules) == len(plan)
+        j.record("run-000", "excluded", content_hash=tset["run-000"].content_hash, reason="test: set aside")
+    code, out, err = run_cli(["summary", str(tmp_path), "--quiet", "--no-cache", "--format", "json"], capsys)
+    data = json.loads(out)
+    assert code == 0 and data["notes"] == [] and data["n_excluded"] == 1
+    assert (data["ratio"]["k_a"], data["ratio"]["k_b"]) == (8, 3)

@@ -141,11 +141,12 @@ def betainc(a: float, b: float, x: float) -> float:
     return 1.0 - front * _betacf(b, a, 1.0 - x) / b
 
 
-def beta_ppf(q: float, a: float, b: float) -> float:
+def beta_ppf(q: float, a: float, b: float, start: float | None = None) -> float:
     """Quantile of the Beta(a, b) distribution: x with I_x(a, b) = q.
 
     Safeguarded Newton iteration (the beta density is the derivative) inside a
-    bisection bracket, so it always converges; ~10 steps for double precision.
+    bisection bracket, so it always converges; ~10 steps for double precision,
+    fewer from a good ``start`` in (0, 1) (default: the mean a/(a+b)).
     """
     if not 0.0 <= q <= 1.0:
         raise ValueError(f"a probability must lie in [0, 1], got {q}")
@@ -155,7 +156,7 @@ def beta_ppf(q: float, a: float, b: float) -> float:
         return 1.0
     lo, hi = 0.0, 1.0
     log_b = _log_beta(a, b)
-    x = a / (a + b)  # start at the mean
+    x = start if start is not None and 0.0 < start < 1.0 else a / (a + b)
     for _ in range(200):
         f = betainc(a, b, x) - q
         if f > 0.0:
@@ -219,8 +220,9 @@ def clopper_pearson_interval(k: int, n: int, confidence: float = 0.95) -> tuple[
     _check_confidence(confidence)
     k, n = _check_counts(k, n)
     alpha = 1.0 - confidence
-    lo = 0.0 if k == 0 else beta_ppf(alpha / 2.0, k, n - k + 1)
-    hi = 1.0 if k == n else beta_ppf(1.0 - alpha / 2.0, k + 1, n - k)
+    w_lo, w_hi = wilson_interval(k, n, confidence)  # close to the exact bounds: a good Newton start
+    lo = 0.0 if k == 0 else beta_ppf(alpha / 2.0, k, n - k + 1, start=w_lo)
+    hi = 1.0 if k == n else beta_ppf(1.0 - alpha / 2.0, k + 1, n - k, start=w_hi)
     return lo, hi
 
 
