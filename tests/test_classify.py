@@ -1,0 +1,302 @@
+"""Classification on constructed runs with known answers, against a plain-loop reference, and determinism."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import given, strategies as st
+
+from basinmark.core.classify import (TABLE_COLUMNS, basin_membership, classify_prepared, classify_run,
+                                     classify_set, mark_changed, outcome_counts, prepare, write_automatic_labels)
+from basinmark.core.model import SourceFile, Trajectory, TrajectorySet
+from basinmark.core.rules import parse_rules
+from basinmark.core.units import energy_factor
+
+RULES = """\
+reactant = "reactant"
+dwell_fs = 20.0
+[monitors]
+r_a = [1, 6]
+r_b = [2, 9]
+r_c = [4, 9]
+[basins.reactant]
+r_a = { above = 2.6 }
+[basins.alpha]
+r_a = { below = 1.75 }
+r_b = { below = 1.75 }
+r_c = { above = 2.3 }
+[basins.beta]
+r_a = { below = 1.75 }
+r_c = { below = 1.75 }
+r_b = { above = 2.3 }
+[flags]
+late_commit_fs = 150.0
+max_energy_drift = 1.0
+energy_unit = "kcal/mol"
+min_length_fs = 100.0
+[time_gap]
+bonds = ["r_a", "r_b"]
+form_below = 1.75
+"""
+
+# monitor values (r_a, r_b, r_c) in Å that put a frame in each basin, or in none
+R, A, B, N = (3.0, 3.0, 3.0), (1.5, 1.5, 3.0), (1.5, 3.0, 1.5), (2.0, 2.0, 2.0)
+
+
+def place(ra, rb, rc) -> np.ndarray:
+    """Positions (F, 9, 3) whose monitors r_a=|1-6|, r_b=|2-9|, r_c=|4-9| (1-based) are the given series."""
+    ra, rb, rc = (np.asarray(x, dtype=np.float64) for x in (ra, rb, rc))
+    f = ra.size
+    pos = np.zeros((f, 9, 3))
+    for k in range(9):
+        pos[:, k] = [30.0 * (k + 1), 80.0, 0.0]  # spectators far away
+    pos[:, 0] = [0.0, 0.0, 0.0]
+    pos[:, 5] = np.stack([ra, np.zeros(f), np.zeros(f)], axis=1)
+    pos[:, 8] = [0.0, 20.0, 0.0]
+    pos[:, 1] = np.stack([rb, np.full(f, 20.0), np.zeros(f)], axis=1)
+    pos[:, 3] = np.stack([np.zeros(f), 20.0 + rc, np.zeros(f)], axis=1)
+    return pos
+
+
+def make_run(run_id: str, pieces, t0=-200.0, t1=200.0, dt=1.0, times=None, energies=None) -> Trajectory:
+    """A run whose state is ``pieces[k][1]`` from time ``pieces[k][0]`` on (first piece from -inf)."""
+    t = np.arange(round((t1 - t0) / dt) + 1) * dt + t0 if times is None else np.asarray(times, float)
+    vals = np.empty((t.size, 3))
+    for start, state in pieces:
+        vals[t >= start - 1e-9] = state
+    src = (SourceFile(path=f"{run_id}.xyz", sha256=f"{abs(hash(run_id)):064x}"[:64]),)
+    return Trajectory(run_id, [6] * 9, place(*vals.T), t, energies=energies or {}, sources=src)
+
+
+INF = -math.inf
+CASES = {
+    # run id: (pieces, outcome, backward, forward, commit, backward commit, flags)
+    "to_alpha": ([(INF, R), (-60, N), (40, A)], "alpha", "reactant", "alpha", 40.0, -61.0, []),
+    "to_beta": ([(INF, R), (-60, N), (40, B)], "beta", "reactant", "beta", 40.0, -61.0, []),
+    "reversed": ([(INF, B), (-50, N), (30, R)], "beta", "beta", "reactant", 30.0, -51.0, []),
+    "recross": ([(INF, R), (-50, N), (30, R)], "recrossing", "reactant", "reactant", 30.0, -51.0, []),
+    "unfinished": ([(INF, R), (-50, N)], "unfinished", "reactant", None, None, -51.0, []),
+    "late": ([(INF, R), (-50, N), (170, A)], "alpha", "reactant", "alpha", 170.0, -51.0, ["late_commit"]),
+    "wanderer": ([(INF, R), (-50, N), (20, A), (60, N), (90, B)], "beta", "reactant", "beta", 90.0, -51.0,
+                 ["several_visits"]),
+    "came_back": ([(INF, R), (-50, N), (20, A), (60, N), (90, A)], "alpha", "reactant", "alpha", 90.0, -51.0,
+                  ["several_visits"]),
+    "dwell_exact": ([(INF, R), (-50, N), (180, A)], "alpha", "reactant", "alpha", 180.0, -51.0, ["late_commit"]),
+    "dwell_short": ([(INF, R), (-50, N), (181, A)], "unfinished", "reactant", None, None, -51.0, []),
+    "two_products": ([(INF, A), (-50, N), (30, B)], "ambiguous", "alpha", "beta", 30.0, -51.0, []),
+    # in a basin at the TS frame: the backward half starts in alpha, then enters the reactant (two visits)
+    "at_ts": ([(INF, R), (0, A)], "alpha", "reactant", "alpha", 0.0, -1.0, ["several_visits"]),
+    "bwd_dwell_exact": ([(INF, R), (-179, N), (30, A)], "alpha", "reactant", "alpha", 30.0, -180.0,
+                        ["late_commit"]),
+    "bwd_dwell_short": ([(INF, R), (-180, N), (30, A)], "unfinished", None, "alpha", 30.0, None, []),
+}
+
+
+@pytest.fixture(scope="module")
+def rules():
+    return parse_rules(RULES)
+
+
+@pytest.mark.parametrize("run_id", list(CASES))
+def test_known_answers(rules, run_id):
+    pieces, outcome, bwd, fwd, commit, bcommit, flags = CASES[run_id]
+    res = classify_run(make_run(run_id, pieces), rules)
+    assert res.outcome == outcome
+    assert (res.backward_basin, res.forward_basin) == (bwd, fwd)
+    assert res.commit_time_fs == (None if commit is None else pytest.approx(commit))
+    assert res.backward_commit_time_fs == (None if bcommit is None else pytest.approx(bcommit))
+    assert res.flags == flags
+    assert res.basin_track.shape == (401,) and res.basin_track.dtype == np.int16
+    assert set(res.monitors) == {"r_a", "r_b", "r_c"}
+
+
+def test_monitor_series_are_what_was_built(rules):
+    res = classify_run(make_run("x", [(INF, R), (0, A)]), rules)
+    assert res.monitors["r_a"][0] == pytest.approx(3.0) and res.monitors["r_b"][-1] == pytest.approx(1.5)
+    assert list(res.basin_track[[0, 199, 200, 400]]) == [0, 0, 1, 1]
+
+
+def test_dwell_boundary_with_float_time_steps(rules):
+    # 0.1 fs steps: times are not exact multiples, the dwell of exactly 20 fs must still count
+    times = np.arange(-2000, 2001) * 0.1
+    ok = classify_run(make_run("f", [(INF, R), (-50, N), (179.95, A)], times=times), rules)
+    assert ok.outcome == "alpha" and ok.commit_time_fs == pytest.approx(180.0)
+    short = classify_run(make_run("g", [(INF, R), (-50, N), (180.05, A)], times=times), rules)
+    assert short.outcome == "unfinished"
+
+
+def test_zero_dwell_commits_on_one_frame():
+    r = parse_rules(RULES.replace("dwell_fs = 20.0", "dwell_fs = 0.0"))
+    res = classify_run(make_run("z", [(INF, R), (-50, N), (200, A)]), r)
+    assert res.outcome == "alpha" and res.commit_time_fs == 200.0
+
+
+def test_energy_drift_flag_and_note(rules):
+    kcal = energy_factor("kcal/mol")
+    t = np.arange(-200.0, 201.0)
+    pieces = [(INF, R), (-60, N), (40, A)]
+    for drift, flagged in ((2.0, True), (0.5, False)):
+        epot = -10.0 + drift * kcal * (t > 100)
+        res = classify_run(make_run("e", pieces, energies={"potential": epot, "kinetic": np.zeros_like(t)}), rules)
+        assert ("energy_drift" in res.flags) is flagged
+    table = classify_set([make_run("noe", pieces)], rules)
+    assert "energy drift was not checked" in table.attrs["notes"][0]
+
+
+def test_short_run(rules):
+    res = classify_run(make_run("s", [(INF, R), (-25, N), (10, A)], t0=-50.0), rules)
+    assert res.flags == ["short_run"] and res.outcome == "alpha"
+
+
+def test_conflicting_basins_when_overlap_allowed():
+    text = """allow_overlap = true
+reactant = "reactant"
+dwell_fs = 20.0
+[monitors]
+r_a = [1, 6]
+r_b = [2, 9]
+[basins.reactant]
+r_a = { above = 2.6 }
+[basins.alpha]
+r_a = { below = 1.75 }
+[basins.beta]
+r_a = { below = 1.75 }
+r_b = { above = 2.3 }
+"""
+    r = parse_rules(text)
+    assert r.overlaps()
+    both = (1.5, 3.0, 3.0)  # r_a short and r_b long: alpha and beta hold at once
+    mid = classify_run(make_run("m", [(INF, R), (-50, N), (20, both), (40, A)]), r)
+    assert mid.outcome == "alpha" and "conflicting_basins" in mid.flags
+    assert mid.conflict.sum() == 20 and np.all(mid.basin_track[mid.conflict] == -1)
+    end = classify_run(make_run("n", [(INF, R), (-50, N), (20, both)]), r)
+    assert end.outcome == "ambiguous" and "conflicting_basins" in end.flags
+
+
+def test_basin_membership_counts():
+    r = parse_rules(RULES)
+    mons = {"r_a": np.array([3.0, 1.5, 1.5, 2.0]), "r_b": np.array([3.0, 1.5, 3.0, 2.0]),
+            "r_c": np.array([3.0, 3.0, 1.5, 2.0])}
+    track, conflict = basin_membership(mons, r)
+    assert list(track) == [0, 1, 2, -1] and not conflict.any()
+
+
+def test_classify_set_table_and_determinism(rules):
+    runs = [make_run(k, v[0]) for k, v in CASES.items()]
+    tset = TrajectorySet(root="/nowhere", runs={t.run_id: t for t in runs})
+    t1 = classify_set(tset, rules)
+    t2 = classify_set(tset, rules)
+    assert list(t1.columns) == TABLE_COLUMNS
+    pd.testing.assert_frame_equal(t1, t2)
+    assert t1.attrs["rules_sha256"] == rules.sha256
+    for row in t1.itertuples(index=False):
+        one = classify_run(tset[row.run], rules)
+        assert row.outcome == one.outcome == CASES[row.run][1]
+        assert row.flags == ";".join(one.flags)
+        assert row.content_hash == tset[row.run].content_hash
+    # order of runs does not change any run's result
+    rev = classify_set(list(reversed(runs)), rules).set_index("run").loc[t1["run"]].reset_index()
+    pd.testing.assert_frame_equal(rev, t1, check_like=True)
+    counts = outcome_counts(t1, rules).set_index("outcome")["count"]
+    assert counts["alpha"] == 6 and counts["beta"] == 3 and counts["ambiguous"] == 1
+
+
+def test_progress_and_mark_changed(rules):
+    runs = [make_run(f"r{i}", CASES["to_alpha"][0]) for i in range(3)]
+    seen = []
+    table = classify_set(runs, rules, progress=lambda d, n, rid: seen.append((d, n, rid)))
+    assert seen == [(1, 3, "r0"), (2, 3, "r1"), (3, 3, "r2")]
+    marked = mark_changed(table, {"r1": "different"})
+    assert list(marked["flags"]) == ["", "data_changed", ""]
+
+
+def test_empty_set(rules):
+    table = classify_set([], rules)
+    assert list(table.columns) == TABLE_COLUMNS and len(table) == 0
+
+
+def test_too_few_atoms(rules):
+    t = Trajectory("tiny", [6, 6], np.zeros((3, 2, 3)), [-1.0, 0.0, 1.0])
+    with pytest.raises(Exception, match="atom"):
+        classify_run(t, rules)
+
+
+# --- against a plain-loop reference ----------------------------------------------------------------
+
+def _reference(track, times, ts, dwell, late):
+    e = len(track) - 1
+    k = e
+    while k - 1 >= ts and track[k - 1] == track[e]:
+        k -= 1
+    fwd = int(track[e]) if track[e] >= 0 and times[e] - times[k] >= dwell - 1e-6 else None
+    fc = times[k] if fwd is not None else None
+    k = 0
+    while k + 1 <= ts and track[k + 1] == track[0]:
+        k += 1
+    bwd = int(track[0]) if track[0] >= 0 and times[k] - times[0] >= dwell - 1e-6 else None
+    bc = times[k] if bwd is not None else None
+    fv = sum(1 for i in range(ts, e + 1) if track[i] >= 0 and (i == ts or track[i] != track[i - 1]))
+    bv = sum(1 for i in range(0, ts + 1) if track[i] >= 0 and (i == ts or track[i] != track[i + 1]))
+    flags = []
+    if (fc is not None and abs(fc) > late) or (bc is not None and abs(bc) > late):
+        flags.append("late_commit")
+    if fv > 1 or bv > 1:
+        flags.append("several_visits")
+    return bwd, fwd, fc, bc, flags
+
+
+run_strategy = st.tuples(
+    st.lists(st.sampled_from([R, A, B, N]), min_size=1, max_size=25),
+    st.lists(st.sampled_from([0.5, 1.0, 2.0, 3.0]), min_size=25, max_size=25),
+    st.integers(0, 24),
+)
+
+
+@given(st.lists(run_strategy, min_size=1, max_size=6), st.sampled_from([0.0, 1.0, 2.0, 3.5]),
+       st.sampled_from([2.0, 5.0, 1000.0]))
+def test_vectorised_matches_reference(specs, dwell, late):
+    text = RULES.replace("dwell_fs = 20.0", f"dwell_fs = {dwell}").replace("late_commit_fs = 150.0",
+                                                                            f"late_commit_fs = {late}")
+    text = text.replace("min_length_fs = 100.0\n", "")
+    r = parse_rules(text)
+    runs, refs = [], []
+    names = r.basin_names
+    for k, (states, steps, ts) in enumerate(specs):
+        f = len(states)
+        ts = min(ts, f - 1)
+        t = np.concatenate([[0.0], np.cumsum(steps[: f - 1])])
+        t = t - t[ts]
+        vals = np.array(states)
+        run = Trajectory(f"run{k}", [6] * 9, place(*vals.T), t)
+        runs.append(run)
+        track = [([R, A, B].index(s) if s != N else -1) for s in states]
+        refs.append(_reference(track, t, ts, dwell, late))
+    prep = prepare(runs, r)
+    res = classify_prepared(prep, r)
+    for k, (bwd, fwd, fc, bc, flags) in enumerate(refs):
+        assert res.backward_basin[k] == (None if bwd is None else names[bwd])
+        assert res.forward_basin[k] == (None if fwd is None else names[fwd])
+        assert (np.isnan(res.commit_time_fs[k]) if fc is None else res.commit_time_fs[k] == fc)
+        assert (np.isnan(res.backward_commit_time_fs[k]) if bc is None else res.backward_commit_time_fs[k] == bc)
+        assert res.flags[k] == flags
+
+
+# --- journal ------------------------------------------------------------------------------------------
+
+def test_write_automatic_labels(tmp_path, rules):
+    journal_mod = pytest.importorskip("basinmark.core.journal")
+    runs = [make_run(k, CASES[k][0]) for k in ("to_alpha", "to_beta", "late")]
+    table = classify_set(runs, rules)
+    with journal_mod.LabelJournal.open(tmp_path / "labels.jsonl", labeler="tester") as j:
+        n = write_automatic_labels(j, table, rules)
+        assert n == 3
+        state = j.state().set_index("run")
+        assert state.loc["to_beta", "auto_label"] == "beta"
+        assert state.loc["late", "auto_label"] == "alpha"
+        ev = [e for e in j.events if e.get("run") == "late"][-1]
+        assert ev["rules_hash"] == rules.sha256 and ev["source"] == "rule"
+        assert "late_commit" in ev["reason"]
+        assert ev["content_hash"] == runs[2].content_hash
