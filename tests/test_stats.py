@@ -271,3 +271,12 @@ def test_no_warnings_for_ample_data():
     counts = {"alpha": 400, "beta": 300, "recrossing": 80, "unfinished": 20}
     ratio = stats.ratio_interval(400, 300)
     assert stats.reliability_warnings(counts, ["alpha", "beta"], ratio=ratio, pair=("alpha", "beta")) == []
+
+
+def test_core_statistics_do_not_need_scipy_at_run_time():
+    import subprocess
+    import sys
+    code = ("import sys, basinmark.core.stats, basinmark.core.summary; "
+            "bad = [m for m in sys.modules if m.split('.')[0] in ('scipy', 'statsmodels')]; "
+            "sys.exit(1 if bad else 0)")
+    assert subprocess.run([sys.executable, "-c", code]).returncode == 0

@@ -104,7 +104,7 @@ def test_changed_data_is_warned():
 def test_single_product_rules_give_no_ratio():
     s = build_summary(label_frame({"alpha": 40, "recrossing": 5}), ["alpha"], ddg=1.0)
     assert s.b is None and s.tst_ratio is None
-    assert "fewer than two products" in s.to_text()
+    assert "fewer than two products" in s.to_text() and "nothing to compare TST with" in s.to_text()
 
 
 def test_renderings_json_frame_markdown():

@@ -398,7 +398,9 @@ def convergence(labels_in_order: Sequence[str] | pd.Series, a: str, b: str, conf
     One row per run, in the order given (the set's own order): ``n`` runs seen so
     far, ``n_a``, ``n_b``, ``fraction_a`` = n_a/(n_a+n_b) with its interval ``lo``/``hi``,
     and the running ``ratio`` n_a/n_b with ``ratio_lo``/``ratio_hi`` (NaN while no run
-    has reached either).  The last row equals the interval over all runs.
+    has reached either).  The last row equals the interval over all runs.  Wilson rows are
+    computed all at once (10⁴ runs in milliseconds); exact rows need a root search per
+    distinct count pair (roughly 0.1–0.3 ms each).
     """
     values = ["" if v is None or (isinstance(v, float) and math.isnan(v)) else str(v) for v in labels_in_order]
     is_a = np.fromiter((v == a for v in values), dtype=bool, count=len(values))

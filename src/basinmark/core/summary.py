@@ -131,6 +131,8 @@ class Summary:
         if not (self.a and self.b):
             out.append("No product ratio: the rules name fewer than two products." if len(self.products) < 2
                        else "No product ratio: no two products to compare.")
+            if s.get("ddg") is not None:
+                out.append("A ΔΔG‡ was given, but with no product ratio there is nothing to compare TST with.")
             return out
         r, lo, hi = self.ratio
         ci = self.confidence_text
