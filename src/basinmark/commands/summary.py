@@ -32,13 +32,13 @@ def register(sub) -> None:
                    help="the two products to compare as A : B (default: the two most common)")
     p.add_argument("--ddg", type=float, metavar="X",
                    help="ΔΔG‡ = G‡(B) − G‡(A), to show the ratio transition state theory predicts")
-    p.add_argument("--unit", choices=UNITS, default="kcal/mol", help="energy unit of --ddg and of the report")
-    p.add_argument("--temperature", type=float, default=298.15, metavar="K", help="temperature in kelvin")
+    p.add_argument("--unit", choices=UNITS, default="kcal/mol", help="energy unit of --ddg and of the report (default kcal/mol)")
+    p.add_argument("--temperature", type=float, default=298.15, metavar="K", help="temperature in kelvin (default 298.15)")
     p.add_argument("--method", choices=("wilson", "exact"), default="wilson",
                    help="interval for proportions: Wilson score (default) or Clopper–Pearson exact")
-    p.add_argument("--confidence", type=float, default=0.95, help="confidence level (default 0.95)")
+    p.add_argument("--confidence", type=float, default=0.95, metavar="C", help="confidence level (default 0.95)")
     p.add_argument("--half-width", type=float, default=0.05, metavar="H",
-                   help="target ± half-width on the share of A among A + B, for the runs-needed estimate")
+                   help="target ± half-width on the share of A among A + B, for the runs-needed estimate (default 0.05)")
     p.add_argument("--journal", metavar="FILE", help="read this label journal instead of the set's own")
     p.add_argument("--no-recheck", dest="recheck", action="store_false",
                    help="with journal labels, skip classifying again in memory (which finds flagged runs, such as "
