@@ -288,13 +288,19 @@ def classify_set(tset, rules: Rules, progress: Callable[[int, int, str | None], 
     return results_table(prep, classify_prepared(prep, rules), rules)
 
 
-def mark_changed(table: pd.DataFrame, current_hashes: dict[str, str]) -> pd.DataFrame:
-    """Copy of ``table`` with ``data_changed`` added to the flags of runs whose hash differs from ``current_hashes``."""
+def add_flag(table: pd.DataFrame, run_ids: Iterable[str], flag: str) -> pd.DataFrame:
+    """Copy of ``table`` with ``flag`` added to the flags of the given runs (once)."""
+    chosen = set(run_ids)
     out = table.copy()
-    changed = [current_hashes.get(r, h) != h for r, h in zip(out["run"], out["content_hash"])]
-    out["flags"] = [";".join([f for f in fl.split(";") if f] + ["data_changed"]) if c else fl
-                    for fl, c in zip(out["flags"], changed)]
+    out["flags"] = [";".join([f for f in fl.split(";") if f] + [flag]) if r in chosen and flag not in fl.split(";")
+                    else fl for r, fl in zip(out["run"], out["flags"])]
     return out
+
+
+def mark_changed(table: pd.DataFrame, current_hashes: dict[str, str]) -> pd.DataFrame:
+    """Copy of ``table`` with ``data_changed`` added where ``current_hashes`` differs from the table's hash."""
+    changed = [r for r, h in zip(table["run"], table["content_hash"]) if current_hashes.get(r, h) != h]
+    return add_flag(table, changed, "data_changed")
 
 
 def write_automatic_labels(journal, table: pd.DataFrame, rules: Rules) -> int:

@@ -228,6 +228,21 @@ class Rules:
         return self
 
     # --- derivation --------------------------------------------------------------------------
+    def threshold_target(self, basin: str, monitor: str, bound: str) -> Condition | None:
+        """The condition :meth:`with_threshold` would change (None: it would add one); RulesError if impossible."""
+        src = self.source
+        key = f"basins.{basin}.{monitor}"
+        if basin not in self.basins:
+            raise RulesError(src, f"no basin {basin!r}; basins are {', '.join(self.basins)}", key=f"basins.{basin}")
+        if monitor not in self.monitors:
+            raise RulesError(src, f"no monitor {monitor!r}; monitors are {', '.join(self.monitors)}", key=key)
+        if bound not in BOUNDS:
+            raise RulesError(src, f"bound must be 'below' or 'above', got {bound!r}", key=key)
+        old = self.basins[basin].condition(monitor)
+        if old is not None and old.kind not in ("between", bound):
+            raise RulesError(src, f"this condition is {old.kind!r}, so its {bound!r} bound cannot be set", key=key)
+        return old
+
     def with_threshold(self, basin: str, monitor: str, bound: str, value: float, *, check: bool = True) -> "Rules":
         """Rules with one bound of one basin's condition set to ``value``.
 
@@ -238,21 +253,11 @@ class Rules:
         """
         src = self.source
         key = f"basins.{basin}.{monitor}"
-        if basin not in self.basins:
-            raise RulesError(src, f"no basin {basin!r}; basins are {', '.join(self.basins)}", key=f"basins.{basin}")
-        if monitor not in self.monitors:
-            raise RulesError(src, f"no monitor {monitor!r}; monitors are {', '.join(self.monitors)}", key=key)
-        if bound not in BOUNDS:
-            raise RulesError(src, f"bound must be 'below' or 'above', got {bound!r}", key=key)
+        old = self.threshold_target(basin, monitor, bound)
         value = _number(value, src, key)
         b = self.basins[basin]
-        old = b.condition(monitor)
         if old is None:
             new = Condition(monitor, bound, lo=value if bound == "above" else None, hi=value if bound == "below" else None)
-        elif old.kind == "between":
-            new = replace(old, lo=value) if bound == "above" else replace(old, hi=value)
-        elif old.kind != bound:
-            raise RulesError(src, f"this condition is {old.kind!r}, so its {bound!r} bound cannot be set", key=key)
         else:
             new = replace(old, lo=value) if bound == "above" else replace(old, hi=value)
         conds = tuple(new if c.monitor == monitor else c for c in b.conditions)

@@ -1,0 +1,178 @@
+"""``basinmark classify SET`` and ``basinmark sweep SET``: automatic labels by the rules file, and how
+the counts and the product ratio move with one threshold."""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+
+from basinmark.commands._output import FORMATS, emit, table_text
+from basinmark.core.errors import SetError
+
+
+def register(sub) -> None:
+    p = sub.add_parser(
+        "classify", help="classify every run by the rules file and record the automatic labels",
+        description="Open a set, classify each run by the set's rules file (basins.toml), write the outcomes "
+                    "as automatic labels into the label journal (unless --dry-run), and print the counts per "
+                    "outcome and the runs flagged for a person's look.")
+    _common(p)
+    p.add_argument("--dry-run", action="store_true", help="classify and print, but write nothing")
+    p.add_argument("--journal", metavar="FILE", help="write into this label journal instead of the set's own")
+    p.add_argument("--all-runs", action="store_true", help="print one row per run instead of counts and flagged runs")
+    p.add_argument("--format", choices=FORMATS, default="table",
+                   help="table (default); json: counts, flagged runs and notes; csv: one row per run")
+    p.set_defaults(func=run_classify)
+
+    s = sub.add_parser(
+        "sweep", help="outcome counts and the product ratio as one threshold changes",
+        description="Classify the set again for evenly spaced values of one bound of one basin's condition "
+                    "(the monitors are computed once) and print the counts and the ratio A/B with its interval.")
+    _common(s)
+    s.add_argument("--basin", required=True, metavar="NAME", help="the basin whose condition changes")
+    s.add_argument("--monitor", required=True, metavar="NAME", help="the monitor of that condition")
+    s.add_argument("--bound", required=True, choices=("below", "above"),
+                   help="which bound moves (on a 'between' condition: below = its upper end, above = its lower end)")
+    s.add_argument("--from", dest="start", required=True, type=float, metavar="A", help="first value")
+    s.add_argument("--to", dest="stop", required=True, type=float, metavar="B", help="last value")
+    s.add_argument("--steps", type=int, default=11, metavar="N", help="number of values (default 11)")
+    s.add_argument("--ratio", nargs=2, metavar=("A", "B"), help="the two outcomes compared (default: the first two "
+                   "products)")
+    s.add_argument("--confidence", type=float, default=0.95, help="confidence level of the ratio interval")
+    s.add_argument("--format", choices=FORMATS, default="table", help="output format (default: table)")
+    s.set_defaults(func=run_sweep)
+
+
+def _common(p) -> None:
+    p.add_argument("set", metavar="SET", help="the set folder")
+    p.add_argument("--rules", metavar="FILE", help="rules file (default: SET/basins.toml)")
+    p.add_argument("--no-cache", action="store_true", help="ignore and do not write the parsed-array cache")
+    p.add_argument("--quiet", "-q", action="store_true", help="no progress line on stderr")
+
+
+def _progress(quiet: bool, verb: str):
+    if quiet or not sys.stderr.isatty():
+        return None
+
+    def show(done: int, total: int, run_id) -> None:
+        end = "\n" if done == total else ""
+        print(f"\r{verb} {done}/{total} runs", end=end, file=sys.stderr, flush=True)
+
+    return show
+
+
+def _load(args):
+    """The set and its rules, or a clear error."""
+    from basinmark.core.rules import load_rules
+    from basinmark.core.sets import open_set, rules_path
+
+    root = Path(args.set)
+    if not root.is_dir():
+        raise SetError(f"{root}: not a folder (a set is a folder of runs)")
+    rfile = Path(args.rules) if args.rules else rules_path(root)
+    if not rfile.is_file():
+        raise SetError(f"{rfile}: no rules file; write one (see docs/rules-file.md) or pass --rules FILE")
+    rules = load_rules(rfile)  # syntax and schema first, before the (slower) loading
+    tset = open_set(root, progress=_progress(args.quiet, "loading"), use_cache=not args.no_cache)
+    if len(tset) == 0:
+        reasons = [str(f) for f in tset.failures[:3]] + tset.warnings[:2]
+        raise SetError(f"{root}: no run could be loaded" + (": " + "; ".join(reasons) if reasons else ""))
+    rules.check_atoms(min(t.n_atoms for t in tset))
+    notes = list(rules.warnings) + list(tset.warnings)
+    if tset.failures:
+        notes.append(f"{len(tset.failures)} file(s) of the set failed to load and are not classified; "
+                     f"`basinmark info SET` lists them")
+    return root, tset, rules, notes
+
+
+def _data_changed(jpath: Path, tset) -> set[str]:
+    """Runs whose labels in the journal were set on different data than the files hold now."""
+    from basinmark.core.journal import LabelJournal
+
+    if not jpath.is_file():
+        return set()
+    with LabelJournal.open(jpath, readonly=True) as j:
+        state = j.state(current_hashes=dict(tset.content_hashes()))
+    if state.empty:
+        return set()
+    return set(state.loc[state["data_changed"].fillna(False).astype(bool), "run"])
+
+
+def run_classify(args) -> int:
+    from basinmark.core import stats
+    from basinmark.core.classify import add_flag, classify_set, outcome_counts, write_automatic_labels
+    from basinmark.core.journal import LabelJournal
+    from basinmark.core.labels import all_labels
+    from basinmark.core.sets import journal_path
+
+    root, tset, rules, notes = _load(args)
+    table = classify_set(tset, rules, progress=_progress(args.quiet, "classifying"))
+    notes += table.attrs.get("notes", [])
+    jpath = Path(args.journal) if args.journal else journal_path(root)
+    changed = _data_changed(jpath, tset)
+    if changed:
+        table = add_flag(table, changed, "data_changed")
+        notes.append(f"{len(changed)} run(s) changed on disk since they were labelled (flag data_changed); "
+                     f"their earlier labels describe other data")
+    written = 0
+    if not args.dry_run:
+        with LabelJournal.open(jpath, set_id=tset.name, allowed=all_labels(rules)) as j:
+            written = write_automatic_labels(j, table, rules)
+            notes += [f"journal: {w}" for w in j.warnings]
+    counts = outcome_counts(table, rules)
+    n = len(table)
+    counts["fraction"] = counts["count"] / n if n else float("nan")
+    warnings = stats.reliability_warnings(dict(zip(counts["outcome"], counts["count"])), rules.products)
+    flagged = table.loc[table["flags"] != "", ["run", "outcome", "flags", "commit_time_fs"]]
+    if args.dry_run:
+        done = f"dry run: nothing written ({n} runs classified with {rules.source}, sha256 {rules.sha256[:12]})"
+    else:
+        done = (f"{written} automatic labels written to {jpath} (rules {rules.source}, sha256 {rules.sha256[:12]}); "
+                f"hand labels are kept and still take precedence")
+
+    out = sys.stdout
+    if args.format == "json":
+        doc = {"runs": n, "counts": json.loads(counts.to_json(orient="records")),
+               "flagged": json.loads(flagged.to_json(orient="records")), "written": written,
+               "dry_run": bool(args.dry_run), "rules": str(rules.source), "rules_sha256": rules.sha256,
+               "warnings": warnings, "notes": notes}
+        json.dump(doc, out, indent=2)
+        out.write("\n")
+    elif args.format == "csv" or args.all_runs:
+        emit(table, args.format)
+    else:
+        out.write(f"{tset.name}: {n} runs\n\n")
+        out.write(table_text(counts) + "\n")
+        if len(flagged):
+            out.write(f"\n{len(flagged)} flagged run(s):\n" + table_text(flagged, floatfmt=".1f") + "\n")
+        else:
+            out.write("\nno flagged runs\n")
+    stream = sys.stderr if args.format in ("csv", "json") else out
+    if args.format != "json":
+        for line in warnings:
+            print(f"warning: {line}", file=stream)
+        for line in notes:
+            print(f"note: {line}", file=stream)
+    print(done, file=sys.stderr if args.format in ("csv", "json") else out)
+    return 0
+
+
+def run_sweep(args) -> int:
+    from basinmark.core.sweep import sweep_threshold, sweep_values
+
+    if args.steps < 1:
+        raise SetError("--steps must be at least 1")
+    _, tset, rules, notes = _load(args)
+    a, b = args.ratio if args.ratio else (None, None)
+    values = sweep_values(args.start, args.stop, args.steps)
+    df = sweep_threshold(tset, rules, args.basin, args.monitor, args.bound, values, a=a, b=b,
+                         confidence=args.confidence)
+    emit(df, args.format)
+    stream = sys.stderr if args.format in ("csv", "json") else sys.stdout
+    head = (f"{args.basin}.{args.monitor} {args.bound} from {args.start:g} to {args.stop:g} in {args.steps} steps, "
+            f"{len(tset)} runs; ratio {df.attrs['a']}/{df.attrs['b']} with {args.confidence:.0%} interval")
+    print(head, file=stream)
+    for line in notes:
+        print(f"note: {line}", file=stream)
+    return 0
