@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import io
+import json
 import math
 
 import numpy as np
@@ -300,3 +302,53 @@ def test_write_automatic_labels(tmp_path, rules):
         assert ev["rules_hash"] == rules.sha256 and ev["source"] == "rule"
         assert "late_commit" in ev["reason"]
         assert ev["content_hash"] == runs[2].content_hash
+
+
+# --- command line -------------------------------------------------------------------------------------
+
+def write_set(root, runs, rules_text: str = RULES):
+    """Write runs as joined plain-XYZ files with time/epot/ekin comment keys, plus basins.toml."""
+    root.mkdir(parents=True, exist_ok=True)
+    (root / "basins.toml").write_text(rules_text, encoding="utf-8")
+    for t in runs:
+        lines = []
+        for i in range(t.n_frames):
+            lines.append(f"{t.n_atoms}\ntime={float(t.times[i])!r} epot=-10.0 ekin=0.5")
+            lines += [f"C {x:.6f} {y:.6f} {z:.6f}" for x, y, z in t.positions[i]]
+        (root / f"{t.run_id}.xyz").write_text("\n".join(lines) + "\n", encoding="ascii")
+    return root
+
+
+def test_cli_classify(tmp_path, capsys):
+    from basinmark.cli import main
+
+    runs = [make_run(k, CASES[k][0], dt=2.0) for k in ("to_alpha", "to_beta", "late", "unfinished")]
+    root = write_set(tmp_path / "set", runs)
+    assert main(["classify", str(root), "--dry-run", "-q"]) == 0
+    out = capsys.readouterr().out
+    assert "dry run: nothing written" in out and "late_commit" in out
+    assert not (root / "basinmark-labels.jsonl").exists()
+    assert main(["classify", str(root), "-q", "--format", "json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert {c["outcome"]: c["count"] for c in doc["counts"]}["alpha"] == 2
+    assert doc["written"] == 4 and [f["run"] for f in doc["flagged"]] == ["late"]
+    assert any("rough guide" in w for w in doc["warnings"])  # too few runs is said plainly
+    assert (root / "basinmark-labels.jsonl").is_file()
+    assert main(["classify", str(root), "-q", "--format", "csv", "--dry-run"]) == 0
+    csv = pd.read_csv(io.StringIO(capsys.readouterr().out))
+    assert list(csv.columns) == TABLE_COLUMNS and len(csv) == 4
+
+
+def test_cli_classify_bad_input(tmp_path, capsys):
+    from basinmark.cli import main
+
+    root = write_set(tmp_path / "set", [make_run("a", CASES["to_alpha"][0], dt=4.0)],
+                     RULES.replace("r_c = [4, 9]", "r_c = [4, 19]"))
+    assert main(["classify", str(root), "-q"]) == 2
+    err = capsys.readouterr().err
+    assert "basins.toml" in err and "monitors.r_c" in err and "19" in err
+    assert main(["classify", str(tmp_path / "nothing"), "-q"]) == 2
+    assert "not a folder" in capsys.readouterr().err
+    (root / "basins.toml").write_text("dwell_fs = [", encoding="utf-8")
+    assert main(["classify", str(root), "-q"]) == 2
+    assert "line 1" in capsys.readouterr().err

@@ -358,7 +358,9 @@ def parse_rules(text: str, source: str = "<string>", n_atoms: int | None = None)
         msg = str(exc)
         m = re.search(r"\(at line (\d+), column \d+\)", msg)
         line = int(m.group(1)) if m else getattr(exc, "lineno", None)
-        problem = re.sub(r" \(at line.*\)", "", msg)
+        if line is None and "end of document" in msg:
+            line = max(1, len(text.splitlines()))
+        problem = re.sub(r" \((at line|at end of document).*\)", "", msg)
         raise RulesError(source, f"TOML syntax error: {problem}", line=line) from None
     b = _Builder(source, text)
     rules = b.build(doc)
