@@ -264,7 +264,7 @@ class LabelJournal:
                      tool_version: str | None = None, labeler: str | None = None) -> list[dict]:
         """Append many label events in one write and one fsync (e.g. a whole set's automatic labels).
 
-        ``entries``: mappings with run_id, label, content_hash and optionally reason.  All are
+        ``entries``: mappings with run_id, label, content_hash and optionally reason and labeler.  All are
         checked before anything is written.  Rule events are credited to ``rule:<rules hash>``
         unless ``labeler`` is given.
         """
@@ -275,7 +275,7 @@ class LabelJournal:
         for i, e in enumerate(entries):
             try:
                 ev = self._label_event(e["run_id"], e["label"], e["content_hash"], e.get("reason", ""), source,
-                                       labeler, pending)
+                                       e.get("labeler") or labeler, pending)
             except KeyError as exc:
                 raise JournalError(f"batch entry {i + 1} lacks {exc.args[0]!r}") from None
             except (JournalError, LabelError) as exc:

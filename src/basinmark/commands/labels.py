@@ -1,0 +1,331 @@
+"""Label commands: label, undo, history, verify, compare, export-labels, import-labels, unlock.
+
+All of them work on a set's label journal (``<set>/basinmark-labels.jsonl``, or ``--journal``).
+Allowed labels are the products of the set's rules file plus the fixed labels.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+from pathlib import Path
+
+import pandas as pd
+
+from basinmark.commands._output import add_format_option, emit, table_text
+from basinmark.core.errors import BasinmarkError
+
+
+def _common(p, *, journal: bool = True, labeler: bool = False, load: bool = False) -> None:
+    if journal:
+        p.add_argument("--journal", metavar="FILE", help="use this label journal instead of the set's own")
+    if labeler:
+        p.add_argument("--as", dest="labeler", metavar="NAME", help="labeler name (default: your login name)")
+    if load:
+        p.add_argument("--no-cache", action="store_true", help="ignore and do not write the parsed-array cache")
+
+
+def register(sub) -> None:
+    p = sub.add_parser("label", help="set the label of one run (saved to the journal at once)",
+                       description="Record a hand label for one run of a set in its label journal.")
+    p.add_argument("set", metavar="SET", help="the set folder")
+    p.add_argument("run", metavar="RUN", help="run id")
+    p.add_argument("label", metavar="LABEL", help="a product of the rules file, or recrossing, unfinished, "
+                   "ambiguous, excluded (excluded needs --reason)")
+    p.add_argument("--reason", default="", help="why (free text; required for 'excluded')")
+    _common(p, labeler=True, load=True)
+    add_format_option(p)
+    p.set_defaults(func=cmd_label)
+
+    p = sub.add_parser("undo", help="take back the latest label of one run (recorded as a new event)",
+                       description="Add an undo event that restores the run's previous label.")
+    p.add_argument("set", metavar="SET")
+    p.add_argument("run", metavar="RUN")
+    p.add_argument("--reason", default="", help="why (free text)")
+    _common(p, labeler=True)
+    add_format_option(p)
+    p.set_defaults(func=cmd_undo)
+
+    p = sub.add_parser("history", help="every label event of one run",
+                       description="Print the label and undo events of one run, oldest first.")
+    p.add_argument("set", metavar="SET")
+    p.add_argument("run", metavar="RUN")
+    _common(p)
+    add_format_option(p)
+    p.set_defaults(func=cmd_history)
+
+    p = sub.add_parser("verify", help="check the label journal: hash chain, sequence, and the runs' data",
+                       description="Check the journal's header, hash chain, sequence numbers and head file, and "
+                                   "every labeled run's content hash against the files on disk. Exits 1 if "
+                                   "anything is wrong.")
+    p.add_argument("set", metavar="SET")
+    p.add_argument("--no-data", action="store_true", help="check only the journal, not the run files")
+    _common(p, load=True)
+    add_format_option(p)
+    p.set_defaults(func=cmd_verify)
+
+    p = sub.add_parser("compare", help="agreement between two labelers: matrix, kappa, disagreements",
+                       description="Compare two labelers: two journals (files or set folders), or one set's "
+                                   "journal with --labelers A B (auto, hand, final, or labeler names).")
+    p.add_argument("a", metavar="A", help="a journal file or a set folder")
+    p.add_argument("b", metavar="B", nargs="?", help="a second journal file or set folder")
+    p.add_argument("--labelers", nargs=2, metavar=("X", "Y"),
+                   help="compare two labelers of A's journal: auto, hand, final or labeler names")
+    p.add_argument("--use", choices=("final", "auto", "hand"), default="final",
+                   help="with two journals, which label of each run to compare (default: final)")
+    p.add_argument("--confidence", type=float, default=0.95, help="confidence level of the kappa interval")
+    p.add_argument("-o", "--output", metavar="FILE", help="also write the review as a Markdown report")
+    p.add_argument("--format", choices=("table", "json"), default="table", help="output format (default: table)")
+    p.set_defaults(func=cmd_compare)
+
+    p = sub.add_parser("export-labels", help="write the current labels as CSV (or Parquet)",
+                       description="Write one row per labeled run: automatic, hand and final label, who, when, "
+                                   "why, and whether the run's data changed since.")
+    p.add_argument("set", metavar="SET")
+    p.add_argument("-o", "--output", metavar="FILE", help=".csv or .parquet (default: print to the terminal)")
+    p.add_argument("--no-data", action="store_true", help="do not load the runs (data_changed stays empty)")
+    _common(p, load=True)
+    add_format_option(p)
+    p.set_defaults(func=cmd_export)
+
+    p = sub.add_parser("import-labels", help="import labels from a CSV (all or nothing)",
+                       description="Import hand labels from a CSV with columns run, label and optionally "
+                                   "labeler, reason. Nothing is imported if any row is wrong.")
+    p.add_argument("set", metavar="SET")
+    p.add_argument("file", metavar="FILE", help="the CSV file")
+    _common(p, labeler=True, load=True)
+    p.set_defaults(func=cmd_import)
+
+    p = sub.add_parser("unlock", help="break a stale journal lock left by a program that stopped",
+                       description="Remove the journal's lock when the program holding it is gone, and record "
+                                   "that in the journal.")
+    p.add_argument("set", metavar="SET")
+    p.add_argument("--force", action="store_true",
+                   help="break it even if its program may still run (another host, or a live pid)")
+    p.add_argument("--reason", default="", help="why (free text)")
+    _common(p, labeler=True)
+    p.set_defaults(func=cmd_unlock)
+
+
+# --- helpers ------------------------------------------------------------------------------------
+def _root(args) -> Path:
+    root = Path(args.set).expanduser()
+    if not root.is_dir():
+        raise BasinmarkError(f"{root}: no such set folder")
+    return root
+
+
+def _journal(args) -> Path:
+    from basinmark.core.sets import journal_path
+
+    return Path(args.journal).expanduser() if getattr(args, "journal", None) else journal_path(_root(args))
+
+
+def _existing_journal(args) -> Path:
+    path = _journal(args)
+    if not path.is_file():
+        raise BasinmarkError(f"there is no label journal at {path} (nothing has been labeled yet)")
+    return path
+
+
+def _allowed(root: Path) -> list[str]:
+    from basinmark.core.labels import all_labels
+    from basinmark.core.rules import load_rules
+    from basinmark.core.sets import rules_path
+
+    path = rules_path(root)
+    if not path.is_file():
+        raise BasinmarkError(f"{path}: the set has no rules file, so the allowed labels are unknown")
+    return all_labels(load_rules(path))
+
+
+def _hashes(args) -> tuple[dict[str, str], list[str]]:
+    from basinmark.core.sets import open_set
+
+    tset = open_set(_root(args), use_cache=not getattr(args, "no_cache", False))
+    notes = [f"not loaded: {f}" for f in tset.failures] + list(tset.warnings)
+    return dict(tset.content_hashes()), notes
+
+
+def _open_writer(args, path: Path, allowed: list[str] | None = None):
+    from basinmark.core.journal import LabelJournal
+
+    return LabelJournal.open(path, set_id=_root(args).name, labeler=getattr(args, "labeler", None),
+                             allowed=allowed)
+
+
+def _warn(lines) -> None:
+    for w in lines:
+        print(f"warning: {w}", file=sys.stderr)
+
+
+def _event_row(ev: dict) -> pd.DataFrame:
+    return pd.DataFrame([{"run": ev.get("run"), "label": ev.get("label"), "replaces": ev.get("replaces"),
+                          "labeler": ev.get("labeler"), "event": ev.get("seq"), "time": ev.get("time"),
+                          "reason": ev.get("reason", "")}])
+
+
+# --- commands -----------------------------------------------------------------------------------
+def cmd_label(args) -> int:
+    root = _root(args)
+    allowed = _allowed(root)
+    hashes, notes = _hashes(args)
+    if args.run not in hashes:
+        near = ", ".join(sorted(hashes)[:10])
+        raise BasinmarkError(f"no run {args.run!r} in the set {root} (runs include: {near or 'none'})")
+    with _open_writer(args, _journal(args), allowed) as j:
+        _warn(j.warnings)
+        ev = j.record(args.run, args.label, content_hash=hashes[args.run], reason=args.reason)
+    emit(_event_row(ev), args.format)
+    return 0
+
+
+def cmd_undo(args) -> int:
+    with _open_writer(args, _existing_journal(args)) as j:
+        _warn(j.warnings)
+        ev = j.undo(args.run, reason=args.reason)
+    emit(_event_row(ev), args.format)
+    if args.format == "table":
+        now = ev.get("label") or "no label"
+        print(f"\nrun {args.run}: {ev.get('replaces')} taken back, now {now}")
+    return 0
+
+
+def cmd_history(args) -> int:
+    from basinmark.core.journal import LabelJournal
+
+    with LabelJournal.open(_existing_journal(args), readonly=True) as j:
+        _warn(j.warnings)
+        hist = j.history(args.run)
+    if hist.empty:
+        print(f"run {args.run} has no label events in {_journal(args)}", file=sys.stderr)
+        return 1
+    emit(hist.drop(columns=["content_hash"]) if args.format == "table" else hist, args.format)
+    return 0
+
+
+def cmd_verify(args) -> int:
+    from basinmark.core.journal import LabelJournal, verify_journal
+
+    path = _existing_journal(args)
+    hashes, notes = (None, []) if args.no_data else _hashes(args)
+    problems = verify_journal(path, hashes)
+    table = pd.DataFrame([{"line": p.line, "event": p.event, "problem": p.what, "message": p.message}
+                          for p in problems], columns=["line", "event", "problem", "message"])
+    if args.format != "table":
+        emit(table.astype(object).where(table.notna(), None), args.format)
+        return 1 if problems else 0
+    if problems:
+        print(table_text(table.astype(object).where(table.notna(), ""), max_width=200))
+    _warn(notes)
+    with LabelJournal.open(path, readonly=True) as j:
+        n, seq, digest = len(j.events), j.last_seq, j.last_hash
+    checked = "the journal only" if args.no_data else f"and {len(hashes)} runs' data"
+    if problems:
+        print(f"\n{path}: {len(problems)} problem(s) found ({n} events checked, {checked}).")
+        return 1
+    print(f"{path}: intact, {n} events ({checked} checked).\n"
+          f"last event {seq}, hash {digest}\n(note this hash elsewhere to be able to show later that the journal "
+          "was not rewritten)")
+    return 0
+
+
+def _journal_of(target: str) -> Path:
+    from basinmark.core.sets import journal_path
+
+    p = Path(target).expanduser()
+    path = journal_path(p) if p.is_dir() else p
+    if not path.is_file():
+        raise BasinmarkError(f"there is no label journal at {path}")
+    return path
+
+
+def cmd_compare(args) -> int:
+    from basinmark.core.journal import LabelJournal
+    from basinmark.core.review import SE_METHOD, compare_journals, compare_labelers, render_markdown
+
+    if not 0 < args.confidence < 1:
+        raise BasinmarkError("--confidence must be between 0 and 1")
+    if args.labelers:
+        if args.b:
+            raise BasinmarkError("give either two journals (A B) or one with --labelers X Y, not both")
+        with LabelJournal.open(_journal_of(args.a), readonly=True) as j:
+            _warn(j.warnings)
+            try:
+                review = compare_labelers(j, *args.labelers, confidence=args.confidence)
+            except ValueError as exc:
+                raise BasinmarkError(str(exc)) from None
+    else:
+        if not args.b:
+            raise BasinmarkError("compare needs two journals (A B), or one set with --labelers X Y")
+        review = compare_journals(_journal_of(args.a), _journal_of(args.b), which=args.use,
+                                  confidence=args.confidence)
+    if args.output:
+        Path(args.output).write_text(render_markdown(review), encoding="utf-8")
+    if args.format == "json":
+        import json
+
+        out = review.summary()
+        out["confusion"] = {str(k): {str(c): int(v) for c, v in row.items()}
+                            for k, row in review.confusion.iterrows()}
+        out["disagreement_list"] = review.disagreements.to_dict(orient="records")
+        out["warnings"] = review.warnings
+        print(json.dumps(out, indent=2))
+        return 0
+    r = review
+    print(f"rows: {r.name_a}, columns: {r.name_b}")
+    if r.n:
+        print(table_text(r.confusion.reset_index().rename(columns={r.confusion.index.name: ""})))
+    kap = "undefined" if not math.isfinite(r.kappa) else f"{r.kappa:.3f}"
+    ci = "" if not math.isfinite(r.ci[0]) else f"  ({100 * r.confidence:g} % interval {r.ci[0]:.3f} to {r.ci[1]:.3f})"
+    agree = "n/a" if not math.isfinite(r.agreement) else f"{100 * r.agreement:.1f} %"
+    print(f"\nruns labeled by both: {r.n}\nagreement: {agree}\nCohen's kappa: {kap}{ci}"
+          f"\nband (Landis & Koch 1977): {r.band or 'n/a'}\n(interval from the {SE_METHOD})")
+    if len(r.disagreements):
+        print(f"\ndisagreements ({len(r.disagreements)}):")
+        print(table_text(r.disagreements))
+    for w in r.warnings:
+        print(f"\ncaution: {w}")
+    if args.output:
+        print(f"\nreport written to {args.output}")
+    return 0
+
+
+def cmd_export(args) -> int:
+    from basinmark.core.journal import LabelJournal
+    from basinmark.core.journal_io import export_labels
+
+    hashes, notes = (None, []) if args.no_data else _hashes(args)
+    with LabelJournal.open(_existing_journal(args), readonly=True) as j:
+        _warn(j.warnings + notes)
+        if args.output:
+            path = export_labels(j, args.output, hashes)
+            print(f"{len(j.state())} runs' labels written to {path}")
+        else:
+            emit(j.state(hashes), args.format)
+    return 0
+
+
+def cmd_import(args) -> int:
+    from basinmark.core.journal_io import import_labels
+
+    root = _root(args)
+    allowed = _allowed(root)
+    hashes, notes = _hashes(args)
+    _warn(notes)
+    with _open_writer(args, _journal(args), allowed) as j:
+        _warn(j.warnings)
+        events = import_labels(j, args.file, runs=hashes, allowed=allowed, labeler=args.labeler)
+    print(f"{len(events)} labels imported from {args.file} (events {events[0]['seq']} to {events[-1]['seq']})")
+    return 0
+
+
+def cmd_unlock(args) -> int:
+    from basinmark.core.journal import LabelJournal
+
+    path = _existing_journal(args)
+    ev = LabelJournal.break_lock(path, by=args.labeler, reason=args.reason, force=args.force)
+    old = ev["old_lock"]
+    print(f"lock of {path} held by {old.get('owner')} on {old.get('host')} (pid {old.get('pid')}) since "
+          f"{old.get('time')} was broken; recorded as event {ev['seq']}")
+    return 0

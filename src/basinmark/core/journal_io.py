@@ -1,0 +1,120 @@
+"""Export current labels (CSV, or Parquet when pyarrow is installed) and import labels from a CSV.
+
+An import is all or nothing: every row is checked first (known run, allowed label, reason for
+``excluded``, each run once), and if anything is wrong nothing is written and
+:class:`LabelImportError` lists every bad row with its file and line.
+"""
+
+from __future__ import annotations
+
+import csv
+import importlib.util
+from pathlib import Path
+from typing import Mapping, Sequence
+
+import pandas as pd
+
+from basinmark.core.errors import BasinmarkError
+from basinmark.core.journal import LabelJournal
+from basinmark.core.labels import LabelError, validate_label
+
+IMPORT_COLUMNS = ("run", "label")
+OPTIONAL_COLUMNS = ("labeler", "reason")
+
+
+class LabelImportError(BasinmarkError):
+    """A label CSV cannot be imported; ``problems`` holds one sentence per bad row."""
+
+    def __init__(self, path: str | Path, problems: list[str]):
+        self.path = Path(path)
+        self.problems = problems
+        shown = "\n  ".join(problems[:50])
+        more = f"\n  ... and {len(problems) - 50} more" if len(problems) > 50 else ""
+        super().__init__(f"{self.path}: nothing was imported, {len(problems)} problem(s):\n  {shown}{more}")
+
+
+def export_labels(journal: LabelJournal, path: str | Path,
+                  current_hashes: Mapping[str, str] | None = None) -> Path:
+    """Write the current labels (``journal.state``) to ``path``: ``.parquet`` needs pyarrow, else CSV."""
+    path = Path(path)
+    table = journal.state(current_hashes)
+    if path.suffix.lower() == ".parquet":
+        if importlib.util.find_spec("pyarrow") is None:
+            raise BasinmarkError(f"{path}: writing Parquet needs the pyarrow package, which is not installed; "
+                                 "use a .csv file name")
+        table.to_parquet(path, index=False)
+    else:
+        table.to_csv(path, index=False)
+    return path
+
+
+def read_label_rows(path: str | Path) -> tuple[list[tuple[int, dict]], list[str]]:
+    """Rows of a label CSV with their line numbers, and problems with its header."""
+    path = Path(path)
+    try:
+        fh = open(path, newline="", encoding="utf-8-sig")
+    except OSError as exc:
+        raise BasinmarkError(f"{path}: cannot read the file ({exc.strerror or exc})") from None
+    with fh:
+        reader = csv.DictReader(fh)
+        try:
+            fields = [f.strip() for f in (reader.fieldnames or [])]
+            reader.fieldnames = fields
+            missing = [c for c in IMPORT_COLUMNS if c not in fields]
+            if missing:
+                return [], [f"{path}, line 1: the header lacks the column(s) {', '.join(missing)} "
+                            f"(needed: run, label; optional: labeler, reason)"]
+            rows = []
+            for row in reader:
+                rows.append((reader.line_num, row))
+        except (csv.Error, UnicodeDecodeError) as exc:
+            raise BasinmarkError(f"{path}: not a readable CSV file ({exc})") from None
+    return rows, []
+
+
+def import_labels(journal: LabelJournal, path: str | Path, *, runs: Mapping[str, str],
+                  allowed: Sequence[str], labeler: str | None = None) -> list[dict]:
+    """Import labels from a CSV as events with source ``import`` (one batch); returns the events.
+
+    ``runs`` maps every known run id to its current content hash; ``allowed`` is the label
+    vocabulary.  A row's own ``labeler`` column, when filled, names who labeled it.
+    """
+    path = Path(path)
+    rows, problems = read_label_rows(path)
+    seen: dict[str, int] = {}
+    entries = []
+    for line, row in rows:
+        where = f"{path}, line {line}"
+        if None in row:
+            problems.append(f"{where}: more cells than columns")
+            continue
+        run = (row.get("run") or "").strip()
+        label = (row.get("label") or "").strip()
+        reason = (row.get("reason") or "").strip()
+        who = (row.get("labeler") or "").strip() or None
+        if not run and not label:
+            continue  # a blank line
+        if not run:
+            problems.append(f"{where}: no run id")
+            continue
+        if run not in runs:
+            problems.append(f"{where}: unknown run {run!r} (not in the set)")
+        try:
+            label = validate_label(label, allowed, reason=reason)
+        except LabelError as exc:
+            problems.append(f"{where}: {exc}")
+        if run in seen:
+            problems.append(f"{where}: run {run!r} appears again (first on line {seen[run]})")
+        seen.setdefault(run, line)
+        entries.append({"run_id": run, "label": label, "content_hash": runs.get(run, ""), "reason": reason,
+                        "labeler": who or labeler})
+    if not entries and not problems:
+        problems.append(f"{path}: no labels in the file")
+    if problems:
+        raise LabelImportError(path, problems)
+    return journal.record_batch(entries, source="import", labeler=labeler)
+
+
+def labels_frame(journal: LabelJournal, which: str = "final") -> pd.DataFrame:
+    """One label per run (``final``, ``auto``, ``hand`` or a labeler name) as run, label, labeler, reason."""
+    return journal.labels(which).reset_index(drop=True)[["run", "label", "labeler", "reason"]]
