@@ -114,3 +114,37 @@ def make_toy_set(root: Path, outcomes: Sequence[str], n_half: int = 41, dt: floa
         _write_half(root / f"{run}.bwd.xyz", _toy_path(bl, br), times, epot, ekin)
         _write_half(root / f"{run}.fwd.xyz", _toy_path(fl, fr), times, epot, ekin)
     return root
+
+
+def toy_trajectory(run_id: str, outcome: str, n_half: int = 41, dt: float = 2.0, drift: bool = False) -> Trajectory:
+    """One joined toy run in memory (the same geometry make_toy_set writes to disk)."""
+    import hashlib
+
+    from basinmark.core.model import SourceFile
+
+    bl, br = _half(3.0, 3.0, n_half)
+    fl, fr = _half(*TOY_ENDS[outcome], n_half)
+    back = _toy_path(bl, br)[::-1]
+    fwd = _toy_path(fl, fr)[1:]
+    pos = np.concatenate([back, fwd])
+    times = np.concatenate([-np.arange(n_half)[::-1] * dt, np.arange(1, n_half) * dt])
+    epot = 0.02 * np.cos(times / 15.0)
+    ekin = 0.5 - epot
+    if drift:
+        ekin = ekin + np.abs(times) / times.max() * 0.22
+    sha = hashlib.sha256(f"{run_id}:{outcome}".encode()).hexdigest()
+    return Trajectory(run_id, [6, 6, 6], pos, times, energies={"potential": epot, "kinetic": ekin},
+                      sources=(SourceFile(Path(f"{run_id}.xyz"), sha),))
+
+
+def toy_set(root: Path, outcomes: Sequence[str], drift_runs: Sequence[int] = ()):
+    """A TrajectorySet in memory rooted at ``root`` (basins.toml written there), runs toy-001..."""
+    from basinmark.core.model import TrajectorySet
+
+    root.mkdir(parents=True, exist_ok=True)
+    (root / "basins.toml").write_text(TOY_RULES)
+    runs = {}
+    for i, outcome in enumerate(outcomes):
+        rid = f"toy-{i + 1:03d}"
+        runs[rid] = toy_trajectory(rid, outcome, drift=i in drift_runs)
+    return TrajectorySet(root, runs, metadata={"name": "toyfork"})

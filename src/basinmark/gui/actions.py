@@ -1,0 +1,114 @@
+"""Every command of the window, declared once: text, shortcuts, tooltip, icon and group.
+
+:func:`build_actions` turns the table into QActions bound to slots; the
+main window puts the same QActions into menus, the toolbar and the
+shortcut help, so a shortcut is defined in exactly one place.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable, Mapping
+
+from PySide6.QtGui import QAction, QKeySequence
+from PySide6.QtWidgets import QWidget
+
+from basinmark.gui.icons import icon
+
+
+@dataclass(frozen=True)
+class ActionSpec:
+    name: str
+    text: str
+    group: str
+    shortcuts: tuple[str, ...] = ()
+    tip: str = ""
+    icon: str = ""
+    checkable: bool = False
+
+
+ACTIONS: tuple[ActionSpec, ...] = (
+    # file
+    ActionSpec("open_folder", "&Open Folder…", "File", ("Ctrl+O",), "Open a folder of runs as a set", "open-folder"),
+    ActionSpec("open_rules", "Open &Rules…", "File", ("Ctrl+Shift+O",),
+               "Load a basins file and re-classify every run", "open-rules"),
+    ActionSpec("quit", "&Quit", "File", ("Ctrl+Q",), "Close the window"),
+    # playback
+    ActionSpec("play_pause", "&Play / Pause", "Playback", ("Space",), "Play or pause the current run", "play"),
+    ActionSpec("step_back", "Step &Back", "Playback", ("Left",), "One frame back", "step-back"),
+    ActionSpec("step_forward", "Step &Forward", "Playback", ("Right",), "One frame forward", "step-forward"),
+    ActionSpec("skip_back", "Back 10 Frames", "Playback", ("Shift+Left",), "Ten frames back", "skip-back"),
+    ActionSpec("skip_forward", "Forward 10 Frames", "Playback", ("Shift+Right",), "Ten frames forward",
+               "skip-forward"),
+    ActionSpec("jump_start", "Go to &Start", "Playback", ("Home",), "First frame (end of the backward half)",
+               "jump-start"),
+    ActionSpec("jump_end", "Go to &End", "Playback", ("End",), "Last frame (end of the forward half)", "jump-end"),
+    ActionSpec("jump_ts", "Go to &Transition State", "Playback", ("T",), "The frame at t = 0", "jump-ts"),
+    ActionSpec("jump_commit", "Go to &Commit", "Playback", ("C",), "The frame where the run committed forward",
+               "jump-commit"),
+    ActionSpec("faster", "Faster", "Playback", ("]",), "Double the playback speed (up to 8x)"),
+    ActionSpec("slower", "Slower", "Playback", ("[",), "Halve the playback speed (down to 0.25x)"),
+    ActionSpec("loop", "&Loop", "Playback", ("L",), "Start again at the end", "loop", checkable=True),
+    # runs
+    ActionSpec("next_run", "&Next Run", "Runs", ("PgDown", "N"), "The next run in the table", "next-run"),
+    ActionSpec("previous_run", "P&revious Run", "Runs", ("PgUp", "P"), "The previous run in the table",
+               "previous-run"),
+    ActionSpec("next_flagged", "Next &Flagged Run", "Runs", ("F",), "The next run with a flag", "next-flagged"),
+    ActionSpec("next_unlabeled", "Next &Unlabeled Run", "Runs", ("U",), "The next run without a hand label",
+               "next-unlabeled"),
+    # labels
+    ActionSpec("undo_label", "&Undo Label", "Labels", ("Ctrl+Z",),
+               "Undo the last hand label of this run (recorded in the journal)", "undo"),
+    # view
+    ActionSpec("reset_view", "&Reset View", "View", ("R",), "Initial orientation, fitted", "reset-view"),
+    ActionSpec("fit_view", "&Fit Molecule", "View", ("Shift+R",), "Zoom to fit, keep the orientation", "fit-view"),
+    ActionSpec("atom_numbers", "Atom &Numbers", "View", ("A",), "Show 1-based atom numbers", "atom-numbers",
+               checkable=True),
+    ActionSpec("clear_monitors", "&Clear Added Traces", "View", ("Ctrl+Backspace",),
+               "Remove the distances, angles and dihedrals you added by picking atoms"),
+    ActionSpec("energy_unit", "Energies in kJ/mol", "View", (), "Show energies in kJ/mol instead of kcal/mol",
+               checkable=True),
+    # help
+    ActionSpec("shortcuts", "&Keyboard Shortcuts", "Help", ("F1",), "All commands and their keys", "shortcuts"),
+    ActionSpec("about", "&About basinmark", "Help", (), "Version and what this tool is for"),
+)
+
+SPECS: dict[str, ActionSpec] = {s.name: s for s in ACTIONS}
+
+
+def build_actions(parent: QWidget, slots: Mapping[str, Callable]) -> dict[str, QAction]:
+    """One QAction per spec, added to ``parent`` (so shortcuts work window-wide), triggered into ``slots``."""
+    out: dict[str, QAction] = {}
+    for spec in ACTIONS:
+        act = QAction(spec.text, parent)
+        if spec.icon:
+            act.setIcon(icon(spec.icon))
+        if spec.shortcuts:
+            act.setShortcuts([QKeySequence(s) for s in spec.shortcuts])
+        tip = spec.tip
+        if spec.shortcuts:
+            keys = ", ".join(QKeySequence(s).toString(QKeySequence.SequenceFormat.NativeText) for s in spec.shortcuts)
+            tip = f"{tip} ({keys})" if tip else keys
+        act.setToolTip(tip)
+        act.setStatusTip(spec.tip)
+        act.setCheckable(spec.checkable)
+        slot = slots.get(spec.name)
+        if slot is not None:
+            if spec.checkable:
+                act.toggled.connect(slot)
+            else:
+                act.triggered.connect(lambda checked=False, f=slot: f())
+        parent.addAction(act)
+        out[spec.name] = act
+    return out
+
+
+def shortcut_rows(actions: Mapping[str, QAction]) -> list[tuple[str, str, str]]:
+    """(group, command, keys) for the shortcut help, from the live actions (including label keys)."""
+    rows = []
+    for name, act in actions.items():
+        spec = SPECS.get(name)
+        group = spec.group if spec else str(act.property("group") or "Labels")
+        keys = ", ".join(k.toString(QKeySequence.SequenceFormat.NativeText) for k in act.shortcuts())
+        rows.append((group, act.text().replace("&", ""), keys))
+    return rows

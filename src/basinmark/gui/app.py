@@ -1,0 +1,43 @@
+"""Start the desktop application: ``basinmark open [SET]`` and ``make demo`` end up here."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+from basinmark import __version__
+
+
+def bundled_sample_set() -> Path:
+    """The sample set shipped in the source tree (sample_sets/ringfork)."""
+    return Path(__file__).resolve().parents[3] / "sample_sets" / "ringfork"
+
+
+def make_app(argv: list[str] | None = None):
+    """The QApplication (created once), named so QSettings finds the right place; pyqtgraph antialiased."""
+    from PySide6.QtWidgets import QApplication
+
+    app = QApplication.instance()
+    if app is None:
+        app = QApplication(argv if argv is not None else sys.argv[:1])
+    app.setOrganizationName("basinmark")
+    app.setApplicationName("basinmark")
+    app.setApplicationVersion(__version__)
+    import pyqtgraph as pg
+
+    pg.setConfigOptions(antialias=True)
+    return app
+
+
+def run(set_path: str | Path | None = None, rules: str | Path | None = None, labeler: str | None = None) -> int:
+    """Open the window (on ``set_path`` if given) and run the event loop; returns the exit code."""
+    app = make_app()
+    from basinmark.gui.main_window import MainWindow
+
+    win = MainWindow()
+    if labeler:
+        win.label_panel.set_labeler(labeler)
+    win.show()
+    if set_path is not None:
+        win.open_set(set_path, rules)
+    return int(app.exec())

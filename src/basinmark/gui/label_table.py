@@ -1,0 +1,48 @@
+"""Merge the automatic classification with the journal's current labels into the run table's rows.
+
+The automatic outcome is the fresh classification of the runs on disk with
+the current rules (falling back to the journal's recorded rule label when
+there are no rules); the final label is the latest hand label, else the
+automatic one (see the glossary).
+"""
+
+from __future__ import annotations
+
+from typing import Sequence
+
+import pandas as pd
+
+LABEL_COLUMNS = ["run", "auto_label", "hand_label", "final_label", "commit_time_fs", "flags",
+                 "labeler", "reason", "data_changed"]
+
+
+def _text(value) -> str:
+    if value is None or (isinstance(value, float) and pd.isna(value)):
+        return ""
+    return str(value)
+
+
+def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | None,
+                      journal_state: pd.DataFrame | None) -> pd.DataFrame:
+    """One row per run id, in the given order, with the LABEL_COLUMNS."""
+    cls = {} if classification is None else {r["run"]: r for r in classification.to_dict("records")}
+    jst = {} if journal_state is None or journal_state.empty else {
+        r["run"]: r for r in journal_state.to_dict("records")}
+    rows = []
+    for run in run_ids:
+        c, j = cls.get(run, {}), jst.get(run, {})
+        auto = _text(c.get("outcome")) or _text(j.get("auto_label"))
+        hand = _text(j.get("hand_label"))
+        commit = c.get("commit_time_fs")
+        rows.append({
+            "run": run,
+            "auto_label": auto,
+            "hand_label": hand,
+            "final_label": hand or auto,
+            "commit_time_fs": float("nan") if commit is None or pd.isna(commit) else float(commit),
+            "flags": _text(c.get("flags")),
+            "labeler": _text(j.get("labeler")) if hand else "",
+            "reason": _text(j.get("reason")) if hand else "",
+            "data_changed": bool(j.get("data_changed", False)) if j else False,
+        })
+    return pd.DataFrame(rows, columns=LABEL_COLUMNS)

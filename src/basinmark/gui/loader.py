@@ -1,0 +1,136 @@
+"""Loading and classifying a set in a worker thread, reporting progress, cancellable.
+
+The worker calls the core (``open_set``, ``load_rules``, ``classify_set``) and
+only emits signals; the window receives them in the GUI thread (queued).
+"""
+
+from __future__ import annotations
+
+import threading
+from pathlib import Path
+
+from PySide6.QtCore import QObject, QThread, Signal
+
+from basinmark.core.errors import BasinmarkError
+
+
+class SetLoader(QObject):
+    """Does the work; lives in a QThread.  Emits ``done(result dict)`` exactly once."""
+
+    progress = Signal(str, int, int)     # phase ("Loading" | "Classifying"), done, total
+    run_loaded = Signal(object)          # each Trajectory as soon as it is ready
+    done = Signal(object)                # {"tset", "rules", "classification", "rules_error", "error", "cancelled"}
+
+    def __init__(self, path: str | Path, rules_file: str | Path | None = None, *, use_cache: bool = True) -> None:
+        super().__init__()
+        self.path = Path(path)
+        self.rules_file = Path(rules_file) if rules_file else None
+        self.use_cache = use_cache
+        self._cancel = threading.Event()
+
+    def cancel(self) -> None:
+        self._cancel.set()
+
+    @property
+    def cancelled(self) -> bool:
+        return self._cancel.is_set()
+
+    def run(self) -> None:
+        from basinmark.core.sets import open_set, rules_path
+
+        out = {"path": self.path, "tset": None, "rules": None, "classification": None, "rules_error": "",
+               "error": "", "cancelled": False}
+        try:
+            tset = open_set(self.path, use_cache=self.use_cache, cancel=self._cancel.is_set,
+                            progress=lambda d, t, _r: self.progress.emit("Loading", d, t),
+                            on_run=self.run_loaded.emit)
+            out["tset"] = tset
+            out["cancelled"] = self.cancelled
+            rules_file = self.rules_file or rules_path(tset.root)
+            if not self.cancelled:
+                out.update(classify_with_rules(tset, rules_file,
+                                               lambda d, t, _r: self.progress.emit("Classifying", d, t)))
+        except BasinmarkError as exc:
+            out["error"] = str(exc)
+        except Exception as exc:  # the window must survive anything a broken folder does
+            out["error"] = f"{self.path}: could not be opened ({type(exc).__name__}: {exc})"
+        self.done.emit(out)
+
+
+def classify_with_rules(tset, rules_file: Path, progress=None) -> dict:
+    """Load the rules and classify every run; problems become a plain sentence in ``rules_error``."""
+    from basinmark.core.classify import classify_set
+    from basinmark.core.rules import load_rules
+
+    out = {"rules": None, "classification": None, "rules_error": ""}
+    if not rules_file.is_file():
+        out["rules_error"] = (f"No rules file at {rules_file}: the runs are shown without automatic outcomes. "
+                              "Use File ▸ Open Rules… to classify them.")
+        return out
+    try:
+        rules = load_rules(rules_file, n_atoms=tset.n_atoms)
+    except BasinmarkError as exc:
+        out["rules_error"] = f"The rules file could not be used, so nothing is classified: {exc}"
+        return out
+    out["rules"] = rules
+    if len(tset):
+        out["classification"] = classify_set(tset, rules, progress=progress)
+    return out
+
+
+class RulesWorker(QObject):
+    """Re-classifies an open set with another rules file (same result keys as SetLoader)."""
+
+    progress = Signal(str, int, int)
+    run_loaded = Signal(object)  # unused; keeps the worker interface uniform
+    done = Signal(object)
+
+    def __init__(self, tset, rules_file: str | Path) -> None:
+        super().__init__()
+        self.tset, self.rules_file = tset, Path(rules_file)
+        self._cancel = threading.Event()
+
+    def cancel(self) -> None:
+        self._cancel.set()
+
+    def run(self) -> None:
+        out = {"path": self.tset.root, "tset": self.tset, "error": "", "cancelled": False, "rules_only": True}
+        try:
+            out.update(classify_with_rules(self.tset, self.rules_file,
+                                           lambda d, t, _r: self.progress.emit("Classifying", d, t)))
+        except Exception as exc:  # report, never crash the window
+            out.update({"rules": None, "classification": None,
+                        "rules_error": f"Classification failed: {type(exc).__name__}: {exc}"})
+        self.done.emit(out)
+
+
+class LoadJob(QObject):
+    """Owns the thread and the worker of one job; ``finished(result)`` in the GUI thread."""
+
+    finished = Signal(object)
+
+    def __init__(self, worker: QObject, parent: QObject | None = None) -> None:
+        super().__init__(parent)
+        self.thread = QThread()
+        self.worker = worker
+        self.worker.moveToThread(self.thread)
+        self.thread.started.connect(self.worker.run)
+        self.worker.done.connect(self._on_done)
+        self.progress = self.worker.progress
+        self.run_loaded = self.worker.run_loaded
+
+    def start(self) -> None:
+        self.thread.start()
+
+    def cancel(self) -> None:
+        self.worker.cancel()
+
+    def _on_done(self, result: dict) -> None:
+        self.thread.quit()
+        self.thread.wait(5000)
+        self.finished.emit(result)
+
+    def wait(self, ms: int = 10000) -> bool:
+        self.worker.cancel()
+        self.thread.quit()
+        return self.thread.wait(ms)

@@ -1,0 +1,473 @@
+"""The main window: run table, molecule, traces, playback and labeling, wired through AppState."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtCore import QByteArray, QSettings, Qt, Signal
+from PySide6.QtWidgets import (QDockWidget, QFileDialog, QLabel, QMainWindow, QMenu, QMenuBar, QMessageBox,
+                               QProgressBar, QToolBar, QToolButton, QVBoxLayout, QWidget)
+
+from basinmark import __version__
+from basinmark.core.journal import JournalError, JournalLockedError, LabelJournal, default_labeler
+from basinmark.core.labels import all_labels
+from basinmark.core.model import TrajectorySet
+from basinmark.core.sets import journal_path
+from basinmark.gui.actions import build_actions, shortcut_rows
+from basinmark.gui.dialogs import FailuresDialog, ShortcutsDialog
+from basinmark.gui.icons import icon
+from basinmark.gui.label_panel import Banner, LabelPanel
+from basinmark.gui.loader import LoadJob, RulesWorker, SetLoader
+from basinmark.gui.molecule_view import MoleculeView
+from basinmark.gui.playback import PlaybackBar, PlaybackController
+from basinmark.gui.run_table import RunTable
+from basinmark.gui.state import AppState
+from basinmark.gui.traces import TracesView
+
+MAX_RECENT = 8
+
+
+def default_settings() -> QSettings:
+    return QSettings("basinmark", "basinmark")
+
+
+class MainWindow(QMainWindow):
+    """One window over one set at a time."""
+
+    set_loaded = Signal()        # a set (and its classification) finished loading
+    rules_applied = Signal()
+
+    def __init__(self, settings: QSettings | None = None, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.settings = settings or default_settings()
+        self.state = AppState(self)
+        self.job: LoadJob | None = None
+        self.failure_dialog: FailuresDialog | None = None
+        self._messages: dict[str, str] = {}
+        self.setWindowTitle("basinmark")
+        self.setAcceptDrops(True)
+        self.resize(1400, 900)
+
+        self.playback = PlaybackController(self.state, self)
+        self.actions_ = build_actions(self, self._slots())
+        self.molecule = MoleculeView(self)
+        self.traces = TracesView(self)
+        self.run_table = RunTable(self.state, self)
+        self.label_panel = LabelPanel(self.state, self.actions_["undo_label"], self)
+        self.playback_bar = PlaybackBar(self.state, self.playback, self.actions_, self)
+        self.banner = Banner(self)
+        self._build_layout()
+        self._build_menus()
+        self._build_status()
+        self._connect()
+        self.label_panel.set_labeler(str(self.settings.value("labeler", "") or default_labeler()))
+        self._restore()
+
+    # --- construction ---------------------------------------------------------------------
+    def _slots(self) -> dict:
+        pb = self.playback
+        return {
+            "open_folder": self.choose_folder, "open_rules": self.choose_rules, "quit": self.close,
+            "play_pause": pb.toggle, "step_back": lambda: pb.step(-1), "step_forward": lambda: pb.step(1),
+            "skip_back": lambda: pb.step(-10), "skip_forward": lambda: pb.step(10),
+            "jump_start": pb.jump_start, "jump_end": pb.jump_end, "jump_ts": pb.jump_ts,
+            "jump_commit": self.jump_commit, "faster": pb.faster, "slower": pb.slower, "loop": pb.set_loop,
+            "next_run": lambda: self._nav(self.run_table.step_run(1), "This is the last run in the table."),
+            "previous_run": lambda: self._nav(self.run_table.step_run(-1), "This is the first run in the table."),
+            "next_flagged": lambda: self._nav(self.run_table.next_matching("flagged"), "No other flagged run."),
+            "next_unlabeled": lambda: self._nav(self.run_table.next_matching("unlabeled"),
+                                                "Every other run has a hand label."),
+            "undo_label": lambda: self.label_panel.undo(),
+            "reset_view": lambda: self.molecule.reset_view(), "fit_view": lambda: self.molecule.fit(),
+            "atom_numbers": lambda on: self.molecule.set_show_numbers(on),
+            "clear_monitors": lambda: self.state.clear_monitors(),
+            "energy_unit": lambda on: self.traces.set_energy_unit("kJ/mol" if on else "kcal/mol"),
+            "shortcuts": self.show_shortcuts, "about": self.show_about,
+        }
+
+    def _build_layout(self) -> None:
+        centre = QWidget(self)
+        lay = QVBoxLayout(centre)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.setSpacing(0)
+        lay.addWidget(self.molecule, 1)
+        lay.addWidget(self.playback_bar)
+        self.setCentralWidget(centre)
+        self.docks: dict[str, QDockWidget] = {}
+        for name, title, widget, area in (
+                ("runs", "Runs", self.run_table, Qt.DockWidgetArea.LeftDockWidgetArea),
+                ("traces", "Traces", self.traces, Qt.DockWidgetArea.RightDockWidgetArea),
+                ("label", "Label", self.label_panel, Qt.DockWidgetArea.LeftDockWidgetArea)):
+            dock = QDockWidget(title, self)
+            dock.setObjectName(f"dock_{name}")
+            dock.setWidget(widget)
+            dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable
+                             | QDockWidget.DockWidgetFeature.DockWidgetClosable
+                             | QDockWidget.DockWidgetFeature.DockWidgetFloatable)
+            self.addDockWidget(area, dock)
+            self.docks[name] = dock
+        self.splitDockWidget(self.docks["runs"], self.docks["label"], Qt.Orientation.Vertical)
+        self.resizeDocks([self.docks["runs"], self.docks["traces"]], [480, 520], Qt.Orientation.Horizontal)
+        self.resizeDocks([self.docks["runs"], self.docks["label"]], [560, 260], Qt.Orientation.Vertical)
+
+    def _build_menus(self) -> None:
+        a = self.actions_
+        bar = QMenuBar(self)
+        top = QWidget(self)
+        tl = QVBoxLayout(top)
+        tl.setContentsMargins(0, 0, 0, 0)
+        tl.setSpacing(0)
+        tl.addWidget(bar)
+        tl.addWidget(self.banner)
+        self.setMenuWidget(top)
+        self.menu_bar = bar
+        m = bar.addMenu("&File")
+        m.addAction(a["open_folder"])
+        self.recent_menu = QMenu("Open &Recent", self)
+        m.addMenu(self.recent_menu)
+        m.addAction(a["open_rules"])
+        m.addSeparator()
+        m.addAction(a["quit"])
+        m = bar.addMenu("&Playback")
+        for name in ("play_pause", None, "step_back", "step_forward", "skip_back", "skip_forward", None,
+                     "jump_start", "jump_end", "jump_ts", "jump_commit", None, "faster", "slower", "loop"):
+            m.addSeparator() if name is None else m.addAction(a[name])
+        m = bar.addMenu("&Runs")
+        for name in ("next_run", "previous_run", "next_flagged", "next_unlabeled"):
+            m.addAction(a[name])
+        self.labels_menu = bar.addMenu("&Labels")
+        m = bar.addMenu("&View")
+        for name in ("reset_view", "fit_view", "atom_numbers", None, "clear_monitors", "energy_unit"):
+            m.addSeparator() if name is None else m.addAction(a[name])
+        m.addSeparator()
+        for dock in self.docks.values():
+            m.addAction(dock.toggleViewAction())
+        m = bar.addMenu("&Help")
+        m.addAction(a["shortcuts"])
+        m.addAction(a["about"])
+        tb = QToolBar("Main", self)
+        tb.setObjectName("toolbar_main")
+        tb.setMovable(False)
+        for name in ("open_folder", "open_rules", None, "previous_run", "next_run", "next_flagged",
+                     "next_unlabeled", None, "reset_view", "fit_view", "atom_numbers", None, "undo_label"):
+            tb.addSeparator() if name is None else tb.addAction(a[name])
+        self.addToolBar(tb)
+        self._fill_labels_menu()
+        self._fill_recent_menu()
+
+    def _fill_labels_menu(self) -> None:
+        self.labels_menu.clear()
+        for act in self.label_panel.label_actions.values():
+            self.labels_menu.addAction(act)
+        self.labels_menu.addSeparator()
+        self.labels_menu.addAction(self.actions_["undo_label"])
+
+    def _build_status(self) -> None:
+        sb = self.statusBar()
+        self.status_where = QLabel(self)
+        self.status_counts = QLabel(self)
+        self.progress = QProgressBar(self)
+        self.progress.setMaximumWidth(220)
+        self.progress.setTextVisible(True)
+        self.progress.setVisible(False)
+        self.cancel_button = QToolButton(self)
+        self.cancel_button.setIcon(icon("cancel"))
+        self.cancel_button.setText("Cancel")
+        self.cancel_button.setToolTip("Stop loading; the runs loaded so far stay usable")
+        self.cancel_button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
+        self.cancel_button.setVisible(False)
+        self.cancel_button.clicked.connect(self.cancel_loading)
+        sb.addWidget(self.status_where, 1)
+        sb.addPermanentWidget(self.status_counts)
+        sb.addPermanentWidget(self.progress)
+        sb.addPermanentWidget(self.cancel_button)
+
+    def _connect(self) -> None:
+        st = self.state
+        st.run_changed.connect(self._on_run)
+        st.frame_changed.connect(self._on_frame)
+        st.rules_changed.connect(self._on_rules)
+        st.monitors_changed.connect(self._on_monitors)
+        st.labels_changed.connect(self._update_status)
+        self.molecule.picks_changed.connect(st.set_picks)
+        self.molecule.monitor_requested.connect(st.add_monitor)
+        self.traces.time_scrubbed.connect(self._on_scrub)
+        self.label_panel.message.connect(lambda text: self.statusBar().showMessage(text, 6000))
+
+    # --- settings -------------------------------------------------------------------------
+    def _restore(self) -> None:
+        geo = self.settings.value("window/geometry")
+        if isinstance(geo, QByteArray) and not geo.isEmpty():
+            self.restoreGeometry(geo)
+        st = self.settings.value("window/state")
+        if isinstance(st, QByteArray) and not st.isEmpty():
+            self.restoreState(st)
+        self.traces.set_energy_unit(str(self.settings.value("energy_unit", "kcal/mol")))
+        self.actions_["energy_unit"].setChecked(self.traces.energy_unit == "kJ/mol")
+
+    def save_settings(self) -> None:
+        self.settings.setValue("window/geometry", self.saveGeometry())
+        self.settings.setValue("window/state", self.saveState())
+        self.settings.setValue("labeler", self.label_panel.labeler_name)
+        self.settings.setValue("energy_unit", self.traces.energy_unit)
+        self.settings.sync()
+
+    def recent_sets(self) -> list[str]:
+        value = self.settings.value("recent", [])
+        if isinstance(value, str):
+            value = [value]
+        return [str(v) for v in (value or [])]
+
+    def _remember(self, path: Path) -> None:
+        p = str(Path(path).resolve())
+        recent = [p] + [r for r in self.recent_sets() if r != p]
+        self.settings.setValue("recent", recent[:MAX_RECENT])
+        self._fill_recent_menu()
+
+    def _fill_recent_menu(self) -> None:
+        self.recent_menu.clear()
+        recent = self.recent_sets()
+        for p in recent:
+            act = self.recent_menu.addAction(p)
+            act.triggered.connect(lambda _c=False, path=p: self.open_set(path))
+        self.recent_menu.setEnabled(bool(recent))
+
+    def closeEvent(self, event) -> None:  # noqa: N802
+        self.playback.pause()
+        if self.job is not None:
+            self.job.wait(5000)
+        self.save_settings()
+        self.state.set_journal(None)
+        super().closeEvent(event)
+
+    # --- opening ----------------------------------------------------------------------------
+    def choose_folder(self) -> None:
+        start = self.recent_sets()[0] if self.recent_sets() else str(Path.home())
+        path = QFileDialog.getExistingDirectory(self, "Open a set folder", start)
+        if path:
+            self.open_set(path)
+
+    def choose_rules(self) -> None:
+        if self.state.tset is None:
+            self.statusBar().showMessage("Open a set first; rules classify the runs of a set.", 6000)
+            return
+        path, _ = QFileDialog.getOpenFileName(self, "Open a rules file", str(self.state.tset.root),
+                                              "Rules (*.toml);;All files (*)")
+        if path:
+            self.apply_rules(path)
+
+    def open_set(self, path: str | Path, rules_file: str | Path | None = None, *, use_cache: bool = True) -> None:
+        """Start loading a set in the background; the first run shows as soon as it is read."""
+        if self.job is not None:
+            self.job.cancel()
+            self.job.wait(5000)
+            self.job = None
+        self.playback.pause()
+        self.state.set_journal(None)
+        self._messages.clear()
+        self._show_banner()
+        path = Path(path).expanduser()
+        self.state.set_set(TrajectorySet(path, {}, metadata={"name": path.name}))
+        self.setWindowTitle(f"{path.name} — basinmark")
+        job = LoadJob(SetLoader(path, rules_file, use_cache=use_cache), self)
+        job.progress.connect(self._on_progress)
+        job.run_loaded.connect(self._on_first_runs)
+        self._auto_run = ""
+        job.finished.connect(self._on_loaded)
+        self.job = job
+        self._busy(True, "Loading")
+        job.start()
+
+    def _on_first_runs(self, traj) -> None:
+        shown = self.state.run_id
+        self.state.add_run(traj)
+        if not shown and self.state.run_id:
+            self._auto_run = self.state.run_id
+
+    def apply_rules(self, rules_file: str | Path) -> None:
+        """Re-classify the open set with another rules file, in the background."""
+        if self.state.tset is None or self.job is not None:
+            return
+        job = LoadJob(RulesWorker(self.state.tset, rules_file), self)
+        job.progress.connect(self._on_progress)
+        job.finished.connect(self._on_loaded)
+        self.job = job
+        self._busy(True, "Classifying")
+        job.start()
+
+    def cancel_loading(self) -> None:
+        if self.job is not None:
+            self.job.cancel()
+            self.statusBar().showMessage("Cancelling…")
+
+    @property
+    def busy(self) -> bool:
+        return self.job is not None
+
+    def _busy(self, on: bool, phase: str = "") -> None:
+        self.progress.setVisible(on)
+        self.cancel_button.setVisible(on)
+        if on:
+            self.progress.setRange(0, 0)
+            self.progress.setFormat(f"{phase}…")
+
+    def _on_progress(self, phase: str, done: int, total: int) -> None:
+        self.progress.setRange(0, max(total, 1))
+        self.progress.setValue(done)
+        self.progress.setFormat(f"{phase} %v/%m")
+
+    def _on_loaded(self, result: dict) -> None:
+        self.job = None
+        self._busy(False)
+        if result.get("error"):
+            self._messages["error"] = result["error"]
+            self._show_banner()
+            QMessageBox.warning(self, "Could not open the set", result["error"]) if self.isVisible() else None
+            return
+        tset = result["tset"]
+        if not result.get("rules_only"):
+            keep = self.state.run_id if self.state.run_id != getattr(self, "_auto_run", "") else ""
+            self.state.set_set(tset)
+            if keep and keep in tset:
+                self.state.set_run(keep)
+            self._remember(tset.root)
+            if tset.warnings:
+                self._messages["set"] = " ".join(tset.warnings)
+            self._open_journal(tset, result.get("rules"))
+        if result.get("rules_error"):
+            self._messages["rules"] = result["rules_error"]
+        else:
+            self._messages.pop("rules", None)
+        self.state.set_rules(result.get("rules"), result.get("classification"), result.get("rules_error", ""))
+        self._show_banner()
+        self._update_status()
+        if tset is not None and tset.failures and not result.get("rules_only"):
+            self.failure_dialog = FailuresDialog(tset.name, tset.failures, self)
+            self.failure_dialog.open()
+        (self.rules_applied if result.get("rules_only") else self.set_loaded).emit()
+
+    def _open_journal(self, tset: TrajectorySet, rules) -> None:
+        path = journal_path(tset.root)
+        allowed = all_labels(rules) if rules is not None else None
+        name = self.label_panel.labeler_name or None
+        try:
+            journal = LabelJournal.open(path, set_id=tset.name, labeler=name, allowed=allowed)
+            self._messages.pop("journal", None)
+            msg = ""
+        except JournalLockedError as exc:
+            holder = str(exc)
+            journal = None
+            if path.is_file():
+                try:
+                    journal = LabelJournal.open(path, readonly=True)
+                    holder = journal.lock_holder or holder
+                except JournalError:
+                    journal = None
+            msg = (f"Read-only: the label journal {path.name} is in use by {holder}. "
+                   "You can look at runs and labels, but not set labels, until it is released.")
+            self._messages["journal"] = msg
+        except (JournalError, OSError) as exc:
+            journal = None
+            msg = f"Labels cannot be saved: {exc}"
+            self._messages["journal"] = msg
+        if journal is not None:
+            for w in journal.warnings:
+                self._messages.setdefault("journal_warn", w)
+        self.state.set_journal(journal, msg)
+
+    def _show_banner(self) -> None:
+        order = ("error", "journal", "journal_warn", "rules", "set")
+        self.banner.show_message("\n".join(self._messages[k] for k in order if self._messages.get(k)))
+
+    # --- reacting to state ------------------------------------------------------------------
+    def _highlight_pairs(self) -> list[tuple[int, int]]:
+        pairs: list[tuple[int, int]] = []
+        rules = self.state.rules
+        groups = [m.indices for m in rules.monitors.values()] if rules is not None else []
+        groups += [tuple(a - 1 for a in m) for m in self.state.user_monitors]
+        for idx in groups:
+            pairs += list(zip(idx[:-1], idx[1:])) if len(idx) > 2 else [tuple(idx)]
+        return pairs
+
+    def _on_run(self, _run_id: str) -> None:
+        traj = self.state.traj
+        self.molecule.set_trajectory(traj, keep_view=True)
+        self.molecule.set_frame(self.state.frame)
+        self.molecule.set_highlight_pairs(self._highlight_pairs())
+        self.traces.set_run(traj, self.state.run_result(), self.state.rules, self.state.user_monitors)
+        self._on_frame(self.state.frame)
+
+    def _on_rules(self) -> None:
+        self.label_panel.rebuild()
+        self._fill_labels_menu()
+        self._on_run(self.state.run_id)
+
+    def _on_monitors(self) -> None:
+        self.molecule.set_highlight_pairs(self._highlight_pairs())
+        self.traces.set_user_monitors(self.state.user_monitors)
+
+    def _on_frame(self, frame: int) -> None:
+        traj = self.state.traj
+        self.molecule.set_frame(frame)
+        if traj is not None:
+            self.traces.set_time(float(traj.times[frame]))
+        self._update_status()
+
+    def _on_scrub(self, t: float) -> None:
+        self.playback.pause()
+        self.state.set_time(t)
+
+    def _update_status(self) -> None:
+        st = self.state
+        parts = []
+        if st.tset is not None:
+            parts.append(f"set {st.tset.name} ({len(st.tset)} runs)")
+        traj = st.traj
+        if traj is not None:
+            parts.append(f"run {st.run_id}")
+            parts.append(f"frame {st.frame + 1}/{traj.n_frames}")
+            parts.append(f"t = {traj.times[st.frame]:+.1f} fs")
+        if st.picked:
+            parts.append("picked " + "-".join(map(str, st.picked)))
+        self.status_where.setText("   ·   ".join(parts))
+        counts = self.run_table.outcome_counts() if len(st.labels) else {}
+        self.status_counts.setText("  ".join(f"{k}: {v}" for k, v in counts.items()))
+
+    def _nav(self, ok: bool, message: str) -> None:
+        if not ok:
+            self.statusBar().showMessage(message, 4000)
+
+    def jump_commit(self) -> None:
+        if not self.playback.jump_commit():
+            self.statusBar().showMessage("This run never committed forward (no commit time).", 4000)
+
+    # --- help -------------------------------------------------------------------------------
+    def all_actions(self) -> dict:
+        acts = dict(self.actions_)
+        acts.update({f"label:{k}": v for k, v in self.label_panel.label_actions.items()})
+        return acts
+
+    def show_shortcuts(self) -> ShortcutsDialog:
+        dlg = ShortcutsDialog(shortcut_rows(self.all_actions()), self)
+        dlg.open()
+        self.shortcuts_dialog = dlg
+        return dlg
+
+    def show_about(self) -> None:
+        QMessageBox.about(self, "About basinmark",
+                          f"<b>basinmark {__version__}</b><p>Classify, inspect, hand-label and count the runs of "
+                          "a reaction-dynamics set started from one transition state.</p>")
+
+    # --- drag and drop ------------------------------------------------------------------------
+    def dragEnterEvent(self, event) -> None:  # noqa: N802
+        urls = event.mimeData().urls() if event.mimeData().hasUrls() else []
+        if urls and Path(urls[0].toLocalFile()).is_dir():
+            event.acceptProposedAction()
+
+    def dropEvent(self, event) -> None:  # noqa: N802
+        urls = event.mimeData().urls()
+        if urls:
+            path = Path(urls[0].toLocalFile())
+            if path.is_dir():
+                self.open_set(path)
+                event.acceptProposedAction()

@@ -1,0 +1,179 @@
+"""The window's application state: one QObject that the views observe.
+
+It holds the open set, the current run and frame, the picked atoms, the
+monitors a person added, the rules with their classification, the label
+journal and the merged label table.  Views call its setters and listen to
+its signals; they never talk to each other.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from PySide6.QtCore import QObject, Signal
+
+from basinmark.core.model import Trajectory, TrajectorySet
+from basinmark.gui.label_table import LABEL_COLUMNS, build_label_table
+
+
+class AppState(QObject):
+    set_changed = Signal()
+    run_changed = Signal(str)          # run id, "" when none
+    frame_changed = Signal(int)
+    labels_changed = Signal()
+    rules_changed = Signal()
+    picks_changed = Signal(list)       # 1-based atom numbers
+    monitors_changed = Signal()        # user monitors added or removed
+    journal_changed = Signal()
+
+    def __init__(self, parent: QObject | None = None) -> None:
+        super().__init__(parent)
+        self.tset: TrajectorySet | None = None
+        self.run_id: str = ""
+        self.frame: int = 0
+        self.picked: list[int] = []
+        self.user_monitors: list[tuple[int, ...]] = []   # 1-based atom numbers, 2 to 4 each
+        self.rules: Any = None
+        self.rules_error: str = ""
+        self.classification: pd.DataFrame | None = None
+        self.journal: Any = None
+        self.journal_message: str = ""
+        self.labels: pd.DataFrame = pd.DataFrame(columns=LABEL_COLUMNS)
+        self._results: dict[str, Any] = {}
+
+    # --- set and runs -------------------------------------------------------------------
+    @property
+    def traj(self) -> Trajectory | None:
+        if self.tset is None or not self.run_id or self.run_id not in self.tset:
+            return None
+        return self.tset[self.run_id]
+
+    @property
+    def run_ids(self) -> list[str]:
+        return [] if self.tset is None else self.tset.run_ids
+
+    def set_set(self, tset: TrajectorySet | None) -> None:
+        self.tset = tset
+        self.classification = None
+        self._results.clear()
+        self.user_monitors = []
+        self.run_id = ""
+        self.frame = 0
+        self.set_changed.emit()
+        self.refresh_labels()
+        self.monitors_changed.emit()
+        if tset is not None and len(tset):
+            self.set_run(tset.run_ids[0])
+        else:
+            self.run_changed.emit("")
+
+    def add_run(self, traj: Trajectory) -> None:
+        """A run arrived while the set is still loading (shown at once if nothing is shown yet)."""
+        if self.tset is None:
+            return
+        self.tset.runs[traj.run_id] = traj
+        if not self.run_id:
+            self.set_run(traj.run_id)
+
+    def set_run(self, run_id: str) -> None:
+        if self.tset is None or run_id not in self.tset:
+            return
+        if run_id == self.run_id:
+            return
+        self.run_id = run_id
+        traj = self.tset[run_id]
+        self.frame = traj.ts_index
+        self.set_picks([])
+        self.run_changed.emit(run_id)
+        self.frame_changed.emit(self.frame)
+
+    def set_frame(self, frame: int) -> None:
+        traj = self.traj
+        if traj is None:
+            return
+        frame = int(np.clip(frame, 0, traj.n_frames - 1))
+        if frame != self.frame:
+            self.frame = frame
+            self.frame_changed.emit(frame)
+
+    def set_time(self, t_fs: float) -> None:
+        """Go to the frame nearest to time ``t_fs``."""
+        traj = self.traj
+        if traj is not None:
+            self.set_frame(int(np.argmin(np.abs(traj.times - t_fs))))
+
+    @property
+    def time(self) -> float | None:
+        traj = self.traj
+        return None if traj is None else float(traj.times[self.frame])
+
+    # --- picks and monitors -------------------------------------------------------------
+    def set_picks(self, atoms: list[int]) -> None:
+        atoms = [int(a) for a in atoms]
+        if atoms != self.picked:
+            self.picked = atoms
+            self.picks_changed.emit(list(atoms))
+
+    def add_monitor(self, atoms: tuple[int, ...]) -> None:
+        atoms = tuple(int(a) for a in atoms)
+        if not 2 <= len(atoms) <= 4 or len(set(atoms)) != len(atoms):
+            return
+        if atoms in self.user_monitors or atoms[::-1] in self.user_monitors:
+            return
+        self.user_monitors.append(atoms)
+        self.monitors_changed.emit()
+
+    def clear_monitors(self) -> None:
+        if self.user_monitors:
+            self.user_monitors = []
+            self.monitors_changed.emit()
+
+    # --- rules, classification ------------------------------------------------------------
+    def set_rules(self, rules: Any, classification: pd.DataFrame | None, error: str = "") -> None:
+        self.rules = rules
+        self.rules_error = error
+        self.classification = classification
+        self._results.clear()
+        self.rules_changed.emit()
+        self.refresh_labels()
+
+    def run_result(self, run_id: str | None = None) -> Any:
+        """The classification details (basin track, monitors) of a run, computed once on demand."""
+        run_id = run_id or self.run_id
+        if self.rules is None or self.tset is None or run_id not in self.tset:
+            return None
+        if run_id not in self._results:
+            from basinmark.core.classify import classify_run
+
+            self._results[run_id] = classify_run(self.tset[run_id], self.rules)
+        return self._results[run_id]
+
+    # --- journal and labels ---------------------------------------------------------------
+    def set_journal(self, journal: Any, message: str = "") -> None:
+        if self.journal is not None and self.journal is not journal:
+            try:
+                self.journal.close()
+            except Exception:  # closing must never block opening another set
+                pass
+        self.journal = journal
+        self.journal_message = message
+        self.journal_changed.emit()
+        self.refresh_labels()
+
+    @property
+    def readonly(self) -> bool:
+        return self.journal is None or bool(getattr(self.journal, "readonly", True))
+
+    def refresh_labels(self) -> None:
+        jstate = None
+        if self.journal is not None and self.tset is not None:
+            jstate = self.journal.state(current_hashes=dict(self.tset.content_hashes()))
+        self.labels = build_label_table(self.run_ids, self.classification, jstate)
+        self.labels_changed.emit()
+
+    def label_row(self, run_id: str | None = None) -> dict | None:
+        run_id = run_id or self.run_id
+        hit = self.labels[self.labels["run"] == run_id]
+        return None if hit.empty else hit.iloc[0].to_dict()

@@ -1,0 +1,355 @@
+"""Traces of the current run over time: monitors, basin band, energies, and a draggable time cursor.
+
+Composed from pyqtgraph items in one layout: distances (Å), angles and
+dihedrals (degrees, shown only when there are any), a band coloured by the
+basin each frame is in, and the energies relative to t = 0.  Basin
+thresholds are dashed lines in the basin's colour; t = 0 and the commit
+times are marked.  The vertical cursor follows playback and can be dragged
+to scrub (``time_scrubbed``).  The views compute no chemistry: rule monitor
+values come from the classification, added monitors from core.geometry.
+"""
+
+from __future__ import annotations
+
+from typing import Any, Sequence
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QColor, QPalette
+from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
+
+from basinmark.core.geometry import measure
+from basinmark.core.model import Trajectory
+from basinmark.core.units import energy_factor
+from basinmark.gui.colours import basin_colour, trace_colour
+
+_KIND = {2: "distance", 3: "angle", 4: "dihedral"}
+
+
+def monitor_name(atoms: Sequence[int]) -> str:
+    """Display name of an added monitor from its 1-based atoms, e.g. ``d(1-2)``, ``∠(1-2-3)``."""
+    prefix = {2: "d", 3: "∠", 4: "φ"}[len(atoms)]
+    return f"{prefix}({'-'.join(map(str, atoms))})"
+
+
+class TracesView(QWidget):
+    """Monitor, basin and energy plots of one run with a shared, draggable time cursor."""
+
+    time_scrubbed = Signal(float)
+
+    def __init__(self, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.energy_unit = "kcal/mol"
+        self.curves: dict[str, pg.PlotDataItem] = {}
+        self.values: dict[str, np.ndarray] = {}
+        self.threshold_lines: list[pg.InfiniteLine] = []
+        self.marks: dict[str, pg.InfiniteLine] = {}
+        self.band_items: list[pg.BarGraphItem] = []
+        self._traj: Trajectory | None = None
+        self._result: Any = None
+        self._rules: Any = None
+        self._user: list[tuple[int, ...]] = []
+        self._updating = False
+        self._time = 0.0
+
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.setSpacing(0)
+        self.note = QLabel(self)
+        self.note.setWordWrap(True)
+        self.note.setVisible(False)
+        self.note.setObjectName("traceNote")
+        lay.addWidget(self.note)
+        self.glw = pg.GraphicsLayoutWidget(self)
+        lay.addWidget(self.glw, 1)
+        self.p_dist = self.glw.addPlot(row=0, col=0)
+        self.p_angle = self.glw.addPlot(row=1, col=0)
+        self.p_band = self.glw.addPlot(row=2, col=0)
+        self.p_energy = self.glw.addPlot(row=3, col=0)
+        self.plots = (self.p_dist, self.p_angle, self.p_band, self.p_energy)
+        self.p_dist.setLabel("left", "distance", units="Å")
+        self.p_angle.setLabel("left", "angle", units="°")
+        self.p_energy.setLabel("bottom", "time", units="fs")
+        self.p_band.setMaximumHeight(38)
+        self.p_band.hideAxis("left")
+        self.p_band.setMouseEnabled(x=True, y=False)
+        self.p_band.setYRange(0, 1, padding=0)
+        self.p_band.getAxis("left").setWidth(0)
+        for p in self.plots:
+            p.showGrid(x=p is not self.p_band, y=p is not self.p_band, alpha=0.18)
+            p.getAxis("left").setWidth(58)
+            if p is not self.p_dist:
+                p.setXLink(self.p_dist)
+            if p is not self.p_energy:
+                p.getAxis("bottom").setStyle(showValues=False)
+        self.p_band.getAxis("left").setWidth(58)
+        self.p_band.showAxis("left")
+        self.p_band.getAxis("left").setStyle(showValues=False)
+        self.p_band.getAxis("left").setTicks([[]])
+        for p in (self.p_dist, self.p_angle, self.p_energy):
+            p.addLegend(offset=(-8, 8), labelTextSize="8pt")
+        self.cursors: list[pg.InfiniteLine] = []
+        for p in self.plots:
+            line = pg.InfiniteLine(0.0, angle=90, movable=True)
+            line.setZValue(50)
+            line.sigPositionChanged.connect(self._cursor_moved)
+            p.addItem(line, ignoreBounds=True)
+            self.cursors.append(line)
+        self.apply_palette()
+        self.p_angle.setVisible(False)
+
+    # --- look -----------------------------------------------------------------------------
+    def apply_palette(self) -> None:
+        """Background, axes and cursor from the Qt palette (light or dark)."""
+        pal = self.palette()
+        base, text = pal.color(QPalette.ColorRole.Base), pal.color(QPalette.ColorRole.Text)
+        hl = pal.color(QPalette.ColorRole.Highlight)
+        self.glw.setBackground(base)
+        for p in self.plots:
+            for name in ("left", "bottom"):
+                ax = p.getAxis(name)
+                ax.setPen(pg.mkPen(text))
+                ax.setTextPen(pg.mkPen(text))
+        for c in self.cursors:
+            c.setPen(pg.mkPen(hl, width=2))
+            c.setHoverPen(pg.mkPen(hl, width=4))
+        legend_bg = QColor(base)
+        legend_bg.setAlpha(200)
+        for p in (self.p_dist, self.p_angle, self.p_energy):
+            if p.legend is not None:
+                p.legend.setLabelTextColor(text)
+                p.legend.setBrush(pg.mkBrush(legend_bg))
+                p.legend.setPen(pg.mkPen(pal.color(QPalette.ColorRole.Mid)))
+        warn = QColor("#b3261e") if base.lightness() > 128 else QColor("#ffb4a9")
+        self.note.setStyleSheet(f"QLabel#traceNote {{ color: {warn.name()}; font-weight: bold; padding: 3px 6px; }}")
+
+    def changeEvent(self, event) -> None:  # noqa: N802
+        if event.type() == event.Type.PaletteChange:
+            self.apply_palette()
+        super().changeEvent(event)
+
+    # --- data -----------------------------------------------------------------------------
+    def set_energy_unit(self, unit: str) -> None:
+        energy_factor(unit)  # raises on an unknown unit
+        self.energy_unit = unit
+        self._draw_energies()
+
+    def set_run(self, traj: Trajectory | None, result: Any = None, rules: Any = None,
+                user_monitors: Sequence[tuple[int, ...]] = ()) -> None:
+        self._traj, self._result, self._rules = traj, result, rules
+        self._user = [tuple(m) for m in user_monitors]
+        self.redraw()
+
+    def set_user_monitors(self, user_monitors: Sequence[tuple[int, ...]]) -> None:
+        self._user = [tuple(m) for m in user_monitors]
+        self.redraw()
+
+    def redraw(self) -> None:
+        for p in (self.p_dist, self.p_angle, self.p_band, self.p_energy):
+            for item in list(p.listDataItems()):
+                p.removeItem(item)
+            if p.legend is not None:
+                p.legend.clear()
+        for line in self.threshold_lines + list(self.marks.values()):
+            for p in self.plots:
+                if line in p.items:
+                    p.removeItem(line)
+        for bar in self.band_items:
+            self.p_band.removeItem(bar)
+        self.curves.clear()
+        self.values.clear()
+        self.threshold_lines = []
+        self.marks = {}
+        self.band_items = []
+        traj = self._traj
+        if traj is None:
+            self.note.setVisible(False)
+            return
+        self._draw_monitors()
+        self._draw_thresholds()
+        self._draw_band()
+        self._draw_marks()
+        self._draw_energies()
+        t0, t1 = traj.time_span
+        self.p_dist.setXRange(t0, t1, padding=0.02)
+        for c in self.cursors:
+            c.setBounds((t0, t1))
+        self.set_time(float(traj.times[traj.ts_index]))
+
+    def _draw_monitors(self) -> None:
+        traj, rules, result = self._traj, self._rules, self._result
+        series: list[tuple[str, int, np.ndarray]] = []
+        if rules is not None:
+            for name, mon in rules.monitors.items():
+                vals = None
+                if result is not None and name in result.monitors:
+                    vals = np.asarray(result.monitors[name], float)
+                elif max(mon.indices) < traj.n_atoms:
+                    vals = measure(traj.positions, mon.indices)
+                if vals is not None:
+                    series.append((name, len(mon.atoms), vals))
+        for atoms in self._user:
+            if max(atoms) <= traj.n_atoms:
+                series.append((monitor_name(atoms), len(atoms), measure(traj.positions, [a - 1 for a in atoms])))
+        has_angles = False
+        for i, (name, n, vals) in enumerate(series):
+            plot = self.p_dist if n == 2 else self.p_angle
+            has_angles |= n > 2
+            user = i >= len(series) - len(self._user)
+            pen = pg.mkPen(trace_colour(i), width=2, style=Qt.PenStyle.DashDotLine if user else Qt.PenStyle.SolidLine)
+            self.curves[name] = plot.plot(traj.times, vals, pen=pen, name=name)
+            self.values[name] = vals
+        self.p_angle.setVisible(has_angles)
+
+    def _draw_thresholds(self) -> None:
+        rules = self._rules
+        if rules is None:
+            return
+        names = rules.basin_names
+        # one line per (plot, value): several basins often share a threshold
+        groups: dict[tuple[int, float], list[tuple[str, str]]] = {}
+        for bname, basin in rules.basins.items():
+            for cond in basin.conditions:
+                mon = rules.monitors.get(cond.monitor)
+                if mon is None or cond.monitor not in self.curves:
+                    continue
+                for value in (cond.lo, cond.hi):
+                    if value is not None and np.isfinite(value):
+                        key = (0 if len(mon.atoms) == 2 else 1, round(float(value), 9))
+                        groups.setdefault(key, []).append((bname, cond.describe()))
+        text_colour = self.palette().color(QPalette.ColorRole.Text)
+        for (which, value), entries in groups.items():
+            plot = self.p_dist if which == 0 else self.p_angle
+            colour = basin_colour(entries[0][0], names, rules.reactant)
+            text = "; ".join(f"{b}: {d}" for b, d in entries)
+            line = pg.InfiniteLine(value, angle=0, movable=False,
+                                   pen=pg.mkPen(colour, width=1.3, style=Qt.PenStyle.DashLine),
+                                   label=text, labelOpts={"position": 0.02, "color": text_colour,
+                                                          "anchors": [(0, 1), (0, 1)]})
+            line.setToolTip(text)
+            plot.addItem(line, ignoreBounds=True)
+            self.threshold_lines.append(line)
+
+    def _draw_band(self) -> None:
+        traj, result, rules = self._traj, self._result, self._rules
+        if result is None or rules is None:
+            return
+        track = np.asarray(result.basin_track)
+        times = traj.times
+        if track.size != times.size or not track.size:
+            return
+        edges = np.concatenate([[times[0]], 0.5 * (times[1:] + times[:-1]), [times[-1]]])
+        change = np.nonzero(np.diff(track))[0] + 1
+        starts = np.concatenate([[0], change])
+        stops = np.concatenate([change, [track.size]])
+        names = rules.basin_names
+        for b in np.unique(track):
+            if b < 0:
+                continue
+            sel = track[starts] == b
+            x0 = edges[starts[sel]]
+            w = edges[stops[sel]] - x0
+            colour = basin_colour(names[b], names, rules.reactant)
+            bar = pg.BarGraphItem(x0=x0, width=w, y0=np.zeros(x0.size), height=np.ones(x0.size),
+                                  brush=colour, pen=pg.mkPen(None))
+            bar.setToolTip(f"frames in basin {names[b]}")
+            self.p_band.addItem(bar)
+            self.band_items.append(bar)
+        self.p_band.setYRange(0, 1, padding=0)
+        self.p_band.setLabel("left", "basin")
+
+    def _mark(self, key: str, t: float, text: str, style: Qt.PenStyle, position: float = 0.95) -> None:
+        colour = self.palette().color(QPalette.ColorRole.Text)
+        for p in self.plots:
+            line = pg.InfiniteLine(t, angle=90, movable=False, pen=pg.mkPen(colour, width=1, style=style))
+            p.addItem(line, ignoreBounds=True)
+            self.threshold_lines.append(line)
+        top = self.threshold_lines[-4]
+        label = pg.InfLineLabel(top, text=text, position=position, color=colour, anchor=(0, 0))
+        self.marks[key] = top
+        top.label = label
+
+    def _draw_marks(self) -> None:
+        self._mark("ts", 0.0, "TS", Qt.PenStyle.SolidLine)
+        result = self._result
+        if result is None:
+            return
+        if result.commit_time_fs is not None and np.isfinite(result.commit_time_fs):
+            self._mark("commit", float(result.commit_time_fs), "commit", Qt.PenStyle.DotLine, 0.8)
+        bct = getattr(result, "backward_commit_time_fs", None)
+        if bct is not None and np.isfinite(bct):
+            self._mark("backward_commit", float(bct), "commit", Qt.PenStyle.DotLine, 0.8)
+
+    def _draw_energies(self) -> None:
+        traj = self._traj
+        for name in ("E_pot", "E_kin", "E_total"):
+            item = self.curves.pop(name, None)
+            if item is not None:
+                self.p_energy.removeItem(item)
+        if self.p_energy.legend is not None:
+            self.p_energy.legend.clear()
+        self.p_energy.setLabel("left", "ΔE", units=None)
+        self.p_energy.getAxis("left").setLabel(f"ΔE / {self.energy_unit}")
+        if traj is None:
+            return
+        scale = 1.0 / energy_factor(self.energy_unit)
+        i0 = traj.ts_index
+        colours = {"potential": trace_colour(0), "kinetic": trace_colour(1), "total": trace_colour(2)}
+        for key, name in (("potential", "E_pot"), ("kinetic", "E_kin"), ("total", "E_total")):
+            e = traj.energies.get(key)
+            if e is None:
+                continue
+            rel = (e - e[i0]) * scale
+            width = 2.4 if key == "total" else 1.4
+            self.curves[name] = self.p_energy.plot(traj.times, rel, pen=pg.mkPen(colours[key], width=width), name=name)
+            self.values[name] = rel
+        self._update_note()
+
+    def _update_note(self) -> None:
+        traj, result, rules = self._traj, self._result, self._rules
+        msgs = []
+        if traj is not None and not traj.energies:
+            msgs.append("This run has no energies: its energy conservation cannot be checked.")
+        flags = [] if result is None else list(result.flags)
+        if "energy_drift" in flags:
+            drift = traj.energy_drift() if traj is not None else None
+            limit = getattr(getattr(rules, "flags", None), "max_energy_drift_ev", None)
+            scale = 1.0 / energy_factor(self.energy_unit)
+            text = "Energy check failed: the total energy drifts"
+            if drift is not None:
+                text += f" by {drift * scale:.2f} {self.energy_unit}"
+            if limit is not None:
+                text += f" (limit {limit * scale:.2f} {self.energy_unit})"
+            msgs.append(text + "; treat this run's outcome with caution.")
+        self.note.setText("\n".join(msgs))
+        self.note.setVisible(bool(msgs))
+
+    # --- time cursor ------------------------------------------------------------------------
+    @property
+    def time(self) -> float:
+        return self._time
+
+    def set_time(self, t: float) -> None:
+        """Move the cursor (playback); does not emit ``time_scrubbed``."""
+        self._updating = True
+        try:
+            self._time = float(t)
+            for c in self.cursors:
+                c.setValue(self._time)
+        finally:
+            self._updating = False
+
+    def _cursor_moved(self, line: pg.InfiniteLine) -> None:
+        if self._updating:
+            return
+        t = float(line.value())
+        self._updating = True
+        try:
+            for c in self.cursors:
+                if c is not line:
+                    c.setValue(t)
+        finally:
+            self._updating = False
+        self._time = t
+        self.time_scrubbed.emit(t)

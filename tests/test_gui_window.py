@@ -1,0 +1,260 @@
+"""The main window end to end, offscreen: loading, labels through the journal, navigation, playback,
+scrubbing, picked-atom traces, read-only journal, failed files, settings."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+from PySide6.QtCore import QPoint, QPointF, QSettings, Qt
+
+from basinmark.core.classify import classify_set
+from basinmark.core.geometry import distance
+from basinmark.core.journal import LabelJournal
+from basinmark.core.rules import load_rules
+from basinmark.core.sets import journal_path, open_set
+from basinmark.gui.main_window import MainWindow
+
+from gui_fixtures import make_toy_set
+
+pytestmark = pytest.mark.gui
+
+OUTCOMES = ["left", "right", "recrossing", "unfinished", "left", "right", "left"]
+
+
+def _settings(tmp_path: Path) -> QSettings:
+    return QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat)
+
+
+def open_window(qtbot, tmp_path: Path, root: Path, settings: QSettings | None = None) -> MainWindow:
+    win = MainWindow(settings or _settings(tmp_path))
+    qtbot.addWidget(win)
+    win.show()
+    qtbot.waitExposed(win)
+    win.activateWindow()
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(root, use_cache=False)
+    return win
+
+
+@pytest.fixture
+def toy_root(tmp_path):
+    return make_toy_set(tmp_path / "toyset", OUTCOMES, drift_runs=[4])
+
+
+@pytest.fixture
+def win(qtbot, tmp_path, toy_root):
+    w = open_window(qtbot, tmp_path, toy_root)
+    yield w
+    w.close()
+
+
+def _journal_events(root: Path) -> list[dict]:
+    lines = journal_path(root).read_text().splitlines()
+    return [json.loads(x) for x in lines if x.strip()]
+
+
+def test_opening_fills_table_with_core_counts(win, toy_root):
+    tset = open_set(toy_root, use_cache=False)
+    core = classify_set(tset, load_rules(toy_root / "basins.toml", n_atoms=tset.n_atoms))
+    assert win.run_table.model.rowCount() == len(core) == len(OUTCOMES)
+    shown = win.run_table.outcome_counts()
+    expected = core["outcome"].value_counts().to_dict()
+    assert {k: v for k, v in shown.items() if v} == expected
+    assert win.state.run_id == "toy-001"  # the set's first run, not whichever loaded first
+    assert "toy-001" in win.status_where.text()
+
+
+def test_number_key_writes_journal_and_undo_restores(win, qtbot, toy_root):
+    assert win.state.run_id == "toy-001"
+    # button order: products (left, right) then recrossing, unfinished, ambiguous, excluded: key 3 = recrossing
+    win.label_panel.reason.setText("turns back late")
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_3)
+    events = [e for e in _journal_events(toy_root) if e.get("kind") == "label"]
+    assert events[-1]["run"] == "toy-001" and events[-1]["label"] == "recrossing"
+    assert events[-1]["reason"] == "turns back late" and events[-1]["source"] == "hand"
+    assert events[-1]["content_hash"] == win.state.tset["toy-001"].content_hash
+    row = win.state.label_row("toy-001")
+    assert row["hand_label"] == "recrossing" and row["final_label"] == "recrossing"
+    r = win.run_table.model.row_of("toy-001")
+    assert win.run_table.model.index(r, 2).data() == "recrossing"
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_Z, Qt.KeyboardModifier.ControlModifier)
+    assert _journal_events(toy_root)[-1]["kind"] == "undo"
+    row = win.state.label_row("toy-001")
+    assert row["hand_label"] == "" and row["final_label"] == "left"
+
+
+def test_excluded_needs_a_reason(win, toy_root):
+    assert not win.label_panel.apply_label("excluded")
+    assert "reason" in win.label_panel.feedback.text()
+    assert not [e for e in _journal_events(toy_root) if e.get("kind") == "label"]
+
+
+def test_next_flagged_and_next_unlabeled(win, qtbot):
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_F)
+    assert win.state.run_id == "toy-005"  # the only run with energy drift
+    assert "energy_drift" in win.state.label_row()["flags"]
+    win.state.set_run("toy-002")
+    win.label_panel.apply_label("right")
+    win.state.set_run("toy-001")
+    win.label_panel.apply_label("left")
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_U)
+    assert win.state.run_id == "toy-003"
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_PageDown)
+    assert win.state.run_id == "toy-004"
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_P)
+    assert win.state.run_id == "toy-003"
+
+
+def test_filters_hide_rows(win):
+    win.run_table.set_filter("flagged")
+    assert win.run_table.visible_runs() == ["toy-005"]
+    win.run_table.set_filter("all")
+    assert len(win.run_table.visible_runs()) == len(OUTCOMES)
+
+
+def test_playback_advances_frames_with_timer(win, qtbot):
+    traj = win.state.traj
+    win.playback.jump_start()
+    assert win.molecule.frame == 0
+    win.playback.set_speed(8.0)
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_Space)
+    assert win.playback.playing
+    qtbot.waitUntil(lambda: win.state.frame >= 20, timeout=5000)
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_Space)
+    assert not win.playback.playing
+    assert win.molecule.frame == win.state.frame
+    assert win.traces.time == pytest.approx(traj.times[win.state.frame])
+    assert win.playback_bar.slider.value() == win.state.frame
+
+
+def test_step_and_jump_keys(win, qtbot):
+    traj = win.state.traj
+    view = win.run_table.view
+    qtbot.keyClick(view, Qt.Key.Key_Home)
+    assert win.state.frame == 0
+    qtbot.keyClick(view, Qt.Key.Key_Right)
+    assert win.state.frame == 1
+    qtbot.keyClick(view, Qt.Key.Key_Right, Qt.KeyboardModifier.ShiftModifier)
+    assert win.state.frame == 11
+    qtbot.keyClick(view, Qt.Key.Key_End)
+    assert win.state.frame == traj.n_frames - 1
+    qtbot.keyClick(view, Qt.Key.Key_T)
+    assert traj.times[win.state.frame] == 0.0
+    qtbot.keyClick(view, Qt.Key.Key_C)
+    assert traj.times[win.state.frame] == pytest.approx(win.state.label_row()["commit_time_fs"])
+
+
+def test_dragging_time_cursor_moves_molecule_frame(win, qtbot):
+    traces = win.traces
+    traj = win.state.traj
+    plot = traces.p_dist
+    vb = plot.getViewBox()
+    cursor = traces.cursors[0]
+    glw = traces.glw
+
+    def to_widget(t: float, y: float) -> QPoint:
+        scene = vb.mapViewToScene(QPointF(t, y))
+        return glw.mapFromScene(scene)
+
+    y_mid = float(np.mean(vb.viewRange()[1]))
+    start, end = to_widget(0.0, y_mid), to_widget(40.0, y_mid)
+    vp = glw.viewport()
+    qtbot.mousePress(vp, Qt.MouseButton.LeftButton, pos=start)
+    for k in range(1, 11):
+        qtbot.mouseMove(vp, QPoint(start.x() + (end.x() - start.x()) * k // 10, start.y()))
+    qtbot.mouseRelease(vp, Qt.MouseButton.LeftButton, pos=end)
+    assert cursor.value() == pytest.approx(40.0, abs=3.0)
+    frame = int(np.argmin(np.abs(traj.times - cursor.value())))
+    assert win.molecule.frame == frame == win.state.frame
+    assert traj.times[frame] > 30.0
+
+
+def test_clicking_two_atoms_adds_distance_trace_equal_to_core_geometry(win, qtbot):
+    mv = win.molecule
+    xy, _ = mv.project()
+    qtbot.mouseClick(mv, Qt.MouseButton.LeftButton, pos=QPoint(*np.round(xy[1]).astype(int)))
+    qtbot.mouseClick(mv, Qt.MouseButton.LeftButton, pos=QPoint(*np.round(xy[2]).astype(int)))
+    assert win.state.user_monitors == [(2, 3)]
+    curve = win.traces.curves["d(2-3)"]
+    x, y = curve.getData()
+    traj = win.state.traj
+    np.testing.assert_allclose(x, traj.times)
+    # reference: core.geometry.distance and ase.Atoms.get_distance (0-based 1, 2)
+    np.testing.assert_allclose(y, distance(traj.positions, 1, 2), rtol=1e-12)
+    f = 7
+    assert y[f] == pytest.approx(traj.to_atoms(f).get_distance(1, 2), abs=1e-5)
+    assert (1, 2) in mv._highlight
+
+
+def test_locked_journal_opens_readonly_with_banner(qtbot, tmp_path, toy_root):
+    holder = LabelJournal.open(journal_path(toy_root), labeler="someone-else")
+    try:
+        w = open_window(qtbot, tmp_path, toy_root)
+        assert w.state.readonly
+        assert not w.banner.isHidden()
+        assert "read-only" in w.banner.text().lower() and "someone-else" in w.banner.text()
+        assert w.label_panel.buttons and all(not b.isEnabled() for b in w.label_panel.buttons.values())
+        before = journal_path(toy_root).read_bytes()
+        qtbot.keyClick(w.run_table.view, Qt.Key.Key_1)
+        assert journal_path(toy_root).read_bytes() == before
+        w.close()
+    finally:
+        holder.close()
+
+
+def test_failed_file_listed_and_rest_usable(qtbot, tmp_path, toy_root):
+    bad = toy_root / "toy-009.bwd.xyz"
+    bad.write_text("3\ntime=0\nC 0 0 0\nC 1 x 0\n")
+    (toy_root / "toy-009.fwd.xyz").write_text((toy_root / "toy-001.fwd.xyz").read_text())
+    w = open_window(qtbot, tmp_path, toy_root)
+    assert w.failure_dialog is not None and w.failure_dialog.isVisible()
+    texts = [w.failure_dialog.table.item(r, 0).text() for r in range(w.failure_dialog.table.rowCount())]
+    assert any("toy-009" in t for t in texts)
+    assert w.run_table.model.rowCount() == len(OUTCOMES)
+    w.failure_dialog.close()
+    w.close()
+
+
+def test_shortcut_help_lists_every_action(win):
+    dlg = win.show_shortcuts()
+    rows = dlg.table.rowCount()
+    commands = {dlg.table.item(r, 1).text() for r in range(rows)}
+    assert len(commands) == len(win.all_actions())
+    keys = {dlg.table.item(r, 1).text(): dlg.table.item(r, 2).text() for r in range(rows)}
+    assert keys["Play / Pause"] == "Space"
+    assert keys["Label 'left'"] == "1"
+    dlg.close()
+
+
+def test_settings_remember_recent_and_labeler(qtbot, tmp_path, toy_root):
+    settings = _settings(tmp_path)
+    w = open_window(qtbot, tmp_path, toy_root, settings)
+    w.label_panel.set_labeler("dr-test")
+    w.close()
+    again = QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat)
+    assert again.value("labeler") == "dr-test"
+    w2 = MainWindow(again)
+    qtbot.addWidget(w2)
+    assert w2.label_panel.labeler_name == "dr-test"
+    assert w2.recent_sets()[0] == str(toy_root.resolve())
+    assert w2.recent_menu.actions()[0].text() == str(toy_root.resolve())
+    w2.close()
+
+
+def test_label_records_labeler_name(win, toy_root):
+    win.label_panel.set_labeler("ada")
+    assert win.label_panel.apply_label("left")
+    ev = [e for e in _journal_events(toy_root) if e.get("kind") == "label"][-1]
+    assert ev["labeler"] == "ada"
+    assert win.state.label_row()["labeler"] == "ada"
+
+
+def test_energy_drift_note_shown(win):
+    win.state.set_run("toy-005")
+    assert not win.traces.note.isHidden()
+    assert "Energy check failed" in win.traces.note.text()
+    win.state.set_run("toy-001")
+    assert win.traces.note.isHidden()
