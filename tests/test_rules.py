@@ -7,7 +7,7 @@ import tomllib
 from pathlib import Path
 
 import pytest
-from hypothesis import given, strategies as st
+from hypothesis import given, settings, strategies as st
 
 from basinmark.core.rules import (RESERVED_LABELS, Rules, RulesError, load_rules, parse_rules)
 
@@ -199,6 +199,13 @@ names = st.text(alphabet=st.characters(codec="utf-8", exclude_categories=("Cs",)
 thresholds = st.floats(0.5, 5.0, allow_nan=False)
 
 
+@given(st.text(alphabet=st.characters(codec="utf-8", exclude_categories=("Cs",)), max_size=30))
+def test_string_writer_reads_back(text):
+    from basinmark.core.rules import _str
+    assert tomllib.loads(f"k = {_str(text)}")["k"] == text  # reference: tomllib (TOML 1.0)
+
+
+@settings(max_examples=40)
 @given(monitor=names, basin=names, lo=thresholds, width=st.floats(0.01, 3.0), dwell=st.floats(0, 500),
        kind=st.sampled_from(["below", "above", "between"]))
 def test_round_trip_property(monitor, basin, lo, width, dwell, kind):

@@ -11,7 +11,6 @@ v > x, ``between = [lo, hi]`` is lo <= v <= hi.  All conditions of a basin must 
 from __future__ import annotations
 
 import hashlib
-import json
 import math
 import re
 import tomllib
@@ -317,7 +316,17 @@ _BARE = re.compile(r"^[A-Za-z0-9_-]+$")
 
 
 def _str(s: str) -> str:
-    return json.dumps(s, ensure_ascii=False)  # JSON string escapes are a subset of TOML basic strings
+    """A TOML basic string: backslash, quote and control characters (incl. DEL) escaped."""
+    out = []
+    for ch in s:
+        o = ord(ch)
+        if ch in '"\\':
+            out.append("\\" + ch)
+        elif o < 0x20 or o == 0x7F:
+            out.append(f"\\u{o:04x}")
+        else:
+            out.append(ch)
+    return '"' + "".join(out) + '"'
 
 
 def _key(s: str) -> str:
