@@ -197,6 +197,10 @@ class LabelPanel(QWidget):
             if traj is not None:
                 self._say("The label journal is read-only here; nothing was undone.")
             return False
+        row = st.label_row()
+        if row is None or not row.get("hand_label"):
+            self._say(f"Nothing to undo: {traj.run_id} has no hand label.")
+            return False
         try:
             ev = st.journal.undo(traj.run_id, labeler=self.labeler_name or None)
         except BasinmarkError as exc:

@@ -22,6 +22,13 @@ def _text(value) -> str:
     return str(value)
 
 
+def _flag(value) -> bool:
+    """True/False from a nullable boolean (pandas NA and None count as False)."""
+    if value is None or value is pd.NA or (isinstance(value, float) and pd.isna(value)):
+        return False
+    return bool(value)
+
+
 def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | None,
                       journal_state: pd.DataFrame | None) -> pd.DataFrame:
     """One row per run id, in the given order, with the LABEL_COLUMNS."""
@@ -43,6 +50,6 @@ def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | Non
             "flags": _text(c.get("flags")),
             "labeler": _text(j.get("labeler")) if hand else "",
             "reason": _text(j.get("reason")) if hand else "",
-            "data_changed": bool(j.get("data_changed", False)) if j else False,
+            "data_changed": _flag(j.get("data_changed")),
         })
     return pd.DataFrame(rows, columns=LABEL_COLUMNS)
