@@ -258,3 +258,37 @@ def test_energy_drift_note_shown(win):
     assert "Energy check failed" in win.traces.note.text()
     win.state.set_run("toy-001")
     assert win.traces.note.isHidden()
+
+
+def test_no_rules_then_open_rules_classifies(qtbot, tmp_path, toy_root):
+    rules_text = (toy_root / "basins.toml").read_text()
+    (toy_root / "basins.toml").unlink()
+    w = open_window(qtbot, tmp_path, toy_root)
+    assert w.state.rules is None
+    assert "No rules file" in w.banner.text()
+    assert set(w.state.labels["auto_label"]) == {""}
+    assert list(w.label_panel.buttons) == ["recrossing", "unfinished", "ambiguous", "excluded"]
+    other = tmp_path / "elsewhere.toml"
+    other.write_text(rules_text)
+    with qtbot.waitSignal(w.rules_applied, timeout=20000):
+        w.apply_rules(other)
+    assert w.state.rules is not None and "No rules file" not in w.banner.text()
+    assert w.run_table.outcome_counts()["left"] == OUTCOMES.count("left")
+    assert list(w.label_panel.buttons)[:2] == ["left", "right"]
+    assert w.traces.threshold_lines
+    w.close()
+
+
+def test_cancel_keeps_what_was_loaded(qtbot, tmp_path, toy_root):
+    w = MainWindow(_settings(tmp_path))
+    qtbot.addWidget(w)
+    w.show()
+    with qtbot.waitSignal(w.set_loaded, timeout=20000):
+        w.open_set(toy_root, use_cache=False)
+        w.cancel_loading()
+    n = len(w.state.tset)
+    assert 1 <= n < len(OUTCOMES)
+    assert w.run_table.model.rowCount() == n
+    assert "cancelled" in w.banner.text()
+    assert w.state.traj is not None  # what was loaded is shown
+    w.close()

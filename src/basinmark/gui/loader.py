@@ -47,9 +47,9 @@ class SetLoader(QObject):
             out["tset"] = tset
             out["cancelled"] = self.cancelled
             rules_file = self.rules_file or rules_path(tset.root)
-            if not self.cancelled:
-                out.update(classify_with_rules(tset, rules_file,
-                                               lambda d, t, _r: self.progress.emit("Classifying", d, t)))
+            # the runs loaded before a cancel are still classified (quick next to loading)
+            out.update(classify_with_rules(tset, rules_file,
+                                           lambda d, t, _r: self.progress.emit("Classifying", d, t)))
         except BasinmarkError as exc:
             out["error"] = str(exc)
         except Exception as exc:  # the window must survive anything a broken folder does

@@ -190,6 +190,8 @@ class MainWindow(QMainWindow):
         st.monitors_changed.connect(self._on_monitors)
         st.labels_changed.connect(self._update_status)
         self.molecule.picks_changed.connect(st.set_picks)
+        st.picks_changed.connect(self.molecule.set_picks)
+        st.picks_changed.connect(lambda _p: self._update_status())
         self.molecule.monitor_requested.connect(st.add_monitor)
         self.traces.time_scrubbed.connect(self._on_scrub)
         self.label_panel.message.connect(lambda text: self.statusBar().showMessage(text, 6000))

@@ -127,6 +127,13 @@ class MoleculeView(QWidget):
     def show_numbers(self) -> bool:
         return self._show_numbers
 
+    def set_picks(self, atoms: list[int]) -> None:
+        """Show these 1-based atoms as picked (from the app state; does not emit)."""
+        idx = [int(a) - 1 for a in atoms if self._traj is not None and 0 < int(a) <= self._traj.n_atoms]
+        if idx != self._picked:
+            self._picked = idx
+            self.update()
+
     def clear_picks(self) -> None:
         if self._picked:
             self._picked = []
@@ -211,6 +218,12 @@ class MoleculeView(QWidget):
             self._bond_cache[self._frame] = b
         return b
 
+    def resizeEvent(self, event) -> None:  # noqa: N802
+        old, new = event.oldSize(), event.size()
+        if old.isValid() and min(old.width(), old.height()) > 0:
+            self._scale *= min(new.width(), new.height()) / min(old.width(), old.height())
+        super().resizeEvent(event)
+
     # --- painting -----------------------------------------------------------------------
     def paintEvent(self, event) -> None:  # noqa: N802 (Qt name)
         p = QPainter(self)
@@ -254,13 +267,15 @@ class MoleculeView(QWidget):
         bond_w = max(1.5, 0.16 * self._scale)
         diam = np.maximum(2, np.round(2 * self._radii * self._scale)).astype(int)
         order = np.argsort(depth, kind="stable")
+        bg = self.background_colour()
+        rim = QColor(150, 156, 164) if bg.lightness() < 110 else None  # dark theme: light outline
         self._paint_measures(p, xy, bonds, highlight)
         for s in range(_N_SLABS):
             sel = np.nonzero(bond_slab == s)[0]
             if sel.size:
                 self._paint_bonds(p, xy, bonds[sel], bond_w, highlight)
             for i in order[atom_slab[order] == s]:
-                pix = self._sprites.ball(self._colours[i], diam[i], dpr)
+                pix = self._sprites.ball(self._colours[i], diam[i], dpr, rim)
                 d = diam[i]
                 p.drawPixmap(QPointF(xy[i, 0] - d / 2, xy[i, 1] - d / 2), pix)
         self._paint_picks(p, xy, diam, highlight)
