@@ -292,3 +292,23 @@ def test_cancel_keeps_what_was_loaded(qtbot, tmp_path, toy_root):
     assert "cancelled" in w.banner.text()
     assert w.state.traj is not None  # what was loaded is shown
     w.close()
+
+
+def test_dragging_a_threshold_reclassifies_and_can_be_saved(win, qtbot, toy_root):
+    line = next(ln for ln in win.traces.threshold_lines if ln.angle == 0 and abs(ln.value() - 1.75) < 1e-9)
+    assert line.movable
+    with qtbot.waitSignal(win.rules_applied, timeout=20000):
+        line.setValue(1.4)
+        line.sigPositionChangeFinished.emit(line)
+    # products now need d < 1.4 Å, which no toy run reaches (1.5 Å at the end): every product run is unfinished
+    rules = win.state.rules
+    assert rules.basins["left"].condition("d_left").hi == pytest.approx(1.4)
+    assert rules.basins["right"].condition("d_right").hi == pytest.approx(1.4)
+    core = classify_set(win.state.tset, rules)["outcome"].value_counts().to_dict()
+    assert {k: v for k, v in win.run_table.outcome_counts().items() if v} == core
+    assert core.get("unfinished") == 1 + OUTCOMES.count("left") + OUTCOMES.count("right")
+    assert "not saved" in win.banner.text()
+    out = toy_root / "basins-edited.toml"
+    assert win.save_rules_as(out)
+    assert load_rules(out).basins["left"].condition("d_left").hi == pytest.approx(1.4)
+    assert "not saved" not in win.banner.text()

@@ -32,6 +32,8 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("open_folder", "&Open Folder…", "File", ("Ctrl+O",), "Open a folder of runs as a set", "open-folder"),
     ActionSpec("open_rules", "Open &Rules…", "File", ("Ctrl+Shift+O",),
                "Load a basins file and re-classify every run", "open-rules"),
+    ActionSpec("save_rules", "&Save Rules As…", "File", ("Ctrl+Shift+S",),
+               "Write the current rules (with any thresholds you dragged) to a TOML file", "save-rules"),
     ActionSpec("quit", "&Quit", "File", ("Ctrl+Q",), "Close the window"),
     # playback
     ActionSpec("play_pause", "&Play / Pause", "Playback", ("Space",), "Play or pause the current run", "play"),

@@ -57,12 +57,20 @@ class SetLoader(QObject):
         self.done.emit(out)
 
 
-def classify_with_rules(tset, rules_file: Path, progress=None) -> dict:
-    """Load the rules and classify every run; problems become a plain sentence in ``rules_error``."""
+def classify_with_rules(tset, rules_file, progress=None) -> dict:
+    """Load the rules (a path, or Rules already made) and classify every run.
+
+    Problems become a plain sentence in ``rules_error``.
+    """
     from basinmark.core.classify import classify_set
     from basinmark.core.rules import load_rules
 
     out = {"rules": None, "classification": None, "rules_error": ""}
+    if not isinstance(rules_file, (str, Path)):
+        out["rules"] = rules_file
+        out["classification"] = classify_set(tset, rules_file, progress=progress) if len(tset) else None
+        return out
+    rules_file = Path(rules_file)
     if not rules_file.is_file():
         out["rules_error"] = (f"No rules file at {rules_file}: the runs are shown without automatic outcomes. "
                               "Use File ▸ Open Rules… to classify them.")
@@ -85,9 +93,11 @@ class RulesWorker(QObject):
     run_loaded = Signal(object)  # unused; keeps the worker interface uniform
     done = Signal(object)
 
-    def __init__(self, tset, rules_file: str | Path) -> None:
+    def __init__(self, tset, rules_file) -> None:
+        """``rules_file``: a path to load, or a Rules object (e.g. with a dragged threshold)."""
         super().__init__()
-        self.tset, self.rules_file = tset, Path(rules_file)
+        self.tset = tset
+        self.rules_file = Path(rules_file) if isinstance(rules_file, (str, Path)) else rules_file
         self._cancel = threading.Event()
 
     def cancel(self) -> None:

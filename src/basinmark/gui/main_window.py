@@ -9,6 +9,7 @@ from PySide6.QtWidgets import (QDockWidget, QFileDialog, QLabel, QMainWindow, QM
                                QProgressBar, QToolBar, QToolButton, QVBoxLayout, QWidget)
 
 from basinmark import __version__
+from basinmark.core.errors import BasinmarkError
 from basinmark.core.journal import JournalError, JournalLockedError, LabelJournal, default_labeler
 from basinmark.core.labels import all_labels
 from basinmark.core.model import TrajectorySet
@@ -67,7 +68,8 @@ class MainWindow(QMainWindow):
     def _slots(self) -> dict:
         pb = self.playback
         return {
-            "open_folder": self.choose_folder, "open_rules": self.choose_rules, "quit": self.close,
+            "open_folder": self.choose_folder, "open_rules": self.choose_rules,
+            "save_rules": self.save_rules_as, "quit": self.close,
             "play_pause": pb.toggle, "step_back": lambda: pb.step(-1), "step_forward": lambda: pb.step(1),
             "skip_back": lambda: pb.step(-10), "skip_forward": lambda: pb.step(10),
             "jump_start": pb.jump_start, "jump_end": pb.jump_end, "jump_ts": pb.jump_ts,
@@ -126,6 +128,7 @@ class MainWindow(QMainWindow):
         self.recent_menu = QMenu("Open &Recent", self)
         m.addMenu(self.recent_menu)
         m.addAction(a["open_rules"])
+        m.addAction(a["save_rules"])
         m.addSeparator()
         m.addAction(a["quit"])
         m = bar.addMenu("&Playback")
@@ -148,7 +151,7 @@ class MainWindow(QMainWindow):
         tb = QToolBar("Main", self)
         tb.setObjectName("toolbar_main")
         tb.setMovable(False)
-        for name in ("open_folder", "open_rules", None, "previous_run", "next_run", "next_flagged",
+        for name in ("open_folder", "open_rules", "save_rules", None, "previous_run", "next_run", "next_flagged",
                      "next_unlabeled", None, "reset_view", "fit_view", "atom_numbers", None, "undo_label"):
             tb.addSeparator() if name is None else tb.addAction(a[name])
         self.addToolBar(tb)
@@ -194,6 +197,7 @@ class MainWindow(QMainWindow):
         st.picks_changed.connect(lambda _p: self._update_status())
         self.molecule.monitor_requested.connect(st.add_monitor)
         self.traces.time_scrubbed.connect(self._on_scrub)
+        self.traces.threshold_moved.connect(self.move_threshold)
         self.label_panel.message.connect(lambda text: self.statusBar().showMessage(text, 6000))
 
     # --- settings -------------------------------------------------------------------------
@@ -286,10 +290,51 @@ class MainWindow(QMainWindow):
         if not shown and self.state.run_id:
             self._auto_run = self.state.run_id
 
-    def apply_rules(self, rules_file: str | Path) -> None:
-        """Re-classify the open set with another rules file, in the background."""
+    def move_threshold(self, targets: list, value: float) -> bool:
+        """Set one threshold (of every listed basin condition) and classify the set again."""
+        rules = self.state.rules
+        if rules is None or self.job is not None:
+            self._on_run(self.state.run_id)  # put the line back
+            return False
+        try:
+            for basin, monitor, bound in targets:
+                rules = rules.with_threshold(basin, monitor, bound, value)
+        except BasinmarkError as exc:
+            self.statusBar().showMessage(f"Threshold not changed: {exc}", 8000)
+            self._on_run(self.state.run_id)
+            return False
+        self._messages["rules_edited"] = (f"Rules changed here (threshold now {value:.3g}) and not saved: "
+                                          "File ▸ Save Rules As… writes them.")
+        self.apply_rules(rules)
+        return True
+
+    def save_rules_as(self, path: str | Path | None = None) -> bool:
+        rules = self.state.rules
+        if rules is None or self.state.tset is None:
+            self.statusBar().showMessage("There are no rules to save.", 4000)
+            return False
+        if path is None:
+            path, _ = QFileDialog.getSaveFileName(self, "Save rules", str(Path(self.state.tset.root) / "basins.toml"),
+                                                  "Rules (*.toml)")
+            if not path:
+                return False
+        try:
+            saved = rules.save(path)
+        except (BasinmarkError, OSError) as exc:
+            self.statusBar().showMessage(f"Rules not saved: {exc}", 8000)
+            return False
+        self.state.rules = saved
+        self._messages.pop("rules_edited", None)
+        self._show_banner()
+        self.statusBar().showMessage(f"Rules saved to {path}", 6000)
+        return True
+
+    def apply_rules(self, rules_file) -> None:
+        """Re-classify the open set with another rules file (or Rules object), in the background."""
         if self.state.tset is None or self.job is not None:
             return
+        if isinstance(rules_file, (str, Path)):
+            self._messages.pop("rules_edited", None)
         job = LoadJob(RulesWorker(self.state.tset, rules_file), self)
         job.progress.connect(self._on_progress)
         job.finished.connect(self._on_loaded)
@@ -378,7 +423,7 @@ class MainWindow(QMainWindow):
         self.state.set_journal(journal, msg)
 
     def _show_banner(self) -> None:
-        order = ("error", "journal", "journal_warn", "rules", "set")
+        order = ("error", "journal", "journal_warn", "rules", "rules_edited", "set")
         self.banner.show_message("\n".join(self._messages[k] for k in order if self._messages.get(k)))
 
     # --- reacting to state ------------------------------------------------------------------

@@ -37,6 +37,7 @@ class TracesView(QWidget):
     """Monitor, basin and energy plots of one run with a shared, draggable time cursor."""
 
     time_scrubbed = Signal(float)
+    threshold_moved = Signal(list, float)   # [(basin, monitor, "below" | "above")], new value
 
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
@@ -52,6 +53,7 @@ class TracesView(QWidget):
         self._user: list[tuple[int, ...]] = []
         self._updating = False
         self._time = 0.0
+        self.thresholds_editable = True
 
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
@@ -208,26 +210,31 @@ class TracesView(QWidget):
             return
         names = rules.basin_names
         # one line per (plot, value): several basins often share a threshold
-        groups: dict[tuple[int, float], list[tuple[str, str]]] = {}
+        groups: dict[tuple[int, float], list[tuple[str, str, str, str]]] = {}
         for bname, basin in rules.basins.items():
             for cond in basin.conditions:
                 mon = rules.monitors.get(cond.monitor)
                 if mon is None or cond.monitor not in self.curves:
                     continue
-                for value in (cond.lo, cond.hi):
+                for value, bound in ((cond.lo, "above"), (cond.hi, "below")):
                     if value is not None and np.isfinite(value):
                         key = (0 if len(mon.atoms) == 2 else 1, round(float(value), 9))
-                        groups.setdefault(key, []).append((bname, cond.describe()))
+                        groups.setdefault(key, []).append((bname, cond.describe(), cond.monitor, bound))
         text_colour = self.palette().color(QPalette.ColorRole.Text)
         for (which, value), entries in groups.items():
             plot = self.p_dist if which == 0 else self.p_angle
             colour = basin_colour(entries[0][0], names, rules.reactant)
-            text = "; ".join(f"{b}: {d}" for b, d in entries)
-            line = pg.InfiniteLine(value, angle=0, movable=False,
+            text = "; ".join(f"{b}: {d}" for b, d, _m, _k in entries)
+            line = pg.InfiniteLine(value, angle=0, movable=self.thresholds_editable,
                                    pen=pg.mkPen(colour, width=1.3, style=Qt.PenStyle.DashLine),
                                    label=text, labelOpts={"position": 0.02, "color": text_colour,
                                                           "anchors": [(0, 1), (0, 1)]})
-            line.setToolTip(text)
+            line.setToolTip(text + ("\nDrag to move this threshold; the set is classified again."
+                                    if self.thresholds_editable else ""))
+            line.setHoverPen(pg.mkPen(colour, width=3, style=Qt.PenStyle.DashLine))
+            targets = [(b, m, k) for b, _d, m, k in entries]
+            line.sigPositionChangeFinished.connect(
+                lambda ln, tg=targets: self.threshold_moved.emit(list(tg), float(ln.value())))
             plot.addItem(line, ignoreBounds=True)
             self.threshold_lines.append(line)
 
