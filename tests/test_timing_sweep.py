@@ -8,6 +8,7 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, strategies as st
 from scipy.stats import binomtest
 
 from basinmark.core import stats
@@ -200,3 +201,39 @@ def test_cli_sweep(tmp_path, capsys):
     assert main(["sweep", str(root), "--basin", "gamma", "--monitor", "r_b", "--bound", "below",
                  "--from", "1", "--to", "2", "-q"]) == 2
     assert "basins.gamma" in capsys.readouterr().err
+
+
+def _first_stretch_reference(mask, t, ts, sign, dwell):
+    """Plain loop: walk from the TS along one half, return the elapsed time of the first qualifying stay."""
+    order = range(ts, len(mask)) if sign > 0 else range(ts, -1, -1)
+    order = list(order)
+    for pos, i in enumerate(order):
+        if not mask[i] or (pos > 0 and mask[order[pos - 1]]):
+            continue
+        j = pos
+        while j + 1 < len(order) and mask[order[j + 1]]:
+            j += 1
+        if abs(t[order[j]] - t[i]) >= dwell - 1e-6:
+            return abs(t[i] - t[ts])
+    return float("nan")
+
+
+@given(st.lists(st.tuples(st.lists(st.booleans(), min_size=1, max_size=20), st.integers(0, 19),
+                          st.sampled_from([1, -1])), min_size=1, max_size=5),
+       st.sampled_from([0.0, 1.0, 2.0, 3.0]))
+def test_first_stretch_times_matches_reference(specs, dwell):
+    masks, times, ts, dirs, lengths = [], [], [], [], []
+    for bits, k, sign in specs:
+        f = len(bits)
+        k = min(k, f - 1)
+        masks.append(np.array(bits))
+        times.append(np.arange(f, dtype=float) - k)
+        ts.append(k)
+        dirs.append(sign)
+        lengths.append(f)
+    ends = np.cumsum(lengths)
+    starts = ends - np.array(lengths)
+    got = first_stretch_times(np.concatenate(masks), np.concatenate(times), starts, ends, starts + np.array(ts),
+                              np.array(dirs), dwell)
+    want = [_first_stretch_reference(m, t, k, s, dwell) for m, t, k, s in zip(masks, times, ts, dirs)]
+    np.testing.assert_array_equal(got, want)

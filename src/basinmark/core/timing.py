@@ -35,49 +35,37 @@ def first_stretch_times(mask: np.ndarray, times: np.ndarray, starts: np.ndarray,
     """
     mask = np.asarray(mask, dtype=bool)
     t = np.asarray(times, dtype=np.float64)
+    starts, ends, ts = (np.asarray(a, dtype=np.intp) for a in (starts, ends, ts))
+    direction = np.asarray(direction)
     n = mask.size
-    r = starts.size
-    out = np.full(r, np.nan)
-    if n == 0 or r == 0:
+    out = np.full(starts.size, np.nan)
+    if n == 0 or starts.size == 0:
         return out
-    idx = np.arange(n)
-    run_of = np.repeat(np.arange(r), ends - starts)
-    first = np.zeros(n, dtype=bool)
-    first[starts] = True
-    last = np.zeros(n, dtype=bool)
-    last[ends - 1] = True
-    seg_start = first.copy()
-    seg_start[1:] |= mask[1:] != mask[:-1]
-    seg_end = last.copy()
-    seg_end[:-1] |= mask[:-1] != mask[1:]
-    s_of = np.maximum.accumulate(np.where(seg_start, idx, 0))
-    e_of = np.minimum.accumulate(np.where(seg_end, idx, n - 1)[::-1])[::-1]
-    fwd = direction[run_of] > 0
-    lo = np.where(fwd, ts[run_of], starts[run_of])
-    hi = np.where(fwd, ends[run_of] - 1, ts[run_of])
-    in_half = (idx >= lo) & (idx <= hi) & mask
-    # candidate frames: where a true stretch begins within the half, seen in the half's direction
-    begin_fwd = np.maximum(s_of, lo) == idx
-    begin_bwd = np.minimum(e_of, hi) == idx
-    cand = in_half & np.where(fwd, begin_fwd, begin_bwd)
-    c = np.nonzero(cand)[0]
-    if c.size == 0:
-        return out
-    cf = fwd[c]
-    far = np.where(cf, np.minimum(e_of[c], hi[c]), np.maximum(s_of[c], lo[c]))
-    dur = np.abs(t[far] - t[c])
-    ok = dur >= dwell_fs - _TOL_FS
-    c, cf = c[ok], cf[ok]
-    if c.size == 0:
-        return out
-    rc = run_of[c]
-    elapsed = np.abs(t[c] - t[ts[rc]])
-    # earliest elapsed time per run: forward candidates ascend with index, backward descend
-    order = np.lexsort((elapsed, rc))
-    rc, elapsed = rc[order], elapsed[order]
-    keep = np.ones(rc.size, dtype=bool)
-    keep[1:] = rc[1:] != rc[:-1]
-    out[rc[keep]] = elapsed[keep]
+    # Only the places where the mask changes are visited (sparse), not every frame.
+    change = np.flatnonzero(mask[1:] != mask[:-1]) + 1
+    for sign in (1, -1):
+        chosen = direction == sign
+        if not chosen.any():
+            continue
+        # forward halves split stays just before the TS frame, backward halves just after it
+        cut = ts if sign > 0 else ts + 1
+        bounds = np.union1d(np.union1d(change, starts), cut[cut < n])
+        last = np.append(bounds[1:] - 1, n - 1)
+        true = mask[bounds]
+        st, en = bounds[true], last[true]
+        run = np.searchsorted(starts, st, side="right") - 1
+        in_half = (st >= ts[run]) if sign > 0 else (en <= ts[run])
+        ok = in_half & chosen[run] & (np.abs(t[en] - t[st]) >= dwell_fs - _TOL_FS)
+        st, en, run = st[ok], en[ok], run[ok]
+        if run.size == 0:
+            continue
+        if sign > 0:  # earliest stay per run: its first occurrence
+            u, pick = np.unique(run, return_index=True)
+            out[u] = t[st[pick]] - t[ts[u]]
+        else:  # the stay nearest the TS per run: its last occurrence
+            u, rpick = np.unique(run[::-1], return_index=True)
+            pick = run.size - 1 - rpick
+            out[u] = t[ts[u]] - t[en[pick]]
     return out
 
 
