@@ -288,3 +288,28 @@ def test_rules_are_hashable_and_frozen():
     with pytest.raises(Exception):
         r.dwell_fs = 3.0  # type: ignore[misc]
     assert isinstance(r, Rules)
+
+
+DOC = Path(__file__).resolve().parents[1] / "docs" / "rules-file.md"
+
+
+def test_documented_example_loads_and_errors_are_as_documented():
+    import re
+
+    doc = DOC.read_text(encoding="utf-8")
+    toml = re.search(r"```toml\n(.*?)```", doc, re.S).group(1)
+    r = parse_rules(toml, source="basins.toml", n_atoms=12)
+    assert r == parse_rules(GOOD)  # the documented file is the one these tests use
+    cases = [
+        toml.replace("r_b = { below = 1.75 }\nr_c = { above", "r_q = { below = 1.75 }\nr_c = { above"),
+        toml.replace("r_c = [4, 9]", "r_c = [4, 19]"),
+        toml.replace("r_c = [4, 9]", "r_c = [4, 9"),
+    ]
+    for text in cases:
+        with pytest.raises(RulesError) as info:
+            parse_rules(text, source="basins.toml", n_atoms=12)
+        assert str(info.value) in doc
+    with pytest.raises(RulesError) as info:
+        r.with_threshold("alpha", "r_a", "below", 3.0)
+    flat = " ".join(doc.split())
+    assert info.value.problem.split(" (tighten")[0] in flat

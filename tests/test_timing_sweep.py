@@ -237,3 +237,18 @@ def test_first_stretch_times_matches_reference(specs, dwell):
                               np.array(dirs), dwell)
     want = [_first_stretch_reference(m, t, k, s, dwell) for m, t, k, s in zip(masks, times, ts, dirs)]
     np.testing.assert_array_equal(got, want)
+
+
+def test_worked_example_of_the_docs(rules):
+    """The run narrated in docs/rules-file.md ("Worked example: one run") gives what the text says."""
+    t = np.arange(-300.0, 401.0)
+    ra = np.where(t <= -48, 3.0, np.where(t >= 35, 1.5, 2.1))
+    rb = np.where(t >= 62, 1.5, 2.1)
+    rc = np.full_like(t, 3.0)
+    run = Trajectory("run-17", [6] * 9, place(ra, rb, rc), t)
+    from basinmark.core.classify import classify_run
+    res = classify_run(run, rules)
+    assert (res.outcome, res.backward_basin, res.forward_basin) == ("alpha", "reactant", "alpha")
+    assert (res.commit_time_fs, res.backward_commit_time_fs, res.flags) == (62.0, -48.0, [])
+    tg = time_gaps([run], rules).iloc[0]
+    assert (tg["t_r_a_fs"], tg["t_r_b_fs"], tg["gap_fs"], tg["mode"]) == (35.0, 62.0, 27.0, "concerted")

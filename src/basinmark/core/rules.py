@@ -562,15 +562,20 @@ def _check_condition(c: Condition, m: Monitor, source: str, key: str) -> None:
                          f"({m.unit} values from {dom[0]:g} to {dom[2]:g})", key=key)
 
 
-def _fmt_interval(name: str, iv: tuple, unit: str) -> str:
+def _fmt_interval(name: str, iv: tuple, unit: str, domain: tuple) -> str:
     lo, lo_c, hi, hi_c = iv
+    u = f" {unit}" if unit else ""
     if lo == hi:
-        return f"{name} = {lo:g} {unit}"
-    left = "" if math.isinf(lo) else f"{lo:g} {'<=' if lo_c else '<'} "
-    right = "" if math.isinf(hi) else f" {'<=' if hi_c else '<'} {hi:g}"
-    if not left and not right:
-        return f"{name} any"
-    return f"{left}{name}{right}" + (f" {unit}" if unit else "")
+        return f"{name} = {lo:g}{u}"
+    has_lo = not (math.isinf(lo) or (lo, lo_c) == (domain[0], domain[1]))
+    has_hi = not (math.isinf(hi) or (hi, hi_c) == (domain[2], domain[3]))
+    if has_lo and has_hi:
+        return f"{lo:g} {'<=' if lo_c else '<'} {name} {'<=' if hi_c else '<'} {hi:g}{u}"
+    if has_lo:
+        return f"{name} {'>=' if lo_c else '>'} {lo:g}{u}"
+    if has_hi:
+        return f"{name} {'<=' if hi_c else '<'} {hi:g}{u}"
+    return f"{name} any value"
 
 
 def _shared_region(a: Basin, b: Basin, monitors: Mapping[str, Monitor]) -> str | None:
@@ -585,7 +590,7 @@ def _shared_region(a: Basin, b: Basin, monitors: Mapping[str, Monitor]) -> str |
                 iv = _intersect(iv, c.interval())
         if not _nonempty(*iv):
             return None
-        parts.append(_fmt_interval(mname, iv, m.unit))
+        parts.append(_fmt_interval(mname, iv, m.unit, _DOMAINS[m.kind]))
     return ", ".join(parts)
 
 
