@@ -159,6 +159,15 @@ def _warn(lines) -> None:
         print(f"warning: {w}", file=sys.stderr)
 
 
+def _plain(df: pd.DataFrame) -> pd.DataFrame:
+    """Missing values as empty cells for the text table (pandas' <NA> reads badly)."""
+    out = df.copy()
+    for col in out.columns:
+        if out[col].isna().any():
+            out[col] = out[col].astype(object).where(out[col].notna(), None)
+    return out
+
+
 def _event_row(ev: dict) -> pd.DataFrame:
     return pd.DataFrame([{"run": ev.get("run"), "label": ev.get("label"), "replaces": ev.get("replaces"),
                           "labeler": ev.get("labeler"), "event": ev.get("seq"), "time": ev.get("time"),
@@ -200,7 +209,7 @@ def cmd_history(args) -> int:
     if hist.empty:
         print(f"run {args.run} has no label events in {_journal(args)}", file=sys.stderr)
         return 1
-    emit(hist.drop(columns=["content_hash"]) if args.format == "table" else hist, args.format)
+    emit(_plain(hist.drop(columns=["content_hash"])) if args.format == "table" else hist, args.format)
     return 0
 
 
@@ -213,10 +222,10 @@ def cmd_verify(args) -> int:
     table = pd.DataFrame([{"line": p.line, "event": p.event, "problem": p.what, "message": p.message}
                           for p in problems], columns=["line", "event", "problem", "message"])
     if args.format != "table":
-        emit(table.astype(object).where(table.notna(), None), args.format)
+        emit(_plain(table), args.format)
         return 1 if problems else 0
     if problems:
-        print(table_text(table.astype(object).where(table.notna(), ""), max_width=200))
+        print(table_text(_plain(table), max_width=200))
     _warn(notes)
     with LabelJournal.open(path, readonly=True) as j:
         n, seq, digest = len(j.events), j.last_seq, j.last_hash
@@ -302,7 +311,8 @@ def cmd_export(args) -> int:
             path = export_labels(j, args.output, hashes)
             print(f"{len(j.state())} runs' labels written to {path}")
         else:
-            emit(j.state(hashes), args.format)
+            state = j.state(hashes)
+            emit(_plain(state) if args.format == "table" else state, args.format)
     return 0
 
 

@@ -26,16 +26,16 @@ with freshly computed hashes cannot be caught from the files alone: note the hea
 from __future__ import annotations
 
 import getpass
-import json
 import os
 import socket
+import threading
 from pathlib import Path
 from typing import Iterable, Mapping, Sequence
 
 import pandas as pd
 
 from basinmark import __version__
-from basinmark.core.journal_format import (HEADER_KIND, SCHEMA_VERSION, JournalError, read_head,
+from basinmark.core.journal_format import (HEADER_KIND, SCHEMA_VERSION, JournalError, parse_line, read_head,
                                            seal, split_lines, utc_now, utc_stamp, write_head)
 from basinmark.core.journal_lock import (JournalLockedError, acquire, describe, is_stale, lock_path, read_lock,
                                          release)
@@ -84,6 +84,7 @@ class LabelJournal:
         self._size = 0
         self._fd: int | None = None
         self._lock: dict | None = None
+        self._mutex = threading.Lock()  # one write at a time within this process (GUI worker threads)
 
     # --- opening --------------------------------------------------------------------------
     @classmethod
@@ -166,15 +167,12 @@ class LabelJournal:
         prev = ""
         for i, raw in enumerate(lines):
             where = f"{self.path}, line {i + 1}"
-            try:
-                ev = json.loads(raw)
-                if not isinstance(ev, dict):
-                    raise ValueError("not an object")
-            except ValueError:
+            ev = parse_line(raw)
+            if ev is None:
                 msg = f"{where} is not a valid journal event"
                 if writer:
                     raise JournalError(f"{msg}; labels cannot be added until the journal is repaired "
-                                       "(run 'basinmark verify' for details)") from None
+                                       "(run 'basinmark verify' for details)")
                 self.warnings.append(msg + "; skipped")
                 continue
             if writer and (ev.get("seq") != self._last_seq + 1 or ev.get("prev", "") != prev):
@@ -211,6 +209,10 @@ class LabelJournal:
 
     def _write(self, bodies: list[dict]) -> list[dict]:
         """Seal events (seq, time, prev, hash), write them in one write + one fsync, then apply them."""
+        with self._mutex:
+            return self._write_locked(bodies)
+
+    def _write_locked(self, bodies: list[dict]) -> list[dict]:
         self._require_writer()
         assert self._fd is not None
         now = utc_now()

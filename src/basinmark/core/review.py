@@ -210,7 +210,7 @@ def render_markdown(review: Review, *, title: str | None = None, max_disagreemen
     ci = ("n/a" if not math.isfinite(r.ci[0]) else f"{r.ci[0]:.3f} to {r.ci[1]:.3f}")
     lines = [f"# {title or f'Review: {r.name_a} vs {r.name_b}'}", ""]
     if r.warnings:
-        lines += [f"> **Caution:** {w}" for w in r.warnings] + [""]
+        lines += "\n>\n".join(f"> **Caution:** {w}" for w in r.warnings).split("\n") + [""]
     lines += ["| measure | value |", "|---|---|",
               f"| runs labeled by both | {r.n} |",
               f"| percent agreement | {pct(r.agreement)} |",
