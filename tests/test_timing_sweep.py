@@ -252,3 +252,22 @@ def test_worked_example_of_the_docs(rules):
     assert (res.commit_time_fs, res.backward_commit_time_fs, res.flags) == (62.0, -48.0, [])
     tg = time_gaps([run], rules).iloc[0]
     assert (tg["t_r_a_fs"], tg["t_r_b_fs"], tg["gap_fs"], tg["mode"]) == (35.0, 62.0, 27.0, "concerted")
+
+
+def test_concerted_fraction_of_reactive_runs_only(rules):
+    runs = [bonds_run("c0", 40.0, 40.0), bonds_run("s0", 40.0, 140.0),
+            make_run("w", [(INF, R), (-50, N), (20, A), (60, N), (90, B)])]  # beta run, r_b formed in passing
+    table = classify_set(runs, rules)
+    everything = concerted_fraction(table)
+    alpha_only = concerted_fraction(table, outcomes=["alpha"])
+    assert everything["n_formed"] == 3 and (alpha_only["concerted"], alpha_only["stepwise"]) == (1, 1)
+
+
+def test_cli_classify_prints_time_gap(tmp_path, capsys):
+    from basinmark.cli import main
+
+    root = write_set(tmp_path / "set", [bonds_run("c0", 40.0, 40.0), bonds_run("s0", 40.0, 140.0)])
+    assert main(["classify", str(root), "--dry-run", "-q"]) == 0
+    out = capsys.readouterr().out
+    assert "1 of 2 reactive runs that formed both bonds are dynamically concerted" in out
+    assert "Only 2 runs formed both bonds" in out  # too few, said plainly

@@ -125,6 +125,7 @@ def run_classify(args) -> int:
     counts["fraction"] = counts["count"] / n if n else float("nan")
     warnings = stats.reliability_warnings(dict(zip(counts["outcome"], counts["count"])), rules.products)
     flagged = table.loc[table["flags"] != "", ["run", "outcome", "flags", "commit_time_fs"]]
+    gap_line = _gap_sentence(table, rules, warnings)
     if args.dry_run:
         done = f"dry run: nothing written ({n} runs classified with {rules.source}, sha256 {rules.sha256[:12]})"
     else:
@@ -135,7 +136,7 @@ def run_classify(args) -> int:
     if args.format == "json":
         doc = {"runs": n, "counts": json.loads(counts.to_json(orient="records")),
                "flagged": json.loads(flagged.to_json(orient="records")), "written": written,
-               "dry_run": bool(args.dry_run), "rules": str(rules.source), "rules_sha256": rules.sha256,
+               "time_gap": gap_line, "dry_run": bool(args.dry_run), "rules": str(rules.source), "rules_sha256": rules.sha256,
                "warnings": warnings, "notes": notes}
         json.dump(doc, out, indent=2)
         out.write("\n")
@@ -148,6 +149,8 @@ def run_classify(args) -> int:
             out.write(f"\n{len(flagged)} flagged run(s):\n" + table_text(flagged, floatfmt=".1f") + "\n")
         else:
             out.write("\nno flagged runs\n")
+        if gap_line:
+            out.write(f"\n{gap_line}\n")
     stream = sys.stderr if args.format in ("csv", "json") else out
     if args.format != "json":
         for line in warnings:
@@ -156,6 +159,22 @@ def run_classify(args) -> int:
             print(f"note: {line}", file=stream)
     print(done, file=sys.stderr if args.format in ("csv", "json") else out)
     return 0
+
+
+def _gap_sentence(table, rules, warnings: list[str]) -> str:
+    """One sentence on the concerted fraction when the rules name two bonds (adds its warnings)."""
+    from basinmark.core.timing import concerted_fraction
+
+    g = rules.time_gap
+    if g is None:
+        return ""
+    res = concerted_fraction(table, concerted_fs=g.concerted_fs, outcomes=rules.products)
+    warnings += res["warnings"]
+    if res["n_formed"] == 0:
+        return f"time gap {g.bonds[0]}/{g.bonds[1]}: no reactive run formed both bonds"
+    return (f"time gap {g.bonds[0]}/{g.bonds[1]}: {res['concerted']} of {res['n_formed']} reactive runs that formed "
+            f"both bonds are dynamically concerted (gap < {g.concerted_fs:g} fs): {res['fraction_concerted']:.0%} "
+            f"(95% interval {res['lo']:.0%} to {res['hi']:.0%}); {res['stepwise']} stepwise")
 
 
 def run_sweep(args) -> int:

@@ -76,7 +76,7 @@ def gap_mode(gap_fs: float, concerted_fs: float = DEFAULT_CONCERTED_FS) -> str:
     return "concerted" if abs(gap_fs) < concerted_fs else "stepwise"
 
 
-def time_gaps(tset, rules, table: pd.DataFrame | None = None) -> pd.DataFrame:
+def time_gaps(tset, rules) -> pd.DataFrame:
     """One row per run: run, outcome, half, t_first_fs, t_second_fs (formation times of the two
     ``[time_gap].bonds`` monitors), gap_fs (second − first, signed), mode (concerted/stepwise/not formed).
 
@@ -117,16 +117,23 @@ def formation_pair(prep, res, rules) -> tuple[np.ndarray, np.ndarray, np.ndarray
 
 
 def concerted_fraction(gaps: Sequence[float] | pd.Series | pd.DataFrame,
-                       concerted_fs: float = DEFAULT_CONCERTED_FS, confidence: float = 0.95) -> dict:
+                       concerted_fs: float = DEFAULT_CONCERTED_FS, confidence: float = 0.95,
+                       outcomes: Sequence[str] | None = None) -> dict:
     """Counts of concerted and stepwise runs among those where both bonds formed.
 
     Returns ``{"n_formed", "n_not_formed", "concerted", "stepwise", "fraction_concerted", "lo", "hi",
-    "warnings"}`` with a Wilson interval for the concerted fraction.  ``gaps`` may be the
-    :func:`time_gaps` table (its ``gap_fs`` column is used) or plain numbers (NaN = not formed).
+    "concerted_fs", "warnings"}`` with a Wilson interval for the concerted fraction.  ``gaps`` may be
+    the :func:`time_gaps` table (column ``gap_fs``), the :func:`~basinmark.core.classify.classify_set`
+    table (column ``time_gap_fs``) or plain numbers (NaN = not formed).  With a table, ``outcomes``
+    keeps only runs with those outcomes (e.g. ``rules.products`` for reactive runs).
     """
     from basinmark.core.stats import proportion_interval
 
-    g = gaps["gap_fs"] if isinstance(gaps, pd.DataFrame) else gaps
+    if isinstance(gaps, pd.DataFrame):
+        rows = gaps if outcomes is None else gaps[gaps["outcome"].isin(list(outcomes))]
+        g = rows["gap_fs"] if "gap_fs" in rows else rows["time_gap_fs"]
+    else:
+        g = gaps
     g = np.asarray(g, dtype=np.float64)
     formed = np.isfinite(g)
     n = int(formed.sum())
