@@ -298,7 +298,8 @@ class LabelJournal:
         stack = self._replay.stacks[run_id][:-1]
         probe = Replay()
         probe.stacks[run_id] = stack
-        return self._write([{"kind": "undo", "source": top.get("source"), "labeler": labeler or self.labeler,
+        return self._write([{"kind": "undo", "source": "hand", "undone_source": top.get("source"),
+                             "labeler": labeler or self.labeler,
                              "run": run_id, "content_hash": top.get("content_hash", ""),
                              "label": probe.final_label(run_id), "replaces": before, "undoes": top["seq"],
                              "reason": reason or ""}])[0]
