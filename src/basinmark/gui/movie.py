@@ -208,9 +208,13 @@ class MovieRenderer:
         font = p.font()
         font.setPixelSize(max(10, h // 36))
         p.setFont(font)
-        caption = f"{traj.run_id}   t = {t:+.1f} fs   frame {frame + 1}/{traj.n_frames}"
-        p.drawText(QRectF(8, 4, self.mol_w - 16, font.pixelSize() * 1.6),
+        # the changing parts first, so a narrow movie still shows them
+        caption = f"t = {t:+.1f} fs   frame {frame + 1}/{traj.n_frames}   {traj.run_id}"
+        p.drawText(QRectF(6, 4, self.mol_w - 12, font.pixelSize() * 1.6),
                    Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter, caption)
+        # a thin strip along the bottom of the molecule panel: where this frame sits in the run
+        frac = (frame + 1) / traj.n_frames
+        p.fillRect(QRectF(0, h - 3, self.mol_w * frac, 3), pal.color(QPalette.ColorRole.Highlight))
         p.end()
         return img
 
@@ -284,7 +288,13 @@ def _write_gif(path, renderer, frames, fps, progress, cancel) -> MovieResult:
     images[0].save(tmp, format="GIF", save_all=True, append_images=images[1:], duration=delay, loop=0,
                    optimize=True, disposal=1)
     tmp.replace(path)
-    return MovieResult(path, len(images), renderer.size, fps, "gif", note=note)
+    with Image.open(path) as im:
+        stored = im.n_frames
+    if stored != len(images):
+        merged = (f"{len(images) - stored} frames identical to the one before were merged into longer "
+                  "frames (timing unchanged)")
+        note = f"{note}; {merged}" if note else merged
+    return MovieResult(path, stored, renderer.size, fps, "gif", note=note)
 
 
 def _write_mp4(path, renderer, frames, fps, progress, cancel) -> MovieResult:
