@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 from hypothesis import given, strategies as st
 
-from basinmark.core.classify import (TABLE_COLUMNS, basin_membership, classify_prepared, classify_run,
+from basinmark.core.classify import (TABLE_COLUMNS, ClassificationCancelled, basin_membership, classify_prepared, classify_run,
                                      classify_set, mark_changed, outcome_counts, prepare, write_automatic_labels)
 from basinmark.core.model import SourceFile, Trajectory, TrajectorySet
 from basinmark.core.rules import parse_rules
@@ -208,9 +208,16 @@ def test_classify_set_table_and_determinism(rules):
 
 def test_progress_and_mark_changed(rules):
     runs = [make_run(f"r{i}", CASES["to_alpha"][0]) for i in range(3)]
-    seen = []
+    seen, calls = [], []
     table = classify_set(runs, rules, progress=lambda d, n, rid: seen.append((d, n, rid)))
     assert seen == [(1, 3, "r0"), (2, 3, "r1"), (3, 3, "r2")]
+
+    def stop_after_two() -> bool:
+        calls.append(1)
+        return len(calls) >= 2
+
+    with pytest.raises(ClassificationCancelled, match="after 2 of 3"):
+        classify_set(runs, rules, cancel=stop_after_two)
     marked = mark_changed(table, {"r1": "different"})
     assert list(marked["flags"]) == ["", "data_changed", ""]
 

@@ -136,7 +136,8 @@ def run_classify(args) -> int:
     if args.format == "json":
         doc = {"runs": n, "counts": json.loads(counts.to_json(orient="records")),
                "flagged": json.loads(flagged.to_json(orient="records")), "written": written,
-               "time_gap": gap_line, "dry_run": bool(args.dry_run), "rules": str(rules.source), "rules_sha256": rules.sha256,
+               "time_gap": gap_line, "dry_run": bool(args.dry_run), "rules": str(rules.source),
+               "rules_sha256": rules.sha256,
                "warnings": warnings, "notes": notes}
         json.dump(doc, out, indent=2)
         out.write("\n")

@@ -33,6 +33,7 @@ from typing import Callable, Iterable
 import numpy as np
 import pandas as pd
 
+from basinmark.core.errors import BasinmarkError
 from basinmark.core.geometry import monitor_arrays
 from basinmark.core.rules import Rules, RulesError
 from basinmark.core.timing import _TOL_FS, formation_pair
@@ -96,8 +97,17 @@ def _trajectories(tset) -> list:
     return list(tset.runs.values()) if hasattr(tset, "runs") else list(tset)
 
 
-def prepare(tset, rules: Rules, progress: Callable[[int, int, str | None], None] | None = None) -> Prepared:
-    """Evaluate the rules' monitors for every run (a TrajectorySet or an iterable of Trajectory)."""
+class ClassificationCancelled(BasinmarkError):
+    """Raised when the ``cancel`` callback of :func:`classify_set` asked to stop (no partial table is returned)."""
+
+
+def prepare(tset, rules: Rules, progress: Callable[[int, int, str | None], None] | None = None,
+            cancel: Callable[[], bool] | None = None) -> Prepared:
+    """Evaluate the rules' monitors for every run (a TrajectorySet or an iterable of Trajectory).
+
+    ``progress(done, total, run_id)`` after each run; ``cancel()`` returning True stops with
+    :class:`ClassificationCancelled`.
+    """
     trajs = _trajectories(tset)
     idx = rules.monitor_indices()
     need = max((max(i) for i in idx.values()), default=-1) + 1
@@ -117,6 +127,8 @@ def prepare(tset, rules: Rules, progress: Callable[[int, int, str | None], None]
         drift.append(np.nan if d is None else d)
         if progress is not None:
             progress(k + 1, total, t.run_id)
+        if cancel is not None and cancel():
+            raise ClassificationCancelled(f"classification cancelled after {k + 1} of {total} runs")
     lengths_a = np.asarray(lengths, dtype=np.intp)
     ends = np.cumsum(lengths_a)
     starts = ends - lengths_a
@@ -272,12 +284,14 @@ def classification_notes(prep: Prepared, rules: Rules) -> list[str]:
     return notes
 
 
-def classify_set(tset, rules: Rules, progress: Callable[[int, int, str | None], None] | None = None) -> pd.DataFrame:
+def classify_set(tset, rules: Rules, progress: Callable[[int, int, str | None], None] | None = None,
+                 cancel: Callable[[], bool] | None = None) -> pd.DataFrame:
     """Classify every run of a set; one row per run with the columns :data:`TABLE_COLUMNS`.
 
     ``df.attrs["rules_sha256"]`` is the rules hash; ``df.attrs["notes"]`` lists checks not made.
+    ``progress``/``cancel`` as in :func:`prepare`.
     """
-    prep = prepare(tset, rules, progress=progress)
+    prep = prepare(tset, rules, progress=progress, cancel=cancel)
     return results_table(prep, classify_prepared(prep, rules), rules)
 
 

@@ -256,7 +256,8 @@ class Rules:
         value = _number(value, src, key)
         b = self.basins[basin]
         if old is None:
-            new = Condition(monitor, bound, lo=value if bound == "above" else None, hi=value if bound == "below" else None)
+            new = Condition(monitor, bound, lo=value if bound == "above" else None,
+                            hi=value if bound == "below" else None)
         else:
             new = replace(old, lo=value) if bound == "above" else replace(old, hi=value)
         conds = tuple(new if c.monitor == monitor else c for c in b.conditions)
