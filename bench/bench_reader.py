@@ -1,0 +1,79 @@
+"""Reader benchmark: our XYZ reader against ``ase.io.read(path, index=":")`` on the same extended-XYZ file.
+
+Run: ``.venv/bin/python bench/bench_reader.py``.  Writes (with ase.io.write)
+5,000 frames of a 12-atom model system with time/epot/ekin comment keys into a
+temporary folder, reads it with both readers in this process (best of 3 each)
+and prints throughput in MB/s of file bytes and the ratio (target >= 20x).
+The same is done for the gzip-compressed file.  Takes well under a minute.
+"""
+
+from __future__ import annotations
+
+import gzip
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import ase.io
+import numpy as np
+from ase import Atoms
+
+from basinmark.core.io import read_frames
+
+N_FRAMES = 5000
+TARGET = 20.0
+
+
+def make_frames(n_frames: int = N_FRAMES) -> list[Atoms]:
+    """A made-up 12-atom system (C6H4ClO) jiggling around a fixed shape, with time and energies."""
+    rng = np.random.default_rng(7)
+    base = rng.normal(scale=1.5, size=(12, 3))
+    frames = []
+    for i in range(n_frames):
+        a = Atoms("C6H4ClO", positions=base + rng.normal(scale=0.05, size=(12, 3)))
+        a.info["time"] = 0.5 * i
+        a.info["epot"] = -10.0 + 0.01 * np.sin(i / 50)
+        a.info["ekin"] = 0.3 + 0.01 * np.cos(i / 50)
+        frames.append(a)
+    return frames
+
+
+def best_of(fn, repeat: int = 3) -> float:
+    best = float("inf")
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        fn()
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def compare(path: Path, label: str) -> float:
+    size_mb = path.stat().st_size / 1e6
+    ours = best_of(lambda: read_frames(path))
+    ref = best_of(lambda: ase.io.read(path, index=":"))
+    block = read_frames(path)
+    frames = ase.io.read(path, index=":")
+    # the two readers must agree, else the timing means nothing
+    assert block.positions.shape == (len(frames), 12, 3)
+    assert np.allclose(block.positions, np.stack([f.positions for f in frames]), atol=1e-5)
+    ratio = ref / ours
+    print(f"{label}: {path.name}, {size_mb:.2f} MB on disk, {block.n_frames} frames x {block.n_atoms} atoms")
+    print(f"  ours          {ours * 1e3:8.1f} ms  {size_mb / ours:8.1f} MB/s")
+    print(f"  ase.io.read   {ref * 1e3:8.1f} ms  {size_mb / ref:8.1f} MB/s")
+    print(f"  ours / ase.io.read = {ratio:.1f}x (target >= {TARGET:g}x){'' if ratio >= TARGET else '  BELOW TARGET'}")
+    return ratio
+
+
+def main() -> int:
+    with tempfile.TemporaryDirectory() as tmp:
+        plain = Path(tmp) / "bench.extxyz"
+        ase.io.write(plain, make_frames(), format="extxyz")
+        packed = Path(tmp) / "bench.extxyz.gz"
+        packed.write_bytes(gzip.compress(plain.read_bytes(), compresslevel=6))
+        ratios = [compare(plain, "extended XYZ"), compare(packed, "gzip-compressed extended XYZ")]
+    return 0 if min(ratios) >= TARGET else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())

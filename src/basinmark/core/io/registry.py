@@ -1,0 +1,158 @@
+"""What every reader returns (:class:`FrameBlock`), file bytes with decompression, and the suffix registry.
+
+A file name's compression suffix (``.gz``, ``.bz2``, ``.xz``) is stripped before
+its format suffix is looked up; ``.xyz`` and ``.extxyz`` go to our own reader,
+anything else to ase.  Compressed content is recognised by its magic bytes as
+well, so a gzip file named ``run.xyz`` still reads.
+"""
+
+from __future__ import annotations
+
+import bz2
+import hashlib
+import importlib
+import lzma
+import zlib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+
+from basinmark.core.errors import TrajectoryFileError
+
+
+@dataclass
+class FrameBlock:
+    """All frames of one trajectory file, as arrays."""
+
+    path: Path
+    numbers: np.ndarray  # (n_atoms,) int16 atomic numbers
+    positions: np.ndarray  # (n_frames, n_atoms, 3) Å
+    info: dict[str, np.ndarray] = field(default_factory=dict)  # per-frame numeric keys, float64, NaN if missing
+    text_info: dict[str, list[str]] = field(default_factory=dict)  # per-frame non-numeric keys ("" if missing)
+    arrays: dict[str, np.ndarray] = field(default_factory=dict)  # extra per-atom columns, (F, N) or (F, N, k)
+    frame_lines: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # 1-based start line per frame
+    sha256: str = ""  # SHA-256 of the file's bytes as stored on disk
+    warnings: list[str] = field(default_factory=list)
+
+    @property
+    def n_frames(self) -> int:
+        return int(self.positions.shape[0])
+
+    @property
+    def n_atoms(self) -> int:
+        return int(self.positions.shape[1])
+
+
+#: compression suffix -> name
+COMPRESSION_SUFFIXES = {".gz": "gzip", ".bz2": "bzip2", ".xz": "xz"}
+_MAGIC = ((b"\x1f\x8b", "gzip"), (b"BZh", "bzip2"), (b"\xfd7zXZ\x00", "xz"))
+
+#: format suffix -> "module:function" (resolved lazily, so readers may import this module)
+READERS: dict[str, str] = {
+    ".xyz": "basinmark.core.io.xyz:read_xyz",
+    ".extxyz": "basinmark.core.io.xyz:read_xyz",
+}
+FALLBACK = "basinmark.core.io.via_ase:read_ase"
+
+
+def split_suffix(path: str | Path) -> tuple[str, str | None]:
+    """``(format suffix, compression or None)`` of a file name, e.g. ``('.xyz', 'gzip')`` for ``a.fwd.xyz.gz``."""
+    suffixes = [s.lower() for s in Path(path).suffixes]
+    compression = None
+    if suffixes and suffixes[-1] in COMPRESSION_SUFFIXES:
+        compression = COMPRESSION_SUFFIXES[suffixes.pop()]
+    return (suffixes[-1] if suffixes else ""), compression
+
+
+def sniff_compression(raw: bytes) -> str | None:
+    """Compression recognised from the first bytes, or None."""
+    for magic, name in _MAGIC:
+        if raw.startswith(magic):
+            return name
+    return None
+
+
+def _decompress(raw: bytes, kind: str) -> tuple[bytes, bool]:
+    """Decompress as much as possible; returns (data, complete).
+
+    Uses streaming decompressors rather than ``gzip.decompress`` so that a
+    stream cut short (a run killed while writing) still yields its intact part.
+    Concatenated members/streams are followed, as gzip/bzip2/xz tools do.
+    """
+    out: list[bytes] = []
+    rest = raw
+    while rest:
+        if kind == "gzip":
+            d = zlib.decompressobj(wbits=31)
+        elif kind == "bzip2":
+            d = bz2.BZ2Decompressor()
+        else:
+            d = lzma.LZMADecompressor()
+        out.append(d.decompress(rest))
+        if not d.eof:
+            return b"".join(out), False
+        rest = d.unused_data
+        if kind == "gzip":
+            rest = rest.lstrip(b"\x00")  # padding after a gzip member is allowed
+        if rest and sniff_compression(rest) != kind:
+            break  # trailing garbage after the last member: keep what decoded
+    return b"".join(out), True
+
+
+def load_bytes(path: str | Path) -> tuple[bytes, str, list[str]]:
+    """Read a file: ``(decompressed bytes, SHA-256 of the stored bytes, warnings)``.
+
+    Raises :class:`TrajectoryFileError` when the file is missing or its
+    compressed data is damaged beyond the first byte.
+    """
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise TrajectoryFileError(path, "the file does not exist") from None
+    except IsADirectoryError:
+        raise TrajectoryFileError(path, "this is a folder, not a trajectory file") from None
+    except OSError as exc:
+        raise TrajectoryFileError(path, f"the file could not be read ({exc.strerror or exc})") from None
+    sha = hashlib.sha256(raw).hexdigest()
+    warnings: list[str] = []
+    kind = sniff_compression(raw)
+    named = split_suffix(path)[1]
+    if kind is None:
+        if named is not None and raw:
+            warnings.append(f"{path.name} is named as {named}-compressed but is not; read it as plain text.")
+        return raw, sha, warnings
+    try:
+        data, complete = _decompress(raw, kind)
+    except (zlib.error, OSError, EOFError, lzma.LZMAError, ValueError) as exc:
+        raise TrajectoryFileError(
+            path, f"the {kind} data is damaged and cannot be decompressed ({exc}); recopy the file from its source"
+        ) from None
+    if not complete:
+        warnings.append(
+            f"the {kind} data ends early (the file was cut short); read the {len(data)} bytes that decompressed."
+        )
+    return data, sha, warnings
+
+
+def _resolve(target: str) -> Callable[..., FrameBlock]:
+    module, func = target.split(":")
+    return getattr(importlib.import_module(module), func)
+
+
+def reader_for(path: str | Path) -> Callable[..., FrameBlock]:
+    """The reader function for a file name (our XYZ reader or the ase fallback)."""
+    suffix, _ = split_suffix(path)
+    return _resolve(READERS.get(suffix, FALLBACK))
+
+
+def read_frames(path: str | Path, *, dtype=np.float32) -> FrameBlock:
+    """Read every frame of a trajectory file into a :class:`FrameBlock`.
+
+    Raises :class:`~basinmark.core.errors.TrajectoryFileError` (file, line, plain
+    sentence) when the file cannot be used; a truncated last frame is dropped
+    with a :class:`~basinmark.core.errors.PartialReadWarning` instead.
+    """
+    return reader_for(path)(Path(path), dtype=dtype)

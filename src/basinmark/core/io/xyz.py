@@ -1,0 +1,735 @@
+"""Our XYZ / extended-XYZ reader, vectorised with numpy.
+
+The file is split into lines once; frame boundaries follow from the first
+atom-count line (every frame must have the same atoms), all atom lines of all
+frames are parsed in one go, and element symbols are compared frame by frame
+as whole arrays.  Why not ``ase.io.read``: it builds one ``Atoms`` per frame
+and parses line by line, which is too slow for sets of thousands of runs
+(bench/bench_reader.py measures the difference).
+
+Two numeric paths, chosen automatically:
+
+* fixed-width columns (what dynamics codes and ase write): the atom lines are
+  viewed as a byte matrix and each numeric column is converted by place-value
+  arithmetic (a matrix-vector product), the fastest way we measured;
+* anything else (irregular spacing, mixed widths): whitespace tokens joined and
+  converted by ``numpy.fromstring`` in C.
+
+Both paths check every token (a bad one sends the fixed-width path to the
+general one, which reports the exact line).
+"""
+
+from __future__ import annotations
+
+import re
+import warnings as _warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from ase.data import atomic_numbers, chemical_symbols
+
+from basinmark.core.errors import PartialReadWarning, TrajectoryFileError
+from basinmark.core.io.registry import FrameBlock, load_bytes
+
+# ---------------------------------------------------------------------------------------------
+# comment lines (key=value pairs)
+
+_VALUE = rb'"(?:[^"\\\n]|\\.)*"|\'[^\'\n]*\'|\{[^}\n]*\}|[^\s"\'{=][^\s=]*'
+_KEY = rb'"[^"\n]*"|[^\s="\'{}]+'
+_PAIR = re.compile(rb"[ ]*(" + _KEY + rb")(?:[ ]*=[ ]*(" + _VALUE + rb"))?[ ]*")
+_BOOL_WORDS = {b"T", b"F", b"True", b"False", b"true", b"false", b"TRUE", b"FALSE"}
+_DROP_KEYS = {"Properties", "Lattice", "pbc"}  # Properties is parsed into columns; cell/pbc are not kept
+_FORTRAN = bytes.maketrans(b"dD", b"eE")
+_NUMBER = re.compile(rb"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eEdD][+-]?\d+)?|[+-]?(?:nan|inf|infinity)", re.I)
+
+
+def _unquote(v: bytes) -> bytes:
+    if len(v) >= 2 and v[:1] in (b'"', b"'") and v[-1:] == v[:1]:
+        v = v[1:-1]
+        if b"\\" in v:
+            v = v.replace(b'\\"', b'"').replace(b"\\\\", b"\\")
+    return v
+
+
+def parse_comment(line: bytes) -> list[tuple[bytes, bytes | None]] | None:
+    """Key/value pairs of one comment line (value None for a bare word), or None for free text."""
+    if b"=" not in line:
+        return None
+    pairs = []
+    pos, end = 0, len(line)
+    while pos < end:
+        m = _PAIR.match(line, pos)
+        if m is None or m.end() == pos:
+            return None  # unbalanced quote or stray '=': treat the line as free text
+        pairs.append((m.group(1), m.group(2)))
+        pos = m.end()
+    return pairs
+
+
+def _to_float(values: list[bytes]) -> np.ndarray | None:
+    """Values as float64, or None if any is not a single number (Fortran D exponents accepted)."""
+    try:
+        return np.array(list(map(float, values)), dtype=np.float64)
+    except ValueError:
+        pass
+    if all(_NUMBER.fullmatch(v) for v in values):
+        return np.array([float(v.translate(_FORTRAN)) for v in values], dtype=np.float64)
+    return None
+
+
+@dataclass
+class _Comments:
+    properties: list[bytes | None]  # per frame, the raw Properties value
+    info: dict[str, np.ndarray]
+    text_info: dict[str, list[str]]
+
+
+def _columns_to_info(n: int, cols: dict[bytes, list[bytes | None]], out: _Comments) -> None:
+    for rawkey, values in cols.items():
+        key = _unquote(rawkey).decode("utf-8", "replace")
+        if key in _DROP_KEYS and key != "Properties":
+            continue
+        complete = values.count(None) == 0
+        present = values if complete else [v for v in values if v is not None]
+        joined = b"".join(present)
+        if b'"' in joined or b"'" in joined:
+            present = [_unquote(v) for v in present]
+            values = [None if v is None else _unquote(v) for v in values]
+        if key == "Properties":
+            out.properties = values
+            continue
+        nums = _to_float(present) if _BOOL_WORDS.isdisjoint(present) else None
+        if nums is not None:
+            if complete:
+                out.info[key] = nums
+            else:
+                arr = np.full(n, np.nan)
+                arr[[i for i, v in enumerate(values) if v is not None]] = nums
+                out.info[key] = arr
+        else:
+            out.text_info[key] = ["" if v is None else v.decode("utf-8", "replace") for v in values]
+
+
+def _comments_by_tokens(comments: list[bytes], first: list[tuple[bytes, bytes | None]], out: _Comments) -> bool:
+    """Fast path for comment lines that all have the first line's keys in the same order.
+
+    The lines are split into whitespace tokens once; each key then owns the
+    same token positions on every line, which is verified for every line by
+    counting ``"\\n" + key + "="`` in the joined column (a key out of place
+    anywhere breaks the count).  Returns False, leaving ``out`` untouched,
+    when the lines are not that regular.
+    """
+    n = len(comments)
+    t0 = comments[0].split()
+    spans = []
+    j = 0
+    for k, v in first:
+        expect = [k] if v is None else (k + b"=" + v).split()
+        if t0[j:j + len(expect)] != expect:
+            return False  # spaces around '=', or a value the splitter cuts differently
+        spans.append((k, v, j, j + len(expect)))
+        j += len(expect)
+    width = j
+    if width != len(t0):
+        return False
+    toks = b"\n".join(comments).split()
+    if len(toks) != n * width:
+        return False
+    cols: dict[bytes, list[bytes]] = {}
+    for k, v, j0, j1 in spans:
+        col = toks[j0::width]
+        if v is None:
+            if col.count(k) != n:
+                return False
+            cols[k] = [b"T"] * n
+            continue
+        prefix = k + b"="
+        if (b"\n" + b"\n".join(col)).count(b"\n" + prefix) != n:
+            return False
+        if _unquote(k).decode("utf-8", "replace") in _DROP_KEYS - {"Properties"}:
+            continue  # position checked above; the value is not kept
+        skip = len(prefix)
+        values = [t[skip:] for t in col]
+        if j1 - j0 > 1:
+            values = [b" ".join(x) for x in zip(values, *(toks[jj::width] for jj in range(j0 + 1, j1)))]
+        if v[:1] in (b'"', b"'", b"{") or j1 - j0 > 1:
+            pattern = re.compile(_VALUE)
+            if not all(pattern.fullmatch(x) for x in values):
+                return False
+        cols[k] = values
+    _columns_to_info(n, cols, out)
+    return True
+
+
+def parse_comments(comments: list[bytes]) -> _Comments:
+    """Per-frame keys of all comment lines.
+
+    Fast path (:func:`_comments_by_tokens`) when every line has the same keys
+    in the same order, as writers produce; otherwise each line is parsed on
+    its own.  A line without any ``=`` is free text (``text_info['comment']``);
+    a bare word in a key=value line is a flag with value ``"T"``.
+    """
+    n = len(comments)
+    out = _Comments([None] * n, {}, {})
+    first = parse_comment(comments[0].strip())
+    if first is None:
+        joined = b"\n".join(comments)
+        if b"=" not in joined:
+            if joined.strip():
+                out.text_info["comment"] = [c.strip().decode("utf-8", "replace") for c in comments]
+            return out
+    elif _comments_by_tokens(comments, first, out):
+        return out
+    # general path: one line at a time (keys differ between frames)
+    cols = {}
+    free: list[str] = []
+    for i, line in enumerate(comments):
+        pairs = parse_comment(line.strip())
+        if pairs is None:
+            free.append(line.strip().decode("utf-8", "replace"))
+            continue
+        free.append("")
+        for k, v in pairs:
+            cols.setdefault(k, [None] * n)[i] = b"T" if v is None else v
+    _columns_to_info(n, cols, out)
+    if any(free):
+        out.text_info["comment"] = free
+    return out
+
+
+# ---------------------------------------------------------------------------------------------
+# per-atom column layout (extended XYZ Properties=)
+
+
+@dataclass(frozen=True)
+class _Column:
+    name: str
+    kind: str  # S, R, I, L
+    count: int
+    start: int  # first token index within an atom line
+
+
+def _layout(props: bytes | None, path: Path, line: int) -> list[_Column]:
+    if props is None:
+        return [_Column("species", "S", 1, 0), _Column("pos", "R", 3, 1)]
+    parts = props.decode("utf-8", "replace").split(":")
+    bad = TrajectoryFileError(
+        path,
+        f"Properties={props.decode('utf-8', 'replace')} is not a valid column list "
+        "(name:type:count triples, type one of S, R, I, L)",
+        line,
+    )
+    if len(parts) % 3:
+        raise bad
+    cols, start = [], 0
+    for i in range(0, len(parts), 3):
+        name, kind, count = parts[i], parts[i + 1].upper(), parts[i + 2]
+        if kind not in ("S", "R", "I", "L") or not count.isdigit() or int(count) < 1 or not name:
+            raise bad
+        cols.append(_Column(name, kind, int(count), start))
+        start += int(count)
+    names = [c.name for c in cols]
+    if "pos" not in names and "positions" not in names:
+        raise TrajectoryFileError(path, "Properties= names no 'pos' column, so there are no coordinates", line)
+    if "species" not in names and "Z" not in names:
+        raise TrajectoryFileError(path, "Properties= names no 'species' (or 'Z') column, so the atoms are unknown",
+                                  line)
+    return cols
+
+
+# ---------------------------------------------------------------------------------------------
+# numeric parsing
+
+
+class _Slow(Exception):
+    """The fixed-width path does not apply; use the general path."""
+
+
+def _fixed_width_matrix(block: bytes, n_lines: int) -> np.ndarray | None:
+    """The atom lines as an (n_lines, width) byte matrix, if all have the same length."""
+    width = block.find(b"\n") if n_lines > 1 else len(block)
+    if width <= 0 or len(block) != n_lines * (width + 1) - 1:
+        return None
+    grid = np.frombuffer(block + b"\n", np.uint8).reshape(n_lines, width + 1)
+    if not (grid[:, width] == 10).all():
+        return None
+    return grid[:, :width]
+
+
+_POW10 = np.array([10.0**k for k in range(309)])
+_CLASS_RE = re.compile(r"(m*)(d+)(?:(\.)(d*))?(?:(e)(m?)(d+))?|(m*)(d*)(\.)(d+)(?:(e)(m?)(d+))?")
+
+
+def _column_classes(cmin: np.ndarray, cmax: np.ndarray) -> str:
+    """One letter per byte column: d = digits only, . = dot only, e = one exponent letter, m = mixed."""
+    out = []
+    for lo, hi in zip(cmin.tolist(), cmax.tolist()):
+        if 48 <= lo and hi <= 57:
+            out.append("d")
+        elif lo == hi == 46:
+            out.append(".")
+        elif lo == hi and lo in b"eEdD":
+            out.append("e")
+        else:
+            out.append("m")
+    return "".join(out)
+
+
+def _sign_zone(zone: np.ndarray) -> np.ndarray:
+    """Check the leading mixed columns of a number (spaces, then an optional sign, then digits).
+
+    Returns a boolean per row: negative.  Raises _Slow on anything else.
+    """
+    isdig = (zone >= 48) & (zone <= 57)
+    space = zone == 32
+    minus = zone == 45
+    sign = minus | (zone == 43)
+    if not (isdig | space | sign).all():
+        raise _Slow
+    nonspace = ~space
+    if (nonspace[:, :-1] & space[:, 1:]).any() or (sign[:, 1:] & nonspace[:, :-1]).any():
+        raise _Slow
+    return minus.any(axis=1)
+
+
+def _horner(grid: np.ndarray, columns: range, mixed: int) -> np.ndarray:
+    """Integer value of digit columns (the first ``mixed`` of them may hold spaces or a sign: counted as 0).
+
+    Exact in float64 while the value stays below 2**53 (15 digits); longer
+    numbers can differ from a correctly rounded parse in the last bit, far
+    below the float32 precision positions are stored in.
+    """
+    acc = np.zeros(grid.shape[0])
+    for i, j in enumerate(columns):
+        digit = grid[:, j] - np.uint8(48)
+        if i < mixed:
+            digit[digit > 9] = 0
+        acc *= 10.0
+        acc += digit
+    return acc
+
+
+def _fixed_number(grid: np.ndarray, a: int, classes: str) -> np.ndarray:
+    """Convert one fixed-width numeric field starting at byte column ``a`` (classes: its column letters)."""
+    m = _CLASS_RE.fullmatch(classes)
+    if m is None:
+        raise _Slow
+    g = m.groups()
+    if g[0] is not None or g[1] is not None and g[7] is None:  # first form: m* d+ (. d*)? (e m? d+)?
+        lead, ipart, dot, frac, exp, esign, edig = g[0:7]
+    else:  # second form: m* d* . d+ (e m? d+)?
+        lead, ipart, dot, frac, exp, esign, edig = g[7:14]
+    lead, ipart, frac = lead or "", ipart or "", frac or ""
+    n_lead, n_int = len(lead), len(ipart)
+    negative = _sign_zone(grid[:, a:a + n_lead]) if n_lead else None
+    mant_cols = list(range(a, a + n_lead + n_int))
+    if dot:
+        mant_cols += list(range(a + n_lead + n_int + 1, a + n_lead + n_int + 1 + len(frac)))
+    value = _horner(grid, mant_cols, n_lead)
+    decimals = len(frac)
+    if exp:
+        e0 = a + n_lead + n_int + (1 + len(frac) if dot else 0) + 1
+        eneg = _sign_zone(grid[:, e0:e0 + len(esign)]) if esign else None
+        expo = _horner(grid, range(e0, e0 + len(esign) + len(edig)), len(esign)).astype(np.int64)
+        if eneg is not None:
+            np.negative(expo, out=expo, where=eneg)
+        q = expo - decimals
+        if np.abs(q).max(initial=0) > 300:
+            raise _Slow
+        value = np.where(q >= 0, value * _POW10[np.clip(q, 0, None)], value / _POW10[np.clip(-q, 0, None)])
+    elif decimals:
+        value /= _POW10[decimals]
+    if negative is not None:
+        np.negative(value, out=value, where=negative)
+    return value
+
+
+def _parse_fixed(block: bytes, n_lines: int, cols: list[_Column]) -> dict[str, np.ndarray]:
+    """Fixed-width path (columns at the same byte offsets on every atom line); raises _Slow when it does not apply.
+
+    Each byte column is summarised by its minimum and maximum over all lines,
+    which classifies it (digits only, the decimal point, an exponent letter,
+    or mixed); only the few mixed columns are checked byte by byte, and numbers
+    are assembled column by column.  Any doubt raises _Slow, and the general
+    path then parses the file (and reports errors with their line).
+    """
+    if any(c.kind not in ("S", "R", "I") or (c.kind == "S" and c.count != 1) for c in cols):
+        raise _Slow
+    grid = _fixed_width_matrix(block, n_lines)
+    if grid is None:
+        raise _Slow
+    cmin, cmax = grid.min(axis=0), grid.max(axis=0)
+    if cmin.min() < 32 or cmax.max() > 126:
+        raise _Slow
+    used = (cmax != 32).view(np.int8)
+    edges = np.flatnonzero(np.diff(np.concatenate(([0], used, [0]))))
+    starts, ends = edges[0::2].tolist(), edges[1::2].tolist()
+    if len(starts) != sum(c.count for c in cols):
+        raise _Slow
+    out: dict[str, np.ndarray] = {}
+    for c in cols:
+        fields = []
+        for t in range(c.start, c.start + c.count):
+            a, b = starts[t], ends[t]
+            if c.kind == "S":
+                ns = grid[:, a:b] != 32
+                # exactly one token per line in this field
+                if not ns[:, 0].all() and not ns[:, -1].all():
+                    raise _Slow
+                if b - a > 1 and (ns[:, 1:] & ~ns[:, :-1]).sum() + int(ns[:, 0].sum()) != n_lines:
+                    raise _Slow
+                fields.append(np.ascontiguousarray(grid[:, a:b]).view(f"S{b - a}").ravel())
+            else:
+                classes = _column_classes(cmin[a:b], cmax[a:b])
+                fields.append(_fixed_number(grid, a, classes))
+        out[c.name] = fields[0] if c.kind == "S" else np.stack(fields, axis=1)
+    return out
+
+
+def _parse_tokens(block: bytes, n_lines: int, cols: list[_Column], where) -> dict[str, np.ndarray]:
+    """General path: whitespace tokens; numbers converted in C by numpy.fromstring."""
+    n_tokens = sum(c.count for c in cols)
+    toks = block.split()
+    if len(toks) != n_lines * n_tokens:
+        _column_count_error(block, n_tokens, cols, where)
+    out: dict[str, np.ndarray] = {}
+    numeric = [c for c in cols if c.kind in ("R", "I")]
+    for c in cols:
+        if c.kind in ("S", "L"):
+            per = [np.array(toks[t::n_tokens]) for t in range(c.start, c.start + c.count)]
+            if c.kind == "L":
+                per = [np.isin(p, [b"T", b"True", b"true", b"TRUE", b"1"]) for p in per]
+            out[c.name] = per[0] if c.count == 1 else np.stack(per, axis=1)
+    num_idx = [t for c in numeric for t in range(c.start, c.start + c.count)]
+    if num_idx == list(range(n_tokens - len(num_idx), n_tokens)) and n_tokens - len(num_idx) <= 1:
+        if n_tokens > len(num_idx):
+            del toks[0::n_tokens]  # drop the species column in place (C speed)
+        nums = toks
+    else:
+        nums = np.array(toks, dtype=object).reshape(n_lines, n_tokens)[:, num_idx].ravel().tolist()
+    text = b" ".join(nums)
+    if b"d" in text or b"D" in text:
+        text = text.translate(_FORTRAN)
+    try:
+        values = np.fromstring(text, sep=" ")
+    except ValueError:
+        values = np.zeros(0)
+    if values.size != len(nums):
+        for i, tok in enumerate(nums):
+            if not _NUMBER.fullmatch(tok):
+                line_index, k = divmod(i, len(num_idx))
+                name = _token_name(num_idx[k], cols)
+                raise TrajectoryFileError(where.path, f"{name} {tok.decode('utf-8', 'replace')!r} is not a number",
+                                          where.line_of(line_index))
+        raise TrajectoryFileError(where.path, "some atom lines hold values that are not numbers", where.line_of(0))
+    values = values.reshape(n_lines, len(num_idx))
+    pos = 0
+    for c in numeric:
+        out[c.name] = values[:, pos:pos + c.count]
+        pos += c.count
+    return out
+
+
+_AXES = "xyz"
+
+
+def _token_name(t: int, cols: list[_Column]) -> str:
+    for c in cols:
+        if c.start <= t < c.start + c.count:
+            if c.name in ("pos", "positions"):
+                return f"the {_AXES[t - c.start]} coordinate"
+            return f"column {c.name!r}" + (f" (component {t - c.start + 1})" if c.count > 1 else "")
+    return f"column {t + 1}"
+
+
+def _column_count_error(block: bytes, n_tokens: int, cols: list[_Column], where) -> None:
+    if cols[0].name == "species" and cols[1].start == 1 and (len(cols) == 2 or cols[2].name.startswith("_col")):
+        what = f"an element and three coordinates, like the first atom line, line {where.line_of(0)}"
+    else:
+        what = "as Properties= declares: " + ", ".join(
+            c.name + (f"×{c.count}" if c.count > 1 else "") for c in cols)
+    for i, line in enumerate(block.split(b"\n")):
+        k = len(line.split())
+        if k != n_tokens:
+            raise TrajectoryFileError(
+                where.path, f"this atom line has {k} values but {n_tokens} are expected ({what})", where.line_of(i))
+    raise TrajectoryFileError(where.path, "the atom lines do not have the expected columns", where.line_of(0))
+
+
+# ---------------------------------------------------------------------------------------------
+# elements
+
+
+def _element_number(token: bytes) -> int | None:
+    s = token.strip().decode("ascii", "replace")
+    if s.isdigit():
+        z = int(s)
+        return z if 1 <= z < len(chemical_symbols) else None
+    z = atomic_numbers.get(s[:1].upper() + s[1:].lower())
+    return z if z else None  # 'X' (dummy, Z = 0) is not an element
+
+
+def _numbers(species: np.ndarray, n_frames: int, n_atoms: int, where) -> np.ndarray:
+    """Atomic numbers of frame 1, after checking every frame lists the same elements in the same order."""
+    table = species.reshape(n_frames, n_atoms)
+    first = table[0]
+    z_first = []
+    for i, tok in enumerate(first):
+        z = _element_number(tok)
+        if z is None:
+            raise TrajectoryFileError(
+                where.path,
+                f"{tok.strip().decode('utf-8', 'replace')!r} is not an element symbol or atomic number",
+                where.line_of(i))
+        z_first.append(z)
+    z_first = np.array(z_first, dtype=np.int16)
+    same = table == first
+    if not same.all():
+        # maybe only spelled differently ('C' vs 'c', '6'): compare atomic numbers
+        uniq, inverse = np.unique(species, return_inverse=True)
+        zs = np.array([_element_number(u) or -1 for u in uniq], dtype=np.int16)[inverse].reshape(n_frames, n_atoms)
+        diff = np.argwhere(zs != z_first)
+        if len(diff):
+            f, a = (int(x) for x in diff[0])
+            tok = table[f, a].strip().decode("utf-8", "replace")
+            if zs[f, a] < 0:
+                problem = f"{tok!r} is not an element symbol or atomic number"
+            else:
+                problem = (f"the element order changes: atom {a + 1} is {chemical_symbols[z_first[a]]} in frame 1 "
+                           f"but {chemical_symbols[zs[f, a]]} in frame {f + 1}; every frame must list the same "
+                           "atoms in the same order")
+            raise TrajectoryFileError(where.path, problem, where.line_of(f * n_atoms + a))
+    return z_first
+
+
+# ---------------------------------------------------------------------------------------------
+# frames
+
+
+@dataclass
+class _Where:
+    path: Path
+    offset: int  # file line number of lines[0], minus 1
+    stride: int
+    n_atoms: int
+
+    def line_of(self, atom_line: int) -> int:
+        """1-based file line of the i-th atom line (over all frames)."""
+        f, a = divmod(atom_line, self.n_atoms)
+        return self.offset + f * self.stride + 2 + a + 1
+
+
+_COUNT = re.compile(rb"[ ]*\+?\d+[ ]*")
+
+
+def _show(line: bytes) -> str:
+    s = line.strip().decode("utf-8", "replace")
+    return repr(s if len(s) <= 60 else s[:57] + "...")
+
+
+def _atom_count(line: bytes, path: Path, lineno: int) -> int:
+    if not _COUNT.fullmatch(line):
+        raise TrajectoryFileError(
+            path, f"this line should give the number of atoms (a positive whole number) but reads {_show(line)}",
+            lineno)
+    n = int(line)
+    if n < 1:
+        raise TrajectoryFileError(path, "the atom count is 0; a frame needs at least one atom", lineno)
+    return n
+
+
+def _looks_like_atom_line(line: bytes) -> bool:
+    toks = line.split()
+    return len(toks) >= 4 and all(_NUMBER.fullmatch(t) for t in toks[1:4])
+
+
+def _frame_boundary_error(lines: list[bytes], k: int, n: int, where: _Where) -> None:
+    """Explain why line k*stride is not the atom count of frame k+1."""
+    start, prev = k * where.stride, (k - 1) * where.stride
+    head = lines[start]
+    ln = where.offset + start + 1
+    prev_ln = where.offset + prev + 1
+    for q in range(prev + 2, start):
+        if _COUNT.fullmatch(lines[q]):
+            raise TrajectoryFileError(
+                where.path,
+                f"frame {k} (line {prev_ln}) says {n} atoms, but only {q - prev - 2} atom lines follow before "
+                f"the next atom count on line {where.offset + q + 1}; fix the count or the missing lines",
+                prev_ln)
+    if _COUNT.fullmatch(head):
+        m = int(head)
+        raise TrajectoryFileError(
+            where.path,
+            f"the atom count changes: frame {k + 1} has {m} atoms but frame 1 has {n}; every frame of a "
+            "trajectory must have the same atoms", ln)
+    if _looks_like_atom_line(head):
+        raise TrajectoryFileError(
+            where.path,
+            f"frame {k} (line {prev_ln}) says {n} atoms, but more atom lines follow; line {ln} should start the "
+            "next frame with its atom count", prev_ln)
+    _atom_count(head, where.path, ln)
+
+
+def _check_text(data: bytes, path: Path) -> None:
+    nul = data.find(b"\x00")
+    if nul >= 0:
+        raise TrajectoryFileError(
+            path, "the file holds binary data (a NUL byte), so it is not a text XYZ file", data.count(b"\n", 0, nul) + 1)
+    if not data.isascii():
+        try:
+            data.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise TrajectoryFileError(
+                path,
+                f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x} cannot be decoded); it may be binary, "
+                "or saved in another encoding — save it as UTF-8 or plain ASCII",
+                data.count(b"\n", 0, exc.start) + 1) from None
+
+
+def _partial(path: Path, message: str, warnings: list[str]) -> None:
+    warnings.append(message)
+    _warnings.warn(f"{path}: {message}", PartialReadWarning, stacklevel=4)
+
+
+def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float32,
+              warnings: list[str] | None = None, fixed_width: bool = True) -> FrameBlock:
+    """Parse the (decompressed) bytes of an XYZ / extended-XYZ file; see :func:`read_xyz`.
+
+    ``fixed_width=False`` forces the general numeric path (used by tests).
+    """
+    path = Path(path)
+    warnings = list(warnings or [])
+    _check_text(data, path)
+    if b"\r" in data:
+        data = data.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
+    if b"\t" in data or b"\f" in data or b"\v" in data:
+        data = data.translate(bytes.maketrans(b"\t\f\v", b"   "))
+    lines = data.split(b"\n")
+    end = len(lines)
+    while end and not lines[end - 1].strip():
+        end -= 1
+    last_line_ended = end < len(lines)
+    start = 0
+    while start < end and not lines[start].strip():
+        start += 1
+    if start == end:
+        raise TrajectoryFileError(path, "the file is empty (no atom count, no frames)")
+    if start or end < len(lines):
+        lines = lines[start:end]
+    n = _atom_count(lines[0], path, start + 1)
+    where = _Where(path, start, n + 2, n)
+    stride = n + 2
+    n_full, rem = divmod(len(lines), stride)
+
+    heads = lines[0::stride]
+    if heads.count(lines[0]) != len(heads):
+        c0 = lines[0].strip()
+        for k, h in enumerate(heads):
+            if h.strip() != c0:
+                if k == len(heads) - 1 and rem == 1 and not last_line_ended:
+                    break  # the count line itself is cut short: a truncated last frame
+                _frame_boundary_error(lines, k, n, where)
+
+    if rem == 0 and not last_line_ended and n_full:
+        # no final newline: the last atom line may have been cut mid-way
+        last, ref = lines[-1], lines[2]
+        cut = len(last.split()) < len(ref.split()) or (
+            n > 1 and len(lines[-2]) == len(ref) and len(last) < len(ref))
+        if cut:
+            n_full, rem = n_full - 1, stride
+    else:
+        cut = False
+    if rem:
+        got = max(rem - 2, 0)
+        first_ln = start + n_full * stride + 1
+        if cut:
+            msg = (f"the last frame (from line {first_ln}) is incomplete: its last line (line {start + len(lines)}) "
+                   "is cut short and the file has no final line break")
+        else:
+            msg = (f"the last frame (from line {first_ln}) is incomplete: the file ends at line "
+                   f"{start + len(lines)} after {got} of {n} atom lines")
+        if n_full == 0:
+            raise TrajectoryFileError(path, msg + " and there is no complete frame to load; "
+                                      f"check the atom count on line {start + 1} or whether the file was cut short",
+                                      start + len(lines))
+        _partial(path, msg + f"; loaded the {n_full} complete frame{'s' if n_full != 1 else ''} before it", warnings)
+        lines = lines[: n_full * stride]
+
+    comments = lines[1::stride]
+    if stride == 3:
+        atom_lines = lines[2::3]
+    else:
+        atom_lines = np.array(lines, dtype=object).reshape(n_full, stride)[:, 2:].ravel().tolist()
+    block = b"\n".join(atom_lines)
+    n_lines = len(atom_lines)
+
+    meta = parse_comments(comments)
+    props = meta.properties
+    if props.count(props[0]) != len(props):
+        k = next(i for i, p in enumerate(props) if p != props[0])
+        raise TrajectoryFileError(
+            path, f"frame {k + 1} declares different per-atom columns (Properties=) than frame 1; this reader "
+            "needs the same columns in every frame", start + k * stride + 2)
+    cols = _layout(props[0], path, start + 2)
+    if props[0] is None:
+        n_first = len(atom_lines[0].split())
+        if n_first < 4:
+            raise TrajectoryFileError(path, f"this atom line has {n_first} values; an atom line needs an element "
+                                      "and three coordinates", where.line_of(0))
+        if n_first > 4:
+            cols = cols + [_Column(f"_col{i + 1}", "R", 1, i) for i in range(4, n_first)]  # parsed, not kept
+
+    parsed = None
+    if fixed_width:
+        try:
+            parsed = _parse_fixed(block, n_lines, cols)
+        except _Slow:
+            parsed = None
+    if parsed is None:
+        parsed = _parse_tokens(block, n_lines, cols, where)
+
+    pos_name = "pos" if "pos" in parsed else "positions"
+    positions = parsed.pop(pos_name)
+    if positions.shape[1] != 3:
+        raise TrajectoryFileError(path, "the pos column must have 3 components (x, y, z)", start + 2)
+    finite = np.isfinite(positions)
+    if not finite.all():
+        i, axis = (int(x) for x in np.argwhere(~finite)[0])
+        raise TrajectoryFileError(
+            path, f"the {_AXES[axis]} coordinate is {positions[i, axis]} (not a finite number); the run probably "
+            "blew up here — cut the file before this frame or exclude the run", where.line_of(i))
+    if "species" in parsed:
+        numbers = _numbers(parsed.pop("species"), n_full, n, where)
+    else:
+        z = parsed.pop("Z").reshape(n_full, n)
+        numbers = _numbers(np.char.encode(z.astype(np.int64).astype(str)).ravel(), n_full, n, where)
+    arrays = {}
+    for c in cols:
+        if c.name in parsed and not c.name.startswith("_col"):
+            a = parsed[c.name]
+            if c.kind == "I":
+                a = a.astype(np.int64)
+            elif c.kind == "S":
+                a = np.char.strip(np.char.decode(a, "utf-8", "replace"))
+            if a.ndim == 2 and a.shape[1] == 1:
+                a = a[:, 0]
+            arrays[c.name] = a.reshape((n_full, n) + a.shape[1:])
+    return FrameBlock(
+        path=path,
+        numbers=numbers,
+        positions=positions.reshape(n_full, n, 3).astype(dtype, copy=False),
+        info=meta.info,
+        text_info=meta.text_info,
+        arrays=arrays,
+        frame_lines=start + 1 + np.arange(n_full, dtype=np.int64) * stride,
+        sha256=sha256,
+        warnings=warnings,
+    )
+
+
+def read_xyz(path: str | Path, *, dtype=np.float32) -> FrameBlock:
+    """Read an XYZ or extended-XYZ file (optionally gzip/bzip2/xz-compressed) into a FrameBlock."""
+    path = Path(path)
+    data, sha, warnings = load_bytes(path)
+    return parse_xyz(data, path, sha256=sha, dtype=dtype, warnings=warnings)
