@@ -215,3 +215,26 @@ def test_run_table_counts_match_core(qtbot, toy):
     idx = table.proxy.index(1, 0)
     table.view.setCurrentIndex(idx)
     assert s.run_id == idx.data()
+
+
+def test_molecule_and_traces_follow_a_dark_palette(qtbot):
+    from PySide6.QtGui import QColor, QPalette
+
+    from basinmark.gui.molecule_view import MoleculeView
+    from gui_fixtures import stretched_ethylene
+
+    pal = QPalette()
+    pal.setColor(QPalette.ColorRole.Base, QColor("#1e1f22"))
+    pal.setColor(QPalette.ColorRole.Text, QColor("#e8e8e8"))
+    mv = MoleculeView()
+    qtbot.addWidget(mv)
+    mv.setPalette(pal)
+    mv.resize(300, 300)
+    mv.set_trajectory(stretched_ethylene())
+    img = mv.render_image(300, 300)
+    assert QColor(img.pixel(1, 1)) == QColor("#1e1f22")
+    tv = TracesView()
+    qtbot.addWidget(tv)
+    tv.setPalette(pal)
+    tv.apply_palette()
+    assert tv.glw.backgroundBrush().color() == QColor("#1e1f22")

@@ -505,6 +505,19 @@ class MainWindow(QMainWindow):
                           f"<b>basinmark {__version__}</b><p>Classify, inspect, hand-label and count the runs of "
                           "a reaction-dynamics set started from one transition state.</p>")
 
+    # --- light/dark theme changes ------------------------------------------------------------
+    def changeEvent(self, event) -> None:  # noqa: N802
+        if event.type() == event.Type.PaletteChange:
+            from basinmark.gui.actions import SPECS
+
+            for name, act in self.actions_.items():
+                spec = SPECS.get(name)
+                if spec is not None and spec.icon:
+                    act.setIcon(icon("pause" if name == "play_pause" and self.playback.playing else spec.icon))
+            self.cancel_button.setIcon(icon("cancel"))
+            self._show_banner()
+        super().changeEvent(event)
+
     # --- drag and drop ------------------------------------------------------------------------
     def dragEnterEvent(self, event) -> None:  # noqa: N802
         urls = event.mimeData().urls() if event.mimeData().hasUrls() else []

@@ -63,6 +63,13 @@ class TracesView(QWidget):
         self.note.setVisible(False)
         self.note.setObjectName("traceNote")
         lay.addWidget(self.note)
+        # our own legend above the plots: pyqtgraph's in-plot legends cover data and, offscreen,
+        # raise errors when the view is deleted
+        self.legend = QLabel(self)
+        self.legend.setTextFormat(Qt.TextFormat.RichText)
+        self.legend.setWordWrap(True)
+        self.legend.setContentsMargins(8, 2, 8, 2)
+        lay.addWidget(self.legend)
         self.glw = pg.GraphicsLayoutWidget(self)
         lay.addWidget(self.glw, 1)
         self.p_dist = self.glw.addPlot(row=0, col=0)
@@ -89,8 +96,6 @@ class TracesView(QWidget):
         self.p_band.showAxis("left")
         self.p_band.getAxis("left").setStyle(showValues=False)
         self.p_band.getAxis("left").setTicks([[]])
-        for p in (self.p_dist, self.p_angle, self.p_energy):
-            p.addLegend(offset=(-8, 8), labelTextSize="8pt")
         self.cursors: list[pg.InfiniteLine] = []
         for p in self.plots:
             line = pg.InfiniteLine(0.0, angle=90, movable=True)
@@ -116,13 +121,6 @@ class TracesView(QWidget):
         for c in self.cursors:
             c.setPen(pg.mkPen(hl, width=2))
             c.setHoverPen(pg.mkPen(hl, width=4))
-        legend_bg = QColor(base)
-        legend_bg.setAlpha(200)
-        for p in (self.p_dist, self.p_angle, self.p_energy):
-            if p.legend is not None:
-                p.legend.setLabelTextColor(text)
-                p.legend.setBrush(pg.mkBrush(legend_bg))
-                p.legend.setPen(pg.mkPen(pal.color(QPalette.ColorRole.Mid)))
         warn = QColor("#b3261e") if base.lightness() > 128 else QColor("#ffb4a9")
         self.note.setStyleSheet(f"QLabel#traceNote {{ color: {warn.name()}; font-weight: bold; padding: 3px 6px; }}")
 
@@ -151,8 +149,6 @@ class TracesView(QWidget):
         for p in (self.p_dist, self.p_angle, self.p_band, self.p_energy):
             for item in list(p.listDataItems()):
                 p.removeItem(item)
-            if p.legend is not None:
-                p.legend.clear()
         for line in self.threshold_lines + list(self.marks.values()):
             for p in self.plots:
                 if line in p.items:
@@ -167,6 +163,7 @@ class TracesView(QWidget):
         traj = self._traj
         if traj is None:
             self.note.setVisible(False)
+            self.legend.setText("")
             return
         self._draw_monitors()
         self._draw_thresholds()
@@ -178,6 +175,17 @@ class TracesView(QWidget):
         for c in self.cursors:
             c.setBounds((t0, t1))
         self.set_time(float(traj.times[traj.ts_index]))
+        self._update_legend()
+
+    def _update_legend(self) -> None:
+        parts = []
+        for name, item in self.curves.items():
+            pen = item.opts["pen"]
+            colour = pen.color().name() if hasattr(pen, "color") else "#888888"
+            dash = hasattr(pen, "style") and pen.style() != Qt.PenStyle.SolidLine
+            mark = "╌╌" if dash else "━━"
+            parts.append(f'<span style="color:{colour}"><b>{mark}</b></span>&nbsp;{name}')
+        self.legend.setText("&nbsp;&nbsp; ".join(parts))
 
     def _draw_monitors(self) -> None:
         traj, rules, result = self._traj, self._rules, self._result
@@ -294,8 +302,6 @@ class TracesView(QWidget):
             item = self.curves.pop(name, None)
             if item is not None:
                 self.p_energy.removeItem(item)
-        if self.p_energy.legend is not None:
-            self.p_energy.legend.clear()
         self.p_energy.setLabel("left", "ΔE", units=None)
         self.p_energy.getAxis("left").setLabel(f"ΔE / {self.energy_unit}")
         if traj is None:
@@ -312,6 +318,7 @@ class TracesView(QWidget):
             self.curves[name] = self.p_energy.plot(traj.times, rel, pen=pg.mkPen(colours[key], width=width), name=name)
             self.values[name] = rel
         self._update_note()
+        self._update_legend()
 
     def _update_note(self) -> None:
         traj, result, rules = self._traj, self._result, self._rules
