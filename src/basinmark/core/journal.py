@@ -123,7 +123,7 @@ class LabelJournal:
         if created:
             _fsync_dir(self.path.parent)
         data = self.path.read_bytes()
-        lines, tail = split_lines(data)
+        _, tail = split_lines(data)
         if tail:
             self._set_aside(tail, len(data) - len(tail))
         self._load(data[: len(data) - len(tail)], writer=True)
@@ -186,8 +186,11 @@ class LabelJournal:
                     self.warnings.append(f"{where}: the journal does not start with a header")
                 else:
                     self.header = ev
-                    if not self.set_id:
-                        self.set_id = ev.get("set_id", "")
+                    theirs = ev.get("set_id", "")
+                    if self.set_id and theirs and theirs != self.set_id:
+                        self.warnings.append(f"{self.path} was started for the set {theirs!r}, not {self.set_id!r} "
+                                             "(a renamed folder, or another set's journal?)")
+                    self.set_id = theirs or self.set_id
                     if isinstance(ev.get("schema"), int) and ev["schema"] > SCHEMA_VERSION:
                         msg = (f"{self.path} was written by a newer basinmark (schema {ev['schema']}, this one "
                                f"knows {SCHEMA_VERSION})")
@@ -196,7 +199,8 @@ class LabelJournal:
                         self.warnings.append(msg)
             self._replay.apply(ev)
             prev = ev.get("hash", "")
-            self._last_seq = ev.get("seq", self._last_seq + 1) if isinstance(ev.get("seq"), int) else self._last_seq + 1
+            seq = ev.get("seq")
+            self._last_seq = seq if isinstance(seq, int) else self._last_seq + 1
             self._last_hash = prev
         self._size = len(data) - len(tail)
 

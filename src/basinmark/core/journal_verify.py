@@ -14,6 +14,7 @@ from typing import Mapping
 from basinmark.core.journal_format import (HEADER_KIND, KINDS, canonical, event_hash, head_path, line_hash,
                                            parse_line, read_head, split_lines)
 from basinmark.core.journal_replay import Replay
+from basinmark.core.labels import SOURCES
 
 _REQUIRED = {
     "header": ("seq", "prev", "hash", "schema", "created_at"),
@@ -89,6 +90,9 @@ def verify_journal(path: str | Path, current_hashes: Mapping[str, str] | None = 
             missing = [k for k in _REQUIRED[kind] if k not in ev]
             if missing:
                 add(Problem(n, seq_i, "missing_field", f"the event lacks {', '.join(missing)}"))
+        if kind == "label" and (ev.get("source") not in SOURCES or not isinstance(ev.get("label"), str)
+                                or not isinstance(ev.get("run"), str)):
+            add(Problem(n, seq_i, "bad_field", "the label event's source, label or run is not valid"))
         if i == 0 and kind != HEADER_KIND:
             add(Problem(n, seq_i, "header", "the journal does not start with a header event"))
         elif i > 0 and kind == HEADER_KIND:
