@@ -117,8 +117,9 @@ def test_renderings_json_frame_markdown():
     assert list(frame["quantity"]) == ["fraction"] * 3 + ["ratio", "tst_ratio", "effective_ddg"]
     assert frame.loc[frame["label"] == "alpha", "value"].item() == pytest.approx(20 / 23)
     md = s.to_markdown()
-    assert "| alpha | 20 |" in md and "### Warnings" in md and "Clopper" not in md
-    assert "Clopper–Pearson" in s.to_text()
+    assert "| alpha | 20 |" in md and "### Warnings" in md and "Clopper–Pearson exact" in md
+    assert "Clopper–Pearson exact" in s.to_text()
+    assert "Wilson score" in build_summary(label_frame({"alpha": 2}), PRODUCTS).to_text()
 
 
 def test_bad_settings_are_refused():

@@ -18,8 +18,8 @@ from basinmark.core.errors import SetError
 FORMATS = ("table", "csv", "json", "markdown")
 UNITS = ("kcal/mol", "kJ/mol")
 
-NOT_CLASSIFIED_NOTE = ("these labels are not yet classified into the journal; run `basinmark classify SET` "
-                       "to record these labels")
+NOT_CLASSIFIED_NOTE = ("labels computed in memory from the rules file: not yet classified into the journal; "
+                       "run `basinmark classify SET` to record these labels")
 
 
 def register(sub) -> None:

@@ -174,16 +174,14 @@ class Summary:
         def fmt(cells: list[str]) -> str:
             return "  ".join(c.ljust(w) if i == 0 else c.rjust(w) for i, (c, w) in enumerate(zip(cells, widths))).rstrip()
 
-        method = "Wilson" if self.settings["method"] == "wilson" else "Clopper–Pearson"
-        out = [self._headline(), ""]
+        out = [self._headline()]
+        if self.notes:
+            out += [f"Note: {n}" for n in self.notes]
+        out.append("")
         if rows:
             out += [fmt(head), fmt(["-" * w for w in widths])] + [fmt(r) for r in rows]
-            out.append(f"(intervals: {method}; 'all outcomes at once': Goodman simultaneous)" if len(head) > 4
-                       else f"(intervals: {method})")
-            out.append("")
+            out += [self._caption(), ""]
         out += self.lines()
-        if self.notes:
-            out += [""] + [f"Note: {n}" for n in self.notes]
         if self.warnings:
             out += ["", "Warnings:"] + [f"  - {w}" for w in self.warnings]
         return "\n".join(out) + "\n"
@@ -193,12 +191,19 @@ class Summary:
         out = [f"## Summary", "", self._headline(), "",
                "| " + " | ".join(head) + " |", "|" + "|".join([" --- "] + [" ---: "] * (len(head) - 1)) + "|"]
         out += ["| " + " | ".join(r) + " |" for r in rows]
-        out += [""] + [f"- {line}" for line in self.lines()]
+        out += ["", self._caption(), ""] + [f"- {line}" for line in self.lines()]
         if self.notes:
             out += [""] + [f"*Note:* {n}" for n in self.notes]
         if self.warnings:
             out += ["", "### Warnings", ""] + [f"- {w}" for w in self.warnings]
         return "\n".join(out) + "\n"
+
+    def _caption(self) -> str:
+        method = "Wilson score" if self.settings["method"] == "wilson" else "Clopper–Pearson exact"
+        if "simultaneous_lo" in self.table:
+            return (f"(intervals: {method}, each for one outcome alone; 'all outcomes at once': Goodman "
+                    f"simultaneous intervals)")
+        return f"(intervals: {method})"
 
     def _headline(self) -> str:
         parts = [f"{self.n_counted} runs counted"]
