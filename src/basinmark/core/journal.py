@@ -26,6 +26,7 @@ with freshly computed hashes cannot be caught from the files alone: note the hea
 from __future__ import annotations
 
 import getpass
+import glob
 import os
 import socket
 import threading
@@ -35,7 +36,7 @@ from typing import Iterable, Mapping, Sequence
 import pandas as pd
 
 from basinmark import __version__
-from basinmark.core.journal_format import (HEADER_KIND, SCHEMA_VERSION, JournalError, parse_line, read_head,
+from basinmark.core.journal_format import (BINARY, HEADER_KIND, SCHEMA_VERSION, JournalError, parse_line, read_head,
                                            seal, split_lines, utc_now, utc_stamp, write_head)
 from basinmark.core.journal_lock import (JournalLockedError, acquire, describe, is_stale, lock_path, read_lock,
                                          release)
@@ -119,9 +120,11 @@ class LabelJournal:
 
     def _open_for_writing(self) -> None:
         created = not self.path.exists()
-        self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
+        self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT | BINARY, 0o644)
         if created:
             _fsync_dir(self.path.parent)
+        for stale in self.path.parent.glob(glob.escape(self.path.name) + ".head.tmp-*"):
+            stale.unlink(missing_ok=True)  # left by a writer that died while updating the head; we hold the lock
         data = self.path.read_bytes()
         _, tail = split_lines(data)
         if tail:
@@ -146,7 +149,7 @@ class LabelJournal:
 
     def _set_aside(self, tail: bytes, keep: int) -> None:
         side = Path(f"{self.path}.torn-{utc_stamp()}")
-        fd = os.open(side, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o644)
+        fd = os.open(side, os.O_WRONLY | os.O_CREAT | os.O_EXCL | BINARY, 0o644)
         try:
             os.write(fd, tail)
             os.fsync(fd)

@@ -19,6 +19,8 @@ from pathlib import Path
 from basinmark.core.errors import BasinmarkError
 
 SCHEMA_VERSION = 1
+#: no newline translation on Windows (0 elsewhere)
+BINARY = getattr(os, "O_BINARY", 0)
 HEADER_KIND = "header"
 KINDS = ("header", "label", "undo", "lock_broken", "review_complete")
 
@@ -110,7 +112,7 @@ def write_head(journal: str | Path, seq: int, digest: str) -> None:
     path = head_path(journal)
     tmp = Path(f"{path}.tmp-{os.getpid()}")
     data = canonical({"seq": seq, "hash": digest}) + "\n"
-    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o644)
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | BINARY, 0o644)
     try:
         os.write(fd, data.encode("ascii"))
         os.fsync(fd)
