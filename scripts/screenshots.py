@@ -57,6 +57,9 @@ def render(set_path: Path, out: Path, size: tuple[int, int], dark: bool = False)
         shutil.copytree(set_path, work, ignore=shutil.ignore_patterns(".basinmark-cache", "basinmark-labels.*"))
         settings = QSettings(str(Path(tmp) / "settings.ini"), QSettings.Format.IniFormat)
         win = MainWindow(settings)
+        from basinmark.gui.app import install_extras
+
+        install_extras(win)
         win.label_panel.set_labeler("demo")
         win.resize(*size)
         win.show()

@@ -222,7 +222,7 @@ def test_shortcut_help_lists_every_action(win):
     dlg = win.show_shortcuts()
     rows = dlg.table.rowCount()
     commands = {dlg.table.item(r, 1).text() for r in range(rows)}
-    assert len(commands) == len(win.all_actions())
+    assert {a.text().replace("&", "") for a in win.all_actions().values()} <= commands
     keys = {dlg.table.item(r, 1).text(): dlg.table.item(r, 2).text() for r in range(rows)}
     assert keys["Play / Pause"] == "Space"
     assert keys["Label 'left'"] == "1"
@@ -312,3 +312,15 @@ def test_dragging_a_threshold_reclassifies_and_can_be_saved(win, qtbot, toy_root
     assert win.save_rules_as(out)
     assert load_rules(out).basins["left"].condition("d_left").hi == pytest.approx(1.4)
     assert "not saved" not in win.banner.text()
+
+
+def test_optional_panels_attach_and_show_in_shortcut_help(win):
+    from basinmark.gui.app import EXTRAS, install_extras
+
+    added = install_extras(win)
+    assert set(added) <= {m for m, _f in EXTRAS}
+    rows = win.menu_shortcut_rows()
+    keys = [k for _g, _c, k in rows if k]
+    assert len(keys) == len(set(keys)), "two menu commands share a shortcut"
+    if "basinmark.gui.map_view" in added:
+        assert "map" in win.docks

@@ -29,12 +29,35 @@ def make_app(argv: list[str] | None = None):
     return app
 
 
+#: optional panels that attach themselves to the window: (module, function taking the window)
+EXTRAS = (("basinmark.gui.map_view", "install_map_dock"), ("basinmark.gui.movie", "install_movie_action"))
+
+
+def install_extras(win) -> list[str]:
+    """Attach the optional analysis panels that are installed; returns the ones added."""
+    import importlib
+
+    added = []
+    for module, func in EXTRAS:
+        try:
+            mod = importlib.import_module(module)
+        except ImportError:
+            continue
+        installer = getattr(mod, func, None)
+        if installer is not None:
+            installer(win)
+            added.append(module)
+    win.restore_layout()
+    return added
+
+
 def run(set_path: str | Path | None = None, rules: str | Path | None = None, labeler: str | None = None) -> int:
     """Open the window (on ``set_path`` if given) and run the event loop; returns the exit code."""
     app = make_app()
     from basinmark.gui.main_window import MainWindow
 
     win = MainWindow()
+    install_extras(win)
     if labeler:
         win.label_panel.set_labeler(labeler)
     win.show()

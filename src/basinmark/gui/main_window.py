@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from PySide6.QtCore import QByteArray, QSettings, Qt, Signal
+from PySide6.QtGui import QKeySequence
 from PySide6.QtWidgets import (QDockWidget, QFileDialog, QLabel, QMainWindow, QMenu, QMenuBar, QMessageBox,
                                QProgressBar, QToolBar, QToolButton, QVBoxLayout, QWidget)
 
@@ -14,7 +15,7 @@ from basinmark.core.journal import JournalError, JournalLockedError, LabelJourna
 from basinmark.core.labels import all_labels
 from basinmark.core.model import TrajectorySet
 from basinmark.core.sets import journal_path
-from basinmark.gui.actions import build_actions, shortcut_rows
+from basinmark.gui.actions import build_actions
 from basinmark.gui.dialogs import FailuresDialog, ShortcutsDialog
 from basinmark.gui.icons import icon
 from basinmark.gui.label_panel import Banner, LabelPanel
@@ -62,7 +63,7 @@ class MainWindow(QMainWindow):
         self._build_status()
         self._connect()
         self.label_panel.set_labeler(str(self.settings.value("labeler", "") or default_labeler()))
-        self._restore()
+        self.restore_layout()
 
     # --- construction ---------------------------------------------------------------------
     def _slots(self) -> dict:
@@ -201,7 +202,8 @@ class MainWindow(QMainWindow):
         self.label_panel.message.connect(lambda text: self.statusBar().showMessage(text, 6000))
 
     # --- settings -------------------------------------------------------------------------
-    def _restore(self) -> None:
+    def restore_layout(self) -> None:
+        """Window geometry, dock layout and energy unit from the settings (again after adding docks)."""
         geo = self.settings.value("window/geometry")
         if isinstance(geo, QByteArray) and not geo.isEmpty():
             self.restoreGeometry(geo)
@@ -494,8 +496,29 @@ class MainWindow(QMainWindow):
         acts.update({f"label:{k}": v for k, v in self.label_panel.label_actions.items()})
         return acts
 
+    def menu_shortcut_rows(self) -> list[tuple[str, str, str]]:
+        """(menu, command, keys) for every action in the menus, including ones other modules added."""
+        rows: list[tuple[str, str, str]] = []
+        seen: set[int] = set()
+
+        def walk(menu, group: str) -> None:
+            for act in menu.actions():
+                if act.isSeparator() or id(act) in seen or menu is self.recent_menu:
+                    continue
+                if act.menu() is not None:
+                    walk(act.menu(), group)
+                    continue
+                seen.add(id(act))
+                keys = ", ".join(k.toString(QKeySequence.SequenceFormat.NativeText) for k in act.shortcuts())
+                rows.append((group, act.text().replace("&", ""), keys))
+
+        for top in self.menu_bar.actions():
+            if top.menu() is not None:
+                walk(top.menu(), top.text().replace("&", ""))
+        return rows
+
     def show_shortcuts(self) -> ShortcutsDialog:
-        dlg = ShortcutsDialog(shortcut_rows(self.all_actions()), self)
+        dlg = ShortcutsDialog(self.menu_shortcut_rows(), self)
         dlg.open()
         self.shortcuts_dialog = dlg
         return dlg
