@@ -89,8 +89,15 @@ CASES = {
     "dwell_exact": ([(INF, R), (-50, N), (180, A)], "alpha", "reactant", "alpha", 180.0, -51.0, ["late_commit"]),
     "dwell_short": ([(INF, R), (-50, N), (181, A)], "unfinished", "reactant", None, None, -51.0, []),
     "two_products": ([(INF, A), (-50, N), (30, B)], "ambiguous", "alpha", "beta", 30.0, -51.0, []),
-    # in a basin at the TS frame: the backward half starts in alpha, then enters the reactant (two visits)
-    "at_ts": ([(INF, R), (0, A)], "alpha", "reactant", "alpha", 0.0, -1.0, ["several_visits"]),
+    # in a basin at the TS frame: the backward half's one frame in alpha is too short to be a visit
+    "at_ts": ([(INF, R), (0, A)], "alpha", "reactant", "alpha", 0.0, -1.0, []),
+    # threshold jitter: out of alpha for 10 fs (< dwell) is no second visit; the later entry is the commit
+    "jitter": ([(INF, R), (-50, N), (40, A), (70, N), (80, A)], "alpha", "reactant", "alpha", 80.0, -51.0, []),
+    # a 10 fs stay in beta on the way is no visit either
+    "passing": ([(INF, R), (-50, N), (30, B), (40, N), (60, A)], "alpha", "reactant", "alpha", 60.0, -51.0, []),
+    # the backward half stays 50 fs in the reactant, then goes on to beta: two visits
+    "bwd_wanderer": ([(INF, B), (-150, N), (-100, R), (-50, N), (40, R)], "beta", "beta", "reactant", 40.0,
+                     -151.0, ["late_commit", "several_visits"]),
     "bwd_dwell_exact": ([(INF, R), (-179, N), (30, A)], "alpha", "reactant", "alpha", 30.0, -180.0,
                         ["late_commit"]),
     "bwd_dwell_short": ([(INF, R), (-180, N), (30, A)], "unfinished", None, "alpha", 30.0, None, []),
@@ -203,7 +210,7 @@ def test_classify_set_table_and_determinism(rules):
     rev = classify_set(list(reversed(runs)), rules).set_index("run").loc[t1["run"]].reset_index()
     pd.testing.assert_frame_equal(rev, t1, check_like=True)
     counts = outcome_counts(t1, rules).set_index("outcome")["count"]
-    assert counts["alpha"] == 6 and counts["beta"] == 3 and counts["ambiguous"] == 1
+    assert counts["alpha"] == 8 and counts["beta"] == 4 and counts["ambiguous"] == 1
 
 
 def test_progress_and_mark_changed(rules):
@@ -235,6 +242,24 @@ def test_too_few_atoms(rules):
 
 # --- against a plain-loop reference ----------------------------------------------------------------
 
+def _ref_visits(track, times, order, dwell):
+    """Walk a half from the TS: stays of >= dwell count, same-basin stays < dwell apart merge."""
+    stays, k = [], 0
+    while k < len(order):
+        j = k
+        while j + 1 < len(order) and track[order[j + 1]] == track[order[k]]:
+            j += 1
+        if track[order[k]] >= 0 and abs(times[order[j]] - times[order[k]]) >= dwell - 1e-6:
+            stays.append((track[order[k]], times[order[k]], times[order[j]]))
+        k = j + 1
+    visits = 0
+    for n, (b, t_in, _) in enumerate(stays):
+        if n and stays[n - 1][0] == b and abs(t_in - stays[n - 1][2]) < dwell - 1e-6:
+            continue
+        visits += 1
+    return visits
+
+
 def _reference(track, times, ts, dwell, late):
     e = len(track) - 1
     k = e
@@ -247,8 +272,8 @@ def _reference(track, times, ts, dwell, late):
         k += 1
     bwd = int(track[0]) if track[0] >= 0 and times[k] - times[0] >= dwell - 1e-6 else None
     bc = times[k] if bwd is not None else None
-    fv = sum(1 for i in range(ts, e + 1) if track[i] >= 0 and (i == ts or track[i] != track[i - 1]))
-    bv = sum(1 for i in range(0, ts + 1) if track[i] >= 0 and (i == ts or track[i] != track[i + 1]))
+    fv = _ref_visits(track, times, list(range(ts, e + 1)), dwell)
+    bv = _ref_visits(track, times, list(range(ts, -1, -1)), dwell)
     flags = []
     if (fc is not None and abs(fc) > late) or (bc is not None and abs(bc) > late):
         flags.append("late_commit")

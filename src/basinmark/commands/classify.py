@@ -124,7 +124,8 @@ def run_classify(args) -> int:
     n = len(table)
     counts["fraction"] = counts["count"] / n if n else float("nan")
     warnings = stats.reliability_warnings(dict(zip(counts["outcome"], counts["count"])), rules.products)
-    flagged = table.loc[table["flags"] != "", ["run", "outcome", "flags", "commit_time_fs"]]
+    flagged = table.loc[table["flags"] != "", ["run", "outcome", "flags", "backward_commit_time_fs",
+                                               "commit_time_fs"]]
     gap_line = _gap_sentence(table, rules, warnings)
     if args.dry_run:
         done = f"dry run: nothing written ({n} runs classified with {rules.source}, sha256 {rules.sha256[:12]})"

@@ -17,7 +17,8 @@ Definitions (all times in fs, t = 0 at the transition state):
   that product's name; two different products -> "ambiguous".
 
 Flags: ``late_commit`` (a commit further than ``late_commit_fs`` from t = 0, either half),
-``several_visits`` (a half enters basins more than once, counting each unbroken stay), ``conflicting_basins``,
+``several_visits`` (a half has more than one visit: a stay of at least ``dwell_fs`` in a basin, two stays in
+the same basin less than ``dwell_fs`` apart counting as one, so threshold jitter is no visit), ``conflicting_basins``,
 ``energy_drift`` (drift of the total energy above ``max_energy_drift``), ``short_run`` (a half shorter than
 ``min_length_fs``); ``data_changed`` is added by callers that compare content hashes.
 
@@ -186,10 +187,8 @@ def classify_prepared(prep: Prepared, rules: Rules, with_gap: bool = True) -> Cl
     b_ok = (b_basin >= 0) & (t[b_entry] - t[b0] >= rules.dwell_fs - _TOL_FS)
 
     in_basin = track[bounds] >= 0
-    p_start, p_end = bounds[in_basin], last[in_basin]
-    at_ts = (track[ts] >= 0).astype(np.intp)
-    f_visits = np.searchsorted(p_start, e1, side="right") - np.searchsorted(p_start, ts, side="right") + at_ts
-    b_visits = np.searchsorted(p_end, ts, side="left") - np.searchsorted(p_end, b0, side="left") + at_ts
+    f_visits = _visits(bounds[in_basin], last[in_basin], track, t, prep, rules.dwell_fs, forward=True)
+    b_visits = _visits(bounds[in_basin], last[in_basin], track, t, prep, rules.dwell_fs, forward=False)
     cf = np.flatnonzero(conflict)
     any_conf = (np.searchsorted(cf, prep.ends) - np.searchsorted(cf, prep.starts)) > 0
     end_conf = conflict[e1] | conflict[b0]
@@ -237,6 +236,31 @@ def classify_prepared(prep: Prepared, rules: Rules, with_gap: bool = True) -> Cl
         t1, t2, _ = formation_pair(prep, res, rules)
         gap = np.abs(t2 - t1)
     return Classified(outcome, bwd_name, fwd_name, f_commit, b_commit, flags, track, conflict, gap)
+
+
+def _visits(first: np.ndarray, last: np.ndarray, track: np.ndarray, t: np.ndarray, prep: Prepared,
+            dwell_fs: float, forward: bool) -> np.ndarray:
+    """Visits per run in one half: unbroken stays in a basin lasting at least ``dwell_fs`` within the half,
+    where two stays in the same basin less than ``dwell_fs`` apart count as one (threshold jitter is
+    not a visit).  ``first``/``last``: first and last frame of every in-basin stay, in order."""
+    run = np.searchsorted(prep.starts, first, side="right") - 1
+    ts = prep.ts[run]
+    if forward:
+        keep = last >= ts
+        first, last = np.maximum(first, ts)[keep], last[keep]
+    else:
+        keep = first <= ts
+        first, last = first[keep], np.minimum(last, ts)[keep]
+    run = run[keep]
+    ok = t[last] - t[first] >= dwell_fs - _TOL_FS
+    first, last, run = first[ok], last[ok], run[ok]
+    basin = track[first]
+    new = np.ones(run.size, dtype=bool)
+    if run.size > 1:
+        same = (run[1:] == run[:-1]) & (basin[1:] == basin[:-1])
+        close = t[first[1:]] - t[last[:-1]] < dwell_fs - _TOL_FS
+        new[1:] = ~(same & close)
+    return np.bincount(run[new], minlength=prep.starts.size)
 
 
 def _opt(x: float) -> float | None:
