@@ -143,6 +143,7 @@ def _hashes(args) -> tuple[dict[str, str], list[str]]:
     from basinmark.core.sets import open_set
 
     tset = open_set(_root(args), use_cache=not getattr(args, "no_cache", False))
+    args.set_name = tset.name
     notes = [f"not loaded: {f}" for f in tset.failures] + list(tset.warnings)
     return dict(tset.content_hashes()), notes
 
@@ -150,7 +151,8 @@ def _hashes(args) -> tuple[dict[str, str], list[str]]:
 def _open_writer(args, path: Path, allowed: list[str] | None = None):
     from basinmark.core.journal import LabelJournal
 
-    return LabelJournal.open(path, set_id=_root(args).name, labeler=getattr(args, "labeler", None),
+    # the set's name is known only when the set was loaded; without it the journal keeps its own
+    return LabelJournal.open(path, set_id=getattr(args, "set_name", ""), labeler=getattr(args, "labeler", None),
                              allowed=allowed)
 
 
