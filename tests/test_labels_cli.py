@@ -85,6 +85,9 @@ def test_label_undo_history(small_set, capsys):
     assert "t01" in out and "beta" in out and "ines" in out
     with LabelJournal.open(small_set / "basinmark-labels.jsonl", readonly=True) as j:
         assert j.final_label("t01") == "beta" and j.events[-1]["labeler"] == "ines"
+    # the hash taken from the one run read for the label is the one the whole set gives
+    code, out, err = run(["verify", small_set, "--no-cache"], capsys)
+    assert code == 0 and "intact" in out, out
     code, out, err = run(["undo", small_set, "t01", "--as", "ines"], capsys)
     assert code == 0 and "now alpha" in out
     code, out, err = run(["history", small_set, "t01"], capsys)

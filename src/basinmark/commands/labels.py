@@ -148,6 +148,26 @@ def _hashes(args) -> tuple[dict[str, str], list[str]]:
     return dict(tset.content_hashes()), notes
 
 
+def _run_hash(args, run_id: str) -> str:
+    """The content hash of one run, loading only that run (a big set need not be read for one label)."""
+    from dataclasses import replace
+
+    from basinmark.core.model import LoadFailure
+    from basinmark.core.sets import discover, iter_runs
+
+    plan = discover(_root(args))
+    args.set_name = plan.layout.name or plan.root.name
+    specs = [s for s in plan.runs if s.run_id == run_id]
+    if not specs:
+        known = ", ".join(s.run_id for s in plan.runs[:10])
+        raise BasinmarkError(f"no run {run_id!r} in the set {plan.root} (runs include: {known or 'none'})")
+    for _spec, result in iter_runs(replace(plan, runs=specs), use_cache=not args.no_cache, workers=1):
+        if isinstance(result, LoadFailure):
+            raise BasinmarkError(f"run {run_id} could not be loaded, so it cannot be labeled: {result}")
+        return result.content_hash
+    raise BasinmarkError(f"run {run_id} could not be loaded")
+
+
 def _open_writer(args, path: Path, allowed: list[str] | None = None):
     from basinmark.core.journal import LabelJournal
 
@@ -178,15 +198,14 @@ def _event_row(ev: dict) -> pd.DataFrame:
 
 # --- commands -----------------------------------------------------------------------------------
 def cmd_label(args) -> int:
-    root = _root(args)
-    allowed = _allowed(root)
-    hashes, notes = _hashes(args)
-    if args.run not in hashes:
-        near = ", ".join(sorted(hashes)[:10])
-        raise BasinmarkError(f"no run {args.run!r} in the set {root} (runs include: {near or 'none'})")
+    from basinmark.core.labels import validate_label
+
+    allowed = _allowed(_root(args))
+    validate_label(args.label, allowed, reason=args.reason)  # before reading any run
+    content_hash = _run_hash(args, args.run)
     with _open_writer(args, _journal(args), allowed) as j:
         _warn(j.warnings)
-        ev = j.record(args.run, args.label, content_hash=hashes[args.run], reason=args.reason)
+        ev = j.record(args.run, args.label, content_hash=content_hash, reason=args.reason)
     emit(_event_row(ev), args.format)
     return 0
 
