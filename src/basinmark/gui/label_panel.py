@@ -8,7 +8,7 @@ read-only with a banner naming the holder, and the buttons are disabled.
 from __future__ import annotations
 
 from PySide6.QtCore import Qt, Signal
-from PySide6.QtGui import QAction, QKeySequence, QPalette
+from PySide6.QtGui import QAction, QIcon, QKeySequence, QPainter, QPalette, QPixmap
 from PySide6.QtWidgets import (QFormLayout, QGridLayout, QHBoxLayout, QLabel, QLineEdit, QPushButton,
                                QSizePolicy, QToolButton, QVBoxLayout, QWidget)
 
@@ -22,6 +22,19 @@ def panel_labels(rules) -> list[str]:
     """Products of the rules (if any) followed by the fixed labels, in button order."""
     products = list(getattr(rules, "products", []) or [])
     return products + [x for x in FIXED_LABELS if x not in products]
+
+
+def _swatch(colour) -> QIcon:
+    """A small rounded colour square as a button icon (the label's colour in the table and counts)."""
+    pix = QPixmap(14, 14)
+    pix.fill(Qt.GlobalColor.transparent)
+    p = QPainter(pix)
+    p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+    p.setBrush(colour)
+    p.setPen(colour.darker(140))
+    p.drawRoundedRect(1, 1, 12, 12, 3, 3)
+    p.end()
+    return QIcon(pix)
 
 
 class Banner(QLabel):
@@ -120,9 +133,7 @@ class LabelPanel(QWidget):
         for i, label in enumerate(labels):
             key = str(i + 1) if i < 9 else ""
             b = QPushButton(f"{key}  {label}" if key else label, self)
-            colour = outcome_colour(label, products)
-            b.setStyleSheet(f"QPushButton {{ border-left: 6px solid {colour.name()}; padding: 4px 8px; "
-                            "text-align: left; }")
+            b.setIcon(_swatch(outcome_colour(label, products)))
             tip = f"Label this run '{label}'"
             if label in REASON_REQUIRED:
                 tip += " (needs a reason)"

@@ -58,8 +58,11 @@ class RunTableModel(QAbstractTableModel):
         super().__init__(parent)
         self._rows: list[dict] = []
         self._index: dict[str, int] = {}
+        self.products: list[str] = []
 
-    def set_table(self, df: pd.DataFrame) -> None:
+    def set_table(self, df: pd.DataFrame, products: list[str] | None = None) -> None:
+        if products is not None:
+            self.products = list(products)
         self.beginResetModel()
         self._rows = df.to_dict("records")
         self._index = {r["run"]: i for i, r in enumerate(self._rows)}
@@ -107,6 +110,8 @@ class RunTableModel(QAbstractTableModel):
                 return f"reason: {row['reason']}"
             if key == "data_changed" and value:
                 return "The run's files changed after this label was set; look at it again."
+        if role == Qt.ItemDataRole.DecorationRole and key in ("final_label", "auto_label") and value:
+            return outcome_colour(str(value), self.products)
         if role == Qt.ItemDataRole.FontRole and key == "final_label" and row.get("hand_label"):
             from PySide6.QtGui import QFont
             f = QFont()
@@ -177,7 +182,7 @@ class RunTable(QWidget):
     def __init__(self, state: AppState, parent=None) -> None:
         super().__init__(parent)
         self.state = state
-        self._sized = False
+        self._sized: tuple = ()
         self.model = RunTableModel(self)
         self.proxy = RunFilterProxy(self)
         self.proxy.setSourceModel(self.model)
@@ -214,6 +219,7 @@ class RunTable(QWidget):
         self.view.verticalHeader().setDefaultSectionSize(self.fontMetrics().height() + 6)
         self.view.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         self.view.horizontalHeader().setStretchLastSection(True)
+        self.view.horizontalHeader().setResizeContentsPrecision(200)
         lay.addWidget(self.view, 1)
         self.count_bar = CountBar(self)
         lay.addWidget(self.count_bar)
@@ -230,12 +236,13 @@ class RunTable(QWidget):
 
     # --- data ------------------------------------------------------------------------------
     def _on_labels(self) -> None:
-        self.model.set_table(self.state.labels)
+        self.model.set_table(self.state.labels, list(getattr(self.state.rules, "products", []) or []))
         self._select_run(self.state.run_id)
         self._update_counts()
-        if len(self.state.labels) and not self._sized:
-            self.view.resizeColumnsToContents()
-            self._sized = True
+        products = tuple(getattr(self.state.rules, "products", []) or [])
+        if len(self.state.labels) and self._sized != (len(self.state.labels), products):
+            self.view.resizeColumnsToContents()  # sampled: see setResizeContentsPrecision
+            self._sized = (len(self.state.labels), products)
 
     def outcome_counts(self) -> dict[str, int]:
         """Counts of the final labels, products first, then the fixed labels, then anything else."""

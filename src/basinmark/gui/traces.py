@@ -232,7 +232,10 @@ class TracesView(QWidget):
         for (which, value), entries in groups.items():
             plot = self.p_dist if which == 0 else self.p_angle
             colour = basin_colour(entries[0][0], names, rules.reactant)
-            text = "; ".join(f"{b}: {d}" for b, d, _m, _k in entries)
+            by_basin: dict[str, list[str]] = {}
+            for b, d, _m, _k in entries:
+                by_basin.setdefault(b, []).append(d)
+            text = "; ".join(f"{b}: {', '.join(ds)}" for b, ds in by_basin.items())
             line = pg.InfiniteLine(value, angle=0, movable=self.thresholds_editable,
                                    pen=pg.mkPen(colour, width=1.3, style=Qt.PenStyle.DashLine),
                                    label=text, labelOpts={"position": 0.02, "color": text_colour,
@@ -308,7 +311,7 @@ class TracesView(QWidget):
             return
         scale = 1.0 / energy_factor(self.energy_unit)
         i0 = traj.ts_index
-        colours = {"potential": trace_colour(0), "kinetic": trace_colour(1), "total": trace_colour(2)}
+        colours = {"potential": trace_colour(4), "kinetic": trace_colour(5), "total": trace_colour(6)}
         for key, name in (("potential", "E_pot"), ("kinetic", "E_kin"), ("total", "E_total")):
             e = traj.energies.get(key)
             if e is None:
