@@ -168,21 +168,22 @@ class LabelJournal:
             self.warnings.append(f"the last line of {self.path} is incomplete ({len(tail)} bytes, probably a "
                                  "crash while writing); it is left out (opening for writing sets it aside)")
         prev = ""
+        apply = self._replay.apply
         for i, raw in enumerate(lines):
-            where = f"{self.path}, line {i + 1}"
             ev = parse_line(raw)
             if ev is None:
-                msg = f"{where} is not a valid journal event"
+                msg = f"{self.path}, line {i + 1} is not a valid journal event"
                 if writer:
                     raise JournalError(f"{msg}; labels cannot be added until the journal is repaired "
                                        "(run 'basinmark verify' for details)")
                 self.warnings.append(msg + "; skipped")
                 continue
             if writer and (ev.get("seq") != self._last_seq + 1 or ev.get("prev", "") != prev):
-                raise JournalError(f"{where}: the chain of events is broken (sequence or previous hash does "
+                raise JournalError(f"{self.path}, line {i + 1}: the chain of events is broken (sequence or previous hash does "
                                    "not follow); labels cannot be added until the journal is repaired "
                                    "(run 'basinmark verify' for details)")
             if i == 0:
+                where = f"{self.path}, line 1"
                 if ev.get("kind") != HEADER_KIND:
                     if writer:
                         raise JournalError(f"{where}: the journal does not start with a header")
@@ -200,7 +201,7 @@ class LabelJournal:
                         if writer:
                             raise JournalError(msg + "; it is not safe to add labels with this version")
                         self.warnings.append(msg)
-            self._replay.apply(ev)
+            apply(ev)
             prev = ev.get("hash", "")
             seq = ev.get("seq")
             self._last_seq = seq if isinstance(seq, int) else self._last_seq + 1

@@ -33,15 +33,19 @@ class Replay:
     def apply(self, event: dict) -> None:
         self.events.append(event)
         kind = event.get("kind")
+        if kind != "label" and kind != "undo":
+            return
         run = event.get("run")
-        if kind == "label" and isinstance(run, str):
-            self.stacks.setdefault(run, []).append(event)
-            self.counts[run] = self.counts.get(run, 0) + 1
-        elif kind == "undo" and isinstance(run, str):
-            stack = self.stacks.setdefault(run, [])
-            if stack:
-                stack.pop()
-            self.counts[run] = self.counts.get(run, 0) + 1
+        if not isinstance(run, str):
+            return
+        stack = self.stacks.get(run)
+        if stack is None:
+            stack = self.stacks[run] = []
+        if kind == "label":
+            stack.append(event)
+        elif stack:
+            stack.pop()
+        self.counts[run] = self.counts.get(run, 0) + 1
 
     # --- queries ---------------------------------------------------------------------------
     @staticmethod
