@@ -44,7 +44,7 @@ class DemoSettings:
 
     temperature: float = 298.15
     dt_fs: float = 0.2
-    max_time_fs: float = 500.0  # per half
+    max_time_fs: float = 400.0  # per half
     save_every_fs: float = 4.0
     stop_dwell_fs: float = 120.0  # a half stops after this long in one region
 

@@ -261,7 +261,13 @@ def landmarks(surface: Surface, saddle: np.ndarray, modes: Modes) -> dict[str, n
     out[downhill] = ends[1]
     other = "beta" if downhill == "alpha" else "alpha"
     partner = PAIR_C[0] if other == "beta" else PAIR_B[0]
-    x = ends[1].copy()
-    x[8] += 0.6 * (x[partner] - x[8])
-    out[other] = relax(surface, x)
-    return out
+    pair = PAIR_C if other == "beta" else PAIR_B
+    spectator = PAIR_B if other == "beta" else PAIR_C
+    for frac in (0.5, 0.7, 0.9):
+        x = ends[1].copy()
+        x[8:12] += frac * (x[partner] - x[8])  # move the whole group on C3 toward the other partner
+        x = relax(surface, x)
+        if dist(x, pair) < dist(x, spectator):
+            out[other] = x
+            return out
+    raise RuntimeError(f"could not find the {other} minimum of the demo surface")

@@ -125,7 +125,7 @@ class ReactiveParams:
     r0_bc: float = 1.46
     w_bc: float = 0.38
     d_b: float = 1.5  # depth of the alpha bond
-    d_c: float = 1.48  # depth of the beta bond
+    d_c: float = 1.35  # depth of the beta bond
     gamma: float = 4.0  # localisation penalty: makes the bridged line a ridge
     k_bc: float = 2.0  # spring holding r_b, r_c at rest while the ring is open
     rest_bc: float = 2.46
