@@ -1,0 +1,559 @@
+"""Review mode: compare two label sources, list their disagreements, and adjudicate them.
+
+Sources: two labelers of the open journal, the open journal against another journal file, or the
+automatic against the hand labels.  Every number (matrix, agreement, kappa, interval, band) comes
+from :mod:`basinmark.core.review`; decisions go into the open journal as review events
+(:meth:`LabelJournal.adjudicate`), and a ``review_complete`` event is written when the last
+disagreement is settled.  A disagreement counts as settled when the journal holds a review event for
+that run naming the same two labels.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import pandas as pd
+from PySide6.QtCore import QEvent, Qt, Signal
+from PySide6.QtGui import QAction, QBrush, QColor, QFont, QKeySequence, QPalette
+from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFileDialog, QFormLayout, QHBoxLayout,
+                               QHeaderView, QLabel, QLineEdit, QPushButton, QStackedWidget, QTableWidget,
+                               QTableWidgetItem, QVBoxLayout, QWidget)
+
+from basinmark.core.errors import BasinmarkError
+from basinmark.core.journal import LabelJournal
+from basinmark.core.review import SE_METHOD, Review, compare_labelers, compare_labels, render_markdown
+from basinmark.gui.label_panel import panel_labels
+from basinmark.gui.movie import find_menu
+
+MODES = (("labelers", "Two labelers of this journal"), ("file", "This journal against another journal file"),
+         ("auto_hand", "Automatic labels against hand labels"))
+SIDES = ("final", "auto", "hand")
+QUEUE_COLUMNS = ["run", "A", "labeler A", "reason A", "B", "labeler B", "reason B"]
+
+
+def settled_runs(journal, review: Review) -> set[str]:
+    """Runs of the review's disagreements that the journal already holds a decision for (same two labels)."""
+    if journal is None or not len(review.disagreements):
+        return set()
+    wanted = {(r.run, r.label_a, r.label_b) for r in review.disagreements.itertuples(index=False)}
+    done = set()
+    for ev in journal.events:
+        if ev.get("kind") == "label" and ev.get("source") == "review":
+            key = (ev.get("run"), ev.get("label_a"), ev.get("label_b"))
+            if key in wanted:
+                done.add(key[0])
+    return done
+
+
+class QueueTable(QTableWidget):
+    """The disagreement queue; label keys 1..9 and A/B decide the selected run while it has focus."""
+
+    decision_key = Signal(str)   # "1".."9", "A" or "B"
+
+    def _key_text(self, event) -> str:
+        if event.modifiers() & ~(Qt.KeyboardModifier.KeypadModifier | Qt.KeyboardModifier.ShiftModifier):
+            return ""
+        k = event.key()
+        if Qt.Key.Key_1 <= k <= Qt.Key.Key_9:
+            return str(k - Qt.Key.Key_0)
+        if k == Qt.Key.Key_A:
+            return "A"
+        if k == Qt.Key.Key_B:
+            return "B"
+        return ""
+
+    def event(self, event) -> bool:  # noqa: D401 - Qt override
+        # take these keys before the window's shortcuts (label keys, atom numbers) see them
+        if event.type() == QEvent.Type.ShortcutOverride and self._key_text(event):
+            event.accept()
+            return True
+        return super().event(event)
+
+    def keyPressEvent(self, event) -> None:  # noqa: N802
+        text = self._key_text(event)
+        if text:
+            self.decision_key.emit(text)
+            event.accept()
+            return
+        super().keyPressEvent(event)
+
+
+class ReviewPanel(QWidget):
+    """Choose two label sources; see the agreement; work through the disagreements."""
+
+    review_changed = Signal()
+    decided = Signal(str, str)   # run, label
+    message = Signal(str)
+
+    def __init__(self, state, parent: QWidget | None = None, reviewer: str = "") -> None:
+        super().__init__(parent)
+        self.state = state
+        self.review: Review | None = None
+        self.queue: pd.DataFrame = pd.DataFrame()
+        self.other_path: Path | None = None
+        self._completed_key: tuple | None = None
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(6, 4, 6, 4)
+
+        form = QFormLayout()
+        self.mode = QComboBox(self)
+        for key, text in MODES:
+            self.mode.addItem(text, key)
+        self.mode.setToolTip("Which two label sources to compare")
+        form.addRow("Compare", self.mode)
+        self.pages = QStackedWidget(self)
+        # page 0: two labelers
+        p0 = QWidget(self)
+        l0 = QHBoxLayout(p0)
+        l0.setContentsMargins(0, 0, 0, 0)
+        self.who_a, self.who_b = QComboBox(p0), QComboBox(p0)
+        for c, tip in ((self.who_a, "Labeler A (rows of the matrix)"), (self.who_b, "Labeler B (columns)")):
+            c.setToolTip(tip)
+            c.setMinimumContentsLength(10)
+        l0.addWidget(QLabel("A", p0))
+        l0.addWidget(self.who_a, 1)
+        l0.addWidget(QLabel("B", p0))
+        l0.addWidget(self.who_b, 1)
+        self.pages.addWidget(p0)
+        # page 1: another journal
+        p1 = QWidget(self)
+        l1 = QHBoxLayout(p1)
+        l1.setContentsMargins(0, 0, 0, 0)
+        self.other = QLineEdit(p1)
+        self.other.setPlaceholderText("second journal file (.jsonl) or set folder")
+        self.other.setToolTip("Labels B come from this journal; A is the open set's journal")
+        self.browse = QPushButton("Browse…", p1)
+        self.browse.setToolTip("Choose the second label journal")
+        self.side = QComboBox(p1)
+        self.side.addItems(SIDES)
+        self.side.setToolTip("Which label of each run to compare: final (hand if any, else automatic), "
+                             "automatic or hand")
+        l1.addWidget(self.other, 1)
+        l1.addWidget(self.browse)
+        l1.addWidget(self.side)
+        self.pages.addWidget(p1)
+        self.pages.addWidget(QLabel("A: automatic labels (rules) · B: hand labels", self))
+        form.addRow("", self.pages)
+        lay.addLayout(form)
+        row = QHBoxLayout()
+        self.compare_button = QPushButton("Compare", self)
+        self.compare_button.setToolTip("Compare the two sources now")
+        self.export_button = QPushButton("Export Report…", self)
+        self.export_button.setToolTip("Write this review as a short Markdown report")
+        row.addWidget(self.compare_button)
+        row.addWidget(self.export_button)
+        row.addStretch(1)
+        lay.addLayout(row)
+
+        self.summary = QLabel("Choose two label sources and press Compare.", self)
+        self.summary.setWordWrap(True)
+        self.summary.setTextFormat(Qt.TextFormat.RichText)
+        self.summary.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        lay.addWidget(self.summary)
+        self.warning = QLabel(self)
+        self.warning.setWordWrap(True)
+        self.warning.setObjectName("reviewWarning")
+        self.warning.setVisible(False)
+        lay.addWidget(self.warning)
+        self.matrix = QTableWidget(self)
+        self.matrix.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.matrix.setToolTip("Rows: labels of A, columns: labels of B; the diagonal is where they agree")
+        self.matrix.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        self.matrix.setMaximumHeight(190)
+        lay.addWidget(self.matrix)
+
+        self.queue_title = QLabel("Disagreements", self)
+        lay.addWidget(self.queue_title)
+        self.queue_view = QueueTable(self)
+        self.queue_view.setColumnCount(len(QUEUE_COLUMNS))
+        self.queue_view.setHorizontalHeaderLabels(QUEUE_COLUMNS)
+        self.queue_view.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.queue_view.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.queue_view.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.queue_view.verticalHeader().setVisible(False)
+        self.queue_view.horizontalHeader().setStretchLastSection(True)
+        self.queue_view.setToolTip("Runs the two sources disagree on. Select one to see it; decide with the "
+                                   "label keys 1–9, or A / B to take one side's label.")
+        lay.addWidget(self.queue_view, 1)
+
+        dec = QFormLayout()
+        self.reason = QLineEdit(self)
+        self.reason.setPlaceholderText("why this decision (recorded with it)")
+        self.reason.setClearButtonEnabled(True)
+        dec.addRow("Reason", self.reason)
+        self.reviewer = QLineEdit(reviewer, self)
+        self.reviewer.setToolTip("Recorded as the reviewer of every decision")
+        dec.addRow("Reviewer", self.reviewer)
+        lay.addLayout(dec)
+        brow = QHBoxLayout()
+        self.take_a = QPushButton("Take A", self)
+        self.take_a.setToolTip("Decide for A's label (A)")
+        self.take_b = QPushButton("Take B", self)
+        self.take_b.setToolTip("Decide for B's label (B)")
+        self.choice = QComboBox(self)
+        self.choice.setToolTip("Or decide for another label (label keys 1–9 in the queue)")
+        self.decide_button = QPushButton("Decide", self)
+        self.decide_button.setToolTip("Record the label chosen on the left")
+        self.complete_button = QPushButton("Record Review Complete", self)
+        self.complete_button.setToolTip("Write a 'review complete' event with this review's summary")
+        for w in (self.take_a, self.take_b, self.choice, self.decide_button, self.complete_button):
+            brow.addWidget(w)
+        brow.addStretch(1)
+        lay.addLayout(brow)
+        self.status = QLabel(self)
+        self.status.setWordWrap(True)
+        lay.addWidget(self.status)
+
+        self.mode.currentIndexChanged.connect(self._mode_changed)
+        self.browse.clicked.connect(self.choose_other)
+        self.compare_button.clicked.connect(self.compare)
+        self.export_button.clicked.connect(lambda: self.export_report())
+        self.queue_view.itemSelectionChanged.connect(self._selected)
+        self.queue_view.decision_key.connect(self.decide_by_key)
+        self.take_a.clicked.connect(lambda: self.decide_side("A"))
+        self.take_b.clicked.connect(lambda: self.decide_side("B"))
+        self.decide_button.clicked.connect(lambda: self.decide(self.choice.currentText()))
+        self.complete_button.clicked.connect(lambda: self.record_complete())
+        state.journal_changed.connect(self.refresh_sources)
+        state.rules_changed.connect(self._fill_choices)
+        self.refresh_sources()
+        self._fill_choices()
+        self._mode_changed()
+
+    # --- sources ----------------------------------------------------------------------------
+    @property
+    def mode_key(self) -> str:
+        return str(self.mode.currentData())
+
+    def set_mode(self, key: str) -> None:
+        self.mode.setCurrentIndex([k for k, _t in MODES].index(key))
+
+    def _mode_changed(self) -> None:
+        self.pages.setCurrentIndex(self.mode.currentIndex())
+
+    def refresh_sources(self) -> None:
+        j = self.state.journal
+        names = list(SIDES) + (list(j.labelers()) if j is not None else [])
+        for combo, default in ((self.who_a, 0), (self.who_b, 1)):
+            keep = combo.currentText()
+            combo.blockSignals(True)
+            combo.clear()
+            combo.addItems(names)
+            combo.setCurrentIndex(names.index(keep) if keep in names else min(default, len(names) - 1))
+            combo.blockSignals(False)
+        self._update_enabled()
+
+    def _fill_choices(self) -> None:
+        keep = self.choice.currentText()
+        self.choice.clear()
+        labels = panel_labels(self.state.rules)
+        self.choice.addItems([f"{lab}" for lab in labels])
+        if keep in labels:
+            self.choice.setCurrentText(keep)
+
+    def choose_other(self) -> None:
+        start = str(self.state.tset.root) if self.state.tset is not None else str(Path.home())
+        path, _ = QFileDialog.getOpenFileName(self, "Second label journal", start,
+                                              "Label journals (*.jsonl);;All files (*)")
+        if path:
+            self.other.setText(path)
+            self.compare()
+
+    def _other_journal(self) -> Path:
+        from basinmark.core.sets import journal_path
+
+        text = self.other.text().strip()
+        if not text:
+            raise BasinmarkError("choose the second journal (a .jsonl file or a set folder) first")
+        p = Path(text).expanduser()
+        path = journal_path(p) if p.is_dir() else p
+        if not path.is_file():
+            raise BasinmarkError(f"there is no label journal at {path}")
+        return path
+
+    # --- comparing -------------------------------------------------------------------------
+    def compare(self) -> Review | None:
+        """Compare the chosen sources (through core.review) and show the result."""
+        j = self.state.journal
+        if j is None:
+            self._show_error("No label journal is open for this set, so there is nothing to review.")
+            return None
+        order = panel_labels(self.state.rules)
+        try:
+            if self.mode_key == "labelers":
+                a, b = self.who_a.currentText(), self.who_b.currentText()
+                if a == b:
+                    raise BasinmarkError("choose two different label sources for A and B")
+                review = compare_labelers(j, a, b, order=order)
+            elif self.mode_key == "auto_hand":
+                review = compare_labelers(j, "auto", "hand", name_a="automatic", name_b="hand", order=order)
+            else:
+                other = self._other_journal()
+                which = self.side.currentText()
+                with LabelJournal.open(other, readonly=True) as jb:
+                    labels_b = jb.labels(which)
+                    for w in jb.warnings:
+                        self.message.emit(f"{other.name}: {w}")
+                name_a, name_b = j.path.name, other.name
+                if name_a == name_b:
+                    name_a, name_b = j.path.parent.name, other.parent.name
+                review = compare_labels(j.labels(which), labels_b, name_a=name_a, name_b=name_b, order=order)
+        except (BasinmarkError, ValueError) as exc:
+            self._show_error(str(exc))
+            return None
+        self.review = review
+        self._show_review()
+        self.review_changed.emit()
+        return review
+
+    def _show_error(self, text: str) -> None:
+        self.review = None
+        self.summary.setText(f"<b>Not compared:</b> {text}")
+        self.warning.setVisible(False)
+        self.matrix.clear()
+        self.matrix.setRowCount(0)
+        self.matrix.setColumnCount(0)
+        self.queue = pd.DataFrame()
+        self.queue_view.setRowCount(0)
+        self._update_enabled()
+
+    def kappa_text(self) -> str:
+        r = self.review
+        if r is None or not math.isfinite(r.kappa):
+            return "undefined"
+        return f"{r.kappa:.3f}"
+
+    def _show_review(self) -> None:
+        r = self.review
+        assert r is not None
+        agree = "n/a" if not math.isfinite(r.agreement) else f"{100 * r.agreement:.1f} %"
+        ci = ("" if not math.isfinite(r.ci[0]) else
+              f" ({100 * r.confidence:g} % interval {r.ci[0]:.3f} to {r.ci[1]:.3f})")
+        band = f", {r.band}" if r.band else ""
+        self.summary.setText(
+            f"<b>A</b> = {r.name_a}, <b>B</b> = {r.name_b}: {r.n} runs labeled by both · agreement "
+            f"<b>{agree}</b> · Cohen's kappa <b>{self.kappa_text()}</b>{ci}{band}"
+            f"<br><small>Kappa after Cohen (1960), interval from the {SE_METHOD}, bands after "
+            f"Landis &amp; Koch (1977).</small>")
+        self.summary.setToolTip(f"chance agreement {100 * r.chance_agreement:.1f} %"
+                                if math.isfinite(r.chance_agreement) else "")
+        pal = self.palette()
+        dark = pal.color(QPalette.ColorRole.Window).lightness() < 128
+        warn = QColor("#ffb4a9") if dark else QColor("#b3261e")
+        self.warning.setStyleSheet(f"QLabel#reviewWarning {{ color: {warn.name()}; font-weight: bold; }}")
+        self.warning.setText("\n".join(f"Caution: {w}" for w in r.warnings))
+        self.warning.setVisible(bool(r.warnings))
+        self._fill_matrix()
+        self.refresh_queue()
+
+    def _fill_matrix(self) -> None:
+        r = self.review
+        conf = r.confusion
+        self.matrix.clear()
+        self.matrix.setRowCount(len(conf.index))
+        self.matrix.setColumnCount(len(conf.columns))
+        self.matrix.setHorizontalHeaderLabels([f"B: {c}" for c in conf.columns])
+        self.matrix.setVerticalHeaderLabels([f"A: {i}" for i in conf.index])
+        hl = QColor(self.palette().color(QPalette.ColorRole.Highlight))
+        hl.setAlpha(70)
+        bold = QFont(self.font())
+        bold.setBold(True)
+        for i, row in enumerate(conf.index):
+            for k, col in enumerate(conf.columns):
+                item = QTableWidgetItem(str(int(conf.iat[i, k])))
+                item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                item.setToolTip(f"A said {row}, B said {col}: {int(conf.iat[i, k])} runs")
+                if row == col:
+                    item.setFont(bold)
+                    item.setBackground(QBrush(hl))
+                self.matrix.setItem(i, k, item)
+
+    def refresh_queue(self) -> None:
+        """The disagreements not yet settled in the journal."""
+        r = self.review
+        if r is None:
+            return
+        done = settled_runs(self.state.journal, r)
+        q = r.disagreements[~r.disagreements["run"].isin(done)].reset_index(drop=True)
+        self.queue = q
+        self.queue_view.setRowCount(len(q))
+        for i, rec in enumerate(q.itertuples(index=False)):
+            for k, value in enumerate(rec):
+                item = QTableWidgetItem("" if value is None else str(value))
+                if k == 0 and self.state.tset is not None and rec.run not in self.state.tset:
+                    item.setToolTip("this run is not in the open set")
+                self.queue_view.setItem(i, k, item)
+        total = len(r.disagreements)
+        self.queue_title.setText(f"Disagreements to decide: {len(q)} of {total}" if total else
+                                 "Disagreements: none")
+        if len(q):
+            self.queue_view.selectRow(0)
+        self._update_enabled()
+
+    # --- deciding --------------------------------------------------------------------------
+    def writable_reason(self) -> str:
+        """Why decisions cannot be recorded now ('' when they can)."""
+        st = self.state
+        if st.journal is None:
+            return "No label journal is open."
+        if st.readonly:
+            return ("The label journal is read-only here, so decisions cannot be recorded"
+                    + (f": {st.journal_message}" if st.journal_message else "."))
+        return ""
+
+    def _update_enabled(self) -> None:
+        why = self.writable_reason()
+        has = len(self.queue) > 0 and self.review is not None
+        for w in (self.take_a, self.take_b, self.choice, self.decide_button):
+            w.setEnabled(not why and has)
+        self.complete_button.setEnabled(not why and self.review is not None and not has)
+        self.export_button.setEnabled(self.review is not None)
+        self.reason.setEnabled(not why)
+        if why:
+            self.status.setText(why)
+
+    def current_row(self) -> dict | None:
+        rows = self.queue_view.selectionModel().selectedRows() if self.queue_view.selectionModel() else []
+        if not rows or not len(self.queue):
+            return None
+        i = rows[0].row()
+        return self.queue.iloc[i].to_dict() if 0 <= i < len(self.queue) else None
+
+    def _selected(self) -> None:
+        row = self.current_row()
+        if row is not None:
+            self.state.set_run(row["run"])
+
+    def decide_by_key(self, key: str) -> bool:
+        if key in ("A", "B"):
+            return self.decide_side(key)
+        labels = panel_labels(self.state.rules)
+        i = int(key) - 1
+        if not 0 <= i < len(labels):
+            self.status.setText(f"No label on key {key}.")
+            return False
+        return self.decide(labels[i])
+
+    def decide_side(self, side: str) -> bool:
+        row = self.current_row()
+        if row is None:
+            return False
+        return self.decide(row["label_a"] if side == "A" else row["label_b"])
+
+    def decide(self, label: str) -> bool:
+        """Record the reviewer's decision for the selected disagreement; True when it is on disk."""
+        why = self.writable_reason()
+        row = self.current_row()
+        if why or row is None:
+            self.status.setText(why or "Select a disagreement first.")
+            return False
+        run = row["run"]
+        tset = self.state.tset
+        if tset is None or run not in tset:
+            self.status.setText(f"Run {run} is not in the open set, so it cannot be decided here.")
+            return False
+        reviewer = self.reviewer.text().strip() or None
+        try:
+            self.state.journal.adjudicate(run, label, content_hash=tset[run].content_hash,
+                                          label_a=row["label_a"], label_b=row["label_b"], reviewer=reviewer,
+                                          reason=self.reason.text().strip())
+        except BasinmarkError as exc:
+            self.status.setText(f"Not recorded: {exc}")
+            return False
+        self.reason.clear()
+        index = self.queue_view.currentRow()
+        self.state.refresh_labels()
+        self.refresh_queue()
+        if len(self.queue):
+            self.queue_view.selectRow(min(max(index, 0), len(self.queue) - 1))
+        msg = f"Decided: {run} → {label}"
+        if not len(self.queue):
+            self.record_complete()
+            msg += "; every disagreement is decided and the review is recorded as complete"
+        self.status.setText(msg)
+        self.message.emit(msg)
+        self.decided.emit(run, label)
+        return True
+
+    def record_complete(self) -> dict | None:
+        """Write a 'review complete' event with the review's summary (once per review)."""
+        r = self.review
+        if r is None or self.writable_reason():
+            return None
+        summary = r.summary()
+        key = (summary["labeler_a"], summary["labeler_b"], self.state.journal.last_seq)
+        if key == self._completed_key:
+            return None
+        reviewer = self.reviewer.text().strip() or None
+        try:
+            ev = self.state.journal.review_complete(reviewer=reviewer, summary=summary,
+                                                    reason=f"review of {r.name_a} against {r.name_b}")
+        except BasinmarkError as exc:
+            self.status.setText(f"Not recorded: {exc}")
+            return None
+        self._completed_key = (summary["labeler_a"], summary["labeler_b"], self.state.journal.last_seq)
+        self.status.setText("Review recorded as complete.")
+        return ev
+
+    def export_report(self, path: str | Path | None = None) -> Path | None:
+        """Write the review as Markdown (core.review.render_markdown)."""
+        if self.review is None:
+            self.status.setText("Compare two sources first; there is no review to export.")
+            return None
+        if path is None:
+            start = Path(self.state.tset.root) / "review.md" if self.state.tset is not None else Path("review.md")
+            path, _ = QFileDialog.getSaveFileName(self, "Export review report", str(start), "Markdown (*.md)")
+            if not path:
+                return None
+        try:
+            Path(path).write_text(render_markdown(self.review), encoding="utf-8")
+        except OSError as exc:
+            self.status.setText(f"Report not written: {exc}")
+            return None
+        self.status.setText(f"Review report written to {path}")
+        return Path(path)
+
+
+def install_review_dock(window) -> QDockWidget:
+    """Add the Review dock (tabbed with the traces, hidden at first) and its menu actions."""
+    reviewer = getattr(getattr(window, "label_panel", None), "labeler_name", "") or ""
+    panel = ReviewPanel(window.state, window, reviewer=reviewer)
+    dock = QDockWidget("Review", window)
+    dock.setObjectName("dock_review")
+    dock.setWidget(panel)
+    window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock)
+    traces = getattr(window, "docks", {}).get("traces")
+    if traces is not None:
+        window.tabifyDockWidget(traces, dock)
+    dock.hide()
+    panel.message.connect(lambda text: window.statusBar().showMessage(text, 6000))
+    window.state.labels_changed.connect(lambda: panel.refresh_queue() if dock.isVisible() else None)
+
+    menu = find_menu(window, "menu_analysis", "&Analysis")
+    show = dock.toggleViewAction()
+    show.setText("&Review Two Labelers")
+    show.setShortcut(QKeySequence("Ctrl+Shift+V"))
+    show.setToolTip("Compare two label sources and decide their disagreements (Ctrl+Shift+V)")
+    menu.addAction(show)
+
+    def on_visible(visible: bool) -> None:
+        if visible:
+            dock.raise_()
+            if panel.review is None and window.state.journal is not None:
+                panel.compare()
+            panel.queue_view.setFocus()
+
+    dock.visibilityChanged.connect(on_visible)
+    # a tabbed dock that is shown stays behind its neighbour unless raised
+    show.triggered.connect(lambda checked: dock.raise_() if checked else None)
+    export = QAction("Export &Review Report…", window)
+    export.setObjectName("action_export_review")
+    export.setToolTip("Write the current review as a Markdown report")
+    export.triggered.connect(lambda: panel.export_report() if panel.review is not None
+                             else window.statusBar().showMessage("Open the Review dock and compare first.", 6000))
+    find_menu(window, "menu_export", "&Export").addAction(export)
+    window.addAction(show)
+    window.review_panel = panel
+    window.review_dock = dock
+    return dock

@@ -1,0 +1,207 @@
+"""Review mode offscreen: two journals / two labelers, kappa against scikit-learn, decisions by key
+written as review events, the 'review complete' event, the Markdown export, read-only journals."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from PySide6.QtCore import QSettings, Qt
+from sklearn.metrics import cohen_kappa_score
+
+from basinmark.core.journal import LabelJournal
+from basinmark.core.sets import journal_path
+from basinmark.gui.main_window import MainWindow
+from basinmark.gui.review_view import install_review_dock
+
+from gui_fixtures import make_toy_set
+
+pytestmark = pytest.mark.gui
+
+OUTCOMES = ["left", "right", "left", "right", "left", "right", "left", "recrossing"]
+RUNS = [f"toy-{i + 1:03d}" for i in range(len(OUTCOMES))]
+# hand labels of two people; they disagree on toy-002, toy-005 and toy-008
+ANN = ["left", "right", "left", "right", "left", "right", "left", "recrossing"]
+BO = ["left", "left", "left", "right", "unfinished", "right", "left", "left"]
+DISAGREE = ["toy-002", "toy-005", "toy-008"]
+
+
+def _write(path: Path, who: str, labels, hashes) -> None:
+    with LabelJournal.open(path, labeler=who) as j:
+        for run, lab in zip(RUNS, labels):
+            j.record(run, lab, content_hash=hashes.get(run, ""))
+
+
+def _events(path: Path) -> list[dict]:
+    return [json.loads(x) for x in path.read_text().splitlines() if x.strip()]
+
+
+def _open(qtbot, tmp_path, root) -> MainWindow:
+    win = MainWindow(QSettings(str(tmp_path / "s.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(win)
+    win.show()
+    qtbot.waitExposed(win)
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(root, use_cache=False)
+    return win
+
+
+@pytest.fixture
+def setup(qtbot, tmp_path):
+    from basinmark.core.sets import open_set
+
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+    hashes = dict(open_set(root, use_cache=False).content_hashes())
+    _write(journal_path(root), "ann", ANN, hashes)
+    other = tmp_path / "bo-labels.jsonl"
+    _write(other, "bo", BO, hashes)
+    win = _open(qtbot, tmp_path, root)
+    dock = install_review_dock(win)
+    yield win, dock, root, other
+    win.close()
+
+
+def test_two_journals_list_exactly_the_disagreements(setup):
+    win, dock, root, other = setup
+    panel = win.review_panel
+    panel.set_mode("file")
+    panel.other.setText(str(other))
+    review = panel.compare()
+    assert review is not None and review.n == len(RUNS)
+    assert list(panel.queue["run"]) == DISAGREE
+    shown = [panel.queue_view.item(r, 0).text() for r in range(panel.queue_view.rowCount())]
+    assert shown == DISAGREE
+    # reference library: scikit-learn's Cohen's kappa over the same label pairs
+    ref = cohen_kappa_score(ANN, BO)
+    assert review.kappa == pytest.approx(ref, abs=1e-12)
+    assert f"{ref:.3f}" in panel.summary.text()
+    assert f"{100 * 5 / 8:.1f} %" in panel.summary.text()
+    assert review.band in panel.summary.text()
+    # few runs: the core's caution is shown
+    assert panel.warning.isVisibleTo(panel) and "rough" in panel.warning.text()
+    # diagonal emphasised
+    m = panel.matrix
+    i = review.confusion.index.get_loc("left")
+    k = list(review.confusion.columns).index("left")
+    assert m.item(i, k).font().bold() and not m.item(i, (k + 1) % m.columnCount()).font().bold()
+    assert m.item(i, k).text() == str(int(review.confusion.loc["left", "left"]))
+
+
+def test_decisions_by_key_write_review_events_and_complete(setup, qtbot):
+    win, dock, root, other = setup
+    panel = win.review_panel
+    dock.toggleViewAction().trigger()
+    panel.set_mode("file")
+    panel.other.setText(str(other))
+    panel.compare()
+    panel.reviewer.setText("carla")
+    # selecting a queue entry shows that run in the window
+    panel.queue_view.selectRow(1)
+    assert win.state.run_id == "toy-005"
+    panel.reason.setText("both halves end in the left basin")
+    panel.queue_view.setFocus()
+    qtbot.keyClick(panel.queue_view, Qt.Key.Key_A)          # take A's label for toy-005
+    ev = [e for e in _events(journal_path(root)) if e.get("kind") == "label"][-1]
+    assert ev["source"] == "review" and ev["run"] == "toy-005" and ev["label"] == "left"
+    assert (ev["label_a"], ev["label_b"]) == ("left", "unfinished")
+    assert ev["reviewer"] == "carla" and ev["reason"] == "both halves end in the left basin"
+    assert ev["content_hash"] == win.state.tset["toy-005"].content_hash
+    assert list(panel.queue["run"]) == ["toy-002", "toy-008"]
+    # label key 3 = the third label in the labeling panel's order (left, right, recrossing, ...)
+    panel.queue_view.selectRow(1)
+    qtbot.keyClick(panel.queue_view, Qt.Key.Key_3)
+    ev = [e for e in _events(journal_path(root)) if e.get("kind") == "label"][-1]
+    assert (ev["run"], ev["label"], ev["label_a"], ev["label_b"]) == ("toy-008", "recrossing", "recrossing", "left")
+    assert not any(e.get("kind") == "review_complete" for e in _events(journal_path(root)))
+    panel.queue_view.selectRow(0)
+    qtbot.keyClick(panel.queue_view, Qt.Key.Key_B)
+    events = _events(journal_path(root))
+    done = [e for e in events if e.get("kind") == "review_complete"]
+    assert len(done) == 1 and done[0]["reviewer"] == "carla"
+    assert done[0]["summary"]["disagreements"] == 3
+    assert done[0]["summary"]["kappa"] == pytest.approx(cohen_kappa_score(ANN, BO), abs=1e-6)
+    assert panel.queue_view.rowCount() == 0 and "none" not in panel.queue_title.text()
+    assert win.state.label_row("toy-002")["hand_label"] == "left"
+    # the decisions survive a re-compare: still settled
+    panel.compare()
+    assert panel.queue.empty
+
+
+def test_two_labelers_of_one_journal_and_export(setup, tmp_path):
+    win, dock, root, other = setup
+    j = win.state.journal
+    hashes = dict(win.state.tset.content_hashes())
+    for run, lab in zip(RUNS, BO):
+        j.record(run, lab, content_hash=hashes[run], labeler="bo")
+    panel = win.review_panel
+    panel.refresh_sources()
+    panel.set_mode("labelers")
+    panel.who_a.setCurrentText("ann")
+    panel.who_b.setCurrentText("bo")
+    review = panel.compare()
+    assert list(panel.queue["run"]) == DISAGREE
+    assert review.kappa == pytest.approx(cohen_kappa_score(ANN, BO), abs=1e-12)  # scikit-learn reference
+    assert set(panel.queue["labeler_a"]) == {"ann"} and set(panel.queue["labeler_b"]) == {"bo"}
+    out = panel.export_report(tmp_path / "review.md")
+    text = out.read_text()
+    assert "# Review: ann vs bo" in text and "| toy-005 |" in text and "| toy-001 |" not in text
+    panel.who_b.setCurrentText("ann")
+    assert panel.compare() is None and "different" in panel.summary.text()
+
+
+def test_automatic_against_hand(qtbot, tmp_path):
+    from basinmark.core.classify import classify_set, write_automatic_labels
+    from basinmark.core.rules import load_rules
+    from basinmark.core.sets import open_set
+
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+    tset = open_set(root, use_cache=False)
+    rules = load_rules(root / "basins.toml", n_atoms=tset.n_atoms)
+    hashes = dict(tset.content_hashes())
+    with LabelJournal.open(journal_path(root), labeler="ann") as j:
+        write_automatic_labels(j, classify_set(tset, rules), rules)
+        j.record("toy-003", "right", content_hash=hashes["toy-003"])
+        j.record("toy-004", "right", content_hash=hashes["toy-004"])
+    win = _open(qtbot, tmp_path, root)
+    install_review_dock(win)
+    panel = win.review_panel
+    panel.set_mode("auto_hand")
+    review = panel.compare()
+    assert review.n == 2 and list(panel.queue["run"]) == ["toy-003"]
+    assert "only 2 runs" in panel.warning.text()
+    win.close()
+
+
+def test_readonly_journal_disables_decisions(qtbot, tmp_path):
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+    _write(journal_path(root), "ann", ANN, {})
+    other = tmp_path / "bo.jsonl"
+    _write(other, "bo", BO, {})
+    holder = LabelJournal.open(journal_path(root), labeler="someone-else")
+    try:
+        win = _open(qtbot, tmp_path, root)
+        install_review_dock(win)
+        panel = win.review_panel
+        panel.set_mode("file")
+        panel.other.setText(str(other))
+        panel.compare()
+        assert list(panel.queue["run"]) == DISAGREE
+        assert not panel.take_a.isEnabled() and not panel.decide_button.isEnabled()
+        assert "read-only" in panel.status.text()
+        before = journal_path(root).read_bytes()
+        qtbot.keyClick(panel.queue_view, Qt.Key.Key_A)
+        assert journal_path(root).read_bytes() == before
+        win.close()
+    finally:
+        holder.close()
+
+
+def test_menu_and_dock(setup, qtbot):
+    win, dock, root, other = setup
+    names = [a.menu().objectName() for a in win.menu_bar.actions() if a.menu() is not None]
+    assert "menu_analysis" in names and "menu_export" in names
+    assert dock.isHidden()
+    dock.toggleViewAction().trigger()
+    # compared on first show (two labelers of this journal)
+    qtbot.waitUntil(lambda: win.review_panel.review is not None, timeout=3000)
