@@ -30,7 +30,8 @@ def make_app(argv: list[str] | None = None):
 
 
 #: optional panels that attach themselves to the window: (module, function taking the window)
-EXTRAS = (("basinmark.gui.map_view", "install_map_dock"), ("basinmark.gui.movie", "install_movie_action"))
+EXTRAS = (("basinmark.gui.map_view", "install_map_dock"), ("basinmark.gui.summary_view", "install_summary_dock"),
+          ("basinmark.gui.review_view", "install_review_dock"), ("basinmark.gui.movie", "install_movie_action"))
 
 
 def install_extras(win) -> list[str]:
@@ -44,9 +45,14 @@ def install_extras(win) -> list[str]:
         except ImportError:
             continue
         installer = getattr(mod, func, None)
-        if installer is not None:
+        if installer is None:
+            continue
+        try:
             installer(win)
-            added.append(module)
+        except Exception as exc:  # a broken optional panel must not keep the window from opening
+            print(f"basinmark: the panel {module} could not be added: {type(exc).__name__}: {exc}", file=sys.stderr)
+            continue
+        added.append(module)
     win.restore_layout()
     return added
 
