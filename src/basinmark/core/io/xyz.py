@@ -310,8 +310,31 @@ def _horner(grid: np.ndarray, columns: range, mixed: int) -> np.ndarray:
     return acc
 
 
-def _fixed_number(grid: np.ndarray, a: int, classes: str) -> np.ndarray:
-    """Convert one fixed-width numeric field starting at byte column ``a`` (classes: its column letters)."""
+def _digit_span(grid: np.ndarray, a: int, n_lead: int) -> int:
+    """How many of the leading mixed columns can hold a digit (from the first one that does)."""
+    if not n_lead:
+        return 0
+    capable = np.flatnonzero(grid[:, a:a + n_lead].max(axis=0) >= 48)
+    return n_lead - int(capable[0]) if len(capable) else 0
+
+
+def _field_by_strtod(grid: np.ndarray, a: int, end: int) -> np.ndarray:
+    """Convert a validated field in C with numpy.fromstring (for mantissas beyond 15 digits, where
+    place-value sums in float64 would no longer be exact)."""
+    n, w = grid.shape[0], end - a
+    text = np.full((n, w + 1), 32, np.uint8)
+    text[:, :w] = grid[:, a:end]
+    raw = text.tobytes()
+    if b"d" in raw or b"D" in raw:
+        raw = raw.translate(_FORTRAN)
+    values = np.fromstring(raw, sep=" ")
+    if values.size != n:
+        raise _Slow
+    return values
+
+
+def _fixed_number(grid: np.ndarray, a: int, end: int, classes: str) -> np.ndarray:
+    """Convert one fixed-width numeric field, byte columns ``a:end`` (classes: its column letters)."""
     m = _CLASS_RE.fullmatch(classes)
     if m is None:
         raise _Slow
@@ -322,6 +345,8 @@ def _fixed_number(grid: np.ndarray, a: int, classes: str) -> np.ndarray:
         lead, ipart, dot, frac, exp, esign, edig = g[7:14]
     lead, ipart, frac = lead or "", ipart or "", frac or ""
     n_lead, n_int = len(lead), len(ipart)
+    if _digit_span(grid, a, n_lead) + n_int + len(frac) > 15:
+        return _field_by_strtod(grid, a, end)
     negative = _sign_zone(grid[:, a:a + n_lead]) if n_lead else None
     mant_cols = list(range(a, a + n_lead + n_int))
     if dot:
@@ -335,9 +360,15 @@ def _fixed_number(grid: np.ndarray, a: int, classes: str) -> np.ndarray:
         if eneg is not None:
             np.negative(expo, out=expo, where=eneg)
         q = expo - decimals
-        if np.abs(q).max(initial=0) > 300:
-            raise _Slow
-        value = np.where(q >= 0, value * _POW10[np.clip(q, 0, None)], value / _POW10[np.clip(-q, 0, None)])
+        # one multiplication or division by an exact power of ten (10**22 is the largest) rounds
+        # correctly; the rare rows beyond that are converted by float() from their text
+        far = np.abs(q) > 22
+        qc = np.clip(q, -22, 22)
+        value = np.where(qc >= 0, value * _POW10[np.clip(qc, 0, None)], value / _POW10[np.clip(-qc, 0, None)])
+        for r in np.flatnonzero(far).tolist():
+            value[r] = float(grid[r, a:end].tobytes().translate(_FORTRAN))
+        if negative is not None and far.any():
+            negative = negative & ~far  # float() already applied the sign
     elif decimals:
         value /= _POW10[decimals]
     if negative is not None:
@@ -382,7 +413,7 @@ def _parse_fixed(block: bytes, n_lines: int, cols: list[_Column]) -> dict[str, n
                 fields.append(np.ascontiguousarray(grid[:, a:b]).view(f"S{b - a}").ravel())
             else:
                 classes = _column_classes(cmin[a:b], cmax[a:b])
-                fields.append(_fixed_number(grid, a, classes))
+                fields.append(_fixed_number(grid, a, b, classes))
         out[c.name] = fields[0] if c.kind == "S" else np.stack(fields, axis=1)
     return out
 
@@ -632,10 +663,15 @@ def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float
                 _frame_boundary_error(lines, k, n, where)
 
     if rem == 0 and not last_line_ended and n_full:
-        # no final newline: the last atom line may have been cut mid-way
+        # no final line break: the last atom line may have been cut mid-way.  Evidence: fewer values
+        # than the first atom line, or a shorter line in a file whose other atom lines (at least 8)
+        # all have one length (fixed-width output, as dynamics codes write).
         last, ref = lines[-1], lines[2]
-        cut = len(last.split()) < len(ref.split()) or (
-            n > 1 and len(lines[-2]) == len(ref) and len(last) < len(ref))
+        cut = len(last.split()) < len(ref.split())
+        if not cut and n_full * n > 8:
+            others = np.array(lines, dtype=object).reshape(n_full, stride)[:, 2:].ravel().tolist()[:-1]
+            widths = set(map(len, others))
+            cut = len(widths) == 1 and len(last) < widths.pop()
         if cut:
             n_full, rem = n_full - 1, stride
     else:
