@@ -112,35 +112,33 @@ def prepare(tset, rules: Rules, progress: Callable[[int, int, str | None], None]
     trajs = _trajectories(tset)
     idx = rules.monitor_indices()
     need = max((max(i) for i in idx.values()), default=-1) + 1
-    mons: dict[str, list[np.ndarray]] = {m: [] for m in idx}
-    lengths, ts, drift, times = [], [], [], []
     total = len(trajs)
+    lengths_a = np.fromiter((t.n_frames for t in trajs), dtype=np.intp, count=total)
+    ends = np.cumsum(lengths_a)
+    starts = ends - lengths_a
+    n_total = int(ends[-1]) if total else 0
+    mons = {m: np.empty(n_total) for m in idx}  # filled run by run, no final concatenation
+    times = np.empty(n_total)
+    ts, drift = [], []
     for k, t in enumerate(trajs):
         if t.n_atoms < need:
             raise RulesError(rules.source, f"run {t.run_id} has {t.n_atoms} atoms but the monitors use atom "
                              f"{need}", key="monitors")
         for name, values in monitor_arrays(t.positions, idx).items():
-            mons[name].append(values)
-        lengths.append(t.n_frames)
+            mons[name][starts[k]:ends[k]] = values
         ts.append(t.ts_index)
-        times.append(t.times)
+        times[starts[k]:ends[k]] = t.times
         d = t.energy_drift()
         drift.append(np.nan if d is None else d)
         if progress is not None:
             progress(k + 1, total, t.run_id)
         if cancel is not None and cancel():
             raise ClassificationCancelled(f"classification cancelled after {k + 1} of {total} runs")
-    lengths_a = np.asarray(lengths, dtype=np.intp)
-    ends = np.cumsum(lengths_a)
-    starts = ends - lengths_a
-    cat = (lambda parts: np.concatenate(parts) if parts else np.zeros(0))
     return Prepared(
         run_ids=[t.run_id for t in trajs],
         content_hashes=[t.content_hash for t in trajs],
         starts=starts, ends=ends, ts=starts + np.asarray(ts, dtype=np.intp),
-        times=cat(times).astype(np.float64, copy=False),
-        monitors={m: cat(v).astype(np.float64, copy=False) for m, v in mons.items()},
-        drift_ev=np.asarray(drift, dtype=np.float64),
+        times=times, monitors=mons, drift_ev=np.asarray(drift, dtype=np.float64),
     )
 
 

@@ -41,8 +41,8 @@ def _pos(positions: np.ndarray) -> np.ndarray:
 
 
 def _vec(p: np.ndarray, i: int, j: int) -> np.ndarray:
-    """Vector from atom i to atom j, float64, shape (..., 3)."""
-    return p[..., j, :].astype(np.float64) - p[..., i, :].astype(np.float64)
+    """Vector from atom i to atom j, float64, shape (..., 3) (cast inside the ufunc: no float64 copies)."""
+    return np.subtract(p[..., j, :], p[..., i, :], dtype=np.float64)
 
 
 def distance(positions: np.ndarray, i: int, j: int) -> np.ndarray:
