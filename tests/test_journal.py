@@ -283,3 +283,27 @@ def test_review_events(jpath):
         assert done["kind"] == "review_complete" and done["summary"]["n"] == 40
         assert j.final_label("r1") == "beta"
     assert verify_journal(jpath) == []
+
+
+def test_failed_write_reports_nothing_saved_and_next_open_recovers(jpath, monkeypatch):
+    j = open_j(jpath)
+    j.record("r1", "alpha", content_hash=H1)
+    real_write = os.write
+
+    def half_then_fail(fd, data):
+        if fd == j._fd:
+            real_write(fd, bytes(data[: len(data) // 2]))
+            raise OSError(28, "No space left on device")
+        return real_write(fd, data)
+    monkeypatch.setattr(os, "write", half_then_fail)
+    with pytest.raises(JournalError, match="could not be saved.*No space left"):
+        j.record("r2", "beta", content_hash=H1)
+    monkeypatch.undo()
+    with pytest.raises(JournalError, match="closed"):
+        j.record("r3", "beta", content_hash=H1)
+    j.close()
+    with open_j(jpath) as again:  # the half line is set aside, the chain goes on
+        assert any("moved to" in w for w in again.warnings)
+        assert again.final_label("r2") is None
+        again.record("r2", "beta", content_hash=H1)
+    assert verify_journal(jpath) == []

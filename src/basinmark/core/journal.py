@@ -239,13 +239,23 @@ class LabelJournal:
             raise JournalError(f"the label journal {self.path} was changed on disk by another program "
                                f"({size} bytes instead of {self._size}); reopen it")
         view = memoryview(data)
-        while view:
-            n = os.write(self._fd, view)
-            view = view[n:]
-        os.fsync(self._fd)
+        try:
+            while view:
+                n = os.write(self._fd, view)
+                view = view[n:]
+            os.fsync(self._fd)
+        except OSError as exc:
+            # nothing of this call counts as saved; a partial line is set aside by the next open
+            os.close(self._fd)
+            self._fd = None
+            raise JournalError(f"the label(s) could not be saved to {self.path} ({exc.strerror or exc}); "
+                               "nothing of this change was recorded; reopen the journal to go on") from None
         self._size += len(data)
         self._last_seq, self._last_hash = seq, prev
-        write_head(self.path, seq, prev)
+        try:
+            write_head(self.path, seq, prev)
+        except OSError as exc:  # the events are saved; only the end marker lags (verify will say so)
+            self.warnings.append(f"the head file of {self.path} could not be updated ({exc.strerror or exc})")
         for ev in bodies:
             self._replay.apply(ev)
         return bodies
