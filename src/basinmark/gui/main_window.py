@@ -444,6 +444,8 @@ class MainWindow(QMainWindow):
         self.molecule.set_frame(self.state.frame)
         self.molecule.set_highlight_pairs(self._highlight_pairs())
         self.traces.set_run(traj, self.state.run_result(), self.state.rules, self.state.user_monitors)
+        if self.state.run_id in self.state.run_errors:
+            self.statusBar().showMessage(self.state.run_errors[self.state.run_id], 10000)
         self._on_frame(self.state.frame)
 
     def _on_rules(self) -> None:

@@ -42,6 +42,7 @@ class AppState(QObject):
         self.journal_message: str = ""
         self.labels: pd.DataFrame = pd.DataFrame(columns=LABEL_COLUMNS)
         self._results: dict[str, Any] = {}
+        self.run_errors: dict[str, str] = {}
 
     # --- set and runs -------------------------------------------------------------------
     @property
@@ -136,6 +137,7 @@ class AppState(QObject):
         self.rules_error = error
         self.classification = classification
         self._results.clear()
+        self.run_errors.clear()
         self.rules_changed.emit()
         self.refresh_labels()
 
@@ -147,7 +149,11 @@ class AppState(QObject):
         if run_id not in self._results:
             from basinmark.core.classify import classify_run
 
-            self._results[run_id] = classify_run(self.tset[run_id], self.rules)
+            try:
+                self._results[run_id] = classify_run(self.tset[run_id], self.rules)
+            except Exception as exc:  # one odd run must not break the window; say why instead
+                self.run_errors[run_id] = f"{run_id} could not be classified: {type(exc).__name__}: {exc}"
+                self._results[run_id] = None
         return self._results[run_id]
 
     # --- journal and labels ---------------------------------------------------------------
