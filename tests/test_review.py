@@ -88,6 +88,10 @@ def test_disagreements_only_common_runs_and_warnings():
     assert r.confusion.loc["beta", "alpha"] == 1 and r.confusion.loc["alpha", "alpha"] == 2
     assert any("only 3 runs" in w for w in r.warnings)
     assert any("left out" in w for w in r.warnings)
+    one_sided = compare_labels(pd.Series({"r1": "alpha", "r2": "beta"}), pd.Series({"r1": "alpha", "r2": "alpha"}),
+                               name_b="ben")
+    assert one_sided.kappa == 0.0 and any("ben gave every compared run the same label" in w
+                                          for w in one_sided.warnings)
     same = compare_labels(pd.Series({"r1": "alpha"}), pd.Series({"r1": "alpha"}))
     assert math.isnan(same.kappa) and any("undefined" in w for w in same.warnings)
     none = compare_labels(pd.Series({"r1": "alpha"}), pd.Series({"r2": "alpha"}))

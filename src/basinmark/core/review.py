@@ -94,6 +94,13 @@ class Review:
     only_b: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
 
+    @property
+    def percent_agreement(self) -> float:
+        """Observed agreement in percent (NaN when no run was labeled by both)."""
+        return 100.0 * self.agreement
+
+    se_method: str = SE_METHOD
+
     def summary(self) -> dict:
         """Plain values (no NaN) for a 'review complete' journal event or JSON output."""
         def num(x: float) -> float | None:
@@ -158,8 +165,13 @@ def compare_labels(a: pd.Series | pd.DataFrame, b: pd.Series | pd.DataFrame, *, 
         warnings.append(f"no run was labeled by both {name_a} and {name_b}: there is nothing to compare")
     elif not math.isfinite(k):
         warnings.append("Cohen's kappa is undefined here: both labelers gave every run the same single label")
-    elif n < FEW_RUNS:
-        warnings.append(f"only {n} runs were labeled by both; kappa and its interval are rough at this size")
+    else:
+        for who, side in ((name_a, la), (name_b, lb)):
+            if side.nunique() == 1:
+                warnings.append(f"{who} gave every compared run the same label ({side.iloc[0]}), so kappa is 0 by "
+                                "construction and its interval means little")
+        if n < FEW_RUNS:
+            warnings.append(f"only {n} runs were labeled by both; kappa and its interval are rough at this size")
     if only_a or only_b:
         warnings.append(f"{len(only_a)} runs labeled only by {name_a} and {len(only_b)} only by {name_b} are "
                         "left out of the comparison")
