@@ -1,0 +1,436 @@
+"""The summary view: outcome counts with intervals, the product ratio next to TST, convergence, timings.
+
+Every number comes from the core: :func:`basinmark.core.summary.build_summary` (table, ratio, TST
+ratio, effective ΔΔG, runs needed, convergence, warnings), :mod:`basinmark.core.timing` (commit-time
+and time-gap histograms, the concerted fraction).  The view only lays them out and redraws when
+labels, rules or its own settings change.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import pyqtgraph as pg
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QColor, QPalette
+from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDockWidget, QDoubleSpinBox, QFormLayout,
+                               QHBoxLayout, QHeaderView, QLabel, QMainWindow, QSplitter, QTableWidget,
+                               QTableWidgetItem, QVBoxLayout, QWidget)
+
+from basinmark.core.errors import BasinmarkError
+from basinmark.core.summary import Summary, build_summary
+from basinmark.core.timing import commit_time_histogram, concerted_fraction, gap_mode
+from basinmark.core.units import convert_energy
+from basinmark.gui.colours import outcome_colour
+
+UNITS = ("kcal/mol", "kJ/mol")
+HIST_BINS = 20
+
+
+def _fmt(x: float, digits: int = 3) -> str:
+    if x is None or (isinstance(x, float) and math.isnan(x)):
+        return "—"
+    if math.isinf(x):
+        return "∞" if x > 0 else "−∞"
+    return f"{x:.{digits}f}"
+
+
+class SummaryPanel(QWidget):
+    """Counts, ratio, TST comparison, convergence and timings of the open set's final labels."""
+
+    updated = Signal()
+
+    def __init__(self, state, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.state = state
+        self.summary: Summary | None = None
+        self.commit_hist: pd.DataFrame = pd.DataFrame()
+        self.gap_hist: pd.DataFrame = pd.DataFrame()
+        self.gap_stats: dict | None = None
+        self.error = ""
+        self._unit = UNITS[0]
+        self._build()
+        st = state
+        st.labels_changed.connect(self.refresh)
+        st.rules_changed.connect(self.refresh)
+        st.set_changed.connect(self.refresh)
+        self.apply_palette()
+        self.refresh()
+
+    # --- construction ---------------------------------------------------------------------
+    def _build(self) -> None:
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(4, 4, 4, 4)
+        controls = QHBoxLayout()
+        self.tst_box = QCheckBox("Compare with &TST:", self)
+        self.tst_box.setToolTip("Show the product ratio transition state theory predicts from a ΔΔG‡")
+        self.ddg = QDoubleSpinBox(self)
+        self.ddg.setRange(-50.0, 50.0)
+        self.ddg.setDecimals(3)
+        self.ddg.setSingleStep(0.1)
+        self.ddg.setPrefix("ΔΔG‡ = ")
+        self.ddg.setToolTip("ΔΔG‡ = G‡(B) − G‡(A) for the ratio A : B (positive favours A)")
+        self.ddg.setEnabled(False)
+        self.unit = QComboBox(self)
+        self.unit.addItems(UNITS)
+        self.unit.setToolTip("Energy unit of ΔΔG‡ and of the effective ΔΔG")
+        self.temperature = QDoubleSpinBox(self)
+        self.temperature.setRange(1.0, 5000.0)
+        self.temperature.setDecimals(2)
+        self.temperature.setValue(298.15)
+        self.temperature.setSuffix(" K")
+        self.temperature.setToolTip("Temperature for TST and the effective ΔΔG")
+        self.half_width = QDoubleSpinBox(self)
+        self.half_width.setRange(0.005, 0.45)
+        self.half_width.setDecimals(3)
+        self.half_width.setSingleStep(0.005)
+        self.half_width.setValue(0.05)
+        self.half_width.setPrefix("± ")
+        self.half_width.setToolTip("Wanted half-width of the interval on the share of A among A + B; the view "
+                                   "estimates how many runs that needs")
+        at = QLabel("at", self)
+        need = QLabel("&Runs needed for:", self)
+        need.setBuddy(self.half_width)
+        for w in (self.tst_box, self.ddg, self.unit, at, self.temperature, need, self.half_width):
+            controls.addWidget(w)
+        controls.addStretch(1)
+        outer.addLayout(controls)
+
+        self.warnings = QLabel(self)
+        self.warnings.setObjectName("summaryWarnings")
+        self.warnings.setWordWrap(True)
+        self.warnings.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        outer.addWidget(self.warnings)
+
+        split = QSplitter(Qt.Orientation.Vertical, self)
+        top = QWidget(split)
+        tl = QHBoxLayout(top)
+        tl.setContentsMargins(0, 0, 0, 0)
+        self.table = QTableWidget(0, 5, top)
+        self.table.setHorizontalHeaderLabels(["outcome", "runs", "fraction", "95 % interval", "all at once"])
+        self.table.verticalHeader().setVisible(False)
+        self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        self.table.setToolTip("Counts and fractions of the final labels; 'all at once' are simultaneous "
+                              "intervals that hold for every outcome together")
+        tl.addWidget(self.table, 2)
+        self.lines = QLabel(top)
+        self.lines.setWordWrap(True)
+        self.lines.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
+        self.lines.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        tl.addWidget(self.lines, 3)
+        self.plots = pg.GraphicsLayoutWidget(split)
+        self.plots.setObjectName("summaryPlots")
+        self.p_out = self.plots.addPlot(row=0, col=0, title="Outcomes")
+        self.p_conv = self.plots.addPlot(row=0, col=1, title="Convergence")
+        self.p_commit = self.plots.addPlot(row=1, col=0, title="Commit times")
+        self.p_gap = self.plots.addPlot(row=1, col=1, title="Bond-formation time gap")
+        self.p_out.setLabel("left", "fraction of counted runs")
+        self.p_conv.setLabel("bottom", "runs so far")
+        self.p_commit.setLabel("bottom", "|commit time|", units="fs")
+        self.p_commit.setLabel("left", "runs")
+        self.p_gap.setLabel("bottom", "time gap", units="fs")
+        self.p_gap.setLabel("left", "runs")
+        self.titles = {id(p): p.titleLabel.text for p in self.all_plots}
+        for p in self.all_plots:
+            p.showGrid(x=True, y=True, alpha=0.15)
+            p.setMenuEnabled(False)
+            for name in ("left", "bottom"):
+                p.getAxis(name).enableAutoSIPrefix(False)  # fractions and counts read as they are
+        self.p_commit.addLegend(offset=(-8, 8), labelTextSize="8pt")
+        self.p_conv.addLegend(offset=(-8, 8), labelTextSize="8pt")
+        split.addWidget(top)
+        split.addWidget(self.plots)
+        split.setStretchFactor(0, 0)
+        split.setStretchFactor(1, 1)
+        split.setSizes([190, 600])
+        top.setMinimumHeight(120)
+        self.plots.setMinimumHeight(260)
+        self.split = split
+        outer.addWidget(split, 1)
+
+        self.tst_box.toggled.connect(self.ddg.setEnabled)
+        self.tst_box.toggled.connect(lambda _on: self.refresh())
+        self.ddg.valueChanged.connect(lambda _v: self.refresh())
+        self.unit.currentTextChanged.connect(self._unit_changed)
+        self.temperature.valueChanged.connect(lambda _v: self.refresh())
+        self.half_width.valueChanged.connect(lambda _v: self.refresh())
+
+    @property
+    def all_plots(self) -> tuple:
+        return (self.p_out, self.p_conv, self.p_commit, self.p_gap)
+
+    def apply_palette(self) -> None:
+        pal = self.palette()
+        base, text = pal.color(QPalette.ColorRole.Base), pal.color(QPalette.ColorRole.Text)
+        self.plots.setBackground(base)
+        for p in self.all_plots:
+            self._title(p, p.titleLabel.text)
+            for name in ("left", "bottom"):
+                ax = p.getAxis(name)
+                ax.setPen(pg.mkPen(text))
+                ax.setTextPen(pg.mkPen(text))
+            if p.legend is not None:
+                bg = QColor(base)
+                bg.setAlpha(210)
+                p.legend.setBrush(pg.mkBrush(bg))
+                p.legend.setLabelTextColor(text)
+        warn = QColor("#b3261e") if base.lightness() > 128 else QColor("#ffb4a9")
+        self.warnings.setStyleSheet(f"QLabel#summaryWarnings {{ color: {warn.name()}; font-weight: bold; "
+                                    f"padding: 4px 6px; border: 1px solid {warn.name()}; border-radius: 3px; }}")
+
+    def _title(self, plot, text: str) -> None:
+        plot.setTitle(text, color=self.palette().color(QPalette.ColorRole.Text), size="10pt")
+
+    def changeEvent(self, event) -> None:  # noqa: N802
+        if event.type() == event.Type.PaletteChange and hasattr(self, "plots"):
+            self.apply_palette()
+            self._draw()
+        super().changeEvent(event)
+
+    # --- settings -------------------------------------------------------------------------
+    def _unit_changed(self, unit: str) -> None:
+        old, self._unit = self._unit, unit
+        self.ddg.blockSignals(True)  # keep the same energy in the new unit
+        self.ddg.setValue(float(convert_energy(self.ddg.value(), old, unit)))
+        self.ddg.blockSignals(False)
+        self.refresh()
+
+    def set_tst(self, ddg: float | None, unit: str = "kcal/mol", temperature: float = 298.15) -> None:
+        """Set ΔΔG‡ (None = no TST comparison), its unit and the temperature."""
+        for w in (self.tst_box, self.ddg, self.unit, self.temperature):
+            w.blockSignals(True)
+        self.unit.setCurrentText(unit)
+        self._unit = unit
+        self.temperature.setValue(temperature)
+        self.tst_box.setChecked(ddg is not None)
+        self.ddg.setEnabled(ddg is not None)
+        if ddg is not None:
+            self.ddg.setValue(ddg)
+        for w in (self.tst_box, self.ddg, self.unit, self.temperature):
+            w.blockSignals(False)
+        self.refresh()
+
+    def settings(self) -> dict:
+        return {"ddg": self.ddg.value() if self.tst_box.isChecked() else None, "unit": self.unit.currentText(),
+                "temperature": self.temperature.value(), "half_width": self.half_width.value()}
+
+    # --- computing (all in the core) ------------------------------------------------------
+    def products(self) -> list[str]:
+        rules = self.state.rules
+        if rules is not None:
+            return list(rules.products)
+        from basinmark.core.labels import FIXED_LABELS
+
+        labs = self.state.labels["final_label"] if len(self.state.labels) else []
+        return sorted({str(v) for v in labs if isinstance(v, str) and v} - set(FIXED_LABELS))
+
+    def label_table(self) -> pd.DataFrame:
+        """The state's label table in set order, empty labels as missing (for build_summary)."""
+        lab = self.state.labels.copy()
+        lab["final_label"] = lab["final_label"].where(lab["final_label"].astype(str).str.len() > 0, None)
+        return lab
+
+    def refresh(self) -> None:
+        st = self.state
+        self.summary, self.error = None, ""
+        self.commit_hist, self.gap_hist, self.gap_stats = pd.DataFrame(), pd.DataFrame(), None
+        if st.tset is not None and len(st.labels):
+            labels = self.label_table()
+            notes = []
+            if st.rules is None:
+                notes.append("no rules: every label other than the fixed ones counts as a product")
+            try:
+                self.summary = build_summary(labels, self.products(), notes=notes, **self.settings())
+            except BasinmarkError as exc:
+                self.error = str(exc)
+            self._timings(labels)
+        self._draw()
+        self.updated.emit()
+
+    def _timings(self, labels: pd.DataFrame) -> None:
+        counted = labels[labels["final_label"].notna() & (labels["final_label"] != "excluded")]
+        table = pd.DataFrame({"outcome": counted["final_label"].astype(str),
+                              "commit_time_fs": pd.to_numeric(counted["commit_time_fs"], errors="coerce")})
+        self.commit_hist = commit_time_histogram(table, bins=HIST_BINS)
+        rules, cls = self.state.rules, self.state.classification
+        if rules is None or rules.time_gap is None or cls is None or "time_gap_fs" not in cls:
+            return
+        products = set(rules.products)
+        final = dict(zip(labels["run"], labels["final_label"]))
+        gaps = cls[[final.get(r) in products for r in cls["run"]]]
+        cf = rules.time_gap.concerted_fs
+        self.gap_stats = concerted_fraction(gaps["time_gap_fs"], cf)
+        gt = pd.DataFrame({"outcome": [gap_mode(g, cf) for g in gaps["time_gap_fs"]],
+                           "time_gap_fs": gaps["time_gap_fs"].to_numpy()})
+        self.gap_hist = commit_time_histogram(gt[gt["outcome"] != "not formed"], bins=HIST_BINS, column="time_gap_fs")
+
+    # --- drawing --------------------------------------------------------------------------
+    def _colour(self, label: str) -> QColor:
+        return outcome_colour(label, self.summary.products if self.summary else self.products())
+
+    def _draw(self) -> None:
+        for p in self.all_plots:
+            p.clear()
+            if p.legend is not None:
+                p.legend.clear()
+            self._title(p, self.titles[id(p)])
+        s = self.summary
+        if s is None:
+            self.table.setRowCount(0)
+            self.lines.setText(self.error or "Open a set with rules (or labels) to see its summary.")
+            self.warnings.setText("")
+            self.warnings.setVisible(False)
+            return
+        self._fill_table(s)
+        text = [s._headline()] + s.lines()  # the core's own sentences + [f"Note: {n}" for n in s.notes]
+        self.lines.setText("\n\n".join(text))
+        self.warnings.setText("\n".join(f"⚠ {w}" for w in s.warnings))
+        self.warnings.setVisible(bool(s.warnings))
+        self._draw_outcomes(s)
+        self._draw_convergence(s)
+        self._draw_hist(self.p_commit, self.commit_hist, "commit_time")
+        self._draw_gap()
+
+    def _fill_table(self, s: Summary) -> None:
+        tab = s.table
+        sim = "simultaneous_lo" in tab
+        self.table.setColumnHidden(4, not sim)
+        self.table.setHorizontalHeaderItem(3, QTableWidgetItem(f"{s.confidence_text} interval"))
+        self.table.setRowCount(len(tab))
+        for i, r in enumerate(tab.itertuples(index=False)):
+            cells = [r.label, str(int(r.count)), _fmt(r.fraction), f"{_fmt(r.lo)}–{_fmt(r.hi)}",
+                     f"{_fmt(r.simultaneous_lo)}–{_fmt(r.simultaneous_hi)}" if sim else ""]
+            for j, c in enumerate(cells):
+                item = QTableWidgetItem(c)
+                if j:
+                    item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                self.table.setItem(i, j, item)
+
+    def _draw_outcomes(self, s: Summary) -> None:
+        tab = s.table
+        if tab.empty:
+            return
+        x = np.arange(len(tab), dtype=float)
+        frac = tab["fraction"].to_numpy(float)
+        lo, hi = tab["lo"].to_numpy(float), tab["hi"].to_numpy(float)
+        brushes = [pg.mkBrush(self._colour(lab)) for lab in tab["label"]]
+        self.bars = pg.BarGraphItem(x=x, height=frac, width=0.7, brushes=brushes, pen=pg.mkPen(None))
+        self.p_out.addItem(self.bars)
+        text = self.palette().color(QPalette.ColorRole.Text)
+        self.error_bars = pg.ErrorBarItem(x=x, y=frac, top=hi - frac, bottom=frac - lo, beam=0.25,
+                                          pen=pg.mkPen(text, width=1.5))
+        self.p_out.addItem(self.error_bars)
+        self.p_out.getAxis("bottom").setTicks([[(i, f"{lab} ({int(c)})") for i, (lab, c)
+                                                in enumerate(zip(tab["label"], tab["count"]))]])
+        self.p_out.setYRange(0, max(1e-9, float(np.nanmax(hi))) * 1.08, padding=0)
+        self.p_out.setXRange(-0.6, len(tab) - 0.4, padding=0)
+
+    def _draw_convergence(self, s: Summary) -> None:
+        conv = s.convergence
+        p = self.p_conv
+        if conv is None or conv.empty or not (s.a and s.b):
+            self._title(p, "Convergence (needs two products)")
+            return
+        self._title(p, f"Convergence of {s.a} : {s.b}")
+        p.setLabel("left", f"{s.a} : {s.b}")
+        n = conv["n"].to_numpy(float)
+
+        def finite(col: str) -> np.ndarray:
+            v = conv[col].to_numpy(float)
+            return np.where(np.isfinite(v), v, np.nan)
+
+        r, lo, hi = finite("ratio"), finite("ratio_lo"), finite("ratio_hi")
+        colour = QColor(self._colour(s.a))
+        band = QColor(colour)
+        band.setAlpha(60)
+        ok = np.isfinite(lo) & np.isfinite(hi)
+        if ok.sum() >= 2:
+            c_lo = pg.PlotDataItem(n[ok], lo[ok], pen=pg.mkPen(band))
+            c_hi = pg.PlotDataItem(n[ok], hi[ok], pen=pg.mkPen(band))
+            p.addItem(c_lo)
+            p.addItem(c_hi)
+            p.addItem(pg.FillBetweenItem(c_lo, c_hi, brush=pg.mkBrush(band)))
+        self.conv_curve = pg.PlotDataItem(n, r, pen=pg.mkPen(colour, width=2), connect="finite",
+                                          name=f"observed ({s.confidence_text} band)")
+        p.addItem(self.conv_curve)
+        top = hi[ok][len(hi[ok]) // 4:] if ok.any() else np.array([])
+        ymax = float(np.nanmax(top)) if top.size and np.isfinite(top).any() else None
+        if s.tst_ratio is not None and math.isfinite(s.tst_ratio):
+            line = pg.InfiniteLine(s.tst_ratio, angle=0,
+                                   pen=pg.mkPen(self.palette().color(QPalette.ColorRole.Text), width=1.5,
+                                                style=Qt.PenStyle.DashLine))
+            p.addItem(line)
+            p.legend.addItem(pg.PlotDataItem(pen=line.pen), f"TST {_fmt(s.tst_ratio, 2)}")
+            ymax = max(ymax or 0.0, s.tst_ratio)
+        p.setXRange(0, max(n[-1], 1), padding=0.02)
+        if ymax:
+            p.setYRange(0, ymax * 1.1, padding=0)  # the earliest, widest part of the band would flatten the rest
+
+    def _draw_hist(self, p, hist: pd.DataFrame, what: str) -> None:
+        if hist is None or hist.empty:
+            self._title(p, self.titles[id(p)] + " (none yet)")
+            return
+        for outcome, grp in hist.groupby("outcome", sort=False):
+            edges = np.append(grp["bin_lo_fs"].to_numpy(float), grp["bin_hi_fs"].to_numpy(float)[-1])
+            counts = grp["count"].to_numpy(float)
+            colour = QColor(self._colour(outcome)) if what == "commit_time" else QColor(self._gap_colour(outcome))
+            fill = QColor(colour)
+            fill.setAlpha(70)
+            p.addItem(pg.PlotDataItem(edges, counts, stepMode="center", fillLevel=0, brush=pg.mkBrush(fill),
+                                      pen=pg.mkPen(colour, width=1.5), name=f"{outcome} ({int(counts.sum())})"))
+
+    def _gap_colour(self, mode: str) -> QColor:
+        from basinmark.gui.colours import trace_colour
+
+        return trace_colour(0 if mode == "concerted" else 1)
+
+    def _draw_gap(self) -> None:
+        p = self.p_gap
+        g = self.gap_stats
+        rules = self.state.rules
+        if g is None:
+            self._title(p, "Bond-formation time gap (no [time_gap] in the rules)")
+            return
+        if p.legend is None:
+            p.addLegend(offset=(-8, 8), labelTextSize="8pt")
+        self._draw_hist(p, self.gap_hist, "gap")
+        cf = rules.time_gap.concerted_fs
+        p.addItem(pg.InfiniteLine(cf, angle=90, pen=pg.mkPen(self.palette().color(QPalette.ColorRole.Text),
+                                                              style=Qt.PenStyle.DashLine)))
+        if g["n_formed"]:
+            self._title(p, f"Time gap: {g['concerted']} concerted, {g['stepwise']} stepwise "
+                       f"(concerted {_fmt(g['fraction_concerted'], 2)}, 95 % {_fmt(g['lo'], 2)}–{_fmt(g['hi'], 2)}; "
+                       f"cut {cf:g} fs)")
+        else:
+            self._title(p, "Time gap: no product run formed both bonds")
+
+    # --- for exports ----------------------------------------------------------------------
+    def figure_widget(self) -> QWidget:
+        return self.plots
+
+
+def install_summary_dock(window: QMainWindow) -> QDockWidget:
+    """Add the summary as a dock (bottom, hidden until asked for) with its toggle in the View menu."""
+    from basinmark.gui.map_view import _menu
+
+    panel = SummaryPanel(window.state, window)
+    dock = QDockWidget("Summary", window)
+    dock.setObjectName("dock_summary")
+    dock.setWidget(panel)
+    window.addDockWidget(Qt.DockWidgetArea.BottomDockWidgetArea, dock)
+    dock.hide()
+    docks = getattr(window, "docks", None)
+    if isinstance(docks, dict):
+        docks["summary"] = dock
+    window.summary_panel = panel
+    act = dock.toggleViewAction()
+    act.setText("S&ummary")
+    act.setShortcut("Ctrl+Shift+M")
+    act.setToolTip("Counts, product ratio with its interval, TST comparison, convergence and timings "
+                   "(Ctrl+Shift+M)")
+    _menu(window, "&View").addAction(act)
+    return dock

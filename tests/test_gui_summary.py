@@ -1,0 +1,143 @@
+"""The summary view shows the core's numbers on the window's labels, and follows label changes."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from PySide6.QtCore import QSettings
+
+from basinmark.core import stats
+from basinmark.core.summary import build_summary
+from basinmark.core.timing import commit_time_histogram, concerted_fraction
+from basinmark.gui.main_window import MainWindow
+from basinmark.gui.summary_view import install_summary_dock
+
+from gui_fixtures import TOY_RULES, make_toy_set
+
+pytestmark = pytest.mark.gui
+
+OUTCOMES = ["left", "right", "recrossing", "unfinished", "left", "right", "left", "left", "right", "left"]
+GAP_RULES = TOY_RULES + '\n[time_gap]\nbonds = ["d_left", "d_right"]\nform_below = 1.8\nconcerted_fs = 60.0\n'
+
+
+@pytest.fixture
+def win(qtbot, tmp_path):
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+    (root / "basins.toml").write_text(GAP_RULES)
+    w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(w)
+    dock = install_summary_dock(w)
+    w.show()
+    qtbot.waitExposed(w)
+    with qtbot.waitSignal(w.set_loaded, timeout=20000):
+        w.open_set(root, use_cache=False)
+    dock.show()
+    yield w
+    w.close()
+
+
+def _core(win, **kw):
+    labels = win.state.labels.copy()
+    return build_summary(labels, win.state.rules.products, **kw)
+
+
+def _shown_table(panel) -> dict[str, tuple[int, str, str]]:
+    t = panel.table
+    return {t.item(i, 0).text(): (int(t.item(i, 1).text()), t.item(i, 2).text(), t.item(i, 3).text())
+            for i in range(t.rowCount())}
+
+
+def _expected_table(summary) -> dict[str, tuple[int, str, str]]:
+    return {r.label: (int(r.count), f"{r.fraction:.3f}", f"{r.lo:.3f}–{r.hi:.3f}")
+            for r in summary.table.itertuples(index=False)}
+
+
+def test_numbers_equal_the_core_summary(win):
+    panel = win.summary_panel
+    core = _core(win)
+    assert _shown_table(panel) == _expected_table(core)
+    for line in core.lines():
+        assert line in panel.lines.text()
+    for w in core.warnings:  # thin numbers are said plainly, in the warning box
+        assert w in panel.warnings.text()
+    assert panel.warnings.isVisible() and "rough guide" in panel.warnings.text()
+    # the bars and their error bars are the core's fractions and intervals
+    np.testing.assert_allclose(panel.bars.opts["height"], core.table["fraction"])
+    np.testing.assert_allclose(panel.error_bars.opts["top"], core.table["hi"] - core.table["fraction"])
+    np.testing.assert_allclose(panel.error_bars.opts["bottom"], core.table["fraction"] - core.table["lo"])
+    # the convergence curve is the core's running ratio
+    x, y = panel.conv_curve.getData()
+    ratio = core.convergence["ratio"].to_numpy(float)
+    np.testing.assert_allclose(y[np.isfinite(ratio)], ratio[np.isfinite(ratio)])
+
+
+def test_hand_label_changes_the_summary(win, qtbot):
+    panel = win.summary_panel
+    before = panel.summary.ratio
+    st = win.state
+    with qtbot.waitSignal(panel.updated, timeout=2000):
+        st.journal.record("toy-003", "right", content_hash=st.tset["toy-003"].content_hash, reason="reactive late")
+        st.refresh_labels()
+    assert _shown_table(panel)["right"][0] == 4
+    assert "recrossing" not in _shown_table(panel)
+    core = _core(win)
+    assert panel.summary.ratio == core.ratio != before
+    assert _shown_table(panel) == _expected_table(core)
+
+
+def test_tst_ratio_and_effective_ddg(win):
+    panel = win.summary_panel
+    panel.set_tst(1.364, "kcal/mol", 298.15)
+    s = panel.summary
+    # common practice, no source (REFERENCES.md): 1.364 kcal/mol at 298.15 K gives a TST ratio of about 10.0
+    assert s.tst_ratio == pytest.approx(9.996, abs=0.01)
+    assert s.tst_ratio == stats.tst_ratio(1.364, "kcal/mol", 298.15)
+    assert "predicts 10.0" in panel.lines.text()
+    core = _core(win, ddg=1.364, unit="kcal/mol", temperature=298.15)
+    assert s.effective_ddg == core.effective_ddg
+    # switching the unit keeps the same energy: 1 cal = 4.184 J exactly (thermochemical calorie)
+    panel.unit.setCurrentText("kJ/mol")
+    assert panel.ddg.value() == pytest.approx(1.364 * 4.184, abs=0.006)
+    assert panel.summary.tst_ratio == pytest.approx(9.996, abs=0.02)
+    assert "kJ/mol" in panel.lines.text()
+
+
+def test_runs_needed_follows_the_half_width(win):
+    panel = win.summary_panel
+    panel.half_width.setValue(0.1)
+    core = _core(win, half_width=0.1)
+    assert panel.summary.runs_needed == core.runs_needed
+    assert f"about {core.runs_needed} runs" in panel.lines.text()
+
+
+def test_histograms_come_from_core_timing(win):
+    panel = win.summary_panel
+    lab = win.state.labels
+    table = lab.rename(columns={"final_label": "outcome"})[["outcome", "commit_time_fs"]]
+    expected = commit_time_histogram(table, bins=20)
+    assert panel.commit_hist.reset_index(drop=True).equals(expected.reset_index(drop=True))
+    cls = win.state.classification
+    products = cls[cls["outcome"].isin(win.state.rules.products)]
+    want = concerted_fraction(products["time_gap_fs"], 60.0)
+    got = panel.gap_stats
+    assert got["n_formed"] == want["n_formed"] and got["concerted"] == want["concerted"]
+    if want["n_formed"] == 0:  # the toy products form only one of the two bonds
+        assert "no product run formed both bonds" in panel.p_gap.titleLabel.text
+
+
+def test_no_two_products_says_so(win, qtbot):
+    st = win.state
+    for rid in ("toy-002", "toy-006", "toy-009"):
+        st.journal.record(rid, "excluded", content_hash=st.tset[rid].content_hash, reason="bad start")
+    st.refresh_labels()
+    s = win.summary_panel.summary
+    assert s.k_b == 0 and math.isinf(s.ratio[2])
+    assert any("No run gave right" in w for w in s.warnings)
+    assert "No run gave right" in win.summary_panel.warnings.text()
+
+
+def test_view_menu_has_the_summary_toggle(win):
+    view = next(a.menu() for a in win.menu_bar.actions() if a.menu() and a.text().replace("&", "") == "View")
+    assert any(a.text() == "S&ummary" for a in view.actions())
