@@ -313,3 +313,15 @@ def test_documented_example_loads_and_errors_are_as_documented():
         r.with_threshold("alpha", "r_a", "below", 3.0)
     flat = " ".join(doc.split())
     assert info.value.problem.split(" (tighten")[0] in flat
+
+
+def test_equality_follows_basin_order():
+    r = parse_rules(GOOD)
+    head, rest = GOOD.split("[basins.alpha]")
+    alpha, rest = rest.split("[basins.beta]")
+    beta, tail = rest.split("[flags]")
+    other = parse_rules(head + "[basins.beta]" + beta + "[basins.alpha]" + alpha + "[flags]" + tail)
+    assert other.basins["alpha"] == r.basins["alpha"] and other.basins["beta"] == r.basins["beta"]
+    assert other.basin_names == ["reactant", "beta", "alpha"]
+    assert other != r  # basin order sets the track indices
+    assert parse_rules(GOOD.replace("dwell_fs = 20.0", "dwell_fs = 20")) == r  # 20 and 20.0 are the same value

@@ -177,6 +177,10 @@ class Rules:
     warnings: tuple[str, ...] = field(default=(), compare=False)
     origin: str = field(default="", compare=False)  # where the text came from, for messages
 
+    def __eq__(self, other: object) -> bool:
+        """Same content in the same order (basin order sets the track indices); path and hash are ignored."""
+        return isinstance(other, Rules) and self.to_toml() == other.to_toml()
+
     def __hash__(self) -> int:
         return hash(self.to_toml())
 
