@@ -380,10 +380,12 @@ class MapCanvas(pg.PlotWidget):
                 lx0, lx1 = max(reg.x0, fx.min()), min(reg.x1, fx.max())
                 ly0, ly1 = max(reg.y0, fy.min()), min(reg.y1, fy.max())
                 if lx0 <= lx1 and ly0 <= ly1:
-                    label = pg.TextItem(reg.basin, color=colour.darker(115) if _base.lightness() > 128
-                                        else colour.lighter(130), anchor=(0.5, 0.5))
+                    back = QColor(_base)
+                    back.setAlpha(170)
+                    label = pg.TextItem(reg.basin, color=colour.darker(125) if _base.lightness() > 128
+                                        else colour.lighter(135), anchor=(0.5, 0.5), fill=pg.mkBrush(back))
                     label.setPos((lx0 + lx1) / 2, (ly0 + ly1) / 2)
-                    label.setZValue(-5)
+                    label.setZValue(15)  # above the paths, below the current run
                     self.plot_item.addItem(label, ignoreBounds=True)
                     self.region_texts.append(label)
 
