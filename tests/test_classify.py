@@ -11,8 +11,9 @@ import pandas as pd
 import pytest
 from hypothesis import given, strategies as st
 
-from basinmark.core.classify import (TABLE_COLUMNS, ClassificationCancelled, basin_membership, classify_prepared, classify_run,
-                                     classify_set, mark_changed, outcome_counts, prepare, write_automatic_labels)
+from basinmark.core.classify import (TABLE_COLUMNS, ClassificationCancelled, basin_membership, classify_prepared,
+                                     classify_run, classify_set, mark_changed, outcome_counts, prepare,
+                                     write_automatic_labels)
 from basinmark.core.model import SourceFile, Trajectory, TrajectorySet
 from basinmark.core.rules import parse_rules
 from basinmark.core.units import energy_factor
