@@ -53,6 +53,9 @@ def install_extras(win) -> list[str]:
             print(f"basinmark: the panel {module} could not be added: {type(exc).__name__}: {exc}", file=sys.stderr)
             continue
         added.append(module)
+    docks = getattr(win, "docks", {})
+    if "traces" in docks:
+        docks["traces"].raise_()  # the traces stay in front unless the saved layout says otherwise
     win.restore_layout()
     return added
 

@@ -150,7 +150,7 @@ class PlaybackBar(QWidget):
                 self.buttons[name] = b
         lay.addStretch(1)
         self.time_label = QLabel("–", self)
-        self.time_label.setMinimumWidth(170)
+        self.time_label.setMinimumWidth(120)
         self.time_label.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         lay.addWidget(self.time_label)
         self.speed_box = QComboBox(self)
@@ -190,4 +190,6 @@ class PlaybackBar(QWidget):
         if traj is None:
             self.time_label.setText("–")
         else:
-            self.time_label.setText(f"t = {traj.times[frame]:+.1f} fs   frame {frame + 1}/{traj.n_frames}")
+            self.time_label.setText(f"{traj.times[frame]:+.1f} fs · {frame + 1}/{traj.n_frames}")
+            self.time_label.setToolTip(f"time t = {traj.times[frame]:+.1f} fs (t = 0 at the transition state), "
+                                       f"frame {frame + 1} of {traj.n_frames}")

@@ -229,6 +229,30 @@ class TracesView(QWidget):
                         key = (0 if len(mon.atoms) == 2 else 1, round(float(value), 9))
                         groups.setdefault(key, []).append((bname, cond.describe(), cond.monitor, bound))
         text_colour = self.palette().color(QPalette.ColorRole.Text)
+        label_fill = QColor(self.palette().color(QPalette.ColorRole.Base))
+        label_fill.setAlpha(190)
+        # labels of thresholds close in value would overprint: spread them along the line
+        spans = {}
+        for which in (0, 1):
+            vals = [v for (w, v) in groups if w == which]
+            data = [self.values[n] for n, c in self.curves.items() if (c.getViewBox() is (
+                self.p_dist if which == 0 else self.p_angle).getViewBox())]
+            lo = min([np.nanmin(d) for d in data] + vals, default=0.0)
+            hi = max([np.nanmax(d) for d in data] + vals, default=1.0)
+            spans[which] = max(hi - lo, 1e-9)
+        # clusters of close values: the lowest label goes under its line, the others above, spread out
+        slots: dict[tuple[int, float], tuple[float, bool]] = {}
+        clusters: list[list[tuple[int, float]]] = []
+        for key in sorted(groups):
+            c = clusters[-1] if clusters else None
+            if c and c[-1][0] == key[0] and abs(key[1] - c[-1][1]) < 0.07 * spans[key[0]]:
+                c.append(key)
+            else:
+                clusters.append([key])
+        for c in clusters:
+            for k, key in enumerate(c):
+                below = len(c) > 1 and k == 0
+                slots[key] = (0.02 + 0.34 * (max(k - 1, 0) % 3), below)
         for (which, value), entries in groups.items():
             plot = self.p_dist if which == 0 else self.p_angle
             colour = basin_colour(entries[0][0], names, rules.reactant)
@@ -238,8 +262,10 @@ class TracesView(QWidget):
             text = "; ".join(f"{b}: {', '.join(ds)}" for b, ds in by_basin.items())
             line = pg.InfiniteLine(value, angle=0, movable=self.thresholds_editable,
                                    pen=pg.mkPen(colour, width=1.3, style=Qt.PenStyle.DashLine),
-                                   label=text, labelOpts={"position": 0.02, "color": text_colour,
-                                                          "anchors": [(0, 1), (0, 1)]})
+                                   label=text, labelOpts={"position": slots[(which, value)][0], "color": text_colour,
+                                                          "fill": pg.mkBrush(label_fill),
+                                                          "anchors": [(0, 0), (0, 0)] if slots[(which, value)][1]
+                                                          else [(0, 1), (0, 1)]})
             line.setToolTip(text + ("\nDrag to move this threshold; the set is classified again."
                                     if self.thresholds_editable else ""))
             line.setHoverPen(pg.mkPen(colour, width=3, style=Qt.PenStyle.DashLine))
