@@ -230,6 +230,16 @@ def test_progress_and_mark_changed(rules):
     assert list(marked["flags"]) == ["", "data_changed", ""]
 
 
+def test_prepared_monitors_must_match(rules):
+    prep = prepare([make_run("x", CASES["to_alpha"][0])], rules)
+    more = parse_rules(RULES.replace("r_c = [4, 9]", "r_c = [4, 9]\nr_d = [3, 5]"))
+    with pytest.raises(ValueError, match="r_d"):
+        classify_prepared(prep, more)
+    moved = parse_rules(RULES.replace("r_c = [4, 9]", "r_c = [3, 9]"))
+    with pytest.raises(ValueError, match="r_c"):
+        classify_prepared(prep, moved)
+
+
 def test_empty_set(rules):
     table = classify_set([], rules)
     assert list(table.columns) == TABLE_COLUMNS and len(table) == 0

@@ -74,6 +74,7 @@ class Prepared:
     times: np.ndarray  # (T,) fs
     monitors: dict[str, np.ndarray]  # name -> (T,)
     drift_ev: np.ndarray  # (R,) NaN where a run has no energies
+    monitor_atoms: dict[str, tuple[int, ...]] = field(default_factory=dict)  # name -> 1-based atoms used
 
     def run_slice(self, r: int) -> slice:
         return slice(int(self.starts[r]), int(self.ends[r]))
@@ -139,6 +140,7 @@ def prepare(tset, rules: Rules, progress: Callable[[int, int, str | None], None]
         content_hashes=[t.content_hash for t in trajs],
         starts=starts, ends=ends, ts=starts + np.asarray(ts, dtype=np.intp),
         times=times, monitors=mons, drift_ev=np.asarray(drift, dtype=np.float64),
+        monitor_atoms={m.name: m.atoms for m in rules.monitors.values()},
     )
 
 
@@ -160,6 +162,11 @@ def basin_membership(monitors: dict[str, np.ndarray], rules: Rules) -> tuple[np.
 
 def classify_prepared(prep: Prepared, rules: Rules, with_gap: bool = True) -> Classified:
     """Classify prepared runs with ``rules`` (whose monitors must match those of ``prepare``)."""
+    stale = [m for m, mon in rules.monitors.items()
+             if m not in prep.monitors or (prep.monitor_atoms and prep.monitor_atoms.get(m) != mon.atoms)]
+    if stale:
+        raise ValueError(f"the prepared runs lack monitor(s) {', '.join(stale)} as these rules define them: "
+                         f"call prepare() with these rules")
     track, conflict = basin_membership(prep.monitors, rules)
     t = prep.times
     n = track.size
