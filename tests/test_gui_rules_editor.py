@@ -7,6 +7,7 @@ import hashlib
 import json
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 import pytest
 from PySide6.QtCore import QSettings
@@ -203,3 +204,31 @@ def test_menus(win):
     assert "Edit &Rules" in analysis and "Record &Automatic Labels" in analysis
     file_menu = next(a.menu() for a in win.menu_bar.actions() if a.text() == "&File")
     assert "Save &Rules" in [a.text() for a in file_menu.actions()]
+
+
+def test_sensitivity_sweep_matches_core(win, qtbot):
+    from basinmark.core.sweep import sweep_threshold, sweep_values
+    from basinmark.gui.sweep_view import install_sweep_dock
+
+    dock = install_sweep_dock(win)
+    view = win.sweep_view
+    dock.toggleViewAction().trigger()
+    view.basin.setCurrentText("left")
+    view.monitor.setCurrentText("d_left")
+    view.bound.setCurrentText("below")
+    assert view.current_value() == pytest.approx(1.75)
+    view.start.setValue(1.3)
+    view.stop.setValue(2.1)
+    view.steps.setValue(9)
+    with qtbot.waitSignal(view.finished, timeout=20000):
+        assert view.run() is not None
+    ref = sweep_threshold(win.state.tset, win.state.rules, "left", "d_left", "below", sweep_values(1.3, 2.1, 9),
+                          a="left", b="right")
+    pd.testing.assert_frame_equal(view.table, ref)
+    assert view.current_line.value() == pytest.approx(1.75)
+    # seven runs: the core's "rough guide" note is shown, and values with no finite ratio are named
+    assert "At 9 of 9 values fewer than 20 runs gave left or right" in view.note.text()
+    curve = view.plot.getPlotItem().listDataItems()[-1]
+    np.testing.assert_allclose(curve.yData, ref["ratio"].to_numpy(float))
+    view.prod_b.setCurrentText("left")
+    assert view.run() is None and "two different" in view.status.text()
