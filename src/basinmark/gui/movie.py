@@ -328,13 +328,14 @@ def _write_mp4(path, renderer, frames, fps, progress, cancel) -> MovieResult:
 # --- the window's part -----------------------------------------------------------------------------
 
 def find_menu(window, object_name: str, title: str):
-    """The menu with ``object_name`` in the window's menu bar, created (before Help) if missing."""
+    """The menu with ``object_name`` (or titled ``title``) in the window's menu bar, created before Help if missing."""
     from PySide6.QtWidgets import QMenu
 
     bar = getattr(window, "menu_bar", None) or window.menuBar()
-    for act in bar.actions():
+    plain = title.replace("&", "")
+    for act in bar.actions():  # by object name, or by title (other panels may have made it first)
         menu = act.menu()
-        if menu is not None and menu.objectName() == object_name:
+        if menu is not None and (menu.objectName() == object_name or act.text().replace("&", "") == plain):
             return menu
     menu = QMenu(title, window)
     menu.setObjectName(object_name)
