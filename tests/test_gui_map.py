@@ -203,3 +203,41 @@ def test_map_axes_lists_rules_then_added_monitors():
     axes = map_axes(R(), [(2, 1), (1, 3)])
     assert [a.key for a in axes] == ["m1", "m2", "d(1-3)"]  # (2, 1) is m1 reversed
     assert [a.unit for a in axes] == ["Å", "°", "Å"]
+
+
+# --- exports from the window -------------------------------------------------------------------
+
+def test_export_map_figure_png_and_svg(win, tmp_path):
+    import xml.etree.ElementTree as ET
+
+    from PIL import Image
+
+    from basinmark.gui.exports import export_figure, install_export_menu
+
+    install_export_menu(win)
+    canvas = win.map_panel.canvas
+    png = export_figure(canvas, tmp_path / "map.png", size=(500, 400))
+    with Image.open(png) as im:  # reference reader: Pillow
+        assert im.size == (500, 400)
+    svg = export_figure(canvas, tmp_path / "map.svg")
+    assert ET.parse(svg).getroot().tag == "{http://www.w3.org/2000/svg}svg"  # reference parser: xml.etree
+    assert canvas.curves["left"].cacheMode() == canvas.curves["left"].CacheMode.DeviceCoordinateCache  # restored
+    names = [a.text() for a in win.export_menu.actions() if a.text()]
+    assert "Map &Figure…" in names and "Current R&un (XYZ)…" in names
+
+
+def test_export_current_frame_and_run(win, tmp_path):
+    import ase.io
+
+    from basinmark.gui.exports import NothingToExport, export_frame, export_run
+
+    win.state.set_run("toy-002")
+    win.state.set_frame(7)
+    traj = win.state.tset["toy-002"]
+    atoms = ase.io.read(export_frame(win.state, tmp_path / "f.xyz"))  # reference reader: ase.io
+    np.testing.assert_allclose(atoms.positions, traj.positions[7], atol=1e-4)
+    frames = ase.io.read(export_run(win.state, tmp_path / "r.xyz"), index=":")
+    np.testing.assert_allclose(np.stack([a.positions for a in frames]), traj.positions, atol=1e-4)
+    win.state.run_id = ""
+    with pytest.raises(NothingToExport):
+        export_frame(win.state, tmp_path / "g.xyz")

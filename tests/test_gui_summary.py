@@ -141,3 +141,27 @@ def test_no_two_products_says_so(win, qtbot):
 def test_view_menu_has_the_summary_toggle(win):
     view = next(a.menu() for a in win.menu_bar.actions() if a.menu() and a.text().replace("&", "") == "View")
     assert any(a.text() == "S&ummary" for a in view.actions())
+
+
+def test_exports_of_the_summary_and_label_table(win, tmp_path):
+    import xml.etree.ElementTree as ET
+
+    import pandas as pd
+    from PIL import Image
+
+    from basinmark.gui.exports import export_figure, export_label_table, export_summary
+
+    panel = win.summary_panel
+    panel.set_tst(0.8)
+    md = export_summary(win.state, tmp_path / "s.md", panel).read_text(encoding="utf-8")
+    assert md == panel.summary.to_markdown() and "TST with ΔΔG‡ = 0.80" in md
+    back = pd.read_csv(export_summary(win.state, tmp_path / "s.csv", panel))
+    assert back["quantity"].tolist() == panel.summary.to_frame()["quantity"].tolist()
+    labels = pd.read_csv(export_label_table(win.state, tmp_path / "labels.csv"), keep_default_na=False)
+    assert labels["run"].tolist() == win.state.labels["run"].tolist()
+    assert labels["final_label"].tolist() == win.state.labels["final_label"].tolist()
+    png = export_figure(panel.plots, tmp_path / "plots.png", size=(800, 600))
+    with Image.open(png) as im:  # reference reader: Pillow
+        assert im.size == (800, 600)
+    svg = export_figure(panel.plots, tmp_path / "plots.svg")
+    assert ET.parse(svg).getroot().tag == "{http://www.w3.org/2000/svg}svg"

@@ -84,28 +84,46 @@ def _uncached(widget):
 
 
 def save_widget(widget, path: str | Path, size: tuple[int, int] | None = None) -> Path:
-    """Render ``widget`` to ``path`` (.png or .svg); ``size`` in pixels resizes it first (default: as it is)."""
-    from PySide6.QtCore import QRect, QSize, Qt
+    """Render ``widget`` to ``path`` (.png or .svg) at ``size`` pixels (default: its size on screen).
+
+    A pyqtgraph view is laid out again at the asked size and its scene painted (so a plot docked in the
+    window exports at any size); any other widget is painted as it is, resized first when it is alone.
+    """
+    from PySide6.QtCore import QRect, QRectF, QSize, Qt
     from PySide6.QtGui import QImage, QPainter, QPalette
     from PySide6.QtSvg import QSvgGenerator
     from PySide6.QtWidgets import QApplication
 
     path, suffix = _check(path, size)
-    old_size = widget.size()
-    if size is not None:
+    central = getattr(widget, "centralWidget", None)
+    scene_mode = hasattr(widget, "scene") and central is not None and not callable(central)
+    if not scene_mode and size is not None and widget.parentWidget() is None:
         widget.resize(*size)
     if not widget.isVisible() and widget.parentWidget() is None:
         widget.setAttribute(Qt.WidgetAttribute.WA_DontShowOnScreen, True)
         widget.show()
     QApplication.processEvents()
-    w, h = widget.width(), widget.height()
+    w, h = size if (scene_mode and size is not None) else (widget.width(), widget.height())
+    background = widget.backgroundBrush().color() if scene_mode else widget.palette().color(QPalette.ColorRole.Base)
+    old_geometry = central.geometry() if scene_mode else None
+
+    def paint(painter: QPainter) -> None:
+        if scene_mode:
+            target = QRectF(0, 0, w, h)
+            painter.fillRect(target, background)
+            central.setGeometry(target)  # lay the plots out at the asked size
+            QApplication.processEvents()
+            widget.scene().render(painter, target, target)
+        else:
+            widget.render(painter)
+
     try:
         if suffix == ".png":
             image = QImage(w, h, QImage.Format.Format_ARGB32)
-            image.fill(widget.palette().color(QPalette.ColorRole.Base))
+            image.fill(background)
             painter = QPainter(image)
             painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
-            widget.render(painter)
+            paint(painter)
             painter.end()
             if not image.save(str(path), "PNG"):
                 raise FigureError(f"{path}: the image could not be written")
@@ -119,11 +137,11 @@ def save_widget(widget, path: str | Path, size: tuple[int, int] | None = None) -
                 painter = QPainter()
                 if not painter.begin(gen):
                     raise FigureError(f"{path}: the SVG file could not be written")
-                widget.render(painter)
+                paint(painter)
                 painter.end()
     finally:
-        if size is not None and widget.parentWidget() is not None:
-            widget.resize(old_size)
+        if old_geometry is not None:
+            central.setGeometry(old_geometry)
     if not path.is_file():
         raise FigureError(f"{path}: the figure was not written")
     return path
