@@ -26,6 +26,7 @@ from basinmark.demo.integrate import velocity_verlet
 from basinmark.demo.sampling import find_saddle, landmarks, normal_modes, quasiclassical
 from basinmark.demo.scenario import basins_toml, readme_text
 from basinmark.demo.surface import PAIR_A, PAIR_B, PAIR_C, SYMBOLS, Surface
+from basinmark.core.errors import SetError
 from basinmark.core.units import energy_factor
 
 #: region thresholds (Å) shared by the stop test and the bundled rules file
@@ -75,11 +76,12 @@ class GenerateSummary:
     def counts(self) -> Counter:
         return Counter(self.outcome(r) for r in self.ends)
 
-    def report_lines(self) -> list[str]:
+    def report_lines(self, with_folder: bool = True) -> list[str]:
         c = self.counts()
         kcal = energy_factor("kcal/mol")
         drift = np.array(list(self.max_drift_ev.values())) / kcal
-        lines = [f"{self.runs} runs written to {self.out_dir} ({self.bytes_written / 1e6:.2f} MB), seed {self.seed},"
+        where = f" to {self.out_dir}" if with_folder else ""
+        lines = [f"{self.runs} runs written{where} ({self.bytes_written / 1e6:.2f} MB), seed {self.seed},"
                  f" T = {self.settings.temperature:g} K"]
         for key in ("alpha", "beta", "recrossing", "unfinished", "product-to-product"):
             if c.get(key):
@@ -159,6 +161,9 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
     settings = replace(settings or DemoSettings(), temperature=float(temperature))
     surface = surface or Surface()
     out = Path(out_dir)
+    for folder in (out, out / "runs"):
+        if folder.exists() and not folder.is_dir():
+            raise SetError(f"{folder}: exists and is not a folder; choose another place for the demo set")
     (out / "runs").mkdir(parents=True, exist_ok=True)
 
     saddle = find_saddle(surface)
@@ -202,7 +207,7 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
     energies = {k: float(surface.energy(x)) - e_ts for k, x in points.items()}
     (out / "README.md").write_text(
         readme_text(energies, -float(modes.wavenumbers[0]), runs, seed, settings.temperature,
-                    summary.report_lines()), encoding="utf-8")
+                    summary.report_lines(with_folder=False)), encoding="utf-8")
     if progress is not None:
         progress(total_steps + 1, total_steps + 1)
     return summary
