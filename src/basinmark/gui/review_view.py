@@ -93,6 +93,7 @@ class ReviewPanel(QWidget):
         self.queue: pd.DataFrame = pd.DataFrame()
         self.other_path: Path | None = None
         self._completed_key: tuple | None = None
+        self._why_shown = ""
         lay = QVBoxLayout(self)
         lay.setContentsMargins(6, 4, 6, 4)
 
@@ -173,6 +174,9 @@ class ReviewPanel(QWidget):
         self.queue_view.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.queue_view.verticalHeader().setVisible(False)
         self.queue_view.horizontalHeader().setStretchLastSection(True)
+        self.queue_view.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
+        self.queue_view.setWordWrap(False)
+        self.queue_view.verticalHeader().setDefaultSectionSize(self.fontMetrics().height() + 8)
         self.queue_view.setToolTip("Runs the two sources disagree on. Select one to see it; decide with the "
                                    "label keys 1–9, or A / B to take one side's label.")
         lay.addWidget(self.queue_view, 1)
@@ -330,7 +334,7 @@ class ReviewPanel(QWidget):
         agree = "n/a" if not math.isfinite(r.agreement) else f"{100 * r.agreement:.1f} %"
         ci = ("" if not math.isfinite(r.ci[0]) else
               f" ({100 * r.confidence:g} % interval {r.ci[0]:.3f} to {r.ci[1]:.3f})")
-        band = f", {r.band}" if r.band else ""
+        band = f" · Landis–Koch band: <b>{r.band}</b>" if r.band else ""
         self.summary.setText(
             f"<b>A</b> = {r.name_a}, <b>B</b> = {r.name_b}: {r.n} runs labeled by both · agreement "
             f"<b>{agree}</b> · Cohen's kappa <b>{self.kappa_text()}</b>{ci}{band}"
@@ -384,6 +388,7 @@ class ReviewPanel(QWidget):
                 if k == 0 and self.state.tset is not None and rec.run not in self.state.tset:
                     item.setToolTip("this run is not in the open set")
                 self.queue_view.setItem(i, k, item)
+        self.queue_view.resizeColumnsToContents()
         total = len(r.disagreements)
         self.queue_title.setText(f"Disagreements to decide: {len(q)} of {total}" if total else
                                  "Disagreements: none")
@@ -412,6 +417,9 @@ class ReviewPanel(QWidget):
         self.reason.setEnabled(not why)
         if why:
             self.status.setText(why)
+        elif self.status.text() == self._why_shown:
+            self.status.setText("")
+        self._why_shown = why
 
     def current_row(self) -> dict | None:
         rows = self.queue_view.selectionModel().selectedRows() if self.queue_view.selectionModel() else []
@@ -424,6 +432,8 @@ class ReviewPanel(QWidget):
         row = self.current_row()
         if row is not None:
             self.state.set_run(row["run"])
+            if self.choice.findText(row["label_a"]) >= 0:
+                self.choice.setCurrentText(row["label_a"])
 
     def decide_by_key(self, key: str) -> bool:
         if key in ("A", "B"):

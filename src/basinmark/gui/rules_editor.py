@@ -159,6 +159,7 @@ class RulesEditor(QWidget):
         self.monitors.verticalHeader().setVisible(False)
         self.monitors.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.monitors.setToolTip("Double-click or F2 to edit; atoms as e.g. '1, 6'")
+        self.monitors.setMaximumHeight(150)
         lay.addWidget(self.monitors)
         row = QHBoxLayout()
         self.add_monitor = QPushButton("Add Monitor", self)
@@ -560,7 +561,8 @@ class RulesEditor(QWidget):
         else:
             table = outcome_counts(st.classification, st.rules)
             parts = [f"{r.outcome}: {r.count}" for r in table.itertuples(index=False)]
-            self.counts.setText(f"Automatic outcomes of {len(st.classification)} runs — " + " · ".join(parts))
+            self.counts.setText(f"Automatic outcomes under these rules ({len(st.classification)} runs): "
+                                + " · ".join(parts))
         unsaved = st.rules is not None and getattr(st.rules, "path", None) is None
         self.saved_note.setText("These rules are not saved: Save Rules writes them, and automatic labels "
                                 "can only be recorded from saved rules." if unsaved else "")
@@ -568,10 +570,13 @@ class RulesEditor(QWidget):
     def _update_buttons(self) -> None:
         st = self.state
         self.save_button.setEnabled(st.rules is not None)
-        self.record_button.setEnabled(st.rules is not None and st.classification is not None and not st.readonly)
+        unsaved = st.rules is not None and getattr(st.rules, "path", None) is None
+        self.record_button.setEnabled(st.rules is not None and st.classification is not None and not st.readonly
+                                      and not unsaved)
         self.record_button.setToolTip(
             "The label journal is read-only here" if st.readonly else
-            "Write every run's automatic outcome under these (saved) rules into the label journal as one batch")
+            "Save the rules first: automatic labels record the hash of a saved rules file" if unsaved else
+            "Write every run's automatic outcome under these saved rules into the label journal as one batch")
 
     def save(self, path: str | Path | None = None) -> bool:
         """Write the rules in force to ``path`` (default: the rules file they came from)."""
