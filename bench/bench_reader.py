@@ -4,7 +4,11 @@ Run: ``.venv/bin/python bench/bench_reader.py``.  Writes (with ase.io.write)
 5,000 frames of a 12-atom model system with time/epot/ekin comment keys into a
 temporary folder, reads it with both readers in this process (best of 3 each)
 and prints throughput in MB/s of file bytes and the ratio (target >= 20x).
-The same is done for the gzip-compressed file.  Takes well under a minute.
+The gzip-compressed comparison uses a 1,000-frame file and a single ase run:
+``ase.io.read`` on a compressed file slows down faster than linearly with the
+number of frames (measured: about 5 s for 1,000 frames, over a minute for
+5,000), so the full file would not fit in the time budget.  Takes well under a
+minute.
 """
 
 from __future__ import annotations
@@ -22,6 +26,7 @@ from ase import Atoms
 from basinmark.core.io import read_frames
 
 N_FRAMES = 5000
+N_FRAMES_GZIP = 1000
 TARGET = 20.0
 
 
@@ -48,10 +53,10 @@ def best_of(fn, repeat: int = 3) -> float:
     return best
 
 
-def compare(path: Path, label: str) -> float:
+def compare(path: Path, label: str, ref_repeat: int = 3) -> float:
     size_mb = path.stat().st_size / 1e6
     ours = best_of(lambda: read_frames(path))
-    ref = best_of(lambda: ase.io.read(path, index=":"))
+    ref = best_of(lambda: ase.io.read(path, index=":"), ref_repeat)
     block = read_frames(path)
     frames = ase.io.read(path, index=":")
     # the two readers must agree, else the timing means nothing
@@ -60,7 +65,7 @@ def compare(path: Path, label: str) -> float:
     ratio = ref / ours
     print(f"{label}: {path.name}, {size_mb:.2f} MB on disk, {block.n_frames} frames x {block.n_atoms} atoms")
     print(f"  ours          {ours * 1e3:8.1f} ms  {size_mb / ours:8.1f} MB/s")
-    print(f"  ase.io.read   {ref * 1e3:8.1f} ms  {size_mb / ref:8.1f} MB/s")
+    print(f"  ase.io.read   {ref * 1e3:8.1f} ms  {size_mb / ref:8.1f} MB/s  (best of {ref_repeat})")
     print(f"  ours / ase.io.read = {ratio:.1f}x (target >= {TARGET:g}x){'' if ratio >= TARGET else '  BELOW TARGET'}")
     return ratio
 
@@ -69,9 +74,12 @@ def main() -> int:
     with tempfile.TemporaryDirectory() as tmp:
         plain = Path(tmp) / "bench.extxyz"
         ase.io.write(plain, make_frames(), format="extxyz")
-        packed = Path(tmp) / "bench.extxyz.gz"
-        packed.write_bytes(gzip.compress(plain.read_bytes(), compresslevel=6))
-        ratios = [compare(plain, "extended XYZ"), compare(packed, "gzip-compressed extended XYZ")]
+        small = Path(tmp) / "bench_small.extxyz"
+        ase.io.write(small, make_frames(N_FRAMES_GZIP), format="extxyz")
+        packed = Path(tmp) / "bench_small.extxyz.gz"
+        packed.write_bytes(gzip.compress(small.read_bytes(), compresslevel=6))
+        ratios = [compare(plain, "extended XYZ"),
+                  compare(packed, "gzip-compressed extended XYZ (MB/s of compressed bytes)", ref_repeat=1)]
     return 0 if min(ratios) >= TARGET else 1
 
 

@@ -279,7 +279,7 @@ def _column_classes(cmin: np.ndarray, cmax: np.ndarray) -> str:
 def _sign_zone(zone: np.ndarray) -> np.ndarray:
     """Check the leading mixed columns of a number (spaces, then an optional sign, then digits).
 
-    Returns a boolean per row: negative.  Raises _Slow on anything else.
+    ``zone`` is (columns, lines).  Returns a boolean per line: negative.  Raises _Slow on anything else.
     """
     isdig = (zone >= 48) & (zone <= 57)
     space = zone == 32
@@ -288,42 +288,62 @@ def _sign_zone(zone: np.ndarray) -> np.ndarray:
     if not (isdig | space | sign).all():
         raise _Slow
     nonspace = ~space
-    if (nonspace[:, :-1] & space[:, 1:]).any() or (sign[:, 1:] & nonspace[:, :-1]).any():
+    if (nonspace[:-1] & space[1:]).any() or (sign[1:] & nonspace[:-1]).any():
         raise _Slow
-    return minus.any(axis=1)
+    return minus.any(axis=0)
 
 
-def _horner(grid: np.ndarray, columns: range, mixed: int) -> np.ndarray:
-    """Integer value of digit columns (the first ``mixed`` of them may hold spaces or a sign: counted as 0).
+_W32 = [np.array([10.0 ** (k - 1 - i) for i in range(k)], dtype=np.float32) for k in range(8)]
 
-    Exact in float64 while the value stays below 2**53 (15 digits); longer
-    numbers can differ from a correctly rounded parse in the last bit, far
-    below the float32 precision positions are stored in.
+
+def _horner(cm: np.ndarray, columns: list[int], mixed: int) -> np.ndarray:
+    """Integer value of digit columns (the first ``mixed`` may hold spaces or a sign: counted as 0).
+
+    ``cm`` is the byte matrix transposed, (columns, lines), so each column is
+    contiguous.  Columns are taken in chunks of at most 7 from the right; each
+    chunk's digits times their place values are summed by a float32
+    vector-matrix product.  Every product and partial sum is an integer below
+    2**24, so the float32 result is exact; chunks are combined in float64,
+    exact below 2**53 (the caller sends longer numbers elsewhere).
     """
-    acc = np.zeros(grid.shape[0])
-    for i, j in enumerate(columns):
-        digit = grid[:, j] - np.uint8(48)
-        if i < mixed:
-            digit[digit > 9] = 0
-        acc *= 10.0
-        acc += digit
-    return acc
+    value = np.zeros(cm.shape[1])
+    hi = len(columns)
+    scale = 1.0
+    while hi > 0:
+        lo = max(0, hi - 7)
+        idx = columns[lo:hi]
+        k = hi - lo
+        if idx[-1] - idx[0] == k - 1:
+            chunk = cm[idx[0]:idx[-1] + 1] - np.uint8(48)
+        else:
+            chunk = cm[idx] - np.uint8(48)
+        if lo < mixed:
+            head = chunk[:mixed - lo]
+            head[head > 9] = 0
+        part = _W32[k] @ chunk.astype(np.float32)
+        if scale == 1.0:
+            value += part
+        else:
+            value += part.astype(np.float64) * scale
+        scale *= 10.0 ** k
+        hi = lo
+    return value
 
 
-def _digit_span(grid: np.ndarray, a: int, n_lead: int) -> int:
+def _digit_span(cm: np.ndarray, a: int, n_lead: int) -> int:
     """How many of the leading mixed columns can hold a digit (from the first one that does)."""
     if not n_lead:
         return 0
-    capable = np.flatnonzero(grid[:, a:a + n_lead].max(axis=0) >= 48)
+    capable = np.flatnonzero(cm[a:a + n_lead].max(axis=1) >= 48)
     return n_lead - int(capable[0]) if len(capable) else 0
 
 
-def _field_by_strtod(grid: np.ndarray, a: int, end: int) -> np.ndarray:
+def _field_by_strtod(cm: np.ndarray, a: int, end: int) -> np.ndarray:
     """Convert a validated field in C with numpy.fromstring (for mantissas beyond 15 digits, where
     place-value sums in float64 would no longer be exact)."""
-    n, w = grid.shape[0], end - a
+    w, n = end - a, cm.shape[1]
     text = np.full((n, w + 1), 32, np.uint8)
-    text[:, :w] = grid[:, a:end]
+    text[:, :w] = cm[a:end].T
     raw = text.tobytes()
     if b"d" in raw or b"D" in raw:
         raw = raw.translate(_FORTRAN)
@@ -333,7 +353,7 @@ def _field_by_strtod(grid: np.ndarray, a: int, end: int) -> np.ndarray:
     return values
 
 
-def _fixed_number(grid: np.ndarray, a: int, end: int, classes: str) -> np.ndarray:
+def _fixed_number(cm: np.ndarray, a: int, end: int, classes: str) -> np.ndarray:
     """Convert one fixed-width numeric field, byte columns ``a:end`` (classes: its column letters)."""
     m = _CLASS_RE.fullmatch(classes)
     if m is None:
@@ -345,18 +365,18 @@ def _fixed_number(grid: np.ndarray, a: int, end: int, classes: str) -> np.ndarra
         lead, ipart, dot, frac, exp, esign, edig = g[7:14]
     lead, ipart, frac = lead or "", ipart or "", frac or ""
     n_lead, n_int = len(lead), len(ipart)
-    if _digit_span(grid, a, n_lead) + n_int + len(frac) > 15:
-        return _field_by_strtod(grid, a, end)
-    negative = _sign_zone(grid[:, a:a + n_lead]) if n_lead else None
+    if _digit_span(cm, a, n_lead) + n_int + len(frac) > 15:
+        return _field_by_strtod(cm, a, end)
+    negative = _sign_zone(cm[a:a + n_lead]) if n_lead else None
     mant_cols = list(range(a, a + n_lead + n_int))
     if dot:
         mant_cols += list(range(a + n_lead + n_int + 1, a + n_lead + n_int + 1 + len(frac)))
-    value = _horner(grid, mant_cols, n_lead)
+    value = _horner(cm, mant_cols, n_lead)
     decimals = len(frac)
     if exp:
         e0 = a + n_lead + n_int + (1 + len(frac) if dot else 0) + 1
-        eneg = _sign_zone(grid[:, e0:e0 + len(esign)]) if esign else None
-        expo = _horner(grid, range(e0, e0 + len(esign) + len(edig)), len(esign)).astype(np.int64)
+        eneg = _sign_zone(cm[e0:e0 + len(esign)]) if esign else None
+        expo = _horner(cm, list(range(e0, e0 + len(esign) + len(edig))), len(esign)).astype(np.int64)
         if eneg is not None:
             np.negative(expo, out=expo, where=eneg)
         q = expo - decimals
@@ -366,7 +386,7 @@ def _fixed_number(grid: np.ndarray, a: int, end: int, classes: str) -> np.ndarra
         qc = np.clip(q, -22, 22)
         value = np.where(qc >= 0, value * _POW10[np.clip(qc, 0, None)], value / _POW10[np.clip(-qc, 0, None)])
         for r in np.flatnonzero(far).tolist():
-            value[r] = float(grid[r, a:end].tobytes().translate(_FORTRAN))
+            value[r] = float(cm[a:end, r].tobytes().translate(_FORTRAN))
         if negative is not None and far.any():
             negative = negative & ~far  # float() already applied the sign
     elif decimals:
@@ -379,18 +399,21 @@ def _fixed_number(grid: np.ndarray, a: int, end: int, classes: str) -> np.ndarra
 def _parse_fixed(block: bytes, n_lines: int, cols: list[_Column]) -> dict[str, np.ndarray]:
     """Fixed-width path (columns at the same byte offsets on every atom line); raises _Slow when it does not apply.
 
-    Each byte column is summarised by its minimum and maximum over all lines,
-    which classifies it (digits only, the decimal point, an exponent letter,
-    or mixed); only the few mixed columns are checked byte by byte, and numbers
-    are assembled column by column.  Any doubt raises _Slow, and the general
-    path then parses the file (and reports errors with their line).
+    The byte matrix is transposed once so that every byte column is
+    contiguous (the strided alternative re-reads the whole file per column).
+    Each column is summarised by its minimum and maximum over all lines, which
+    classifies it (digits only, the decimal point, an exponent letter, or
+    mixed); only the few mixed columns are checked byte by byte.  Any doubt
+    raises _Slow, and the general path then parses the file (and reports
+    errors with their line).
     """
     if any(c.kind not in ("S", "R", "I") or (c.kind == "S" and c.count != 1) for c in cols):
         raise _Slow
     grid = _fixed_width_matrix(block, n_lines)
     if grid is None:
         raise _Slow
-    cmin, cmax = grid.min(axis=0), grid.max(axis=0)
+    cm = np.ascontiguousarray(grid.T)
+    cmin, cmax = cm.min(axis=1), cm.max(axis=1)
     if cmin.min() < 32 or cmax.max() > 126:
         raise _Slow
     used = (cmax != 32).view(np.int8)
@@ -404,16 +427,16 @@ def _parse_fixed(block: bytes, n_lines: int, cols: list[_Column]) -> dict[str, n
         for t in range(c.start, c.start + c.count):
             a, b = starts[t], ends[t]
             if c.kind == "S":
-                ns = grid[:, a:b] != 32
+                ns = cm[a:b] != 32
                 # exactly one token per line in this field
-                if not ns[:, 0].all() and not ns[:, -1].all():
+                if not ns[0].all() and not ns[-1].all():
                     raise _Slow
-                if b - a > 1 and (ns[:, 1:] & ~ns[:, :-1]).sum() + int(ns[:, 0].sum()) != n_lines:
+                if b - a > 1 and (ns[1:] & ~ns[:-1]).sum() + int(ns[0].sum()) != n_lines:
                     raise _Slow
-                fields.append(np.ascontiguousarray(grid[:, a:b]).view(f"S{b - a}").ravel())
+                fields.append(np.ascontiguousarray(cm[a:b].T).view(f"S{b - a}").ravel())
             else:
                 classes = _column_classes(cmin[a:b], cmax[a:b])
-                fields.append(_fixed_number(grid, a, b, classes))
+                fields.append(_fixed_number(cm, a, b, classes))
         out[c.name] = fields[0] if c.kind == "S" else np.stack(fields, axis=1)
     return out
 
@@ -693,10 +716,9 @@ def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float
         lines = lines[: n_full * stride]
 
     comments = lines[1::stride]
-    if stride == 3:
-        atom_lines = lines[2::3]
-    else:
-        atom_lines = np.array(lines, dtype=object).reshape(n_full, stride)[:, 2:].ravel().tolist()
+    atom_lines = lines  # (lines is not used below)
+    del atom_lines[1::stride]  # extended-slice deletion runs in C: comment lines out,
+    del atom_lines[0::stride - 1]  # then the count lines; what is left are the atom lines in order
     block = b"\n".join(atom_lines)
     n_lines = len(atom_lines)
 
