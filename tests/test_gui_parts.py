@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from hypothesis import given
+from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from PySide6.QtGui import QKeySequence
 from PySide6.QtWidgets import QWidget
@@ -238,3 +238,37 @@ def test_molecule_and_traces_follow_a_dark_palette(qtbot):
     tv.setPalette(pal)
     tv.apply_palette()
     assert tv.glw.backgroundBrush().color() == QColor("#1e1f22")
+
+
+@settings(max_examples=30, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(st.lists(st.booleans(), min_size=1, max_size=15), st.integers(0, 14), st.sampled_from([1, -1, 3, -2]))
+def test_step_run_matches_a_plain_walk(qtbot, tmp_path_factory, labeled, current, step):
+    # reference: a plain walk over the set order, skipping runs the "Unlabeled" filter hides
+    import pandas as pd
+
+    current %= len(labeled)
+    s = AppState()
+    table = RunTable(s)
+    from basinmark.core.model import TrajectorySet
+
+    from gui_fixtures import toy_trajectory
+    ids = [f"r{i:02d}" for i in range(len(labeled))]
+    s.tset = TrajectorySet(tmp_path_factory.mktemp("w"), {r: toy_trajectory(r, "left", n_half=3) for r in ids})
+    s.run_id = ids[current]
+    s.labels = pd.DataFrame({"run": ids, "auto_label": "left", "hand_label": ["left" if x else "" for x in labeled],
+                             "final_label": "left", "commit_time_fs": 1.0, "flags": "", "labeler": "",
+                             "reason": "", "data_changed": False})
+    s.labels_changed.emit()
+    table.set_filter("unlabeled")
+    visible = [r for r, x in zip(ids, labeled) if not x]
+    if ids[current] in visible:
+        j = visible.index(ids[current]) + step
+    else:
+        after = [k for k, r in enumerate(visible) if r > ids[current]]
+        first_after = after[0] if after else len(visible)
+        j = first_after + step - 1 if step > 0 else first_after + step
+    expected = visible[j] if 0 <= j < len(visible) else ids[current]
+    moved = table.step_run(step)
+    assert moved == (0 <= j < len(visible))
+    assert s.run_id == expected
+    table.deleteLater()

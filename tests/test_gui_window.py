@@ -324,3 +324,25 @@ def test_optional_panels_attach_and_show_in_shortcut_help(win):
     assert len(keys) == len(set(keys)), "two menu commands share a shortcut"
     if "basinmark.gui.map_view" in added:
         assert "map" in win.docks
+
+
+def test_advance_after_labeling_follows_the_filter(win, qtbot):
+    win.actions_["auto_advance"].setChecked(True)
+    win.run_table.set_filter("unlabeled")
+    win.state.set_run("toy-002")
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_2)
+    assert win.state.label_row("toy-002")["hand_label"] == "right"
+    assert win.state.run_id == "toy-003"  # the next unlabeled run after it
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_3)
+    assert win.state.run_id == "toy-004"
+    assert "toy-003" not in win.run_table.visible_runs()
+    assert win.settings.value("auto_advance") in (True, "true")
+
+
+def test_labeling_under_a_filter_keeps_the_run_shown(win, qtbot):
+    win.run_table.set_filter("unlabeled")
+    win.state.set_run("toy-002")
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_2)
+    assert "toy-002" not in win.run_table.visible_runs()
+    assert win.state.run_id == "toy-002"  # the row left the filtered table; the run stays on screen
+    assert win.molecule.trajectory is win.state.tset["toy-002"]

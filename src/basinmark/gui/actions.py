@@ -61,6 +61,8 @@ ACTIONS: tuple[ActionSpec, ...] = (
     # labels
     ActionSpec("undo_label", "&Undo Label", "Labels", ("Ctrl+Z",),
                "Undo the last hand label of this run (recorded in the journal)", "undo"),
+    ActionSpec("auto_advance", "&Advance After Labeling", "Labels", (),
+               "After each label, go on to the next run of the current filter", checkable=True),
     # view
     ActionSpec("reset_view", "&Reset View", "View", ("R",), "Initial orientation, fitted", "reset-view"),
     ActionSpec("fit_view", "&Fit Molecule", "View", ("Shift+R",), "Zoom to fit, keep the orientation", "fit-view"),

@@ -81,6 +81,7 @@ class MainWindow(QMainWindow):
             "next_unlabeled": lambda: self._nav(self.run_table.next_matching("unlabeled"),
                                                 "Every other run has a hand label."),
             "undo_label": lambda: self.label_panel.undo(),
+            "auto_advance": lambda on: self.settings.setValue("auto_advance", bool(on)),
             "reset_view": lambda: self.molecule.reset_view(), "fit_view": lambda: self.molecule.fit(),
             "atom_numbers": lambda on: self.molecule.set_show_numbers(on),
             "clear_monitors": lambda: self.state.clear_monitors(),
@@ -165,6 +166,7 @@ class MainWindow(QMainWindow):
             self.labels_menu.addAction(act)
         self.labels_menu.addSeparator()
         self.labels_menu.addAction(self.actions_["undo_label"])
+        self.labels_menu.addAction(self.actions_["auto_advance"])
 
     def _build_status(self) -> None:
         sb = self.statusBar()
@@ -200,6 +202,7 @@ class MainWindow(QMainWindow):
         self.traces.time_scrubbed.connect(self._on_scrub)
         self.traces.threshold_moved.connect(self.move_threshold)
         self.label_panel.message.connect(lambda text: self.statusBar().showMessage(text, 6000))
+        self.label_panel.labeled.connect(self._after_label)
 
     # --- settings -------------------------------------------------------------------------
     def restore_layout(self) -> None:
@@ -212,6 +215,7 @@ class MainWindow(QMainWindow):
             self.restoreState(st)
         self.traces.set_energy_unit(str(self.settings.value("energy_unit", "kcal/mol")))
         self.actions_["energy_unit"].setChecked(self.traces.energy_unit == "kJ/mol")
+        self.actions_["auto_advance"].setChecked(str(self.settings.value("auto_advance", "false")).lower() == "true")
 
     def save_settings(self) -> None:
         self.settings.setValue("window/geometry", self.saveGeometry())
@@ -483,6 +487,14 @@ class MainWindow(QMainWindow):
         self.status_where.setText("   ·   ".join(parts))
         counts = self.run_table.outcome_counts() if len(st.labels) else {}
         self.status_counts.setText("  ".join(f"{k}: {v}" for k, v in counts.items()))
+
+    def _after_label(self, _run_id: str, _label: str) -> None:
+        if not self.actions_["auto_advance"].isChecked():
+            return
+        mode = self.run_table.filter_mode
+        ok = self.run_table.step_run(1) if mode == "all" else self.run_table.next_matching(mode)
+        if not ok:
+            self.statusBar().showMessage("Labeled. No further run in this filter.", 6000)
 
     def _nav(self, ok: bool, message: str) -> None:
         if not ok:

@@ -183,6 +183,7 @@ class RunTable(QWidget):
         super().__init__(parent)
         self.state = state
         self._sized: tuple = ()
+        self._syncing = False
         self.model = RunTableModel(self)
         self.proxy = RunFilterProxy(self)
         self.proxy.setSourceModel(self.model)
@@ -236,7 +237,11 @@ class RunTable(QWidget):
 
     # --- data ------------------------------------------------------------------------------
     def _on_labels(self) -> None:
-        self.model.set_table(self.state.labels, list(getattr(self.state.rules, "products", []) or []))
+        self._syncing = True  # rows vanish and reappear: Qt moves the current row, which is not a choice
+        try:
+            self.model.set_table(self.state.labels, list(getattr(self.state.rules, "products", []) or []))
+        finally:
+            self._syncing = False
         self._select_run(self.state.run_id)
         self._update_counts()
         products = tuple(getattr(self.state.rules, "products", []) or [])
@@ -271,7 +276,11 @@ class RunTable(QWidget):
     # --- filters and selection ---------------------------------------------------------------
     def set_filter(self, mode: str) -> None:
         self.filter_buttons[mode].setChecked(True)
-        self.proxy.set_mode(mode)
+        self._syncing = True
+        try:
+            self.proxy.set_mode(mode)
+        finally:
+            self._syncing = False
         self._select_run(self.state.run_id)
 
     @property
@@ -282,7 +291,7 @@ class RunTable(QWidget):
         return [self.proxy.index(r, 0).data() for r in range(self.proxy.rowCount())]
 
     def _on_current(self, current: QModelIndex, _previous: QModelIndex) -> None:
-        if current.isValid():
+        if current.isValid() and not self._syncing:
             src = self.proxy.mapToSource(current)
             self.state.set_run(self.model.row(src.row())["run"])
 
@@ -303,33 +312,53 @@ class RunTable(QWidget):
         self.view.viewport().update()
 
     # --- navigation -------------------------------------------------------------------------
+    def _order_from_current(self) -> tuple[list[str], int]:
+        """Visible runs in table order, and where to start looking after the current run.
+
+        When the current run is filtered out (e.g. it was just labeled under "Unlabeled"),
+        the search continues after it in the set's natural order.
+        """
+        visible = self.visible_runs()
+        cur = self.state.run_id
+        pos = {r: i for i, r in enumerate(visible)}
+        if cur in pos:
+            return visible, pos[cur] + 1
+        natural = {r: i for i, r in enumerate(self.state.run_ids)}
+        if cur not in natural:
+            return visible, 0
+        here = natural[cur]
+        start = next((i for i, r in enumerate(visible) if natural.get(r, -1) > here), len(visible))
+        return visible, start
+
     def step_run(self, step: int) -> bool:
         """Select the next (step > 0) or previous visible run; False at the end."""
-        runs = self.visible_runs()
+        runs, start = self._order_from_current()
         if not runs:
             return False
-        cur = self.state.run_id
-        i = runs.index(cur) if cur in runs else (-1 if step > 0 else len(runs))
-        j = i + step
+        if self.state.run_id in runs:
+            j = (start - 1) + step
+        else:  # hidden current run: runs[start] is the next one after it, runs[start - 1] the previous
+            j = start + step - 1 if step > 0 else start + step
         if not 0 <= j < len(runs):
             return False
         self.state.set_run(runs[j])
         return True
 
     def next_matching(self, mode: str) -> bool:
-        """The next run after the current one (in the table's order, wrapping) that passes filter ``mode``."""
-        order = self.visible_runs()
-        rest = [r for r in self.state.run_ids if r not in set(order)]
-        order = order + rest
-        if not order:
-            return False
+        """The next run after the current one (in the table's order, wrapping) that passes filter ``mode``.
+
+        Runs hidden by the current filter are searched too (after the visible ones); the
+        filter is reset to "All" when the run found is hidden.
+        """
+        order, start = self._order_from_current()
+        order = order[start:] + order[:start]
+        shown = set(order)
+        order += [r for r in self.state.run_ids if r not in shown]
         cur = self.state.run_id
-        start = order.index(cur) + 1 if cur in order else 0
         rows = {r["run"]: r for r in self.model._rows}
-        for k in range(len(order)):
-            rid = order[(start + k) % len(order)]
+        for rid in order:
             if rid != cur and rid in rows and row_matches(rows[rid], mode):
-                if rid not in self.visible_runs():
+                if rid not in shown:
                     self.set_filter("all")
                 self.state.set_run(rid)
                 return True
