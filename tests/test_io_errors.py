@@ -136,3 +136,19 @@ def test_unreadable_format_through_ase_fallback(tmp_path):
     with pytest.raises(TrajectoryFileError) as info:
         read_frames(path)
     assert info.value.path == path and "XYZ" in info.value.problem
+
+
+@pytest.mark.parametrize("props,words", [
+    ("species:S:1:pos:S:3", ["pos as S:3", "R:3"]),
+    ("species:S:1:pos:R:2", ["pos as R:2"]),
+    ("species:S:2:pos:R:3", ["species with 2 values"]),
+    ("Z:I:1:q:R:1", ["no 'pos' column"]),
+    ("pos:R:3", ["no 'species'"]),
+])
+def test_properties_that_cannot_describe_atoms(tmp_path, props, words):
+    data = f"1\nProperties={props}\nH 0 0 0\n".encode()
+    with pytest.raises(TrajectoryFileError) as info:
+        parse_xyz(data, tmp_path / "p.extxyz")
+    assert info.value.line == 2
+    for w in words:
+        assert w in info.value.problem

@@ -228,3 +228,11 @@ def test_ase_traj_goes_through_the_fallback(tmp_path):
     assert block.info["time"].tolist() == [0.0, -2.5, -5.0]
     assert block.sha256 == hashlib.sha256(path.read_bytes()).hexdigest()
     assert block.frame_lines.tolist() == [0, 0, 0]
+
+
+def test_atomic_numbers_in_a_z_column_or_a_numeric_species_column(parse, tmp_path):
+    path = tmp_path / "z.extxyz"
+    path.write_text("2\nProperties=Z:I:1:pos:R:3\n8 0 0 0\n1 0 0 1\n")
+    assert parse(path).numbers.tolist() == [8, 1]
+    path.write_text("2\nProperties=species:I:1:pos:R:3\n8 0 0 0\n1 0 0 1\n")
+    assert parse(path).numbers.tolist() == [8, 1]

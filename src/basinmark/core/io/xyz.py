@@ -9,14 +9,16 @@ and parses line by line, which is too slow for sets of thousands of runs
 
 Two numeric paths, chosen automatically:
 
-* fixed-width columns (what dynamics codes and ase write): the atom lines are
-  viewed as a byte matrix and each numeric column is converted by place-value
-  arithmetic (a matrix-vector product), the fastest way we measured;
-* anything else (irregular spacing, mixed widths): whitespace tokens joined and
-  converted by ``numpy.fromstring`` in C.
+* fixed-width columns (what dynamics codes and ase write): the atom lines
+  form a byte matrix; it is transposed once, every byte column classified by
+  its minimum and maximum, and each number assembled from its digit columns
+  by exact float32 vector-matrix products, the fastest way we measured;
+* anything else (irregular spacing, mixed widths, long mantissas):
+  whitespace tokens joined and converted in C by ``numpy.fromstring``.
 
-Both paths check every token (a bad one sends the fixed-width path to the
-general one, which reports the exact line).
+Both give the correctly rounded value of every token.  The fixed-width path
+gives up on anything unexpected, and the general path then reads the file and
+reports problems with their line.
 """
 
 from __future__ import annotations
@@ -235,6 +237,18 @@ def _layout(props: bytes | None, path: Path, line: int) -> list[_Column]:
     if "species" not in names and "Z" not in names:
         raise TrajectoryFileError(path, "Properties= names no 'species' (or 'Z') column, so the atoms are unknown",
                                   line)
+    pos = cols[names.index("pos" if "pos" in names else "positions")]
+    if pos.kind not in ("R", "I") or pos.count != 3:
+        raise TrajectoryFileError(
+            path, f"Properties= declares {pos.name} as {pos.kind}:{pos.count}; coordinates need R:3", line)
+    for i, c in enumerate(cols):
+        if c.name in ("species", "Z") and c.count != 1:
+            raise TrajectoryFileError(path, f"Properties= declares {c.name} with {c.count} values per atom; "
+                                      "it needs 1", line)
+        if c.name == "species" and c.kind != "S":
+            cols[i] = _Column(c.name, "S", 1, c.start)  # symbols or atomic numbers, read as text either way
+        if c.name == "Z" and c.kind != "I":
+            cols[i] = _Column(c.name, "I", 1, c.start)
     return cols
 
 
