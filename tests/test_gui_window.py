@@ -346,3 +346,32 @@ def test_labeling_under_a_filter_keeps_the_run_shown(win, qtbot):
     assert "toy-002" not in win.run_table.visible_runs()
     assert win.state.run_id == "toy-002"  # the row left the filtered table; the run stays on screen
     assert win.molecule.trajectory is win.state.tset["toy-002"]
+
+
+def test_dropping_a_folder_opens_it_and_layout_is_saved(qtbot, tmp_path, toy_root):
+    from PySide6.QtCore import QMimeData, QUrl
+    from PySide6.QtGui import QDragEnterEvent, QDropEvent
+
+    settings = _settings(tmp_path)
+    w = MainWindow(settings)
+    qtbot.addWidget(w)
+    w.show()
+    mime = QMimeData()
+    mime.setUrls([QUrl.fromLocalFile(str(toy_root))])
+    enter = QDragEnterEvent(QPoint(10, 10), Qt.DropAction.CopyAction, mime, Qt.MouseButton.LeftButton,
+                            Qt.KeyboardModifier.NoModifier)
+    w.dragEnterEvent(enter)
+    assert enter.isAccepted()
+    drop = QDropEvent(QPointF(10, 10), Qt.DropAction.CopyAction, mime, Qt.MouseButton.LeftButton,
+                      Qt.KeyboardModifier.NoModifier)
+    with qtbot.waitSignal(w.set_loaded, timeout=20000):
+        w.dropEvent(drop)
+    assert len(w.state.tset) == len(OUTCOMES)
+    w.resize(820, 523)
+    size = w.size()
+    w.close()
+    again = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(again)
+    # the offscreen screen is 800 px wide and restoreGeometry clamps to it: compare the height
+    assert size.height() == 523 and again.size().height() == 523
+    again.close()
