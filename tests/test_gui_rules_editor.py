@@ -232,3 +232,33 @@ def test_sensitivity_sweep_matches_core(win, qtbot):
     np.testing.assert_allclose(curve.yData, ref["ratio"].to_numpy(float))
     view.prod_b.setCurrentText("left")
     assert view.run() is None and "two different" in view.status.text()
+
+
+def test_window_save_as_is_followed(win, qtbot, tmp_path):
+    ed = win.rules_editor
+    with qtbot.waitSignal(ed.reclassified, timeout=10000):
+        ed.conditions.item(_row(ed, "left", "d_left"), 3).setText("1.6")
+    assert not ed.record_button.isEnabled()          # unsaved rules: no automatic labels
+    out = tmp_path / "via-window.toml"
+    assert win.save_rules_as(out)
+    ed.sync_saved()
+    assert ed.file_path == out and ed.record_button.isEnabled() and ed.saved_note.text() == ""
+    assert load_rules(out) == win.state.rules
+
+
+def test_result_for_a_replaced_set_is_dropped(win, qtbot, tmp_path):
+    ed = win.rules_editor
+    old_tset = win.state.tset
+    ed.conditions.item(_row(ed, "left", "d_left"), 3).setText("1.4")
+    ed.timer.stop()
+    rules = ed.build_rules()
+    seen = []
+    win.state.rules_changed.connect(lambda: seen.append(win.state.rules))
+    ed.worker.start(old_tset, rules)
+    other = make_toy_set(tmp_path / "other", ["right", "right"])
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(other, use_cache=False)
+    ed.worker.wait()
+    qtbot.wait(50)
+    assert len(win.state.tset) == 2
+    assert seen and all(r != rules for r in seen)   # the old set's result never reached the state

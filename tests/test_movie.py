@@ -139,7 +139,7 @@ def test_window_action_exports_current_run(qtbot, tmp_path):
         win.open_set(root, use_cache=False)
     act = install_movie_action(win)
     menus = [a.menu().objectName() for a in win.menu_bar.actions() if a.menu() is not None]
-    assert "menu_export" in menus and act.shortcut().toString() == "Ctrl+Shift+M"
+    assert "menu_export" in menus and act.shortcut().toString() == "Ctrl+Shift+G"
     act.trigger()
     dlg = win.movie_dialog
     out = tmp_path / "w.gif"

@@ -457,14 +457,14 @@ class MovieDialog:
 
 
 def install_movie_action(window):
-    """Add Export ▸ Export Movie… (Ctrl+Shift+M) to the window; returns the QAction."""
+    """Add Export ▸ Export Movie… (Ctrl+Shift+G) to the window; returns the QAction."""
     from PySide6.QtGui import QAction, QKeySequence
 
     menu = find_menu(window, "menu_export", "&Export")
     act = QAction("Export &Movie…", window)
     act.setObjectName("action_export_movie")
-    act.setShortcut(QKeySequence("Ctrl+Shift+M"))
-    act.setToolTip("Write the current run as an animated GIF: molecule beside the traces (Ctrl+Shift+M)")
+    act.setShortcut(QKeySequence("Ctrl+Shift+G"))
+    act.setToolTip("Write the current run as an animated GIF: molecule beside the traces (Ctrl+Shift+G)")
     act.setStatusTip("Write the current run as an animated GIF: molecule beside the traces")
 
     def run() -> None:

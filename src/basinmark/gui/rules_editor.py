@@ -93,7 +93,8 @@ class Reclassifier(QObject):
 
         def work() -> None:
             t0 = time.perf_counter()
-            out = {"generation": gen, "rules": rules, "classification": None, "error": "", "cancelled": False}
+            out = {"generation": gen, "rules": rules, "classification": None, "error": "", "cancelled": False,
+                   "tset": tset}
             try:
                 out["classification"] = self.run_sync(tset, rules, cancel) if len(tset) else None
             except _Cancelled:
@@ -245,8 +246,24 @@ class RulesEditor(QWidget):
         state.rules_changed.connect(self._state_rules_changed)
         state.journal_changed.connect(self._update_buttons)
         state.labels_changed.connect(self._show_counts)
+        state.set_changed.connect(self._set_changed)
         self._style_error()
         self._state_rules_changed()
+
+    def _set_changed(self) -> None:
+        self.timer.stop()
+        self.worker.generation += 1   # results for the previous set are dropped
+        self.file_path = None
+
+    def sync_saved(self) -> None:
+        """The window saved the rules itself (File ▸ Save Rules As…): take over their file."""
+        rules = self.state.rules
+        if rules is not None and rules.path is not None:
+            self.file_path = Path(rules.path)
+            self._own_rules = rules
+            self.rules = rules
+        self._show_counts()
+        self._update_buttons()
 
     def _limit_spin(self, suffix: str, tip: str) -> QDoubleSpinBox:
         s = QDoubleSpinBox(self)
@@ -520,6 +537,8 @@ class RulesEditor(QWidget):
     def _on_done(self, out: dict) -> None:
         if out["generation"] != self.worker.generation or out.get("cancelled"):
             return  # a newer edit is on its way
+        if out.get("tset") is not self.state.tset:
+            return  # another set was opened meanwhile
         if out["error"]:
             self._set_error(out["error"])
             self._show_counts()
@@ -529,6 +548,8 @@ class RulesEditor(QWidget):
         self.last_seconds = out.get("seconds")
         self._show_counts()
         self._update_buttons()
+        counts = self.counts.text()
+        self.message.emit(f"Rules changed here and not saved (File ▸ Save Rules writes them). {counts}")
         self.reclassified.emit()
 
     def apply_threshold(self, targets: list, value: float) -> bool:
@@ -662,9 +683,9 @@ def install_rules_editor(window) -> QDockWidget:
 
     show = dock.toggleViewAction()
     show.setText("Edit &Rules")
-    show.setShortcut(QKeySequence("Ctrl+Shift+E"))
+    show.setShortcut(QKeySequence("Ctrl+Shift+B"))
     show.setToolTip("Edit monitors, basins and flag limits; the set is classified again as you type "
-                    "(Ctrl+Shift+E)")
+                    "(Ctrl+Shift+B)")
     show.triggered.connect(lambda checked: dock.raise_() if checked else None)
     find_menu(window, "menu_analysis", "&Analysis").addAction(show)
     window.addAction(show)
@@ -680,6 +701,9 @@ def install_rules_editor(window) -> QDockWidget:
         before = next((a for a in acts if a is getattr(window, "actions_", {}).get("save_rules")), None)
         file_menu.insertAction(before, save) if before is not None else file_menu.addAction(save)
     window.addAction(save)
+    save_as = getattr(window, "actions_", {}).get("save_rules")
+    if save_as is not None:  # runs after the window's own handler (connected first)
+        save_as.triggered.connect(lambda *_a: editor.sync_saved())
 
     record = QAction("Record &Automatic Labels", window)
     record.setObjectName("action_record_auto")
