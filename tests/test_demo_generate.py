@@ -151,6 +151,12 @@ def test_bundled_set_is_complete_and_small():
         REACTANT_A_ABOVE, PRODUCT_A_BELOW, BOND_BELOW, SPECTATOR_ABOVE)
     readme = (BUNDLED / "README.md").read_text()
     assert "invented" in readme and f"seed {DEFAULT_SEED}" in readme
+    # TST ratio of the invented 0.3 kcal/mol: exp(ddG / RT), R from scipy.constants (CODATA 2018),
+    # 1 cal = 4.184 J (thermochemical calorie)
+    import scipy.constants as sc
+
+    ratio = np.exp(0.3 * 4184 / (sc.R * 298.15))
+    assert f"≈ {ratio:.2f}" in readme and "62:38" in readme
     with gzip.open(halves[0], "rt") as fh:
         assert fh.readline().strip() == str(len(SYMBOLS))
 

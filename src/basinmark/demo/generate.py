@@ -152,6 +152,20 @@ def write_gzip(path: Path, text: str) -> int:
     return len(data)
 
 
+_LANDMARKS: dict = {}
+
+
+def _stationary_points(surface: Surface):
+    """Saddle, its modes and the minima, computed once per set of surface parameters in a process."""
+    key = surface.params
+    if key not in _LANDMARKS:
+        saddle = find_saddle(surface)
+        modes = normal_modes(surface, saddle)
+        _LANDMARKS[key] = (saddle, modes, landmarks(surface, saddle, modes))
+    saddle, modes, points = _LANDMARKS[key]
+    return saddle.copy(), modes, {k: v.copy() for k, v in points.items()}
+
+
 def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: float = 298.15,
              progress: Callable[[int, int], None] | None = None, *, settings: DemoSettings | None = None,
              surface: Surface | None = None) -> GenerateSummary:
@@ -166,8 +180,7 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
             raise SetError(f"{folder}: exists and is not a folder; choose another place for the demo set")
     (out / "runs").mkdir(parents=True, exist_ok=True)
 
-    saddle = find_saddle(surface)
-    modes = normal_modes(surface, saddle)
+    saddle, modes, points = _stationary_points(surface)
     e_ts = float(surface.energy(saddle))
     rng = np.random.default_rng(seed)
     start = quasiclassical(modes, saddle, runs, settings.temperature, rng)
@@ -203,7 +216,6 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
         summary.max_drift_ev[run_id] = drift
     (out / "basins.toml").write_text(
         basins_toml(REACTANT_A_ABOVE, PRODUCT_A_BELOW, BOND_BELOW, SPECTATOR_ABOVE), encoding="utf-8")
-    points = landmarks(surface, saddle, modes)
     energies = {k: float(surface.energy(x)) - e_ts for k, x in points.items()}
     (out / "README.md").write_text(
         readme_text(energies, -float(modes.wavenumbers[0]), runs, seed, settings.temperature,

@@ -109,7 +109,7 @@ def find_saddle(surface: Surface, x0: np.ndarray | None = None, *, fmax: float =
     """First-order saddle point near ``x0`` by Newton steps that climb the lowest Hessian mode.
 
     Eigenvector following (partitioned rational-function steps, Banerjee et al., J. Phys.
-    Chem. 89 (1985) 52) with a trust radius; raises RuntimeError if it does not converge.
+    Chem. 89 (1985) 52, from memory) with a trust radius; raises RuntimeError if it does not converge.
     """
     x = np.array(surface.reference if x0 is None else x0, float)
     masses = surface.masses

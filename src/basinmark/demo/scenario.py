@@ -2,7 +2,10 @@
 
 from __future__ import annotations
 
+import math
 from typing import Mapping
+
+from ase import units
 
 from basinmark.core.units import energy_factor
 
@@ -57,6 +60,9 @@ def readme_text(energies_ev: Mapping[str, float], imaginary_cm: float, runs: int
     kcal = energy_factor("kcal/mol")
     e = {k: v / kcal for k, v in energies_ev.items()}
     lines = "\n".join(f"    {s}" for s in summary_lines)
+    rt = units.kB * 298.15 / kcal  # kcal/mol
+    ratio = math.exp(INVENTED_DDG_KCAL / rt)
+    share = ratio / (1 + ratio)
     return f"""# ringfork — a demo set made by basinmark
 
 Everything here is invented: the pseudo-molecule, its energy surface, the numbers and the story.
@@ -90,9 +96,9 @@ by a second barrier.
 Transition state theory with this one transition state cannot tell alpha from beta at all.
 Suppose instead someone had computed two separate transition states, one per product, with an
 (invented) difference of activation free energies ΔΔG‡ = {INVENTED_DDG_KCAL} kcal/mol in favour of
-alpha.  At 298.15 K that predicts a ratio exp(ΔΔG‡/RT) ≈ 1.66, about 62:38.  The runs here give a
-far more lopsided split — the point of the exercise is to count them honestly and say how sure
-the count is.
+alpha.  At 298.15 K that predicts a ratio exp(ΔΔG‡/RT) ≈ {ratio:.2f}, about
+{100 * share:.0f}:{100 * (1 - share):.0f}.  The runs here give a far more lopsided split — the point of
+the exercise is to count them honestly and say how sure the count is.
 
 ## How the set was made
 
@@ -107,7 +113,8 @@ and it is **not** a classification; classify with `basins.toml`):
 
 {lines}
 
-Expect, by design: most reactive runs give alpha, some give beta; a few runs recross (both ends
-in the reactant), some commit late, some visit both products, and a few do not finish within the
-time limit of a half.
+Expect, by design: most reactive runs give alpha, some give beta; about one run in ten recrosses
+(both ends in the reactant); some commit late, some visit both products, a few do not finish
+within the time limit of a half, and one or two fail the energy check (total-energy drift above
+1 kcal/mol) — the classifier's flags should point at all of these.
 """
