@@ -188,3 +188,57 @@ def test_review_command_writes_markdown(tmp_path, capsys):
     assert text.startswith("# Review") and "| r1 |" in text and "| r5 |" in text and "| r0 |" not in text
     assert f"{data['kappa']:.3f}" in text
     assert cli_main(["review", str(paths[0]), "-o", str(tmp_path / "nofolder" / "r.md")]) == 2
+
+
+def test_mp4_goes_through_the_encoder_protocol(tmp_path, toy, monkeypatch):
+    """imageio-ffmpeg is not installed here: a stand-in records what the encoder would receive."""
+    import sys
+    import types
+
+    import basinmark.gui.movie as movie
+
+    got = {}
+
+    def write_frames(path, size, **kw):
+        # the protocol as imageio-ffmpeg documents it (from memory): send(None) primes, then one send per frame
+        got.update(path=path, size=size, kw=kw, frames=[])
+        try:
+            while True:
+                frame = yield
+                got["frames"].append(len(frame))
+        except GeneratorExit:
+            Path(path).write_bytes(b"fake mp4")
+
+    monkeypatch.setitem(sys.modules, "imageio_ffmpeg", types.SimpleNamespace(write_frames=write_frames))
+    monkeypatch.setattr(movie, "mp4_available", lambda: True)
+    traj, rules, res = toy
+    r = export_movie(tmp_path / "run.mp4", traj, fps=24, size=(160, 120), frames=range(8))
+    assert r.format == "mp4" and r.n_frames == 8 and (tmp_path / "run.mp4").read_bytes() == b"fake mp4"
+    assert got["size"] == (160, 120) and got["kw"]["fps"] == 24
+    assert got["frames"] == [160 * 120 * 3] * 8          # rgb24, one byte per channel
+    with pytest.raises(MovieError, match="even width"):
+        export_movie(tmp_path / "odd.mp4", traj, size=(161, 120), frames=range(2))
+
+
+def test_mp4_without_encoder_says_so(tmp_path, toy, monkeypatch):
+    import basinmark.gui.movie as movie
+
+    monkeypatch.setattr(movie, "mp4_available", lambda: False)
+    with pytest.raises(MovieError, match="imageio-ffmpeg"):
+        export_movie(tmp_path / "run.mp4", toy[0])
+
+
+def test_headless_platform_is_chosen(monkeypatch):
+    from basinmark.commands.media import ensure_gui_platform
+
+    monkeypatch.delenv("QT_QPA_PLATFORM", raising=False)
+    monkeypatch.delenv("DISPLAY", raising=False)
+    monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
+    monkeypatch.setattr("sys.platform", "linux")
+    ensure_gui_platform()
+    import os
+
+    assert os.environ["QT_QPA_PLATFORM"] == "offscreen"
+    monkeypatch.setenv("QT_QPA_PLATFORM", "xcb")
+    ensure_gui_platform()
+    assert os.environ["QT_QPA_PLATFORM"] == "xcb"
