@@ -150,3 +150,17 @@ def test_remove_rigid_motion_keeps_internal_motion(surface):
     v0 = remove_rigid_motion(x, v, surface.masses)
     v1 = remove_rigid_motion(x, v0, surface.masses)
     np.testing.assert_allclose(v0, v1, atol=1e-12)  # a projection: applying it twice changes nothing
+
+
+def test_one_transition_state_feeds_both_products(surface, saddle, modes):
+    # the point of the surface: runs from the one saddle end in either product, alpha more often
+    from basinmark.demo.generate import region_track
+
+    start = quasiclassical(modes, saddle, 60, T, np.random.default_rng(21))
+    ends = []
+    for sign in (1.0, -1.0):
+        h = velocity_verlet(surface, start.positions, sign * start.velocities, dt=0.2, max_time=120.0, save_every=50)
+        ends.append(np.array([region_track(h.positions[k][-1]) for k in range(60)]))
+    products = np.concatenate([e[e > 0] for e in ends])
+    n_alpha, n_beta = int(np.sum(products == 1)), int(np.sum(products == 2))
+    assert n_beta >= 2 and n_alpha > n_beta
