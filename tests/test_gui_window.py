@@ -375,3 +375,25 @@ def test_dropping_a_folder_opens_it_and_layout_is_saved(qtbot, tmp_path, toy_roo
     # the offscreen screen is 800 px wide and restoreGeometry clamps to it: compare the height
     assert size.height() == 523 and again.size().height() == 523
     again.close()
+
+
+def test_missing_folder_says_so_without_a_modal_dialog(qtbot, tmp_path):
+    w = MainWindow(_settings(tmp_path))
+    qtbot.addWidget(w)
+    w.show()
+    with qtbot.waitSignal(w.load_failed, timeout=20000) as blocker:
+        w.open_set(tmp_path / "not-there")
+    assert "not-there" in blocker.args[0]
+    assert "Could not open the set" in w.banner.text() and not w.banner.isHidden()
+    w.close()
+
+
+def test_bad_rules_file_keeps_the_rules_in_use(win, qtbot, tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text('reactant = "nowhere"\n[monitors]\nd = [1, 2]\n')
+    before = win.state.rules
+    with qtbot.waitSignal(win.rules_applied, timeout=20000):
+        win.apply_rules(bad)
+    assert win.state.rules is before
+    assert "could not be used" in win.banner.text() and "unchanged" in win.banner.text()
+    assert "bad.toml" in win.banner.text()

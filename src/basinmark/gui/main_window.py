@@ -37,6 +37,7 @@ class MainWindow(QMainWindow):
     """One window over one set at a time."""
 
     set_loaded = Signal()        # a set (and its classification) finished loading
+    load_failed = Signal(str)    # the folder could not be opened at all (the reason)
     rules_applied = Signal()
 
     def __init__(self, settings: QSettings | None = None, parent: QWidget | None = None) -> None:
@@ -373,10 +374,12 @@ class MainWindow(QMainWindow):
         self.job = None
         self._busy(False)
         if result.get("error"):
-            self._messages["error"] = result["error"]
+            self._messages["error"] = f"Could not open the set: {result['error']}"
             self._show_banner()
-            QMessageBox.warning(self, "Could not open the set", result["error"]) if self.isVisible() else None
+            self.statusBar().showMessage(self._messages["error"], 10000)
+            self.load_failed.emit(result["error"])
             return
+        self._messages.pop("error", None)
         tset = result["tset"]
         if not result.get("rules_only"):
             keep = self.state.run_id if self.state.run_id != getattr(self, "_auto_run", "") else ""
@@ -391,7 +394,16 @@ class MainWindow(QMainWindow):
             self._messages["rules"] = result["rules_error"]
         else:
             self._messages.pop("rules", None)
+        if result.get("rules_only") and result.get("rules") is None:
+            # other rules failed to load or classify: keep the ones in use, and say so
+            self._messages["rules"] = (result.get("rules_error", "") + " The rules in use are unchanged.").strip()
+            self._show_banner()
+            self.rules_applied.emit()
+            return
         self.state.set_rules(result.get("rules"), result.get("classification"), result.get("rules_error", ""))
+        journal = self.state.journal
+        if journal is not None and not journal.readonly and result.get("rules") is not None:
+            journal.allowed = all_labels(result["rules"])
         self._show_banner()
         self._update_status()
         if tset is not None and tset.failures and not result.get("rules_only"):
@@ -408,7 +420,9 @@ class MainWindow(QMainWindow):
             self._messages.pop("journal", None)
             msg = ""
         except JournalLockedError as exc:
-            holder = str(exc)
+            from basinmark.core.journal_lock import describe
+
+            holder = describe(exc.holder)
             journal = None
             if path.is_file():
                 try:
@@ -417,7 +431,8 @@ class MainWindow(QMainWindow):
                 except JournalError:
                     journal = None
             msg = (f"Read-only: the label journal {path.name} is in use by {holder}. "
-                   "You can look at runs and labels, but not set labels, until it is released.")
+                   "You can look at runs and labels, but not set labels, until it is released "
+                   "(if that program is gone, 'basinmark unlock' breaks the lock).")
             self._messages["journal"] = msg
         except (JournalError, OSError) as exc:
             journal = None
