@@ -154,6 +154,13 @@ class MovieRenderer:
         self.traces.set_run(traj, result, rules)
         for c in self.traces.cursors:
             c.setVisible(False)
+        # a movie panel is narrow: keep the threshold lines (coloured by basin) but drop their text,
+        # which would cover the curves; the TS and commit marks keep theirs
+        marks = set(map(id, self.traces.marks.values()))
+        for line in self.traces.threshold_lines:
+            label = getattr(line, "label", None)
+            if label is not None and id(line) not in marks:
+                label.setVisible(False)
         from PySide6.QtWidgets import QApplication
 
         QApplication.processEvents()
