@@ -119,7 +119,7 @@ def save_widget(widget, path: str | Path, size: tuple[int, int] | None = None) -
 
     try:
         if suffix == ".png":
-            image = QImage(w, h, QImage.Format.Format_ARGB32)
+            image = QImage(w, h, QImage.Format.Format_ARGB32_Premultiplied)
             image.fill(background)
             painter = QPainter(image)
             painter.setRenderHint(QPainter.RenderHint.Antialiasing, True)
