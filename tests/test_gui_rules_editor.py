@@ -75,6 +75,7 @@ def test_editing_a_threshold_reclassifies_like_the_core(win, qtbot):
     assert "left" not in counts and counts["unfinished"] == 4
     assert "unfinished: 4" in ed.counts.text() and "left: 0" in ed.counts.text()
     assert "not saved" in ed.saved_note.text()
+    assert "not saved" in win.banner.text() and not win.banner.isHidden()
     # the run table shows the same counts
     assert win.run_table.outcome_counts().get("unfinished") == 4
 
@@ -175,7 +176,7 @@ def test_save_reloads_identically_and_labels_only_on_request(win, qtbot, tmp_pat
     assert again == win.state.rules and again.flags.late_commit_fs is None and again.dwell_fs == 12.5
     assert win.state.rules.path == out
     assert win.state.rules.sha256 == hashlib.sha256(out.read_bytes()).hexdigest()  # FIPS 180-4 via hashlib
-    assert ed.saved_note.text() == ""
+    assert ed.saved_note.text() == "" and "not saved" not in win.banner.text()
     n = ed.record_automatic_labels()
     events = label_events()[n_before:]
     assert n == len(OUTCOMES) == len(events)

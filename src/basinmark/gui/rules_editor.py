@@ -117,6 +117,7 @@ class RulesEditor(QWidget):
     """Edit the rules of the open set; valid edits re-classify it in the background."""
 
     reclassified = Signal()        # new rules and counts are in the state
+    saved = Signal(str)            # path the rules were written to
     invalid = Signal(str)          # the edit is not valid (message shown inline)
     message = Signal(str)
 
@@ -622,6 +623,7 @@ class RulesEditor(QWidget):
         self._show_counts()
         self._update_buttons()
         self.message.emit(f"Rules saved to {target}")
+        self.saved.emit(str(target))
         return True
 
     def save_as(self) -> bool:
@@ -725,6 +727,22 @@ def install_rules_editor(window) -> QDockWidget:
     # (not the Labels menu: the window rebuilds that one whenever the rules change)
     find_menu(window, "menu_analysis", "&Analysis").addAction(record)
     window.addAction(record)
+    def banner(*_a) -> None:
+        # the window's banner for unsaved rules (its own key for this, so its Save Rules As clears it too);
+        # MainWindow has no public call for banner lines yet
+        messages, show_banner = getattr(window, "_messages", None), getattr(window, "_show_banner", None)
+        if not isinstance(messages, dict) or show_banner is None:
+            return
+        rules = window.state.rules
+        if rules is not None and getattr(rules, "path", None) is None:
+            messages["rules_edited"] = ("Rules changed here and not saved: the counts shown follow the edited "
+                                        "rules. File ▸ Save Rules writes them.")
+        else:
+            messages.pop("rules_edited", None)
+        show_banner()
+
+    editor.reclassified.connect(banner)
+    editor.saved.connect(banner)
     window.rules_editor = editor
     window.rules_dock = dock
     return dock
