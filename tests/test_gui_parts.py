@@ -272,3 +272,14 @@ def test_step_run_matches_a_plain_walk(qtbot, tmp_path_factory, labeled, current
     assert moved == (0 <= j < len(visible))
     assert s.run_id == expected
     table.deleteLater()
+
+
+def test_cancelled_classification_gives_no_partial_table(toy):
+    from basinmark.gui.loader import classify_with_rules
+
+    tset, rules = toy
+    out = classify_with_rules(tset, rules.path, cancel=lambda: True)
+    assert out["classification"] is None and out["rules"] is None
+    assert "cancelled" in out["rules_error"]
+    full = classify_with_rules(tset, rules.path)
+    assert len(full["classification"]) == len(tset) and full["rules"] is not None

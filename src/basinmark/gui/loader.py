@@ -47,9 +47,11 @@ class SetLoader(QObject):
             out["tset"] = tset
             out["cancelled"] = self.cancelled
             rules_file = self.rules_file or rules_path(tset.root)
-            # the runs loaded before a cancel are still classified (quick next to loading)
+            # the runs loaded before a cancel are still classified (quick next to loading); a cancel
+            # during classification stops it
             out.update(classify_with_rules(tset, rules_file,
-                                           lambda d, t, _r: self.progress.emit("Classifying", d, t)))
+                                           lambda d, t, _r: self.progress.emit("Classifying", d, t),
+                                           cancel=None if self.cancelled else self._cancel.is_set))
         except BasinmarkError as exc:
             out["error"] = str(exc)
         except Exception as exc:  # the window must survive anything a broken folder does
@@ -57,18 +59,29 @@ class SetLoader(QObject):
         self.done.emit(out)
 
 
-def classify_with_rules(tset, rules_file, progress=None) -> dict:
+def classify_with_rules(tset, rules_file, progress=None, cancel=None) -> dict:
     """Load the rules (a path, or Rules already made) and classify every run.
 
-    Problems become a plain sentence in ``rules_error``.
+    Problems become a plain sentence in ``rules_error``; a cancelled classification gives
+    no table (never a partial one) and says so.
     """
-    from basinmark.core.classify import classify_set
+    from basinmark.core.classify import ClassificationCancelled, classify_set
     from basinmark.core.rules import load_rules
 
     out = {"rules": None, "classification": None, "rules_error": ""}
+
+    def classify(rules) -> None:
+        if not len(tset):
+            return
+        try:
+            out["classification"] = classify_set(tset, rules, progress=progress, cancel=cancel)
+        except ClassificationCancelled:
+            out["rules"] = None
+            out["rules_error"] = "Classification was cancelled, so no run has an automatic outcome from these rules."
+
     if not isinstance(rules_file, (str, Path)):
         out["rules"] = rules_file
-        out["classification"] = classify_set(tset, rules_file, progress=progress) if len(tset) else None
+        classify(rules_file)
         return out
     rules_file = Path(rules_file)
     if not rules_file.is_file():
@@ -81,8 +94,7 @@ def classify_with_rules(tset, rules_file, progress=None) -> dict:
         out["rules_error"] = f"The rules file could not be used, so nothing is classified: {exc}"
         return out
     out["rules"] = rules
-    if len(tset):
-        out["classification"] = classify_set(tset, rules, progress=progress)
+    classify(rules)
     return out
 
 
@@ -107,7 +119,8 @@ class RulesWorker(QObject):
         out = {"path": self.tset.root, "tset": self.tset, "error": "", "cancelled": False, "rules_only": True}
         try:
             out.update(classify_with_rules(self.tset, self.rules_file,
-                                           lambda d, t, _r: self.progress.emit("Classifying", d, t)))
+                                           lambda d, t, _r: self.progress.emit("Classifying", d, t),
+                                           cancel=self._cancel.is_set))
         except Exception as exc:  # report, never crash the window
             out.update({"rules": None, "classification": None,
                         "rules_error": f"Classification failed: {type(exc).__name__}: {exc}"})
