@@ -62,6 +62,7 @@ class LabelPanel(QWidget):
 
     labeled = Signal(str, str)        # run id, label
     message = Signal(str)             # for the status bar
+    labeler_changed = Signal(str)
 
     def __init__(self, state: AppState, undo_action: QAction | None = None, parent=None) -> None:
         super().__init__(parent)
@@ -114,7 +115,9 @@ class LabelPanel(QWidget):
     def _labeler_edited(self) -> None:
         name = self.labeler.text().strip()
         if name:
-            self.labeler_name = name
+            if name != self.labeler_name:
+                self.labeler_name = name
+                self.labeler_changed.emit(name)
         else:
             self.labeler.setText(self.labeler_name)
 

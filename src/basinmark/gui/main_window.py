@@ -204,6 +204,7 @@ class MainWindow(QMainWindow):
         self.traces.threshold_moved.connect(self.move_threshold)
         self.label_panel.message.connect(lambda text: self.statusBar().showMessage(text, 6000))
         self.label_panel.labeled.connect(self._after_label)
+        self.label_panel.labeler_changed.connect(lambda name: self.settings.setValue("labeler", name))
 
     # --- settings -------------------------------------------------------------------------
     def restore_layout(self) -> None:
