@@ -77,7 +77,10 @@ def main() -> None:
     from basinmark.core.rules import parse_rules
     from basinmark.gui.map_view import MapCanvas, MapData, map_axes
 
+    import pyqtgraph as pg
+
     app = QApplication.instance() or QApplication([])
+    pg.setConfigOptions(antialias=True)  # as the application sets it (gui/app.py)
     rules = parse_rules(RULES)
     tset = synthetic_set(args.runs, args.frames)
     labels = {rid: ("left", "right", "recrossing")[i % 3] for i, rid in enumerate(tset.run_ids)}

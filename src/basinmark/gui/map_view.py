@@ -420,7 +420,8 @@ class MapCanvas(pg.PlotWidget):
             x, y, n = groups[label]
             colour = QColor(self.label_colour(label))
             colour.setAlpha(150)
-            curve = pg.PlotCurveItem(x, y, connect="finite", pen=pg.mkPen(colour, width=1))
+            # thin, many and overlapping: no antialiasing (about 100 ms less to draw 1.4e5 points at 900x700, bench_map)
+            curve = pg.PlotCurveItem(x, y, connect="finite", pen=pg.mkPen(colour, width=1), antialias=False)
             curve.setZValue(z)
             # cached as a pixmap: moving the current-frame marker then repaints no path
             curve.setCacheMode(curve.CacheMode.DeviceCoordinateCache)
