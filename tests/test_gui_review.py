@@ -205,3 +205,22 @@ def test_menu_and_dock(setup, qtbot):
     dock.toggleViewAction().trigger()
     # compared on first show (two labelers of this journal)
     qtbot.waitUntil(lambda: win.review_panel.review is not None, timeout=3000)
+
+
+def test_labels_changing_elsewhere_do_not_move_the_window(setup, qtbot):
+    win, dock, root, other = setup
+    panel = win.review_panel
+    dock.toggleViewAction().trigger()
+    panel.set_mode("file")
+    panel.other.setText(str(other))
+    panel.compare()
+    panel.queue_view.selectRow(2)
+    assert win.state.run_id == "toy-008"
+    win.state.set_run("toy-003")          # the person looks at another run and labels it by hand
+    assert win.label_panel.apply_label("right")
+    assert win.state.run_id == "toy-003"
+    assert panel.current_row()["run"] == "toy-008"     # the queue keeps its place
+    # after a decision the next disagreement is shown
+    panel.queue_view.selectRow(0)
+    assert panel.decide_side("B")
+    assert win.state.run_id == "toy-005" and panel.current_row()["run"] == "toy-005"

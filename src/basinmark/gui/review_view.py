@@ -349,7 +349,7 @@ class ReviewPanel(QWidget):
         self.warning.setText("\n".join(f"Caution: {w}" for w in r.warnings))
         self.warning.setVisible(bool(r.warnings))
         self._fill_matrix()
-        self.refresh_queue()
+        self.refresh_queue(follow=True)
 
     def _fill_matrix(self) -> None:
         r = self.review
@@ -373,14 +373,23 @@ class ReviewPanel(QWidget):
                     item.setBackground(QBrush(hl))
                 self.matrix.setItem(i, k, item)
 
-    def refresh_queue(self) -> None:
-        """The disagreements not yet settled in the journal."""
+    def refresh_queue(self, select: str | None = None, follow: bool = False) -> None:
+        """The disagreements not yet settled in the journal.
+
+        The selection stays on ``select`` (else the run selected before) when it is still in the queue;
+        only with ``follow`` does a new selection move the window to that run (labels changing elsewhere
+        never make the window jump).
+        """
         r = self.review
         if r is None:
             return
+        before = self.current_row()
+        select = select or (before["run"] if before is not None else None)
         done = settled_runs(self.state.journal, r)
         q = r.disagreements[~r.disagreements["run"].isin(done)].reset_index(drop=True)
         self.queue = q
+        self.queue_view.blockSignals(True)
+        self.queue_view.clearSelection()
         self.queue_view.setRowCount(len(q))
         for i, rec in enumerate(q.itertuples(index=False)):
             for k, value in enumerate(rec):
@@ -392,8 +401,13 @@ class ReviewPanel(QWidget):
         total = len(r.disagreements)
         self.queue_title.setText(f"Disagreements to decide: {len(q)} of {total}" if total else
                                  "Disagreements: none")
-        if len(q):
-            self.queue_view.selectRow(0)
+        runs = list(q["run"])
+        target = runs.index(select) if select in runs else (0 if follow and runs else None)
+        if target is not None:
+            self.queue_view.selectRow(target)
+        self.queue_view.blockSignals(False)
+        if target is not None and follow:
+            self._selected()
         self._update_enabled()
 
     # --- deciding --------------------------------------------------------------------------
@@ -448,6 +462,7 @@ class ReviewPanel(QWidget):
     def decide_side(self, side: str) -> bool:
         row = self.current_row()
         if row is None:
+            self.status.setText(self.writable_reason() or "Select a disagreement first.")
             return False
         return self.decide(row["label_a"] if side == "A" else row["label_b"])
 
@@ -472,11 +487,11 @@ class ReviewPanel(QWidget):
             self.status.setText(f"Not recorded: {exc}")
             return False
         self.reason.clear()
-        index = self.queue_view.currentRow()
+        runs = list(self.queue["run"])
+        index = runs.index(run) if run in runs else 0
+        later = [x for x in runs[index + 1:]] + [x for x in runs[:index]]
         self.state.refresh_labels()
-        self.refresh_queue()
-        if len(self.queue):
-            self.queue_view.selectRow(min(max(index, 0), len(self.queue) - 1))
+        self.refresh_queue(select=later[0] if later else None, follow=True)
         msg = f"Decided: {run} → {label}"
         if not len(self.queue):
             self.record_complete()
