@@ -97,6 +97,19 @@ class GenerateSummary:
         return lines
 
 
+RECORD_NAME = "generator-record.csv"
+
+
+def write_record(summary: GenerateSummary, path: Path) -> None:
+    """The generator's own record of where each half ended (its regions of the surface it made), one row
+    per run, so that classification of the set can be checked against what the generator knows."""
+    kcal = energy_factor("kcal/mol")
+    lines = ["run,backward_end,forward_end,outcome,max_drift_kcal_mol"]
+    for run, (b, f) in summary.ends.items():
+        lines.append(f"{run},{b},{f},{summary.outcome(run)},{summary.max_drift_ev[run] / kcal:.4f}")
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+
+
 def region_track(positions: np.ndarray) -> np.ndarray:
     """Region index per frame for positions ``(..., N, 3)``: -1 none, else index into REGION_NAMES."""
     def dist(p):
@@ -214,6 +227,7 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
             drift = max(drift, float(np.max(np.abs(total - total[0]))))
         summary.ends[run_id] = (ends[0], ends[1])
         summary.max_drift_ev[run_id] = drift
+    write_record(summary, out / RECORD_NAME)
     (out / "basins.toml").write_text(
         basins_toml(REACTANT_A_ABOVE, PRODUCT_A_BELOW, BOND_BELOW, SPECTATOR_ABOVE), encoding="utf-8")
     energies = {k: float(surface.energy(x)) - e_ts for k, x in points.items()}
