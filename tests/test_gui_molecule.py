@@ -159,3 +159,12 @@ def test_pixel_under_atom_has_element_hue(qtbot):
     img = v.render_image(200, 200)
     col = QColor(img.pixel(100, 100))
     assert col.red() > 2 * col.blue() and col.red() > 2 * col.green()
+
+
+def test_high_dpi_render_doubles_pixels_and_keeps_atoms_in_place(view):
+    img = view.render_image(200, 200, dpr=2.0)
+    assert (img.width(), img.height()) == (400, 400) and img.devicePixelRatio() == 2.0
+    xy, _ = view.project(200, 200)
+    bg = view.background_colour().rgb()
+    for x, y in xy:
+        assert img.pixel(int(round(2 * x)), int(round(2 * y))) != bg

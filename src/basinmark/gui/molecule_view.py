@@ -281,6 +281,24 @@ class MoleculeView(QWidget):
         self._paint_picks(p, xy, diam, highlight)
         if self._show_numbers:
             self._paint_numbers(p, xy, diam, n)
+        self._paint_caption(p, w, h)
+
+    def _paint_caption(self, p: QPainter, w: int, h: int) -> None:
+        """Run and time at the top left; while picking, what the next click does."""
+        pal = self.palette()
+        traj = self._traj
+        p.setPen(pal.color(QPalette.ColorRole.Text))
+        p.setFont(self.font())
+        fm = p.fontMetrics()
+        p.drawText(QRectF(8, 6, w - 16, fm.height() + 2), Qt.AlignmentFlag.AlignLeft,
+                   f"{traj.run_id}    t = {traj.times[self._frame]:+.1f} fs")
+        if self._picked:
+            atoms = "-".join(str(i + 1) for i in self._picked)
+            nxt = {1: "click a 2nd atom for a distance", 2: "click a 3rd for an angle",
+                   3: "click a 4th for a dihedral"}.get(len(self._picked), "click to start again")
+            hint = f"picked {atoms}: {nxt} (Shift-click keeps picking)"
+            p.setPen(pal.color(QPalette.ColorRole.PlaceholderText))
+            p.drawText(QRectF(8, h - fm.height() - 8, w - 16, fm.height() + 2), Qt.AlignmentFlag.AlignLeft, hint)
 
     def _paint_bonds(self, p: QPainter, xy: np.ndarray, pairs: np.ndarray, width: float, highlight: QColor) -> None:
         a, b = pairs[:, 0], pairs[:, 1]
