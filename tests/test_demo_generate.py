@@ -161,7 +161,14 @@ def test_bundled_set_is_complete_and_small():
         assert fh.readline().strip() == str(len(SYMBOLS))
 
 
+#: numpy release the bundled set was generated with; the dynamics are chaotic, so another release's
+#: different rounding may change the files (not the physics), and the byte check only holds on this one
+BUNDLED_WITH_NUMPY = "2.4"
+
+
 @pytest.mark.slow
+@pytest.mark.skipif(not np.__version__.startswith(BUNDLED_WITH_NUMPY + "."),
+                    reason=f"bundled set was generated with numpy {BUNDLED_WITH_NUMPY}.x")
 def test_bundled_set_regenerates_byte_for_byte(tmp_path):
     # the bundled set is exactly what make-demo writes with the default seed (same numpy)
     generate(tmp_path, runs=200, seed=DEFAULT_SEED)
