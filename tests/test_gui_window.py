@@ -397,3 +397,13 @@ def test_bad_rules_file_keeps_the_rules_in_use(win, qtbot, tmp_path):
     assert win.state.rules is before
     assert "could not be used" in win.banner.text() and "unchanged" in win.banner.text()
     assert "bad.toml" in win.banner.text()
+
+
+def test_adding_a_trace_keeps_the_time_and_zoom(win, qtbot):
+    win.state.set_frame(5)
+    t = win.state.traj.times[5]
+    win.traces.p_dist.setXRange(-40, 10, padding=0)
+    win.state.add_monitor((2, 3))
+    assert win.traces.time == pytest.approx(t)
+    lo, hi = win.traces.p_dist.viewRange()[0]
+    assert lo == pytest.approx(-40, abs=1e-6) and hi == pytest.approx(10, abs=1e-6)

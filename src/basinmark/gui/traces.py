@@ -143,9 +143,10 @@ class TracesView(QWidget):
 
     def set_user_monitors(self, user_monitors: Sequence[tuple[int, ...]]) -> None:
         self._user = [tuple(m) for m in user_monitors]
-        self.redraw()
+        self.redraw(keep_view=True)
 
-    def redraw(self) -> None:
+    def redraw(self, keep_view: bool = False) -> None:
+        """Rebuild every item; ``keep_view`` keeps the zoom (else the whole run is shown)."""
         for p in (self.p_dist, self.p_angle, self.p_band, self.p_energy):
             for item in list(p.listDataItems()):
                 p.removeItem(item)
@@ -171,10 +172,11 @@ class TracesView(QWidget):
         self._draw_marks()
         self._draw_energies()
         t0, t1 = traj.time_span
-        self.p_dist.setXRange(t0, t1, padding=0.02)
+        if not keep_view:
+            self.p_dist.setXRange(t0, t1, padding=0.02)
         for c in self.cursors:
             c.setBounds((t0, t1))
-        self.set_time(float(traj.times[traj.ts_index]))
+        self.set_time(float(np.clip(self._time, t0, t1)))
         self._update_legend()
 
     def _update_legend(self) -> None:
@@ -189,7 +191,7 @@ class TracesView(QWidget):
 
     def _draw_monitors(self) -> None:
         traj, rules, result = self._traj, self._rules, self._result
-        series: list[tuple[str, int, np.ndarray]] = []
+        series: list[tuple[str, int, np.ndarray, bool]] = []
         if rules is not None:
             for name, mon in rules.monitors.items():
                 vals = None
@@ -198,15 +200,15 @@ class TracesView(QWidget):
                 elif max(mon.indices) < traj.n_atoms:
                     vals = measure(traj.positions, mon.indices)
                 if vals is not None:
-                    series.append((name, len(mon.atoms), vals))
+                    series.append((name, len(mon.atoms), vals, False))
         for atoms in self._user:
             if max(atoms) <= traj.n_atoms:
-                series.append((monitor_name(atoms), len(atoms), measure(traj.positions, [a - 1 for a in atoms])))
+                series.append((monitor_name(atoms), len(atoms), measure(traj.positions, [a - 1 for a in atoms]),
+                               True))
         has_angles = False
-        for i, (name, n, vals) in enumerate(series):
+        for i, (name, n, vals, user) in enumerate(series):
             plot = self.p_dist if n == 2 else self.p_angle
             has_angles |= n > 2
-            user = i >= len(series) - len(self._user)
             pen = pg.mkPen(trace_colour(i), width=2, style=Qt.PenStyle.DashDotLine if user else Qt.PenStyle.SolidLine)
             self.curves[name] = plot.plot(traj.times, vals, pen=pen, name=name)
             self.values[name] = vals
