@@ -140,8 +140,8 @@ class SummaryPanel(QWidget):
             p.setMenuEnabled(False)
             for name in ("left", "bottom"):
                 p.getAxis(name).enableAutoSIPrefix(False)  # fractions and counts read as they are
-        self.p_commit.addLegend(offset=(-8, 8), labelTextSize="8pt")
-        self.p_conv.addLegend(offset=(-8, 8), labelTextSize="8pt")
+        for p in (self.p_commit, self.p_conv, self.p_gap):
+            p.addLegend(offset=(-8, 8), labelTextSize="8pt")
         split.addWidget(top)
         split.addWidget(self.plots)
         split.setStretchFactor(0, 0)
@@ -231,7 +231,10 @@ class SummaryPanel(QWidget):
     def label_table(self) -> pd.DataFrame:
         """The state's label table in set order, empty labels as missing (for build_summary)."""
         lab = self.state.labels.copy()
-        lab["final_label"] = lab["final_label"].where(lab["final_label"].astype(str).str.len() > 0, None)
+        # the window's table writes "" for "none"; the core reads a missing value (NaN/None) as "none"
+        for col in ("final_label", "hand_label", "labeler", "reason"):
+            if col in lab:
+                lab[col] = lab[col].where(lab[col].notna() & (lab[col].astype(str).str.len() > 0), None)
         return lab
 
     def refresh(self) -> None:
@@ -374,7 +377,9 @@ class SummaryPanel(QWidget):
         if hist is None or hist.empty:
             self._title(p, self.titles[id(p)] + " (none yet)")
             return
-        for outcome, grp in hist.groupby("outcome", sort=False):
+        order = list(self.summary.table["label"]) if self.summary is not None else []
+        groups = sorted(hist.groupby("outcome", sort=False), key=lambda g: order.index(g[0]) if g[0] in order else len(order))
+        for outcome, grp in groups:
             edges = np.append(grp["bin_lo_fs"].to_numpy(float), grp["bin_hi_fs"].to_numpy(float)[-1])
             counts = grp["count"].to_numpy(float)
             colour = QColor(self._colour(outcome)) if what == "commit_time" else QColor(self._gap_colour(outcome))
@@ -386,7 +391,7 @@ class SummaryPanel(QWidget):
     def _gap_colour(self, mode: str) -> QColor:
         from basinmark.gui.colours import trace_colour
 
-        return trace_colour(0 if mode == "concerted" else 1)
+        return trace_colour(6 if mode == "concerted" else 5)  # not the products' colours
 
     def _draw_gap(self) -> None:
         p = self.p_gap
@@ -395,8 +400,6 @@ class SummaryPanel(QWidget):
         if g is None:
             self._title(p, "Bond-formation time gap (no [time_gap] in the rules)")
             return
-        if p.legend is None:
-            p.addLegend(offset=(-8, 8), labelTextSize="8pt")
         self._draw_hist(p, self.gap_hist, "gap")
         cf = rules.time_gap.concerted_fs
         p.addItem(pg.InfiniteLine(cf, angle=90, pen=pg.mkPen(self.palette().color(QPalette.ColorRole.Text),
