@@ -302,14 +302,14 @@ class MainWindow(QMainWindow):
         """Set one threshold (of every listed basin condition) and classify the set again."""
         rules = self.state.rules
         if rules is None or self.job is not None:
-            self._on_run(self.state.run_id)  # put the line back
+            self._on_run(self.state.run_id, keep_view=True)  # put the line back
             return False
         try:
             for basin, monitor, bound in targets:
                 rules = rules.with_threshold(basin, monitor, bound, value)
         except BasinmarkError as exc:
             self.statusBar().showMessage(f"Threshold not changed: {exc}", 8000)
-            self._on_run(self.state.run_id)
+            self._on_run(self.state.run_id, keep_view=True)
             return False
         self._messages["rules_edited"] = (f"Rules changed here (threshold now {value:.3g}) and not saved: "
                                           "File ▸ Save Rules As… writes them.")
@@ -458,12 +458,13 @@ class MainWindow(QMainWindow):
             pairs += list(zip(idx[:-1], idx[1:])) if len(idx) > 2 else [tuple(idx)]
         return pairs
 
-    def _on_run(self, _run_id: str) -> None:
+    def _on_run(self, _run_id: str, keep_view: bool = False) -> None:
         traj = self.state.traj
         self.molecule.set_trajectory(traj, keep_view=True)
         self.molecule.set_frame(self.state.frame)
         self.molecule.set_highlight_pairs(self._highlight_pairs())
-        self.traces.set_run(traj, self.state.run_result(), self.state.rules, self.state.user_monitors)
+        self.traces.set_run(traj, self.state.run_result(), self.state.rules, self.state.user_monitors,
+                            keep_view=keep_view)
         if self.state.run_id in self.state.run_errors:
             self.statusBar().showMessage(self.state.run_errors[self.state.run_id], 10000)
         self._on_frame(self.state.frame)
@@ -471,7 +472,7 @@ class MainWindow(QMainWindow):
     def _on_rules(self) -> None:
         self.label_panel.rebuild()
         self._fill_labels_menu()
-        self._on_run(self.state.run_id)
+        self._on_run(self.state.run_id, keep_view=True)
 
     def _on_monitors(self) -> None:
         self.molecule.set_highlight_pairs(self._highlight_pairs())

@@ -136,10 +136,11 @@ class TracesView(QWidget):
         self._draw_energies()
 
     def set_run(self, traj: Trajectory | None, result: Any = None, rules: Any = None,
-                user_monitors: Sequence[tuple[int, ...]] = ()) -> None:
+                user_monitors: Sequence[tuple[int, ...]] = (), keep_view: bool = False) -> None:
+        same = traj is not None and traj is self._traj
         self._traj, self._result, self._rules = traj, result, rules
         self._user = [tuple(m) for m in user_monitors]
-        self.redraw()
+        self.redraw(keep_view=keep_view and same)
 
     def set_user_monitors(self, user_monitors: Sequence[tuple[int, ...]]) -> None:
         self._user = [tuple(m) for m in user_monitors]
