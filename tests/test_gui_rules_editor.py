@@ -3,6 +3,7 @@ input keeps the previous rules, saved files reload identically, automatic labels
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
 from pathlib import Path
@@ -263,3 +264,16 @@ def test_result_for_a_replaced_set_is_dropped(win, qtbot, tmp_path):
     qtbot.wait(50)
     assert len(win.state.tset) == 2
     assert seen and all(r != rules for r in seen)   # the old set's result never reached the state
+
+
+def test_untouched_values_do_not_drift(win, qtbot):
+    ed = win.rules_editor
+    exact = win.state.rules.with_threshold("left", "d_left", "below", 1.7523456789)
+    exact = dataclasses.replace(exact, dwell_fs=12.3456789)
+    ed.load(exact)
+    assert ed.conditions.item(_row(ed, "left", "d_left"), 3).text() == "1.7523456789"
+    ed.name.setText("renamed")          # an unrelated edit
+    rebuilt = ed.build_rules()
+    assert rebuilt.dwell_fs == 12.3456789
+    assert rebuilt.basins["left"].condition("d_left").hi == 1.7523456789
+    assert rebuilt == dataclasses.replace(exact, name="renamed")

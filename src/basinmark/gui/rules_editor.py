@@ -39,7 +39,10 @@ class _Cancelled(Exception):
 
 
 def _fmt(x: float | None) -> str:
-    return "" if x is None else f"{x:.6g}"
+    """Shortest text that reads back to exactly ``x`` (so an untouched value never drifts)."""
+    if x is None:
+        return ""
+    return str(int(x)) if float(x).is_integer() and abs(x) < 1e15 else repr(float(x))
 
 
 class Reclassifier(QObject):
@@ -127,6 +130,7 @@ class RulesEditor(QWidget):
         self.rules: Rules | None = None        # the last valid rules of this panel (applied or pending)
         self.file_path: Path | None = None     # where "Save Rules" writes
         self.error_text = ""
+        self._exact: dict = {}
         self._loading = False
         self._own_rules: Rules | None = None
         self.worker = Reclassifier(self)
@@ -304,12 +308,13 @@ class RulesEditor(QWidget):
             if rules is not None:
                 self.reactant.addItems(rules.basin_names)
                 self.reactant.setCurrentText(rules.reactant)
-            self.dwell.setValue(rules.dwell_fs if rules else 0.0)
             f = rules.flags if rules else FlagLimits()
-            self.late.setValue(f.late_commit_fs or 0.0)
-            self.drift.setValue(f.max_energy_drift or 0.0)
+            self._exact = {}
+            for spin, value in ((self.dwell, rules.dwell_fs if rules else 0.0), (self.late, f.late_commit_fs),
+                                (self.drift, f.max_energy_drift), (self.min_length, f.min_length_fs)):
+                spin.setValue(value or 0.0)
+                self._exact[spin] = float(value or 0.0)
             self.energy_unit.setCurrentText(f.energy_unit)
-            self.min_length.setValue(f.min_length_fs or 0.0)
             self.monitors.setRowCount(0)
             for m in (rules.monitors.values() if rules else ()):
                 self._append_monitor(m.name, ", ".join(map(str, m.atoms)))
@@ -423,6 +428,14 @@ class RulesEditor(QWidget):
             self.schedule()
 
     # --- building rules from the form -------------------------------------------------------
+    def spin_value(self, spin: QDoubleSpinBox) -> float:
+        """The spin box's value, or the exact loaded value when the box only shows it rounded."""
+        v = float(spin.value())
+        orig = getattr(self, "_exact", {}).get(spin)
+        if orig is not None and abs(round(orig, spin.decimals()) - v) < 1e-12:
+            return orig
+        return v
+
     def _err(self, problem: str, key: str) -> RulesError:
         return RulesError(EDITOR_SOURCE, problem, key=key)
 
@@ -479,11 +492,13 @@ class RulesEditor(QWidget):
             self.reactant.setCurrentText(reactant)
             self.reactant.blockSignals(False)
         off = lambda v: None if v <= 0 else float(v)  # noqa: E731
-        flags = FlagLimits(late_commit_fs=off(self.late.value()), max_energy_drift=off(self.drift.value()),
-                           energy_unit=self.energy_unit.currentText(), min_length_fs=off(self.min_length.value()))
+        flags = FlagLimits(late_commit_fs=off(self.spin_value(self.late)),
+                           max_energy_drift=off(self.spin_value(self.drift)),
+                           energy_unit=self.energy_unit.currentText(),
+                           min_length_fs=off(self.spin_value(self.min_length)))
         base = self.rules
         draft = Rules(monitors=monitors, basins={b: Basin(b, tuple(c)) for b, c in basins.items()},
-                      reactant=reactant, dwell_fs=float(self.dwell.value()), flags=flags,
+                      reactant=reactant, dwell_fs=self.spin_value(self.dwell), flags=flags,
                       time_gap=base.time_gap if base is not None else None, name=self.name.text().strip(),
                       allow_overlap=base.allow_overlap if base is not None else False)
         n_atoms = self.state.tset.n_atoms if self.state.tset is not None else None
