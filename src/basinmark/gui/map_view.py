@@ -317,7 +317,9 @@ class MapCanvas(pg.PlotWidget):
         self.legend.setBrush(pg.mkBrush(bg))
         self.legend.setPen(pg.mkPen(self.palette().color(QPalette.ColorRole.Mid)))
         self.legend.setLabelTextColor(text)
-        self.halo.setPen(pg.mkPen(base, width=6))
+        halo = QColor(text)  # an outline in the text colour stands out on either theme, over any path
+        halo.setAlpha(210)
+        self.halo.setPen(pg.mkPen(halo, width=6))
         self.marker.setPen(pg.mkPen(text, width=1.5))
         self.marker.setBrush(pg.mkBrush(hl))
         if self.data is not None:
