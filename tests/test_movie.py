@@ -242,3 +242,27 @@ def test_headless_platform_is_chosen(monkeypatch):
     monkeypatch.setenv("QT_QPA_PLATFORM", "xcb")
     ensure_gui_platform()
     assert os.environ["QT_QPA_PLATFORM"] == "xcb"
+
+
+def test_movie_keeps_the_view_orientation(qtbot, toy):
+    from basinmark.gui.molecule_view import MoleculeView
+
+    traj, rules, res = toy
+    src = MoleculeView()
+    qtbot.addWidget(src)
+    src.resize(500, 400)
+    src.set_trajectory(traj)
+    src.rotate((0.3, 1.0, 0.2), 0.9)
+    src.zoom(1.3)
+    src.set_frame(10)
+    r = MovieRenderer(traj, size=(400, 300), source_view=src)
+    try:
+        r.molecule.set_frame(10)
+        ratio = min(r.mol_w, 300) / min(500, 400)
+        xy_src, depth_src = src.project(500, 400)
+        xy_mov, depth_mov = r.molecule.project(r.mol_w, 300)
+        expected = (xy_src - np.array([250, 200])) * ratio + np.array([r.mol_w / 2, 150])
+        np.testing.assert_allclose(xy_mov, expected, atol=1e-9)
+        np.testing.assert_allclose(depth_mov, depth_src, atol=1e-12)
+    finally:
+        r.close()
