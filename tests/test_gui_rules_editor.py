@@ -277,3 +277,26 @@ def test_untouched_values_do_not_drift(win, qtbot):
     assert rebuilt.dwell_fs == 12.3456789
     assert rebuilt.basins["left"].condition("d_left").hi == 1.7523456789
     assert rebuilt == dataclasses.replace(exact, name="renamed")
+
+
+def test_add_basin(win, qtbot):
+    ed = win.rules_editor
+    ed.add_basin_row()
+    r = ed.conditions.rowCount() - 1
+    assert ed.conditions.item(r, 0).text() == "product1"
+    ed.conditions.item(r, 0).setText("middle")
+    ed.conditions.cellWidget(r, 1).setCurrentText("d_left")
+    ed.conditions.cellWidget(r, 2).setCurrentText("between")
+    ed.conditions.item(r, 3).setText("1.9, 2.0")
+    ed.add_condition_row()        # for the selected row's basin
+    c = ed.conditions.rowCount() - 1
+    assert ed.conditions.item(c, 0).text() == "middle"
+    ed.conditions.cellWidget(c, 1).setCurrentText("d_right")
+    ed.conditions.cellWidget(c, 2).setCurrentText("between")
+    ed.conditions.item(c, 3).setText("1.9, 2.0")
+    with qtbot.waitSignal(ed.reclassified, timeout=10000):
+        assert ed.apply_now(), ed.error_text
+    rules = win.state.rules
+    assert rules.products == ["left", "right", "middle"]
+    assert [ed.reactant.itemText(i) for i in range(ed.reactant.count())] == rules.basin_names
+    _same_table(win.state.classification, _core(win, rules))

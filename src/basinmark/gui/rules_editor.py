@@ -185,8 +185,13 @@ class RulesEditor(QWidget):
                                    "(Å for distances, degrees for angles)")
         lay.addWidget(self.conditions, 1)
         row = QHBoxLayout()
+        self.add_basin = QPushButton("Add Basin", self)
+        self.add_basin.setToolTip("A new product basin with one condition to fill in")
         self.add_condition = QPushButton("Add Condition", self)
+        self.add_condition.setToolTip("Another condition for the selected row's basin")
         self.remove_condition = QPushButton("Remove Condition", self)
+        self.remove_condition.setToolTip("Remove the selected conditions (a basin with none left is removed)")
+        row.addWidget(self.add_basin)
         row.addWidget(self.add_condition)
         row.addWidget(self.remove_condition)
         row.addStretch(1)
@@ -244,6 +249,7 @@ class RulesEditor(QWidget):
         self.add_monitor.clicked.connect(self.add_monitor_row)
         self.remove_monitor.clicked.connect(lambda: self._remove_selected(self.monitors))
         self.add_condition.clicked.connect(self.add_condition_row)
+        self.add_basin.clicked.connect(self.add_basin_row)
         self.remove_condition.clicked.connect(lambda: self._remove_selected(self.conditions))
         self.revert_button.clicked.connect(self.revert)
         self.save_button.clicked.connect(lambda: self.save())
@@ -415,6 +421,19 @@ class RulesEditor(QWidget):
         self._append_condition(basin, names[0] if names else "", "below", "1.0")
         self._loading = False
         self.conditions.setCurrentCell(self.conditions.rowCount() - 1, 3)
+        self.schedule()
+
+    def add_basin_row(self) -> None:
+        names = {self.conditions.item(r, 0).text() for r in range(self.conditions.rowCount())
+                 if self.conditions.item(r, 0) is not None}
+        i = 1
+        while f"product{i}" in names:
+            i += 1
+        monitors = self._monitor_names()
+        self._loading = True
+        self._append_condition(f"product{i}", monitors[0] if monitors else "", "below", "1.0")
+        self._loading = False
+        self.conditions.setCurrentCell(self.conditions.rowCount() - 1, 0)
         self.schedule()
 
     def _remove_selected(self, table: QTableWidget) -> None:
