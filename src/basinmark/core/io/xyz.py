@@ -265,10 +265,12 @@ def _fixed_width_matrix(block: bytes, n_lines: int) -> np.ndarray | None:
     width = block.find(b"\n") if n_lines > 1 else len(block)
     if width <= 0 or len(block) != n_lines * (width + 1) - 1:
         return None
-    grid = np.frombuffer(block + b"\n", np.uint8).reshape(n_lines, width + 1)
-    if not (grid[:, width] == 10).all():
+    buf = np.frombuffer(block, np.uint8)
+    # rows of `width` bytes, `width + 1` apart (the last line has no line break after it)
+    grid = np.lib.stride_tricks.as_strided(buf, shape=(n_lines, width), strides=(width + 1, 1), writeable=False)
+    if n_lines > 1 and not (buf[width::width + 1] == 10).all():
         return None
-    return grid[:, :width]
+    return grid
 
 
 _POW10 = np.array([10.0**k for k in range(309)])
@@ -673,69 +675,83 @@ def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float
         data = data.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
     if b"\t" in data or b"\f" in data or b"\v" in data:
         data = data.translate(bytes.maketrans(b"\t\f\v", b"   "))
-    lines = data.split(b"\n")
-    end = len(lines)
-    while end and not lines[end - 1].strip():
+    # Line offsets from one numpy scan; the text is cut per frame, not per line (60,000 line objects
+    # cost more to create and join again than the parse itself, measured).
+    buf = np.frombuffer(data, np.uint8)
+    breaks = np.flatnonzero(buf == 10)
+    line_start = np.concatenate(([0], breaks + 1))
+    line_end = np.append(breaks, len(data))
+    end = len(line_start)
+    while end and not data[line_start[end - 1]:line_end[end - 1]].strip():
         end -= 1
-    last_line_ended = end < len(lines)
+    last_line_ended = end < len(line_start)
     start = 0
-    while start < end and not lines[start].strip():
+    while start < end and not data[line_start[start]:line_end[start]].strip():
         start += 1
     if start == end:
         raise TrajectoryFileError(path, "the file is empty (no atom count, no frames)")
-    if start or end < len(lines):
-        lines = lines[start:end]
-    n = _atom_count(lines[0], path, start + 1)
+    line_start, line_end = line_start[start:end], line_end[start:end]
+    n_total = end - start
+
+    def line(i: int) -> bytes:
+        return data[line_start[i]:line_end[i]]
+
+    def all_lines() -> list[bytes]:  # for diagnosing problems only
+        return data.split(b"\n")[start:end]
+
+    first = line(0)
+    n = _atom_count(first, path, start + 1)
     where = _Where(path, start, n + 2, n)
     stride = n + 2
-    n_full, rem = divmod(len(lines), stride)
+    n_full, rem = divmod(n_total, stride)
 
-    heads = lines[0::stride]
-    if heads.count(lines[0]) != len(heads):
-        c0 = lines[0].strip()
-        for k, h in enumerate(heads):
-            if h.strip() != c0:
-                if k == len(heads) - 1 and rem == 1 and not last_line_ended:
+    head_start, head_end = line_start[0::stride], line_end[0::stride]
+    same = (head_end - head_start) == len(first)
+    if same.any():
+        gathered = buf[head_start[same][:, None] + np.arange(len(first))]
+        same[same] = (gathered == np.frombuffer(first, np.uint8)).all(axis=1)
+    if not same.all():
+        lines = all_lines()
+        c0 = first.strip()
+        for k in np.flatnonzero(~same).tolist():
+            if lines[k * stride].strip() != c0:
+                if k == len(head_start) - 1 and rem == 1 and not last_line_ended:
                     break  # the count line itself is cut short: a truncated last frame
                 _frame_boundary_error(lines, k, n, where)
 
+    cut = False
     if rem == 0 and not last_line_ended and n_full:
         # no final line break: the last atom line may have been cut mid-way.  Evidence: fewer values
         # than the first atom line, or a shorter line in a file whose other atom lines (at least 8)
         # all have one length (fixed-width output, as dynamics codes write).
-        last, ref = lines[-1], lines[2]
+        last, ref = line(n_total - 1), line(2)
         cut = len(last.split()) < len(ref.split())
         if not cut and n_full * n > 8:
-            others = np.array(lines, dtype=object).reshape(n_full, stride)[:, 2:].ravel().tolist()[:-1]
-            widths = set(map(len, others))
-            cut = len(widths) == 1 and len(last) < widths.pop()
+            widths = (line_end - line_start).reshape(n_full, stride)[:, 2:].ravel()[:-1]
+            cut = bool((widths == widths[0]).all() and len(last) < widths[0])
         if cut:
             n_full, rem = n_full - 1, stride
-    else:
-        cut = False
     if rem:
         got = max(rem - 2, 0)
         first_ln = start + n_full * stride + 1
         if cut:
-            msg = (f"the last frame (from line {first_ln}) is incomplete: its last line (line {start + len(lines)}) "
+            msg = (f"the last frame (from line {first_ln}) is incomplete: its last line (line {start + n_total}) "
                    "is cut short and the file has no final line break")
         else:
             msg = (f"the last frame (from line {first_ln}) is incomplete: the file ends at line "
-                   f"{start + len(lines)} after {got} of {n} atom lines")
+                   f"{start + n_total} after {got} of {n} atom lines")
         if n_full == 0:
             raise TrajectoryFileError(path, msg + " and there is no complete frame to load; "
                                       f"check the atom count on line {start + 1} or whether the file was cut short",
-                                      start + len(lines))
+                                      start + n_total)
         _partial(path, msg + f"; loaded the {n_full} complete frame{'s' if n_full != 1 else ''} before it", warnings)
-        lines = lines[: n_full * stride]
 
-    comments = lines[1::stride]
-    atom_lines = lines  # (lines is not used below)
-    del atom_lines[1::stride]  # extended-slice deletion runs in C: comment lines out,
-    del atom_lines[0::stride - 1]  # then the count lines; what is left are the atom lines in order
-    block = b"\n".join(atom_lines)
-    n_lines = len(atom_lines)
-
+    span = n_full * stride
+    comments = [data[a:b] for a, b in zip(line_start[1:span:stride].tolist(), line_end[1:span:stride].tolist())]
+    atoms_from = line_start[2:span:stride].tolist()
+    atoms_to = line_end[stride - 1:span:stride].tolist()
+    block = b"\n".join([data[a:b] for a, b in zip(atoms_from, atoms_to)])
+    n_lines = n_full * n
     meta = parse_comments(comments)
     props = meta.properties
     if props.count(props[0]) != len(props):
@@ -745,7 +761,7 @@ def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float
             "needs the same columns in every frame", start + k * stride + 2)
     cols = _layout(props[0], path, start + 2)
     if props[0] is None:
-        n_first = len(atom_lines[0].split())
+        n_first = len(line(2).split())
         if n_first < 4:
             raise TrajectoryFileError(path, f"this atom line has {n_first} values; an atom line needs an element "
                                       "and three coordinates", where.line_of(0))
