@@ -583,8 +583,7 @@ class RulesEditor(QWidget):
         self.last_seconds = out.get("seconds")
         self._show_counts()
         self._update_buttons()
-        counts = self.counts.text()
-        self.message.emit(f"Rules changed here and not saved (File ▸ Save Rules writes them). {counts}")
+        self.message.emit("Classified again with the edited rules (not saved yet).")
         self.reclassified.emit()
 
     def apply_threshold(self, targets: list, value: float) -> bool:
