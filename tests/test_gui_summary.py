@@ -170,3 +170,31 @@ def test_exports_of_the_summary_and_label_table(win, tmp_path):
         assert im.size == (800, 600)
     svg = export_figure(panel.plots, tmp_path / "plots.svg")
     assert ET.parse(svg).getroot().tag == "{http://www.w3.org/2000/svg}svg"
+
+
+def test_choosing_the_pair(win):
+    panel = win.summary_panel
+    assert [panel.a_combo.itemText(i) for i in range(panel.a_combo.count())] == ["automatic", "left", "right"]
+    panel.set_pair("right", "left")
+    core = _core(win, a="right", b="left")
+    assert (panel.summary.a, panel.summary.b) == ("right", "left")
+    assert panel.summary.ratio == core.ratio
+    panel.set_pair("left", "left")  # the core refuses; the view says why instead of showing numbers
+    assert panel.summary is None and "itself" in panel.lines.text()
+    panel.set_pair(None, None)
+    assert panel.summary.a == "left"
+
+
+def test_dragged_threshold_reclassifies_and_updates(win, qtbot):
+    from basinmark.gui.map_view import install_map_dock
+
+    install_map_dock(win)
+    before = dict(zip(win.summary_panel.summary.table["label"], win.summary_panel.summary.table["count"]))
+    # a threshold no product run reaches: every left/right run becomes unfinished
+    with qtbot.waitSignal(win.rules_applied, timeout=20000):
+        assert win.move_threshold([("left", "d_left", "below"), ("right", "d_right", "below")], 1.2)
+    after = dict(zip(win.summary_panel.summary.table["label"], win.summary_panel.summary.table["count"]))
+    assert before.get("left", 0) > 0 and after.get("left", 0) == 0
+    assert after["unfinished"] == before["unfinished"] + before["left"] + before["right"]
+    regions = {r.toolTip().split(" ")[1]: r.rect() for r in win.map_panel.canvas.region_items}
+    assert regions["left"].right() == pytest.approx(1.2)  # the shaded basin follows the rules

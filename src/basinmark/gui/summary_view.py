@@ -91,10 +91,19 @@ class SummaryPanel(QWidget):
         self.half_width.setPrefix("± ")
         self.half_width.setToolTip("Wanted half-width of the interval on the share of A among A + B; the view "
                                    "estimates how many runs that needs")
+        self.a_combo = QComboBox(self)
+        self.b_combo = QComboBox(self)
+        for combo in (self.a_combo, self.b_combo):
+            combo.setToolTip("The two products of the ratio A : B (automatic: the two with most runs)")
+            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
+        ratio = QLabel("R&atio:", self)
+        ratio.setBuddy(self.a_combo)
+        colon = QLabel(":", self)
         at = QLabel("at", self)
         need = QLabel("&Runs needed for:", self)
         need.setBuddy(self.half_width)
-        for w in (self.tst_box, self.ddg, self.unit, at, self.temperature, need, self.half_width):
+        for w in (ratio, self.a_combo, colon, self.b_combo, self.tst_box, self.ddg, self.unit, at, self.temperature,
+                  need, self.half_width):
             controls.addWidget(w)
         controls.addStretch(1)
         outer.addLayout(controls)
@@ -158,6 +167,8 @@ class SummaryPanel(QWidget):
         self.unit.currentTextChanged.connect(self._unit_changed)
         self.temperature.valueChanged.connect(lambda _v: self.refresh())
         self.half_width.valueChanged.connect(lambda _v: self.refresh())
+        self.a_combo.currentIndexChanged.connect(lambda _i: self.refresh())
+        self.b_combo.currentIndexChanged.connect(lambda _i: self.refresh())
 
     @property
     def all_plots(self) -> tuple:
@@ -214,8 +225,32 @@ class SummaryPanel(QWidget):
             w.blockSignals(False)
         self.refresh()
 
+    def set_pair(self, a: str | None, b: str | None) -> None:
+        """Choose the products of the ratio A : B (None = automatic)."""
+        for combo, name in ((self.a_combo, a), (self.b_combo, b)):
+            i = combo.findData(name) if name is not None else 0
+            if i < 0:
+                raise KeyError(f"{name!r} is not a product of the rules")
+            combo.setCurrentIndex(i)
+
+    def _fill_pair(self) -> None:
+        products = self.products()
+        for combo in (self.a_combo, self.b_combo):
+            keep = combo.currentData()
+            if [combo.itemData(i) for i in range(1, combo.count())] == products:
+                continue
+            combo.blockSignals(True)
+            combo.clear()
+            combo.addItem("automatic", None)
+            for p in products:
+                combo.addItem(p, p)
+            i = combo.findData(keep) if keep is not None else 0
+            combo.setCurrentIndex(max(i, 0))
+            combo.blockSignals(False)
+
     def settings(self) -> dict:
-        return {"ddg": self.ddg.value() if self.tst_box.isChecked() else None, "unit": self.unit.currentText(),
+        return {"a": self.a_combo.currentData(), "b": self.b_combo.currentData(),
+                "ddg": self.ddg.value() if self.tst_box.isChecked() else None, "unit": self.unit.currentText(),
                 "temperature": self.temperature.value(), "half_width": self.half_width.value()}
 
     # --- computing (all in the core) ------------------------------------------------------
@@ -241,6 +276,7 @@ class SummaryPanel(QWidget):
         st = self.state
         self.summary, self.error = None, ""
         self.commit_hist, self.gap_hist, self.gap_stats = pd.DataFrame(), pd.DataFrame(), None
+        self._fill_pair()
         if st.tset is not None and len(st.labels):
             labels = self.label_table()
             notes = []
