@@ -9,14 +9,13 @@ labels, rules or its own settings change.
 from __future__ import annotations
 
 import math
-from typing import Any
 
 import numpy as np
 import pandas as pd
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor, QPalette
-from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDockWidget, QDoubleSpinBox, QFormLayout,
+from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDockWidget, QDoubleSpinBox,
                                QHBoxLayout, QHeaderView, QLabel, QMainWindow, QSplitter, QTableWidget,
                                QTableWidgetItem, QVBoxLayout, QWidget)
 
