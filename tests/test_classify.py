@@ -345,6 +345,14 @@ def test_write_automatic_labels(tmp_path, rules):
         assert ev["rules_hash"] == rules.sha256 and ev["source"] == "rule"
         assert "late_commit" in ev["reason"]
         assert ev["content_hash"] == runs[2].content_hash
+        # the same rules on the same runs again: nothing new is written
+        assert write_automatic_labels(j, table, rules) == 0
+        # other rules (another file hash): every run is written again, recording the new hash
+        import dataclasses
+
+        other = dataclasses.replace(rules, sha256="0" * 64)
+        assert write_automatic_labels(j, table, other) == 3
+        assert [e for e in j.events if e.get("run") == "late"][-1]["rules_hash"] == "0" * 64
 
 
 # --- command line -------------------------------------------------------------------------------------

@@ -130,8 +130,10 @@ def run_classify(args) -> int:
     if args.dry_run:
         done = f"dry run: nothing written ({n} runs classified with {rules.source}, sha256 {rules.sha256[:12]})"
     else:
-        done = (f"{written} automatic labels written to {jpath} (rules {rules.source}, sha256 {rules.sha256[:12]}); "
-                f"hand labels are kept and still take precedence")
+        unchanged = n - written
+        same = f"; {unchanged} unchanged since the last classification, not written again" if unchanged else ""
+        done = (f"{written} automatic labels written to {jpath} (rules {rules.source}, sha256 {rules.sha256[:12]})"
+                f"{same}; hand labels are kept and still take precedence")
 
     out = sys.stdout
     if args.format == "json":

@@ -340,12 +340,24 @@ def mark_changed(table: pd.DataFrame, current_hashes: dict[str, str]) -> pd.Data
 
 
 def write_automatic_labels(journal, table: pd.DataFrame, rules: Rules) -> int:
-    """Write every run's outcome into the journal as one batch with source "rule"; returns events written."""
+    """Write every run's outcome into the journal as one batch with source "rule"; returns events written.
+
+    A run whose latest automatic event already says the same (label, reason, rules hash and content hash)
+    gets no new event: classifying twice with the same rules on the same files adds nothing to the journal.
+    """
     import basinmark
 
+    latest: dict[str, dict] = {}
+    for ev in journal.events:
+        if ev.get("kind") == "label" and ev.get("source") == "rule":
+            latest[ev["run"]] = ev
     entries = []
     for row in table.itertuples(index=False):
         reason = f"flags: {row.flags.replace(';', ', ')}" if row.flags else ""
+        prev = latest.get(row.run)
+        if (prev is not None and prev.get("label") == row.outcome and prev.get("reason", "") == reason
+                and prev.get("rules_hash") == rules.sha256 and prev.get("content_hash") == row.content_hash):
+            continue
         entries.append({"run_id": row.run, "label": row.outcome, "content_hash": row.content_hash, "reason": reason})
     if not entries:
         return 0
