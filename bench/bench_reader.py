@@ -77,11 +77,21 @@ def compare(path: Path, label: str, ref_repeat: int = 3) -> float:
     print(f"  ase.io.read   {ref * 1e3:8.1f} ms  {size_mb / ref:8.1f} MB/s  (best of {ref_repeat})")
     print(f"  ours / ase.io.read = {ratio:.1f}x (target >= {TARGET:g}x){'' if ratio >= TARGET else '  BELOW TARGET'}")
     if ref_repeat > 1:
+        cpu_ours = min(_cpu(lambda: read_frames(path)) for _ in range(3))
+        cpu_ref = min(_cpu(lambda: ase.io.read(path, index=":")) for _ in range(2))
+        print(f"  for information: CPU time (less sensitive to other processes): ours {cpu_ours * 1e3:.1f} ms, "
+              f"ase.io.read {cpu_ref * 1e3:.0f} ms, {cpu_ref / cpu_ours:.1f}x")
         data, _, _ = load_bytes(path)
         general = min(_timed(lambda: parse_xyz(data, path, fixed_width=False)) for _ in range(3))
         print(f"  for information: our general path (irregular spacing), parsing only: {general * 1e3:.1f} ms, "
               f"{ref / general:.1f}x ase.io.read")
     return ratio
+
+
+def _cpu(fn) -> float:
+    t0 = time.process_time()
+    fn()
+    return time.process_time() - t0
 
 
 def _timed(fn) -> float:

@@ -1,4 +1,4 @@
-"""Our XYZ / extended-XYZ reader against the reference library ase (ase.io.read / ase.io.write), and the accepted variants."""
+"""Our XYZ / extended-XYZ reader against the reference library ase (ase.io.read / ase.io.write), and accepted variants."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""Property-based round trips: random valid frames written by a small writer here (and by ase.io.write) read back exactly."""
+"""Property-based round trips: random valid frames written by a small writer here (and by ase.io.write) read back."""
 
 from __future__ import annotations
 

@@ -12,6 +12,7 @@ import bz2
 import hashlib
 import importlib
 import lzma
+import warnings as _warnings
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -19,7 +20,7 @@ from typing import Callable
 
 import numpy as np
 
-from basinmark.core.errors import TrajectoryFileError
+from basinmark.core.errors import PartialReadWarning, TrajectoryFileError
 
 
 @dataclass
@@ -131,9 +132,10 @@ def load_bytes(path: str | Path) -> tuple[bytes, str, list[str]]:
             path, f"the {kind} data is damaged and cannot be decompressed ({exc}); recopy the file from its source"
         ) from None
     if not complete:
-        warnings.append(
-            f"the {kind} data ends early (the file was cut short); read the {len(data)} bytes that decompressed."
-        )
+        message = (f"the {kind} data ends early (the file was cut short); read the {len(data)} bytes that "
+                   "decompressed")
+        warnings.append(message)
+        _warnings.warn(f"{path}: {message}", PartialReadWarning, stacklevel=3)
     return data, sha, warnings
 
 

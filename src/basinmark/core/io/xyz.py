@@ -645,7 +645,8 @@ def _check_text(data: bytes, path: Path) -> None:
     nul = data.find(b"\x00")
     if nul >= 0:
         raise TrajectoryFileError(
-            path, "the file holds binary data (a NUL byte), so it is not a text XYZ file", data.count(b"\n", 0, nul) + 1)
+            path, "the file holds binary data (a NUL byte), so it is not a text XYZ file",
+            data.count(b"\n", 0, nul) + 1)
     if not data.isascii():
         try:
             data.decode("utf-8")
