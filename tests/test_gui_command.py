@@ -29,3 +29,35 @@ def test_open_missing_folder_is_a_clear_error(tmp_path, capsys):
 def test_open_missing_rules_file_is_a_clear_error(tmp_path, capsys):
     assert main(["open", str(tmp_path), "--rules", str(tmp_path / "none.toml")]) == 2
     assert "no such rules file" in capsys.readouterr().err
+
+
+def test_run_opens_the_window_on_a_set_and_returns(qapp, tmp_path):
+    from PySide6.QtCore import QSettings, QTimer
+    from PySide6.QtWidgets import QApplication
+
+    from basinmark.gui.app import run
+    from basinmark.gui.main_window import MainWindow
+
+    from gui_fixtures import make_toy_set
+
+    # a temporary settings location: the test must not touch the user's own settings
+    for fmt in (QSettings.Format.NativeFormat, QSettings.Format.IniFormat):
+        QSettings.setPath(fmt, QSettings.Scope.UserScope, str(tmp_path / "settings"))
+    root = make_toy_set(tmp_path / "set", ["left", "right"])
+    seen = {}
+
+    def check_and_quit():
+        wins = [w for w in QApplication.topLevelWidgets() if isinstance(w, MainWindow) and w.isVisible()]
+        if wins and wins[-1].state.tset is not None and len(wins[-1].state.tset) == 2 and not wins[-1].busy:
+            seen["runs"] = len(wins[-1].state.tset)
+            seen["labeler"] = wins[-1].label_panel.labeler_name
+            wins[-1].close()
+            qapp.quit()
+        else:
+            QTimer.singleShot(50, check_and_quit)
+
+    QTimer.singleShot(50, check_and_quit)
+    QTimer.singleShot(20000, qapp.quit)  # never hang the suite
+    assert run(root, labeler="cli-name") == 0
+    assert seen == {"runs": 2, "labeler": "cli-name"}
+    assert (tmp_path / "settings").exists()

@@ -168,3 +168,23 @@ def test_high_dpi_render_doubles_pixels_and_keeps_atoms_in_place(view):
     bg = view.background_colour().rgb()
     for x, y in xy:
         assert img.pixel(int(round(2 * x)), int(round(2 * y))) != bg
+
+
+def test_wheel_zooms_and_right_drag_pans(view, qtbot):
+    from PySide6.QtCore import QPointF
+    from PySide6.QtGui import QWheelEvent
+
+    xy0, _ = view.project()
+    ev = QWheelEvent(QPointF(200, 200), view.mapToGlobal(QPointF(200, 200)), QPoint(0, 0), QPoint(0, 240),
+                     Qt.MouseButton.NoButton, Qt.KeyboardModifier.NoModifier, Qt.ScrollPhase.NoScrollPhase, False)
+    view.wheelEvent(ev)
+    xy1, _ = view.project()
+    # two wheel steps zoom by 1.15**2 about the centre of the widget
+    np.testing.assert_allclose(xy1 - 200, (xy0 - 200) * 1.15 ** 2, atol=1e-6)
+    qtbot.mousePress(view, Qt.MouseButton.RightButton, pos=QPoint(100, 100))
+    qtbot.mouseMove(view, QPoint(130, 110))
+    qtbot.mouseMove(view, QPoint(140, 120))
+    qtbot.mouseRelease(view, Qt.MouseButton.RightButton, pos=QPoint(140, 120))
+    xy2, _ = view.project()
+    np.testing.assert_allclose(xy2 - xy1, np.tile([40.0, 20.0], (len(xy1), 1)), atol=1e-6)
+    assert view.picked == []  # a drag is not a click
