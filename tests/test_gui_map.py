@@ -241,3 +241,14 @@ def test_export_current_frame_and_run(win, tmp_path):
     win.state.run_id = ""
     with pytest.raises(NothingToExport):
         export_frame(win.state, tmp_path / "g.xyz")
+
+
+def test_hidden_map_waits_until_shown(win):
+    panel = win.map_panel
+    win.docks["map"].close()
+    st_ = win.state
+    st_.journal.record("toy-004", "right", content_hash=st_.tset["toy-004"].content_hash, reason="slow")
+    st_.refresh_labels()
+    assert panel.stale and "right" in panel.canvas.counts and panel.canvas.counts["right"] == 1
+    win.docks["map"].show()
+    assert not panel.stale and panel.canvas.counts["right"] == 2

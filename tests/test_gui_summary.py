@@ -188,7 +188,9 @@ def test_choosing_the_pair(win):
 def test_dragged_threshold_reclassifies_and_updates(win, qtbot):
     from basinmark.gui.map_view import install_map_dock
 
-    install_map_dock(win)
+    dock = install_map_dock(win)
+    dock.show()
+    dock.raise_()
     before = dict(zip(win.summary_panel.summary.table["label"], win.summary_panel.summary.table["count"]))
     # a threshold no product run reaches: every left/right run becomes unfinished
     with qtbot.waitSignal(win.rules_applied, timeout=20000):
@@ -198,3 +200,18 @@ def test_dragged_threshold_reclassifies_and_updates(win, qtbot):
     assert after["unfinished"] == before["unfinished"] + before["left"] + before["right"]
     regions = {r.toolTip().split(" ")[1]: r.rect() for r in win.map_panel.canvas.region_items}
     assert regions["left"].right() == pytest.approx(1.2)  # the shaded basin follows the rules
+
+
+def test_hidden_summary_waits_and_catches_up(win, tmp_path):
+    from basinmark.gui.exports import export_summary
+
+    panel = win.summary_panel
+    win.docks["summary"].hide()
+    st = win.state
+    st.journal.record("toy-004", "left", content_hash=st.tset["toy-004"].content_hash, reason="late ring")
+    st.refresh_labels()
+    assert panel.stale  # nothing computed while nobody looks
+    md = export_summary(st, tmp_path / "s.md", panel).read_text(encoding="utf-8")
+    assert "| left | 6 |" in md and not panel.stale  # an export brings it up to date first
+    win.docks["summary"].show()
+    assert _shown_table(panel)["left"][0] == 6

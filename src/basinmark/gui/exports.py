@@ -40,6 +40,8 @@ def export_label_table(state, path: str | Path) -> Path:
 
 def current_summary(state, panel=None):
     """The summary the summary view shows (with its ΔΔG‡, unit, temperature), else one with defaults."""
+    if panel is not None and hasattr(panel, "ensure_current"):
+        panel.ensure_current()
     if panel is not None and getattr(panel, "summary", None) is not None:
         return panel.summary
     _need_set(state)
@@ -54,7 +56,13 @@ def export_summary(state, path: str | Path, panel=None) -> Path:
 
 
 def export_figure(widget: QWidget, path: str | Path, size: tuple[int, int] | None = None) -> Path:
-    """Any plot widget of the window to PNG or SVG."""
+    """Any plot widget of the window to PNG or SVG (a hidden panel is brought up to date first)."""
+    parent = widget.parentWidget()
+    while parent is not None:
+        if getattr(parent, "stale", False) and hasattr(parent, "refresh"):
+            parent.refresh(force=True)
+            break
+        parent = parent.parentWidget()
     return save_widget(widget, path, size)
 
 

@@ -504,6 +504,7 @@ class MapPanel(QWidget):
         self.state = state
         self.cache: dict = {}
         self._axes: list[MapAxis] = []
+        self.stale = True  # state changed while hidden: draw again when shown
         lay = QVBoxLayout(self)
         lay.setContentsMargins(4, 4, 4, 4)
         row = QHBoxLayout()
@@ -587,15 +588,29 @@ class MapPanel(QWidget):
         self.refresh()
 
     def _on_labels(self) -> None:
-        if self.canvas.data is not None:
+        if not self.isVisible():
+            self.stale = True
+        elif self.canvas.data is not None:
             self.canvas.set_labels(self.final_labels())
 
     def _message(self, text: str) -> None:
         self.note.setText(text)
         self.note.setVisible(bool(text))
 
-    def refresh(self) -> None:
-        """Measure the chosen monitors for every run (cached) and draw the map again."""
+    def showEvent(self, event) -> None:  # noqa: N802
+        super().showEvent(event)
+        if self.stale:
+            self.refresh()
+
+    def refresh(self, force: bool = False) -> None:
+        """Measure the chosen monitors for every run (cached) and draw the map again.
+
+        While the panel is hidden (closed, or behind another tab) the work waits until it is shown.
+        """
+        if not (force or self.isVisible()):
+            self.stale = True
+            return
+        self.stale = False
         st = self.state
         xa, ya = self.current_axis(self.x_combo), self.current_axis(self.y_combo)
         if st.tset is None or not len(st.tset):

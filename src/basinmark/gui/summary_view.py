@@ -51,6 +51,7 @@ class SummaryPanel(QWidget):
         self.gap_stats: dict | None = None
         self.error = ""
         self._unit = UNITS[0]
+        self.stale = True  # labels changed while hidden: summarise again when shown
         self._build()
         st = state
         st.labels_changed.connect(self.refresh)
@@ -271,7 +272,22 @@ class SummaryPanel(QWidget):
                 lab[col] = lab[col].where(lab[col].notna() & (lab[col].astype(str).str.len() > 0), None)
         return lab
 
-    def refresh(self) -> None:
+    def showEvent(self, event) -> None:  # noqa: N802
+        super().showEvent(event)
+        if self.stale:
+            self.refresh()
+
+    def ensure_current(self) -> None:
+        """Bring the numbers up to date now even if the panel is hidden (for exports)."""
+        if self.stale:
+            self.refresh(force=True)
+
+    def refresh(self, force: bool = False) -> None:
+        """Summarise the state's labels again (deferred while the panel is hidden)."""
+        if not (force or self.isVisible()):
+            self.stale = True
+            return
+        self.stale = False
         st = self.state
         self.summary, self.error = None, ""
         self.commit_hist, self.gap_hist, self.gap_stats = pd.DataFrame(), pd.DataFrame(), None
