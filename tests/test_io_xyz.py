@@ -1,4 +1,4 @@
-"""Our XYZ / extended-XYZ reader against the reference library ase (ase.io.read / ase.io.write), and accepted variants."""
+"""Our XYZ / extended-XYZ reader against the reference library ase (ase.io.read and ase.io.write), and variants."""
 
 from __future__ import annotations
 

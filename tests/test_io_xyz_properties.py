@@ -124,7 +124,7 @@ def _atoms_frames(draw, n_frames, n_atoms):
     return frames
 
 
-@settings(max_examples=30)
+@settings(max_examples=30, deadline=None)
 @given(st.data(), st.integers(1, 4), st.integers(1, 6), st.sampled_from(["extxyz", "xyz"]))
 def test_files_written_by_ase_round_trip(data, n_frames, n_atoms, fmt):
     frames = _atoms_frames(data.draw, n_frames, n_atoms)
@@ -142,3 +142,50 @@ def test_files_written_by_ase_round_trip(data, n_frames, n_atoms, fmt):
             assert block.text_info["label"] == [a.info["label"] for a in ref]
             np.testing.assert_allclose(block.arrays["mass_like"], np.stack([a.arrays["mass_like"] for a in frames]),
                                        atol=1e-8)
+
+
+SEED_FILES = [
+    b"3\nProperties=species:S:1:pos:R:3:q:R:1 time=0.5 epot=-1.25 tag=\"a b\" pbc=\"F F F\"\n"
+    b"C        0.10000000       1.50000000      -2.25000000       0.10000000\n"
+    b"Cl      -1.00000000       0.00000000       3.50000000      -0.20000000\n"
+    b"H        2.00000000      -0.50000000       0.75000000       0.30000000\n"
+    b"3\nProperties=species:S:1:pos:R:3:q:R:1 time=1.0 epot=-1.20 tag=\"a b\" pbc=\"F F F\"\n"
+    b"C        0.20000000       1.40000000      -2.15000000       0.10000000\n"
+    b"Cl      -1.10000000       0.10000000       3.40000000      -0.20000000\n"
+    b"H        2.10000000      -0.40000000       0.65000000       0.30000000\n",
+    b"2\nstep 1\nO 0.0 0.0 0.0\nH 0.0 0.757 0.586\n2\nstep 2\nO 0.0 0.0 0.01\nH 0.0 0.75 0.59\n",
+]
+
+
+@settings(max_examples=150, deadline=None)
+@given(st.sampled_from(SEED_FILES), st.lists(st.tuples(st.integers(0, 10_000), st.integers(0, 255),
+                                                       st.sampled_from(["replace", "insert", "delete"])),
+                                             min_size=1, max_size=4), st.booleans())
+def test_damaged_files_give_our_error_or_a_result_never_a_crash(seed, edits, fixed_width):
+    """Random byte edits of a valid file: the reader returns frames or raises TrajectoryFileError, nothing else."""
+    import warnings
+
+    from basinmark.core.errors import TrajectoryFileError
+
+    data = bytearray(seed)
+    for pos, byte, how in edits:
+        pos %= len(data) + 1
+        if how == "insert":
+            data[pos:pos] = bytes([byte])
+        elif pos < len(data):
+            if how == "replace":
+                data[pos] = byte
+            else:
+                del data[pos]
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            block = parse_xyz(bytes(data), "damaged.xyz", fixed_width=fixed_width)
+        except TrajectoryFileError as err:
+            assert err.line is None or 1 <= err.line <= bytes(data).count(b"\n") + 1
+            return
+    assert block.positions.shape == (block.n_frames, block.n_atoms, 3) and block.n_frames >= 1
+    assert np.isfinite(block.positions).all()
+    assert block.numbers.shape == (block.n_atoms,) and (block.numbers >= 1).all()
+    for values in block.info.values():
+        assert values.shape == (block.n_frames,)
