@@ -93,3 +93,22 @@ def test_map_runs_without_a_display(toy_root, tmp_path):
     assert proc.returncode == 0, proc.stderr
     with Image.open(out) as im:
         assert im.size == (300, 200)
+
+
+def test_map_labels_come_from_the_journal_when_it_has_them(tmp_path):
+    from basinmark.commands.figures import map_labels
+    from basinmark.core.journal import LabelJournal
+    from basinmark.core.rules import load_rules
+    from basinmark.core.sets import journal_path
+
+    root = make_toy_set(tmp_path / "labelled", ["left", "right", "left"])
+    tset = open_set(root, use_cache=False)
+    rules = load_rules(root / "basins.toml", n_atoms=tset.n_atoms)
+    labels, notes = map_labels(tset, rules, journal_path(root))
+    assert labels == {"toy-001": "left", "toy-002": "right", "toy-003": "left"}
+    assert any("not yet classified" in n for n in notes)
+    with LabelJournal.open(journal_path(root), set_id="labelled", labeler="tester") as j:
+        j.record("toy-002", "excluded", content_hash=tset["toy-002"].content_hash, reason="bad start")
+    labels, notes = map_labels(tset, rules, journal_path(root))
+    assert labels == {"toy-002": "excluded"}
+    assert any("2 run(s) have no label" in n for n in notes)
