@@ -61,3 +61,15 @@ def test_run_opens_the_window_on_a_set_and_returns(qapp, tmp_path):
     assert run(root, labeler="cli-name") == 0
     assert seen == {"runs": 2, "labeler": "cli-name"}
     assert (tmp_path / "settings").exists()
+
+
+def test_open_without_a_display_says_what_to_do(tmp_path, monkeypatch, capsys):
+    import sys
+
+    if not sys.platform.startswith("linux"):
+        pytest.skip("the display check is for Linux")
+    for var in ("DISPLAY", "WAYLAND_DISPLAY", "QT_QPA_PLATFORM"):
+        monkeypatch.delenv(var, raising=False)
+    assert main(["open", str(tmp_path)]) == 2
+    err = capsys.readouterr().err
+    assert "no display" in err and "headless" in err

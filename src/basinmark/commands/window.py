@@ -3,9 +3,20 @@
 from __future__ import annotations
 
 import argparse
+import os
+import sys
 from pathlib import Path
 
-from basinmark.core.errors import SetError
+from basinmark.core.errors import BasinmarkError, SetError
+
+
+def _check_display() -> None:
+    """On Linux without any display Qt aborts the process; say what to do instead."""
+    if not sys.platform.startswith("linux") or os.environ.get("QT_QPA_PLATFORM"):
+        return
+    if not (os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")):
+        raise BasinmarkError("no display to open the window on (DISPLAY and WAYLAND_DISPLAY are unset); "
+                             "use ssh -X, or the headless commands (basinmark classify, summary, label, ...)")
 
 
 def register(subparsers) -> None:
@@ -29,4 +40,5 @@ def _run(args: argparse.Namespace) -> int:
         raise SetError(f"{path}: no such folder (give a folder of runs, or omit SET for the sample set)")
     if args.rules and not Path(args.rules).is_file():
         raise SetError(f"{args.rules}: no such rules file")
+    _check_display()
     return run(path, args.rules, args.labeler)

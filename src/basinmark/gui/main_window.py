@@ -387,6 +387,8 @@ class MainWindow(QMainWindow):
             self.state.set_set(tset)
             if keep and keep in tset:
                 self.state.set_run(keep)
+            elif not self.molecule.user_moved:
+                self.molecule.reset_view()  # oriented on the set's first run, not on whichever loaded first
             self._remember(tset.root)
             if tset.warnings:
                 self._messages["set"] = " ".join(tset.warnings)

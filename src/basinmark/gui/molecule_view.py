@@ -70,6 +70,7 @@ class MoleculeView(QWidget):
         self._dragged = False
         self._button = Qt.MouseButton.NoButton
         self._radii = np.zeros(0)
+        self.user_moved = False  # set once a person rotates, zooms or pans
         self._colours: list[tuple[int, int, int]] = []
 
     # --- data ---------------------------------------------------------------------------
@@ -379,6 +380,7 @@ class MoleculeView(QWidget):
             if abs(pos.x() - self._press.x()) + abs(pos.y() - self._press.y()) > _CLICK_SLOP_PX:
                 self._dragged = True
         if self._dragged:
+            self.user_moved = True
             if self._button == Qt.MouseButton.LeftButton:
                 # trackball: rotate about the screen axis perpendicular to the drag
                 self.rotate((dy, dx, 0.0), 0.01 * float(np.hypot(dx, dy)))
@@ -400,6 +402,7 @@ class MoleculeView(QWidget):
     def wheelEvent(self, event) -> None:  # noqa: N802
         steps = event.angleDelta().y() / 120.0
         if steps:
+            self.user_moved = True
             self.zoom(1.15 ** steps)
         event.accept()
 
