@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 import pandas as pd
 from PySide6.QtCore import (QAbstractTableModel, QItemSelectionModel, QModelIndex, QRectF, QSignalBlocker,
                             QSize, QSortFilterProxyModel, Qt)
-from PySide6.QtGui import QColor, QPainter, QPalette
+from PySide6.QtGui import QPainter, QPalette
 from PySide6.QtWidgets import (QAbstractItemView, QButtonGroup, QHBoxLayout, QHeaderView, QLabel, QSizePolicy,
                                QTableView, QToolButton, QVBoxLayout, QWidget)
 
