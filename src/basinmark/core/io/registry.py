@@ -25,7 +25,16 @@ from basinmark.core.errors import PartialReadWarning, TrajectoryFileError
 
 @dataclass
 class FrameBlock:
-    """All frames of one trajectory file, as arrays."""
+    """All frames of one trajectory file, as arrays.
+
+    ``info`` holds the comment-line keys whose values are all numbers (float64,
+    NaN in frames that lack the key); other keys go to ``text_info`` as strings
+    ("" where missing; a bare word is a flag "T"; booleans stay "T"/"F"; a
+    comment line without any ``key=value`` is kept whole under ``"comment"``).
+    ``Properties``, ``Lattice`` and ``pbc`` are not repeated in either.
+    ``arrays`` holds the per-atom columns of ``Properties=`` other than species
+    and pos (R as float64, I as int64, L as bool, S as str).
+    """
 
     path: Path
     numbers: np.ndarray  # (n_atoms,) int16 atomic numbers
