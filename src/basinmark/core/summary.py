@@ -258,7 +258,8 @@ def flag_warnings(labels: pd.DataFrame) -> list[str]:
     counted = final.notna() & (final.astype(str).str.strip() != "") & (final != "excluded")
     flags = labels["flags"].fillna("").astype(str)
     if "hand_label" in labels:
-        by_hand = labels["hand_label"].notna()
+        hand = labels["hand_label"]
+        by_hand = hand.notna() & (hand.astype(str).str.strip() != "")  # "" means no hand label too
     else:
         by_hand = pd.Series(False, index=labels.index)
     out = []
