@@ -236,3 +236,10 @@ def test_atomic_numbers_in_a_z_column_or_a_numeric_species_column(parse, tmp_pat
     assert parse(path).numbers.tolist() == [8, 1]
     path.write_text("2\nProperties=species:I:1:pos:R:3\n8 0 0 0\n1 0 0 1\n")
     assert parse(path).numbers.tolist() == [8, 1]
+
+
+def test_utf8_byte_order_mark_is_ignored(parse, tmp_path):
+    path = tmp_path / "bom.xyz"
+    path.write_bytes(b"\xef\xbb\xbf1\r\ntime=2\r\nH 0 0 1\r\n")
+    block = parse(path)
+    assert block.positions.tolist() == [[[0.0, 0.0, 1.0]]] and block.info["time"].tolist() == [2.0]

@@ -672,6 +672,8 @@ def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float
     path = Path(path)
     warnings = list(warnings or [])
     _check_text(data, path)
+    if data.startswith(b"\xef\xbb\xbf"):
+        data = data[3:]  # a UTF-8 byte-order mark, as some Windows editors write
     if b"\r" in data:
         data = data.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
     if b"\t" in data or b"\f" in data or b"\v" in data:
