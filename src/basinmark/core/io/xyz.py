@@ -1,9 +1,9 @@
 """Our XYZ / extended-XYZ reader, vectorised with numpy.
 
-The file is split into lines once; frame boundaries follow from the first
-atom-count line (every frame must have the same atoms), all atom lines of all
-frames are parsed in one go, and element symbols are compared frame by frame
-as whole arrays.  Why not ``ase.io.read``: it builds one ``Atoms`` per frame
+Line offsets come from one numpy scan for line breaks; frame boundaries follow
+from the first atom-count line (every frame must have the same atoms); the
+atom lines of all frames are cut out frame by frame and parsed in one go; and
+element symbols are compared frame by frame as whole arrays.  Why not ``ase.io.read``: it builds one ``Atoms`` per frame
 and parses line by line, which is too slow for sets of thousands of runs
 (bench/bench_reader.py measures the difference).
 
