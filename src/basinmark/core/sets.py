@@ -155,8 +155,9 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
     if times is not None:
         if np.isnan(times).any():
             bad = int(np.flatnonzero(np.isnan(times))[0])
+            line = int(block.frame_lines[bad]) if block.frame_lines.size else 0
             raise TrajectoryFileError(path, f"frame {bad + 1} has no time although others do",
-                                      int(block.frame_lines[bad]))
+                                      line or None)  # 0: the reader had no line numbers (ase fallback)
         times = times * layout.time_factor
     energies = {}
     for role in ("potential", "kinetic", "total"):
