@@ -31,36 +31,44 @@ def test_open_missing_rules_file_is_a_clear_error(tmp_path, capsys):
     assert "no such rules file" in capsys.readouterr().err
 
 
-def test_run_opens_the_window_on_a_set_and_returns(qapp, tmp_path):
-    from PySide6.QtCore import QSettings, QTimer
-    from PySide6.QtWidgets import QApplication
-
-    from basinmark.gui.app import run
-    from basinmark.gui.main_window import MainWindow
+def test_run_opens_the_window_on_a_set_and_returns(tmp_path):
+    # in a child process: once an application's exec() has returned, Qt ends every later event
+    # loop at once, which would break the other GUI tests of this process
+    import os
+    import subprocess
+    import sys
+    import textwrap
+    from pathlib import Path
 
     from gui_fixtures import make_toy_set
 
-    # a temporary settings location: the test must not touch the user's own settings
-    for fmt in (QSettings.Format.NativeFormat, QSettings.Format.IniFormat):
-        QSettings.setPath(fmt, QSettings.Scope.UserScope, str(tmp_path / "settings"))
     root = make_toy_set(tmp_path / "set", ["left", "right"])
-    seen = {}
-
-    def check_and_quit():
-        wins = [w for w in QApplication.topLevelWidgets() if isinstance(w, MainWindow) and w.isVisible()]
-        if wins and wins[-1].state.tset is not None and len(wins[-1].state.tset) == 2 and not wins[-1].busy:
-            seen["runs"] = len(wins[-1].state.tset)
-            seen["labeler"] = wins[-1].label_panel.labeler_name
-            wins[-1].close()
-            qapp.quit()
-        else:
-            QTimer.singleShot(50, check_and_quit)
-
-    QTimer.singleShot(50, check_and_quit)
-    QTimer.singleShot(20000, qapp.quit)  # never hang the suite
-    assert run(root, labeler="cli-name") == 0
-    assert seen == {"runs": 2, "labeler": "cli-name"}
-    assert (tmp_path / "settings").exists()
+    code = textwrap.dedent(f"""
+        from PySide6.QtCore import QTimer
+        from PySide6.QtWidgets import QApplication
+        from basinmark.gui.app import make_app, run
+        from basinmark.gui.main_window import MainWindow
+        app = make_app()
+        def check():
+            wins = [w for w in QApplication.topLevelWidgets() if isinstance(w, MainWindow) and w.isVisible()]
+            w = wins[-1] if wins else None
+            if w is not None and w.state.tset is not None and len(w.state.tset) == 2 and not w.busy:
+                print("RUNS", len(w.state.tset), "LABELER", w.label_panel.labeler_name, flush=True)
+                w.close()
+                app.quit()
+            else:
+                QTimer.singleShot(50, check)
+        QTimer.singleShot(50, check)
+        QTimer.singleShot(30000, app.quit)
+        print("RC", run({str(root)!r}, labeler="cli-name"), flush=True)
+    """)
+    env = dict(os.environ, QT_QPA_PLATFORM="offscreen", HOME=str(tmp_path / "home"),
+               XDG_CONFIG_HOME=str(tmp_path / "home" / ".config"))
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, timeout=120)
+    assert "RUNS 2 LABELER cli-name" in out.stdout, out.stderr
+    assert "RC 0" in out.stdout
+    # settings went to the temporary home, not the user's own
+    assert (Path(env["XDG_CONFIG_HOME"]) / "basinmark").is_dir()
 
 
 def test_open_without_a_display_says_what_to_do(tmp_path, monkeypatch, capsys):

@@ -30,8 +30,15 @@ def make_app(argv: list[str] | None = None):
 
 
 #: optional panels that attach themselves to the window: (module, function taking the window)
-EXTRAS = (("basinmark.gui.map_view", "install_map_dock"), ("basinmark.gui.summary_view", "install_summary_dock"),
-          ("basinmark.gui.review_view", "install_review_dock"), ("basinmark.gui.movie", "install_movie_action"))
+EXTRAS = (
+    ("basinmark.gui.map_view", "install_map_dock"),
+    ("basinmark.gui.summary_view", "install_summary_dock"),
+    ("basinmark.gui.review_view", "install_review_dock"),
+    ("basinmark.gui.sweep_view", "install_sweep_dock"),
+    ("basinmark.gui.rules_editor", "install_rules_editor"),
+    ("basinmark.gui.exports", "install_export_menu"),
+    ("basinmark.gui.movie", "install_movie_action"),
+)
 
 
 def install_extras(win) -> list[str]:
