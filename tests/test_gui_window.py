@@ -407,3 +407,17 @@ def test_adding_a_trace_keeps_the_time_and_zoom(win, qtbot):
     assert win.traces.time == pytest.approx(t)
     lo, hi = win.traces.p_dist.viewRange()[0]
     assert lo == pytest.approx(-40, abs=1e-6) and hi == pytest.approx(10, abs=1e-6)
+
+
+def test_panel_shows_reason_and_history_and_escape_clears_picks(win, qtbot):
+    win.label_panel.reason.setText("bond 1-2 <forms> late")
+    assert win.label_panel.apply_label("left")
+    text = win.label_panel.current.text()
+    assert "bond 1-2 &lt;forms&gt; late" in text and "<b>left</b>" in text
+    tip = win.label_panel.current.toolTip()
+    assert "Label history" in tip and "left (hand)" in tip
+    xy, _ = win.molecule.project()
+    win.molecule.click_at(*xy[0])
+    assert win.state.picked == [1]
+    qtbot.keyClick(win.run_table.view, Qt.Key.Key_Escape)
+    assert win.state.picked == [] and win.molecule.picked == []

@@ -68,6 +68,7 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("fit_view", "&Fit Molecule", "View", ("Shift+R",), "Zoom to fit, keep the orientation", "fit-view"),
     ActionSpec("atom_numbers", "Atom &Numbers", "View", ("A",), "Show 1-based atom numbers", "atom-numbers",
                checkable=True),
+    ActionSpec("clear_picks", "Clear &Picked Atoms", "View", ("Esc",), "Forget the atoms picked so far"),
     ActionSpec("clear_monitors", "&Clear Added Traces", "View", ("Ctrl+Backspace",),
                "Remove the distances, angles and dihedrals you added by picking atoms"),
     ActionSpec("energy_unit", "Energies in kJ/mol", "View", (), "Show energies in kJ/mol instead of kcal/mol",

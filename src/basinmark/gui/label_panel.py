@@ -7,6 +7,8 @@ read-only with a banner naming the holder, and the buttons are disabled.
 
 from __future__ import annotations
 
+from html import escape
+
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QAction, QIcon, QKeySequence, QPainter, QPalette, QPixmap
 from PySide6.QtWidgets import (QFormLayout, QGridLayout, QHBoxLayout, QLabel, QLineEdit, QPushButton,
@@ -167,14 +169,34 @@ class LabelPanel(QWidget):
             self.current.setText("No run open" if st.traj is None else f"<b>{st.run_id}</b>")
             return
         hand = row["hand_label"] or "—"
-        who = f" by {row['labeler']}" if row.get("labeler") else ""
+        who = f" by {escape(row['labeler'])}" if row.get("labeler") else ""
+        why = f" — “{escape(row['reason'])}”" if row.get("reason") else ""
         extra = ""
         if row.get("data_changed"):
             extra = "<br><b>The run's files changed since it was labeled.</b>"
         if row.get("flags"):
-            extra += f"<br>flags: {row['flags'].replace(';', ', ')}"
-        self.current.setText(f"<b>{st.run_id}</b> — automatic: {row['auto_label'] or '—'}; "
-                             f"hand: <b>{hand}</b>{who}{extra}")
+            extra += f"<br>flags: {escape(row['flags'].replace(';', ', '))}"
+        self.current.setText(f"<b>{escape(st.run_id)}</b> — automatic: {escape(row['auto_label'] or '—')}; "
+                             f"hand: <b>{escape(hand)}</b>{who}{why}{extra}")
+        self.current.setToolTip(self._history_text(st.run_id))
+
+    def _history_text(self, run_id: str) -> str:
+        """The run's label events from the journal, newest last (shown as a tooltip)."""
+        j = self.state.journal
+        if j is None:
+            return ""
+        try:
+            hist = j.history(run_id)
+        except Exception:  # a tooltip must never break the panel
+            return ""
+        if hist.empty:
+            return "No label events for this run in the journal."
+        lines = []
+        for ev in hist.tail(12).itertuples():
+            what = f"undo → {ev.label or 'no label'}" if ev.kind == "undo" else f"{ev.label} ({ev.source})"
+            reason = f": {ev.reason}" if ev.reason else ""
+            lines.append(f"{ev.time}  {ev.labeler}  {what}{reason}")
+        return "Label history (journal):\n" + "\n".join(lines)
 
     # --- labeling ---------------------------------------------------------------------------
     def _say(self, text: str) -> None:

@@ -86,6 +86,7 @@ class MainWindow(QMainWindow):
             "reset_view": lambda: self.molecule.reset_view(), "fit_view": lambda: self.molecule.fit(),
             "atom_numbers": lambda on: self.molecule.set_show_numbers(on),
             "clear_monitors": lambda: self.state.clear_monitors(),
+            "clear_picks": lambda: self.molecule.clear_picks(),
             "energy_unit": lambda on: self.traces.set_energy_unit("kJ/mol" if on else "kcal/mol"),
             "shortcuts": self.show_shortcuts, "about": self.show_about,
         }
@@ -143,7 +144,7 @@ class MainWindow(QMainWindow):
             m.addAction(a[name])
         self.labels_menu = bar.addMenu("&Labels")
         m = bar.addMenu("&View")
-        for name in ("reset_view", "fit_view", "atom_numbers", None, "clear_monitors", "energy_unit"):
+        for name in ("reset_view", "fit_view", "atom_numbers", None, "clear_picks", "clear_monitors", "energy_unit"):
             m.addSeparator() if name is None else m.addAction(a[name])
         m.addSeparator()
         for dock in self.docks.values():
