@@ -49,7 +49,8 @@ def install_extras(win) -> list[str]:
     for module, func in EXTRAS:
         try:
             mod = importlib.import_module(module)
-        except ImportError:
+        except ImportError as exc:  # said, not hidden: a panel that cannot import is a bug to fix
+            print(f"basinmark: the panel {module} could not be loaded: {exc}", file=sys.stderr)
             continue
         installer = getattr(mod, func, None)
         if installer is None:

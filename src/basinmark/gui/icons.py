@@ -13,12 +13,8 @@ _SIZES = (16, 24, 32, 48)
 
 
 def icon_dir() -> Path:
-    """resources/icons beside the source tree (editable install), else inside the package."""
-    here = Path(__file__).resolve()
-    for base in (here.parents[3] / "resources", here.parents[1] / "resources"):
-        if (base / "icons").is_dir():
-            return base / "icons"
-    return here.parents[3] / "resources" / "icons"
+    """The package's own ``resources/icons`` (shipped in the wheel as package data)."""
+    return Path(__file__).resolve().parents[1] / "resources" / "icons"
 
 
 def icon_names() -> list[str]:
