@@ -159,3 +159,28 @@ def test_progress_and_cancel(tmp_path):
 def test_missing_folder_message(tmp_path):
     with pytest.raises(Exception, match="no such folder"):
         open_set(tmp_path / "nope")
+
+
+def test_set_snapshot_keeps_failures_and_shares_one_positions_array(tmp_path, monkeypatch):
+    write_run(tmp_path, "run-1")
+    write_run(tmp_path, "run-2")
+    (tmp_path / "run-3.bwd.xyz").write_text("2\n\nC 0 0 0\nH nan 0 0\n")
+    write(tmp_path / "run-3.fwd.xyz", _frames(2, [0.0, 0.5]), format="extxyz")
+    first = open_set(tmp_path)
+    assert first.run_ids == ["run-1", "run-2"] and len(first.failures) == 1
+    assert list((tmp_path / ".basinmark-cache").glob("set-*"))
+    monkeypatch.setattr(sets_mod, "iter_runs", lambda *a, **k: (_ for _ in ()).throw(AssertionError("parsed")))
+    again = open_set(tmp_path)
+    assert again.run_ids == first.run_ids
+    assert [str(f) for f in again.failures] == [str(f) for f in first.failures]
+    a, b = again["run-1"].positions, again["run-2"].positions
+    def root(x):
+        while isinstance(getattr(x, "base", None), np.ndarray) or hasattr(getattr(x, "base", None), "base"):
+            x = x.base
+        return x.base if x.base is not None else x
+
+    assert root(a) is root(b)  # both runs are views of the one cached positions array (stored once)
+    assert not a.flags.writeable
+    np.testing.assert_array_equal(a, first["run-1"].positions)
+    assert again["run-1"].content_hash == first["run-1"].content_hash
+    assert again["run-1"].energies.keys() == first["run-1"].energies.keys()

@@ -25,6 +25,7 @@ import numpy as np
 from basinmark.core.errors import BasinmarkError, SetError, TrajectoryFileError
 from basinmark.core.manifest import SetLayout, load_layout
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory, TrajectorySet
+from basinmark.core.set_cache import load_snapshot, snapshot_key, store_snapshot
 
 JOURNAL_NAME = "basinmark-labels.jsonl"
 RULES_NAME = "basins.toml"
@@ -192,7 +193,8 @@ def _half_times(half: _Half, layout: SetLayout, path: Path, backward: bool) -> n
     return t
 
 
-def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
+def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = None) -> Trajectory:
+    sha = (lambda path: hashes[path] if hashes and path in hashes else _sha256_file(path))  # noqa: E731
     problems: list[str] = []
     if spec.joined is not None:
         half = _read_half(spec.joined, layout)
@@ -205,7 +207,7 @@ def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
         if half.positions.shape[0] > 1 and not np.all(np.diff(times) > 0):
             raise TrajectoryFileError(spec.joined, "times are not increasing (a joined run must run from "
                                                    "negative to positive times)")
-        sources = (SourceFile(spec.joined, _sha256_file(spec.joined), "joined"),)
+        sources = (SourceFile(spec.joined, sha(spec.joined), "joined"),)
         return Trajectory(spec.run_id, half.numbers, half.positions, times, half.energies,
                           sources=sources, problems=problems + half.problems)
     bwd = _read_half(spec.backward, layout)
@@ -227,8 +229,8 @@ def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
     energies = {}
     for key in set(bwd.energies) & set(fwd.energies):
         energies[key] = np.concatenate([bwd.energies[key][:0:-1], fwd.energies[key]])
-    sources = (SourceFile(spec.backward, _sha256_file(spec.backward), "backward"),
-               SourceFile(spec.forward, _sha256_file(spec.forward), "forward"))
+    sources = (SourceFile(spec.backward, sha(spec.backward), "backward"),
+               SourceFile(spec.forward, sha(spec.forward), "forward"))
     return Trajectory(spec.run_id, bwd.numbers, positions, times, energies, sources=sources,
                       problems=problems + bwd.problems + fwd.problems)
 
@@ -255,9 +257,9 @@ class RunCache:
             h.update(f"{role}:{sha}\n".encode())
         return h.hexdigest()
 
-    def load(self, spec: RunSpec) -> Trajectory | None:
+    def load(self, spec: RunSpec, known: dict[Path, str] | None = None) -> Trajectory | None:
         roles = [(r, getattr(spec, r)) for r in ("backward", "forward", "joined") if getattr(spec, r)]
-        hashes = [(r, _sha256_file(p)) for r, p in roles]
+        hashes = [(r, known[p] if known and p in known else _sha256_file(p)) for r, p in roles]
         path = self.folder / f"{self.key(spec, hashes)}.npz"
         if not path.exists():
             return None
@@ -288,12 +290,13 @@ class RunCache:
 
 # --- the public entry points -------------------------------------------------------------------
 
-def _load_one(spec: RunSpec, layout: SetLayout, cache: RunCache | None) -> Trajectory:
+def _load_one(spec: RunSpec, layout: SetLayout, cache: RunCache | None,
+              hashes: dict[Path, str] | None = None) -> Trajectory:
     if cache is not None:
-        hit = cache.load(spec)
+        hit = cache.load(spec, hashes)
         if hit is not None:
             return hit
-    traj = _join(spec, layout)
+    traj = _join(spec, layout, hashes)
     if cache is not None:
         cache.store(spec, traj)
     return traj
@@ -308,14 +311,35 @@ def _failure(spec: RunSpec, exc: Exception) -> LoadFailure:
     return LoadFailure(path, f"{path}: could not be read ({type(exc).__name__}: {exc})")
 
 
+def _workers(workers: int | None) -> int:
+    return workers or min(8, (os.cpu_count() or 2) + 2)
+
+
+def hash_files(plan: SetPlan, workers: int | None = None) -> dict[Path, str]:
+    """SHA-256 of every file of the plan, in parallel (hashlib releases the GIL on large buffers)."""
+    paths = [p for spec in plan.runs for p in spec.files]
+    n = min(_workers(workers), os.cpu_count() or 2)
+    chunks = [paths[i::n] for i in range(n)]  # one task per thread: tiny files cost more in hand-offs
+    with ThreadPoolExecutor(max_workers=n, thread_name_prefix="basinmark-hash") as pool:
+        parts = list(pool.map(lambda chunk: [(p, _safe_sha256(p)) for p in chunk], chunks))
+    return {p: d for part in parts for p, d in part if d is not None}
+
+
+def _safe_sha256(path: Path) -> str | None:
+    try:
+        return _sha256_file(path)
+    except OSError:
+        return None  # reported when the file is read
+
+
 def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = None,
-              cancel: Callable[[], bool] | None = None) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure]]:
+              cancel: Callable[[], bool] | None = None, hashes: dict[Path, str] | None = None,
+              ) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure]]:
     """Load the runs of a plan in parallel, yielding each as soon as it is ready (any order)."""
     cache = RunCache(plan.root, plan.layout) if use_cache else None
-    workers = workers or min(8, (os.cpu_count() or 2) + 2)
     stop = threading.Event()
-    with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="basinmark-load") as pool:
-        futures = {pool.submit(_load_one, spec, plan.layout, cache): spec for spec in plan.runs}
+    with ThreadPoolExecutor(max_workers=_workers(workers), thread_name_prefix="basinmark-load") as pool:
+        futures = {pool.submit(_load_one, spec, plan.layout, cache, hashes): spec for spec in plan.runs}
         try:
             for fut in as_completed(futures):
                 spec = futures[fut]
@@ -342,12 +366,26 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
     """
     plan = discover(path)
     total = len(plan.runs)
+    if progress:
+        progress(0, total, None)
+    hashes = key = cache_folder = None
+    if use_cache and total:
+        hashes = hash_files(plan, workers)
+        cache_folder = RunCache(plan.root, plan.layout).folder
+        key = snapshot_key(plan.layout.fingerprint, plan.runs, hashes, plan.failures)
+        hit = load_snapshot(cache_folder, key)
+        if hit is not None:
+            runs, failed = hit
+            for traj in runs.values():
+                if on_run:
+                    on_run(traj)
+            if progress:
+                progress(total, total, None)
+            return TrajectorySet(plan.root, runs, list(plan.failures) + failed, metadata={"name": plan.layout.name})
     loaded: dict[str, Trajectory] = {}
     failures = list(plan.failures)
     done = 0
-    if progress:
-        progress(0, total, None)
-    for spec, result in iter_runs(plan, use_cache=use_cache, workers=workers, cancel=cancel):
+    for spec, result in iter_runs(plan, use_cache=use_cache, workers=workers, cancel=cancel, hashes=hashes):
         done += 1
         if isinstance(result, LoadFailure):
             failures.append(result)
@@ -360,6 +398,8 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
     order = {spec.run_id: i for i, spec in enumerate(plan.runs)}
     runs = {rid: loaded[rid] for rid in sorted(loaded, key=order.__getitem__)}
     tset = TrajectorySet(plan.root, runs, failures, metadata={"name": plan.layout.name})
+    if key is not None and done == total:
+        store_snapshot(cache_folder, key, runs, failures[len(plan.failures):])
     if done < total:
         tset.warnings.append(f"loading was cancelled after {done} of {total} runs")
     if total == 0:
