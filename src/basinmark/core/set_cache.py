@@ -71,12 +71,12 @@ def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures
             return  # runs of different sizes cannot share one positions array; per-run entries serve
         stops = np.cumsum([t.n_frames for t in trajs])
         starts = stops - np.array([t.n_frames for t in trajs])
-        np.save(tmp / "positions.npy", np.concatenate([t.positions for t in trajs]).astype(np.float32))
-        np.save(tmp / "times.npy", np.concatenate([t.times for t in trajs]))
+        _save_parts(tmp / "positions.npy", [t.positions for t in trajs], "<f4")
+        _save_parts(tmp / "times.npy", [t.times for t in trajs], "<f8")
         keys = [k for k in _ENERGY_KEYS if any(k in t.energies for t in trajs)]
         for k in keys:
-            np.save(tmp / f"energy_{k}.npy", np.concatenate(
-                [t.energies.get(k, np.full(t.n_frames, np.nan)) for t in trajs]))
+            _save_parts(tmp / f"energy_{k}.npy",
+                        [t.energies.get(k, np.full(t.n_frames, np.nan)) for t in trajs], "<f8")
         index = {
             "version": SNAPSHOT_VERSION,
             "energy_keys": keys,
@@ -95,6 +95,16 @@ def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures
         _prune(folder, keep=final)
     except OSError:
         pass  # no cache is no failure
+
+
+def _save_parts(path: Path, parts: list[np.ndarray], dtype: str) -> None:
+    """Write the concatenation of ``parts`` as one ``.npy`` file without building it in memory
+    (the whole set's positions would otherwise be held twice while the entry is written)."""
+    shape = (sum(p.shape[0] for p in parts),) + tuple(parts[0].shape[1:])
+    with open(path, "wb") as fh:
+        np.lib.format.write_array_header_1_0(fh, {"descr": dtype, "fortran_order": False, "shape": shape})
+        for part in parts:
+            fh.write(np.ascontiguousarray(part, dtype=dtype).tobytes())
 
 
 def _prune(folder: Path, keep: Path, max_entries: int = 3) -> None:

@@ -224,7 +224,12 @@ def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = Non
     gap = float(np.max(np.abs(bwd.positions[0] - fwd.positions[0])))
     if gap > TS_MATCH_TOLERANCE:
         problems.append(f"the halves start {gap:.3g} Å apart (not the same transition-state point)")
-    positions = np.concatenate([bwd.positions[:0:-1], fwd.positions])
+    positions = np.empty((bwd.positions.shape[0] + fwd.positions.shape[0] - 1,) + fwd.positions.shape[1:],
+                         dtype=np.float32)
+    nb = bwd.positions.shape[0] - 1
+    positions[:nb] = bwd.positions[:0:-1]
+    positions[nb:] = fwd.positions
+    del bwd.positions, fwd.positions  # the halves' arrays go as soon as the joined one exists
     times = np.concatenate([tb[:0:-1], tf])
     energies = {}
     for key in set(bwd.energies) & set(fwd.energies):
