@@ -86,6 +86,8 @@ def _bond_set(name: str) -> set[tuple[str, str, int, int]]:
     ("H2O", {("H", "O"): 2}),
     ("C2H4", {("C", "C"): 1, ("C", "H"): 4}),
     ("C6H6", {("C", "C"): 6, ("C", "H"): 6}),
+    ("C2H2", {("C", "C"): 1, ("C", "H"): 2}),
+    ("CH3CH2OH", {("C", "C"): 1, ("C", "O"): 1, ("H", "O"): 1, ("C", "H"): 5}),
 ])
 def test_bonds_of_g2_molecules(name, expected):
     got: dict[tuple[str, str], int] = {}
@@ -135,3 +137,20 @@ def test_bond_events_formed_and_broken():
     m = geo.bond_matrix([6, 6, 6], pos, chunk_frames=3)  # chunking gives the same answer
     np.testing.assert_array_equal(m, geo.bond_matrix([6, 6, 6], pos))
     assert geo.initial_bonds([6, 6, 6], pos[4]) == [(1, 2)]
+
+
+@pytest.mark.parametrize("name, pair, length", [
+    # NIST Computational Chemistry Comparison and Benchmark Database, experimental bond lengths
+    # (from memory, as listed in the design notes); the G2 geometries agree within 0.02 Å
+    ("CH4", ("C", "H"), 1.087),
+    ("C2H4", ("C", "C"), 1.339),
+    ("C2H2", ("C", "C"), 1.203),
+    ("H2O", ("H", "O"), 0.958),
+    ("C6H6", ("C", "C"), 1.397),
+])
+def test_perceived_bond_lengths_match_reference(name, pair, length):
+    a = molecule(name)
+    bonds = geo.bonds_in_frame(a.numbers, a.positions)
+    got = [geo.distance(a.positions, i, j) for i, j in bonds
+           if tuple(sorted((a[i].symbol, a[j].symbol))) == pair]
+    assert got and np.allclose(got, length, atol=0.02)
