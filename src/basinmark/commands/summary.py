@@ -14,6 +14,7 @@ import pandas as pd
 
 from basinmark.commands._output import emit
 from basinmark.core.errors import SetError
+from basinmark.core.units import convert_energy
 
 FORMATS = ("table", "csv", "json", "markdown")
 UNITS = ("kcal/mol", "kJ/mol")
@@ -31,9 +32,12 @@ def register(sub) -> None:
     p.add_argument("--ratio", nargs=2, metavar=("A", "B"),
                    help="the two products to compare as A : B (default: the two most common)")
     p.add_argument("--ddg", type=float, metavar="X",
-                   help="ΔΔG‡ = G‡(B) − G‡(A), to show the ratio transition state theory predicts")
+                   help="ΔΔG‡ = G‡(B) − G‡(A), to show the ratio transition state theory predicts "
+                        "(default: [tst] ddg of the set's basinmark-set.toml, if any)")
+    p.add_argument("--no-tst", action="store_true", help="leave out the TST comparison")
     p.add_argument("--unit", choices=UNITS, default="kcal/mol", help="energy unit of --ddg and of the report (default kcal/mol)")
-    p.add_argument("--temperature", type=float, default=298.15, metavar="K", help="temperature in kelvin (default 298.15)")
+    p.add_argument("--temperature", type=float, default=None, metavar="K",
+                   help="temperature in kelvin (default: the set's [tst] temperature, else 298.15)")
     p.add_argument("--method", choices=("wilson", "exact"), default="wilson",
                    help="interval for proportions: Wilson score (default) or Clopper–Pearson exact")
     p.add_argument("--confidence", type=float, default=0.95, metavar="C", help="confidence level (default 0.95)")
@@ -149,7 +153,17 @@ def make_summary(args):
         notes.append(f"{len(tset.failures)} file(s) of the set failed to load; `basinmark info SET` lists them")
     notes += tset.warnings
     a, b = args.ratio if args.ratio else (None, None)
-    return build_summary(labels, products, a, b, ddg=args.ddg, unit=args.unit, temperature=args.temperature,
+    ddg, temperature = args.ddg, args.temperature
+    tst = tset.metadata.get("tst")
+    if ddg is None and tst is not None and not getattr(args, "no_tst", False):
+        ddg = float(convert_energy(tst["ddg"], tst["unit"], args.unit))
+        temperature = temperature if temperature is not None else tst["temperature"]
+        notes.append(f"ΔΔG‡ = {tst['ddg']:g} {tst['unit']} at {tst['temperature']:g} K from the set's "
+                     f"basinmark-set.toml" + (f" ({tst['source']})" if tst.get("source") else ""))
+    if getattr(args, "no_tst", False):
+        ddg = None
+    temperature = 298.15 if temperature is None else temperature
+    return build_summary(labels, products, a, b, ddg=ddg, unit=args.unit, temperature=temperature,
                          confidence=args.confidence, method=args.method, half_width=args.half_width, notes=notes,
                          extra_warnings=extra)
 

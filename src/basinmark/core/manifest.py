@@ -20,6 +20,11 @@ Without a manifest, a set uses :data:`DEFAULT`.  A manifest may override any key
     [time]
     step_fs = 1.0                   # used only when the files carry no time key
     backward = "auto"               # auto | elapsed | signed: how backward halves write time
+    [tst]                           # the study's own TST estimate, shown beside the observed ratio
+    ddg = 0.3                       # ΔΔG‡ = G‡(minor) − G‡(major), from separate transition states
+    unit = "kcal/mol"
+    temperature = 298.15
+    source = "where the number comes from"
 
 The manifest is data only; nothing in it is ever evaluated.
 """
@@ -57,9 +62,10 @@ DEFAULT: dict = {
         "total": ["etot", "total_energy", "e_tot"],
     },
     "time": {"step_fs": None, "backward": "auto"},
+    "tst": {"ddg": None, "unit": "kcal/mol", "temperature": 298.15, "source": ""},
 }
 
-_TOP_KEYS = {"name", "files", "units", "keys", "time"}
+_TOP_KEYS = {"name", "files", "units", "keys", "time", "tst"}
 
 
 def _as_list(value) -> list[str]:
@@ -92,6 +98,7 @@ class SetLayout:
     backward_time: str
     fingerprint: str  # hash of everything that changes how files are turned into runs
     source: Path | None = None
+    tst: dict | None = None  # {"ddg", "unit", "temperature", "source"} when the manifest gives a ΔΔG‡
 
     def role_of(self, filename: str) -> tuple[str, str] | None:
         """``(role, run_id)`` for a file name, or None when no pattern matches."""
@@ -115,6 +122,19 @@ def _merge(base: dict, over: dict, where: str) -> dict:
         else:
             out[key] = value
     return out
+
+
+def _tst(table: dict, path: Path) -> dict | None:
+    if table["ddg"] is None:
+        return None
+    try:
+        ddg, temperature = float(table["ddg"]), float(table["temperature"])
+        energy_factor(str(table["unit"]))
+    except (TypeError, ValueError) as exc:
+        raise SetError(f"{path}: [tst] {exc}") from None
+    if not temperature > 0:
+        raise SetError(f"{path}: [tst] temperature must be a positive number of kelvin")
+    return {"ddg": ddg, "unit": str(table["unit"]), "temperature": temperature, "source": str(table["source"])}
 
 
 def load_layout(root: str | Path) -> SetLayout:
@@ -144,8 +164,10 @@ def load_layout(root: str | Path) -> SetLayout:
             keys={role: tuple(_as_list(v)) for role, v in cfg["keys"].items()},
             step_fs=None if cfg["time"]["step_fs"] is None else float(cfg["time"]["step_fs"]),
             backward_time=str(cfg["time"]["backward"]),
-            fingerprint=hashlib.sha256(json.dumps(cfg, sort_keys=True).encode()).hexdigest(),
+            fingerprint=hashlib.sha256(json.dumps({k: v for k, v in cfg.items() if k != "tst"},
+                                                  sort_keys=True).encode()).hexdigest(),
             source=path if path.exists() else None,
+            tst=_tst(cfg["tst"], path),
         )
     except (ValueError, TypeError) as exc:
         raise SetError(f"{path}: {exc}") from None

@@ -372,6 +372,13 @@ def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = No
                 fut.cancel()
 
 
+def _metadata(plan: SetPlan) -> dict:
+    meta = {"name": plan.layout.name}
+    if plan.layout.tst is not None:
+        meta["tst"] = dict(plan.layout.tst)
+    return meta
+
+
 def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: bool = True,
              workers: int | None = None, cancel: Callable[[], bool] | None = None,
              on_run: Callable[[Trajectory], None] | None = None) -> TrajectorySet:
@@ -398,7 +405,7 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
                     on_run(traj)
             if progress:
                 progress(total, total, None)
-            return TrajectorySet(plan.root, runs, list(plan.failures) + failed, metadata={"name": plan.layout.name})
+            return TrajectorySet(plan.root, runs, list(plan.failures) + failed, metadata=_metadata(plan))
     loaded: dict[str, Trajectory] = {}
     failures = list(plan.failures)
     done = 0
@@ -414,7 +421,7 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
             progress(done, total, spec.run_id)
     order = {spec.run_id: i for i, spec in enumerate(plan.runs)}
     runs = {rid: loaded[rid] for rid in sorted(loaded, key=order.__getitem__)}
-    tset = TrajectorySet(plan.root, runs, failures, metadata={"name": plan.layout.name})
+    tset = TrajectorySet(plan.root, runs, failures, metadata=_metadata(plan))
     if key is not None and done == total:
         store_snapshot(cache_folder, key, runs, failures[len(plan.failures):])
     if done < total:

@@ -24,9 +24,10 @@ import numpy as np
 
 from basinmark.demo.integrate import velocity_verlet
 from basinmark.demo.sampling import find_saddle, landmarks, normal_modes, quasiclassical
-from basinmark.demo.scenario import basins_toml, readme_text
+from basinmark.demo.scenario import basins_toml, manifest_text, readme_text
 from basinmark.demo.surface import PAIR_A, PAIR_B, PAIR_C, SYMBOLS, Surface
 from basinmark.core.errors import SetError
+from basinmark.core.manifest import MANIFEST_NAME
 from basinmark.core.units import energy_factor
 
 #: region thresholds (Å) shared by the stop test and the bundled rules file
@@ -228,6 +229,7 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
         summary.ends[run_id] = (ends[0], ends[1])
         summary.max_drift_ev[run_id] = drift
     write_record(summary, out / RECORD_NAME)
+    (out / MANIFEST_NAME).write_text(manifest_text("ringfork", settings.temperature), encoding="utf-8")
     (out / "basins.toml").write_text(
         basins_toml(REACTANT_A_ABOVE, PRODUCT_A_BELOW, BOND_BELOW, SPECTATOR_ABOVE), encoding="utf-8")
     energies = {k: float(surface.energy(x)) - e_ts for k, x in points.items()}

@@ -118,3 +118,15 @@ Expect, by design: most reactive runs give alpha, some give beta; about one run 
 within the time limit of a half, and one or two fail the energy check (total-energy drift above
 1 kcal/mol) — the classifier's flags should point at all of these.
 """
+
+
+def manifest_text(name: str, temperature: float) -> str:
+    """``basinmark-set.toml`` of a generated set: the default file layout, plus the scenario's invented TST
+    estimate so that summaries show the comparison without being told."""
+    return (f'# Set manifest written by basinmark make-demo; see src/basinmark/core/manifest.py for every key.\n'
+            f'name = "{name}"\n\n'
+            f'[tst]\n'
+            f'ddg = {INVENTED_DDG_KCAL}            # G‡(beta) - G‡(alpha) of two hypothetical separate transition states\n'
+            f'unit = "kcal/mol"\n'
+            f'temperature = {temperature:g}\n'
+            f'source = "invented for the demo scenario; see README.md"\n')

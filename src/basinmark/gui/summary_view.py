@@ -56,6 +56,7 @@ class SummaryPanel(QWidget):
         st = state
         st.labels_changed.connect(self.refresh)
         st.rules_changed.connect(self.refresh)
+        st.set_changed.connect(self._take_set_tst)
         st.set_changed.connect(self.refresh)
         self.apply_palette()
         self.refresh()
@@ -209,6 +210,14 @@ class SummaryPanel(QWidget):
         self.ddg.setValue(float(convert_energy(self.ddg.value(), old, unit)))
         self.ddg.blockSignals(False)
         self.refresh()
+
+    def _take_set_tst(self) -> None:
+        """A set whose basinmark-set.toml states a ΔΔG‡ ([tst]) starts with that comparison shown."""
+        tset = self.state.tset
+        tst = None if tset is None else tset.metadata.get("tst")
+        if tst is not None:
+            unit = tst["unit"] if tst["unit"] in UNITS else UNITS[0]
+            self.set_tst(float(convert_energy(tst["ddg"], tst["unit"], unit)), unit, tst["temperature"])
 
     def set_tst(self, ddg: float | None, unit: str = "kcal/mol", temperature: float = 298.15) -> None:
         """Set ΔΔG‡ (None = no TST comparison), its unit and the temperature."""
