@@ -25,9 +25,9 @@ import pandas as pd
 
 from basinmark.core.units import convert_energy
 
-#: molar gas constant R = N_A·k_B in J mol⁻¹ K⁻¹ (CODATA 2018: 8.314462618... J mol⁻¹ K⁻¹, exact since the
+#: molar gas constant R = N_A·k_B in joule per mole per kelvin (CODATA 2018: 8.314462618..., exact since the
 #: 2019 SI redefinition fixed N_A = 6.02214076e23 mol⁻¹ and k_B = 1.380649e-23 J K⁻¹)
-GAS_CONSTANT_J_MOL_K = 6.02214076e23 * 1.380649e-23
+GAS_CONSTANT_SI = 6.02214076e23 * 1.380649e-23
 
 #: labels that carry no product information (fixed outcome names of the journal)
 NON_PRODUCT_LABELS = ("recrossing", "unfinished", "ambiguous", "excluded")
@@ -340,13 +340,13 @@ def ratio_interval(k1: int, k2: int, confidence: float = 0.95, method: str = "wi
     return ratio, odds(lo_p), odds(hi_p)
 
 
-def _rt_j_mol(temperature: float) -> float:
+def _rt_joules_per_mole(temperature: float) -> float:
     if not temperature > 0.0 or not math.isfinite(temperature):
         raise ValueError(f"temperature must be a positive number of kelvin, got {temperature}")
-    return GAS_CONSTANT_J_MOL_K * temperature
+    return GAS_CONSTANT_SI * temperature
 
 
-def _to_j_mol(value: float, unit: str) -> float:
+def _to_joules_per_mole(value: float, unit: str) -> float:
     # core.units holds the conversions: kcal/mol and kJ/mol differ by exactly 4.184
     return float(convert_energy(value, unit, "kJ/mol")) * 1000.0
 
@@ -357,7 +357,7 @@ def tst_ratio(ddg: float, unit: str = "kcal/mol", temperature: float = 298.15) -
     For two channels from one reactant the Eyring–Polanyi prefactors k_B·T/h cancel,
     leaving k_a/k_b = exp(ΔΔG‡ / RT).
     """
-    return math.exp(_to_j_mol(ddg, unit) / _rt_j_mol(temperature))
+    return math.exp(_to_joules_per_mole(ddg, unit) / _rt_joules_per_mole(temperature))
 
 
 def effective_ddg(ratio: float, unit: str = "kcal/mol", temperature: float = 298.15) -> float:
@@ -365,7 +365,7 @@ def effective_ddg(ratio: float, unit: str = "kcal/mol", temperature: float = 298
 
     ratio 0 gives −inf, inf gives +inf, NaN (undefined ratio) gives NaN.
     """
-    rt = _rt_j_mol(temperature)
+    rt = _rt_joules_per_mole(temperature)
     if math.isnan(ratio):
         return math.nan
     if ratio < 0:
