@@ -50,3 +50,15 @@ def emit(df: pd.DataFrame, fmt: str = "table", stream: TextIO | None = None, flo
         stream.write("\n")
     else:
         stream.write(table_text(df, floatfmt) + "\n")
+
+
+def progress_printer(quiet: bool, verb: str = "loading"):
+    """A progress callback ``(done, total, run_id)`` printing one updating line on stderr (terminals only)."""
+    if quiet or not sys.stderr.isatty():
+        return None
+
+    def show(done: int, total: int, run_id) -> None:
+        end = "\n" if done == total else ""
+        print(f"\r{verb} {done}/{total} runs", end=end, file=sys.stderr, flush=True)
+
+    return show

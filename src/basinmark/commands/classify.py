@@ -7,7 +7,7 @@ import json
 import sys
 from pathlib import Path
 
-from basinmark.commands._output import FORMATS, emit, table_text
+from basinmark.commands._output import FORMATS, emit, progress_printer, table_text
 from basinmark.core.errors import SetError
 
 
@@ -51,17 +51,6 @@ def _common(p) -> None:
     p.add_argument("--quiet", "-q", action="store_true", help="no progress line on stderr")
 
 
-def _progress(quiet: bool, verb: str):
-    if quiet or not sys.stderr.isatty():
-        return None
-
-    def show(done: int, total: int, run_id) -> None:
-        end = "\n" if done == total else ""
-        print(f"\r{verb} {done}/{total} runs", end=end, file=sys.stderr, flush=True)
-
-    return show
-
-
 def _load(args):
     """The set and its rules, or a clear error."""
     from basinmark.core.rules import load_rules
@@ -74,7 +63,7 @@ def _load(args):
     if not rfile.is_file():
         raise SetError(f"{rfile}: no rules file; write one (see docs/rules-file.md) or pass --rules FILE")
     rules = load_rules(rfile)  # syntax and schema first, before the (slower) loading
-    tset = open_set(root, progress=_progress(args.quiet, "loading"), use_cache=not args.no_cache)
+    tset = open_set(root, progress=progress_printer(args.quiet, "loading"), use_cache=not args.no_cache)
     if len(tset) == 0:
         reasons = [str(f) for f in tset.failures[:3]] + tset.warnings[:2]
         raise SetError(f"{root}: no run could be loaded" + (": " + "; ".join(reasons) if reasons else ""))
@@ -107,7 +96,7 @@ def run_classify(args) -> int:
     from basinmark.core.sets import journal_path
 
     root, tset, rules, notes = _load(args)
-    table = classify_set(tset, rules, progress=_progress(args.quiet, "classifying"))
+    table = classify_set(tset, rules, progress=progress_printer(args.quiet, "classifying"))
     notes += table.attrs.get("notes", [])
     jpath = Path(args.journal) if args.journal else journal_path(root)
     changed = _data_changed(jpath, tset)

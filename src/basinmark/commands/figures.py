@@ -67,7 +67,7 @@ def register(sub) -> None:
 
 
 def _open(args):
-    from basinmark.commands.info import progress_printer
+    from basinmark.commands._output import progress_printer
     from basinmark.core.sets import open_set
 
     root = Path(args.set)

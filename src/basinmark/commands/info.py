@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
-import sys
 import time
 
-from basinmark.commands._output import add_format_option, emit
+from basinmark.commands._output import add_format_option, emit, progress_printer
 
 
 def register(sub) -> None:
@@ -16,18 +15,6 @@ def register(sub) -> None:
     p.add_argument("--quiet", "-q", action="store_true", help="no progress line on stderr")
     add_format_option(p)
     p.set_defaults(func=run)
-
-
-def progress_printer(quiet: bool):
-    """A progress callback printing one updating line on stderr (only on a terminal)."""
-    if quiet or not sys.stderr.isatty():
-        return None
-
-    def show(done: int, total: int, run_id) -> None:
-        end = "\n" if done == total else ""
-        print(f"\rloading {done}/{total} runs", end=end, file=sys.stderr, flush=True)
-
-    return show
 
 
 def run(args) -> int:

@@ -113,7 +113,7 @@ def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame
 
 def make_summary(args):
     """Open the set and its labels and build the :class:`~basinmark.core.summary.Summary`."""
-    from basinmark.commands.info import progress_printer
+    from basinmark.commands._output import progress_printer
     from basinmark.core.rules import load_rules
     from basinmark.core.sets import journal_path, open_set, rules_path
     from basinmark.core.summary import build_summary

@@ -188,7 +188,7 @@ class Summary:
 
     def to_markdown(self) -> str:
         head, rows = self._outcome_rows()
-        out = [f"## Summary", "", self._headline(), "",
+        out = ["## Summary", "", self._headline(), "",
                "| " + " | ".join(head) + " |", "|" + "|".join([" --- "] + [" ---: "] * (len(head) - 1)) + "|"]
         out += ["| " + " | ".join(r) + " |" for r in rows]
         out += ["", self._caption(), ""] + [f"- {line}" for line in self.lines()]
