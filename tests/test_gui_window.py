@@ -421,3 +421,22 @@ def test_panel_shows_reason_and_history_and_escape_clears_picks(win, qtbot):
     assert win.state.picked == [1]
     qtbot.keyClick(win.run_table.view, Qt.Key.Key_Escape)
     assert win.state.picked == [] and win.molecule.picked == []
+
+
+def test_tampered_journal_opens_readonly_showing_its_labels(qtbot, tmp_path, toy_root):
+    with LabelJournal.open(journal_path(toy_root), labeler="someone") as j:
+        j.record("toy-001", "right", content_hash="0" * 64, reason="hand")
+        j.record("toy-002", "left", content_hash="0" * 64, reason="hand")
+    path = journal_path(toy_root)
+    lines = path.read_text().splitlines()
+    lines[2] = lines[2].replace('"left"', '"right"', 1)  # an event changed after it was written
+    path.write_text("\n".join(lines) + "\n")
+    before = path.read_bytes()
+    w = open_window(qtbot, tmp_path, toy_root)
+    assert w.state.readonly and w.state.journal is not None
+    assert "hash does not match" in w.banner.text() and "line 3" in w.banner.text()
+    assert w.state.label_row("toy-001")["hand_label"] == "right"  # the labels are still shown
+    assert all(not b.isEnabled() for b in w.label_panel.buttons.values())
+    qtbot.keyClick(w.run_table.view, Qt.Key.Key_1)
+    assert path.read_bytes() == before
+    w.close()

@@ -101,3 +101,23 @@ def test_inserted_forged_line_is_found(base, data):
     # a forgery that fits the chain exactly at its place can only be told from the event it
     # imitates by what follows: that event now repeats the sequence number, one line later
     assert first_line(probs) == (p + 2 if fits else p + 1)
+
+
+def test_writer_refuses_and_reader_warns_on_an_event_changed_in_place(tmp_path):
+    """An event edited after it was written (its stored hash no longer matches) is not built upon."""
+    from basinmark.core.journal import JournalError, LabelJournal
+
+    path = tmp_path / "labels.jsonl"
+    with LabelJournal.open(path, labeler="t") as j:
+        j.record("r1", "alpha", content_hash="a" * 64, reason="first")
+        j.record("r2", "beta", content_hash="b" * 64, reason="second")
+    lines = path.read_text().splitlines()
+    lines[1] = lines[1].replace('"alpha"', '"beta"', 1)  # same hash, other content
+    path.write_text("\n".join(lines) + "\n")
+    before = path.read_bytes()
+    with pytest.raises(JournalError, match="line 2: the event's hash does not match"):
+        LabelJournal.open(path, labeler="t")
+    ro = LabelJournal.open(path, readonly=True)
+    assert any("line 2" in w and "hash does not match" in w for w in ro.warnings)
+    ro.close()
+    assert path.read_bytes() == before  # nothing was written or rewritten

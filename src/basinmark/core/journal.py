@@ -36,7 +36,8 @@ from typing import Iterable, Mapping, Sequence
 import pandas as pd
 
 from basinmark import __version__
-from basinmark.core.journal_format import (BINARY, HEADER_KIND, SCHEMA_VERSION, JournalError, parse_line, read_head,
+from basinmark.core.journal_format import (BINARY, HEADER_KIND, SCHEMA_VERSION, JournalError, event_hash, line_hash,
+                                           parse_line, read_head,
                                            seal, split_lines, utc_now, utc_stamp, write_head)
 from basinmark.core.journal_lock import (JournalLockedError, acquire, describe, is_stale, lock_path, read_lock,
                                          release)
@@ -45,6 +46,13 @@ from basinmark.core.journal_verify import Problem, verify_journal
 from basinmark.core.labels import SOURCES, LabelError, validate_label
 
 __all__ = ["LabelJournal", "JournalError", "JournalLockedError", "verify_journal", "Problem", "default_labeler"]
+
+
+def _safe_event_hash(event: dict) -> str:
+    try:
+        return event_hash(event)
+    except (TypeError, ValueError):
+        return ""
 
 
 def default_labeler() -> str:
@@ -178,6 +186,15 @@ class LabelJournal:
                                        "(run 'basinmark verify' for details)")
                 self.warnings.append(msg + "; skipped")
                 continue
+            stored = ev.get("hash")
+            if line_hash(raw, stored) != stored and _safe_event_hash(ev) != stored:
+                msg = (f"{self.path}, line {i + 1}: the event's hash does not match its content (it was changed "
+                       "after it was written)")
+                if writer:
+                    raise JournalError(f"{msg}; labels cannot be added to it: run 'basinmark verify' for details, "
+                                       "then restore the journal from a copy, or move it aside (keep it as evidence) "
+                                       "and start a new one")
+                self.warnings.append(msg + "; run 'basinmark verify' for details")
             if writer and (ev.get("seq") != self._last_seq + 1 or ev.get("prev", "") != prev):
                 raise JournalError(f"{self.path}, line {i + 1}: the chain of events is broken (sequence or previous hash does "
                                    "not follow); labels cannot be added until the journal is repaired "

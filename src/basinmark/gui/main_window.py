@@ -440,7 +440,12 @@ class MainWindow(QMainWindow):
             self._messages["journal"] = msg
         except (JournalError, OSError) as exc:
             journal = None
-            msg = f"Labels cannot be saved: {exc}"
+            if path.is_file():  # still show what the journal holds, read-only
+                try:
+                    journal = LabelJournal.open(path, readonly=True)
+                except (JournalError, OSError):
+                    journal = None
+            msg = f"Read-only: labels cannot be saved: {exc}"
             self._messages["journal"] = msg
         if journal is not None:
             for w in journal.warnings:
