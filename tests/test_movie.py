@@ -266,3 +266,16 @@ def test_movie_keeps_the_view_orientation(qtbot, toy):
         np.testing.assert_allclose(depth_mov, depth_src, atol=1e-12)
     finally:
         r.close()
+
+
+def test_mp4_with_the_real_encoder(tmp_path, toy):
+    """With imageio-ffmpeg installed (a test extra), an MP4 is written and read back with the same
+    encoder library's reader (frame count, size, rate)."""
+    imageio_ffmpeg = pytest.importorskip("imageio_ffmpeg")
+    traj = toy[0]
+    r = export_movie(tmp_path / "run.mp4", traj, fps=10, size=(160, 120), frames=range(12))
+    assert r.format == "mp4" and r.n_frames == 12
+    reader = imageio_ffmpeg.read_frames(str(tmp_path / "run.mp4"))
+    meta = next(reader)
+    assert tuple(meta["size"]) == (160, 120) and meta["fps"] == pytest.approx(10)
+    assert sum(1 for _ in reader) == 12
