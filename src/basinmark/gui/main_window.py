@@ -452,6 +452,14 @@ class MainWindow(QMainWindow):
                 self._messages.setdefault("journal_warn", w)
         self.state.set_journal(journal, msg)
 
+    def set_notice(self, key: str, text: str | None) -> None:
+        """Show (or, with no text, clear) one line of the banner above the window, under its own key."""
+        if text:
+            self._messages[key] = text
+        else:
+            self._messages.pop(key, None)
+        self._show_banner()
+
     def _show_banner(self) -> None:
         order = ("error", "journal", "journal_warn", "rules", "rules_edited", "set")
         self.banner.show_message("\n".join(self._messages[k] for k in order if self._messages.get(k)))

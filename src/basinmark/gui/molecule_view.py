@@ -150,6 +150,24 @@ class MoleculeView(QWidget):
             self.update()
 
     # --- view transform -----------------------------------------------------------------
+    def view_state(self) -> dict:
+        """The view transform and what is marked (for another view to copy, e.g. the movie renderer)."""
+        return {"rotation": self._rot.copy(), "centre": np.array(self._centre, dtype=float),
+                "pan": np.array(self._pan, dtype=float), "scale": float(self._scale),
+                "show_numbers": self._show_numbers, "highlight": set(self._highlight),
+                "measure": set(self._measure)}
+
+    def set_view_state(self, state: dict, scale_ratio: float = 1.0) -> None:
+        """Take a :meth:`view_state`; ``scale_ratio`` rescales zoom and pan for a view of another size."""
+        self._rot = np.array(state["rotation"], dtype=float)
+        self._centre = np.array(state["centre"], dtype=float)
+        self._pan = np.array(state["pan"], dtype=float) * scale_ratio
+        self._scale = float(state["scale"]) * scale_ratio
+        self.set_show_numbers(state["show_numbers"])
+        self._highlight = set(state["highlight"])
+        self._measure = set(state["measure"])
+        self.update()
+
     def reset_view(self) -> None:
         """Back to the initial orientation (widest spread across the screen), fitted to the molecule."""
         self._rot = self._principal_rotation()

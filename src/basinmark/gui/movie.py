@@ -14,7 +14,6 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
-import numpy as np
 from PySide6.QtCore import QPointF, QRectF, Qt
 from PySide6.QtGui import QImage, QPainter, QPalette, QPen
 
@@ -96,17 +95,8 @@ def movie_format(path: str | Path) -> str:
 
 
 def copy_view(source, target, scale_ratio: float) -> None:
-    """Give ``target`` (a MoleculeView) the orientation, centre, pan and zoom of ``source``.
-
-    MoleculeView has no public accessor for its view transform, so its attributes are read here.
-    """
-    target._rot = np.array(source._rot, dtype=float)
-    target._centre = np.array(source._centre, dtype=float)
-    target._pan = np.array(source._pan, dtype=float) * scale_ratio
-    target._scale = float(source._scale) * scale_ratio
-    target.set_show_numbers(source.show_numbers)
-    target._highlight = set(source._highlight)
-    target._measure = set(source._measure)
+    """Give ``target`` (a MoleculeView) the orientation, centre, pan, zoom and marks of ``source``."""
+    target.set_view_state(source.view_state(), scale_ratio)
 
 
 def qimage_to_pil(img: QImage):

@@ -761,18 +761,11 @@ def install_rules_editor(window) -> QDockWidget:
     find_menu(window, "menu_analysis", "&Analysis").addAction(record)
     window.addAction(record)
     def banner(*_a) -> None:
-        # the window's banner for unsaved rules (its own key for this, so its Save Rules As clears it too);
-        # MainWindow has no public call for banner lines yet
-        messages, show_banner = getattr(window, "_messages", None), getattr(window, "_show_banner", None)
-        if not isinstance(messages, dict) or show_banner is None:
-            return
+        # the window's banner for unsaved rules (its own key, so the window's Save Rules As clears it too)
         rules = window.state.rules
-        if rules is not None and getattr(rules, "path", None) is None:
-            messages["rules_edited"] = ("Rules changed here and not saved: the counts shown follow the edited "
-                                        "rules. File ▸ Save Rules writes them.")
-        else:
-            messages.pop("rules_edited", None)
-        show_banner()
+        unsaved = rules is not None and getattr(rules, "path", None) is None
+        window.set_notice("rules_edited", "Rules changed here and not saved: the counts shown follow the edited "
+                                          "rules. File ▸ Save Rules writes them." if unsaved else None)
 
     editor.reclassified.connect(banner)
     editor.saved.connect(banner)
