@@ -18,32 +18,9 @@ from basinmark.core.model import SourceFile, Trajectory, TrajectorySet
 from basinmark.core.rules import parse_rules
 from basinmark.core.units import energy_factor
 
-RULES = """\
-reactant = "reactant"
-dwell_fs = 20.0
-[monitors]
-r_a = [1, 6]
-r_b = [2, 9]
-r_c = [4, 9]
-[basins.reactant]
-r_a = { above = 2.6 }
-[basins.alpha]
-r_a = { below = 1.75 }
-r_b = { below = 1.75 }
-r_c = { above = 2.3 }
-[basins.beta]
-r_a = { below = 1.75 }
-r_c = { below = 1.75 }
-r_b = { above = 2.3 }
-[flags]
-late_commit_fs = 150.0
-max_energy_drift = 1.0
-energy_unit = "kcal/mol"
-min_length_fs = 100.0
-[time_gap]
-bonds = ["r_a", "r_b"]
-form_below = 1.75
-"""
+from rules_examples import SCHEMA_EXAMPLE  # noqa: E402
+
+RULES = SCHEMA_EXAMPLE
 
 # monitor values (r_a, r_b, r_c) in Å that put a frame in each basin, or in none
 R, A, B, N = (3.0, 3.0, 3.0), (1.5, 1.5, 3.0), (1.5, 3.0, 1.5), (2.0, 2.0, 2.0)

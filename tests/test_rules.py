@@ -11,38 +11,9 @@ from hypothesis import given, settings, strategies as st
 
 from basinmark.core.rules import (RESERVED_LABELS, Rules, RulesError, load_rules, parse_rules)
 
-GOOD = """\
-name = "ringfork"
-reactant = "reactant"
-dwell_fs = 20.0
+from rules_examples import SCHEMA_EXAMPLE  # noqa: E402
 
-[monitors]
-r_a = [1, 6]
-r_b = [2, 9]
-r_c = [4, 9]
-
-[basins.reactant]
-r_a = { above = 2.6 }
-[basins.alpha]
-r_a = { below = 1.75 }
-r_b = { below = 1.75 }
-r_c = { above = 2.3 }
-[basins.beta]
-r_a = { below = 1.75 }
-r_c = { below = 1.75 }
-r_b = { above = 2.3 }
-
-[flags]
-late_commit_fs = 150.0
-max_energy_drift = 1.0
-energy_unit = "kcal/mol"
-min_length_fs = 100.0
-
-[time_gap]
-bonds = ["r_a", "r_b"]
-form_below = 1.75
-concerted_fs = 60.0
-"""
+GOOD = SCHEMA_EXAMPLE
 
 
 def test_load_good(tmp_path: Path):
