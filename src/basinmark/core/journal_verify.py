@@ -138,7 +138,8 @@ def _check_head(path: Path, lines: list, last_seq: int, last_hash: str, line_of:
                     "head file records: written by a program that stopped before finishing, or added by "
                     "another program (opening the journal for writing accepts them)"))
     elif digest != last_hash:
-        add(Problem(line_of.get(seq), seq, "head", "the last event's hash differs from the one in the head "
+        # the last line is where the journal's end differs (an earlier event may carry the same number)
+        add(Problem(len(lines), seq, "head", "the last event's hash differs from the one in the head "
                     "file: the end of the journal was changed"))
 
 
