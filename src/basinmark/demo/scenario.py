@@ -37,7 +37,7 @@ r_c = {{ below = {bond_below} }}
 r_b = {{ above = {spectator_above} }}
 
 [flags]
-late_commit_fs = 150.0
+late_commit_fs = 250.0
 max_energy_drift = 1.0
 energy_unit = "kcal/mol"
 min_length_fs = 100.0
@@ -113,10 +113,11 @@ and it is **not** a classification; classify with `basins.toml`):
 
 {lines}
 
-Expect, by design: most reactive runs give alpha, some give beta; about one run in ten recrosses
-(both ends in the reactant); some commit late, some visit both products, a few do not finish
-within the time limit of a half, and one or two fail the energy check (total-energy drift above
-1 kcal/mol) — the classifier's flags should point at all of these.
+Expect, by design: most reactive runs give alpha, some give beta; a few runs in a hundred recross
+(both ends in the reactant); some commit late, some visit both products, now and then one joins the
+two products (backward to one, forward to the other), a few do not finish within the time limit of a
+half, and one or two fail the energy check (total-energy drift above 1 kcal/mol) — the classifier's
+flags should point at all of these.
 """
 
 

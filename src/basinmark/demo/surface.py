@@ -114,7 +114,7 @@ class ReactiveParams:
     alpha_a: float = 1.9
     r0_a: float = 1.54
     bump: float = 0.9
-    bump_at: float = 2.5
+    bump_at: float = 2.65
     bump_width: float = 0.9
     k_open: float = 1.3
     open_at: float = 3.2
