@@ -53,7 +53,7 @@ def render(set_path: Path, out_dir: Path, map_size=(1100, 820), summary_size=(13
         st.set_run(beta)
         traj = st.traj
         st.set_frame(min(traj.n_frames - 1, traj.ts_index + (traj.n_frames - traj.ts_index) // 3))
-        win.summary_panel.set_tst(1.0, "kcal/mol", 298.15)
+        # the TST comparison shown is the set's own ([tst] in basinmark-set.toml), taken when the set opened
         for dock, size, name in ((map_dock, map_size, "map.png"), (summary_dock, summary_size, "summary.png")):
             dock.setFloating(True)
             dock.show()
