@@ -306,14 +306,15 @@ class TracesView(QWidget):
         self.p_band.setYRange(0, 1, padding=0)
         self.p_band.setLabel("left", "basin")
 
-    def _mark(self, key: str, t: float, text: str, style: Qt.PenStyle, position: float = 0.95) -> None:
+    def _mark(self, key: str, t: float, text: str, style: Qt.PenStyle, position: float = 0.95,
+              anchor: tuple[float, float] = (0, 0)) -> None:
         colour = self.palette().color(QPalette.ColorRole.Text)
         for p in self.plots:
             line = pg.InfiniteLine(t, angle=90, movable=False, pen=pg.mkPen(colour, width=1, style=style))
             p.addItem(line, ignoreBounds=True)
             self.threshold_lines.append(line)
         top = self.threshold_lines[-4]
-        label = pg.InfLineLabel(top, text=text, position=position, color=colour, anchor=(0, 0))
+        label = pg.InfLineLabel(top, text=text, position=position, color=colour, anchor=anchor)
         self.marks[key] = top
         top.label = label
 
@@ -323,10 +324,11 @@ class TracesView(QWidget):
         if result is None:
             return
         if result.commit_time_fs is not None and np.isfinite(result.commit_time_fs):
-            self._mark("commit", float(result.commit_time_fs), "commit", Qt.PenStyle.DotLine, 0.8)
+            self._mark("commit", float(result.commit_time_fs), "commit →", Qt.PenStyle.DotLine, 0.8)
         bct = getattr(result, "backward_commit_time_fs", None)
         if bct is not None and np.isfinite(bct):
-            self._mark("backward_commit", float(bct), "commit", Qt.PenStyle.DotLine, 0.8)
+            # written to the left of its line, so the two commit marks never print over each other
+            self._mark("backward_commit", float(bct), "← commit", Qt.PenStyle.DotLine, 0.8, anchor=(1, 0))
 
     def _draw_energies(self) -> None:
         traj = self._traj
