@@ -184,3 +184,16 @@ def test_set_snapshot_keeps_failures_and_shares_one_positions_array(tmp_path, mo
     np.testing.assert_array_equal(a, first["run-1"].positions)
     assert again["run-1"].content_hash == first["run-1"].content_hash
     assert again["run-1"].energies.keys() == first["run-1"].energies.keys()
+
+
+def test_snapshot_written_once_even_when_two_opens_race(tmp_path):
+    from basinmark.core import set_cache
+
+    write_run(tmp_path, "run-1")
+    tset = open_set(tmp_path, use_cache=False)
+    folder = tmp_path / ".basinmark-cache"
+    set_cache.store_snapshot(folder, "k", tset.runs, [])
+    set_cache.store_snapshot(folder, "k", tset.runs, [])  # the second writer finds the entry there
+    assert [p.name for p in folder.iterdir()] == ["set-k"]  # no temporary folder left behind
+    runs, failures = set_cache.load_snapshot(folder, "k")
+    np.testing.assert_array_equal(runs["run-1"].positions, tset["run-1"].positions)

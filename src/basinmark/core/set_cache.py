@@ -62,13 +62,12 @@ def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures
     trajs = list(runs.values())
     if not trajs:
         return
+    if len({t.n_atoms for t in trajs}) != 1:
+        return  # runs of different sizes cannot share one positions array; per-run entries serve
+    tmp = None
     try:
         folder.mkdir(parents=True, exist_ok=True)
         tmp = Path(tempfile.mkdtemp(dir=folder, prefix=".tmp-set-"))
-        n_atoms = {t.n_atoms for t in trajs}
-        if len(n_atoms) != 1:
-            shutil.rmtree(tmp, ignore_errors=True)
-            return  # runs of different sizes cannot share one positions array; per-run entries serve
         stops = np.cumsum([t.n_frames for t in trajs])
         starts = stops - np.array([t.n_frames for t in trajs])
         _save_parts(tmp / "positions.npy", [t.positions for t in trajs], "<f4")
@@ -89,12 +88,15 @@ def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures
         (tmp / "index.json").write_text(json.dumps(index), encoding="utf-8")
         final = folder / f"set-{key}"
         if final.exists():
-            shutil.rmtree(tmp, ignore_errors=True)
-            return
+            return  # another process wrote it first (the temporary folder goes in `finally`)
         os.replace(tmp, final)
+        tmp = None
         _prune(folder, keep=final)
     except OSError:
-        pass  # no cache is no failure
+        pass  # no cache is no failure (e.g. another process wrote the same entry first)
+    finally:
+        if tmp is not None:
+            shutil.rmtree(tmp, ignore_errors=True)
 
 
 def _save_parts(path: Path, parts: list[np.ndarray], dtype: str) -> None:
