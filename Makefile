@@ -28,7 +28,7 @@ bench: $(VENV)/.installed-test
 	$(PY) bench/run_all.py
 
 screenshots: $(VENV)/.installed
-	QT_QPA_PLATFORM=offscreen $(PY) scripts/screenshots.py
+	for script in scripts/screenshots*.py; do QT_QPA_PLATFORM=offscreen $(PY) $$script || exit 1; done
 
 clean-cache:
 	find sample_sets -name '.basinmark-cache' -type d -prune -exec rm -rf {} +
