@@ -1,0 +1,242 @@
+"""The data behind the map of all runs (no Qt): which monitors can be axes, the two monitors measured over
+every frame of every run, paths thinned for drawing, nearest-path picking at full resolution, and the basin
+regions on the plane.  :mod:`basinmark.gui.map_view` draws them.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Mapping, Sequence
+
+import numpy as np
+
+from basinmark.core.geometry import measure
+from basinmark.core.rules import MONITOR_KINDS
+
+NO_LABEL = "no label"
+MAX_DRAW_POINTS = 160  # points drawn per run (picking always uses every frame); our own choice, measured in bench
+PICK_RADIUS_PX = 8.0
+_UNIT = {"distance": "Å", "angle": "°", "dihedral": "°"}
+_FAR = 1.0e4  # an open side of a basin region is drawn this far out (Å or degrees), never in the auto-range
+
+
+# --- data ------------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class MapAxis:
+    """One monitor that can go on an axis."""
+
+    key: str               # rules monitor name, or e.g. "d(1-2)" for an added one
+    atoms: tuple[int, ...]  # 1-based
+    from_rules: bool = True
+
+    @property
+    def kind(self) -> str:
+        return MONITOR_KINDS[len(self.atoms)]
+
+    @property
+    def unit(self) -> str:
+        return _UNIT[self.kind]
+
+    @property
+    def title(self) -> str:
+        return f"{self.key} ({'-'.join(map(str, self.atoms))})" if self.from_rules else self.key
+
+
+def added_monitor_name(atoms: Sequence[int]) -> str:
+    """Name of a monitor a person added, e.g. ``d(1-2)``, ``∠(1-2-3)``, ``φ(1-2-3-4)``."""
+    prefix = {2: "d", 3: "∠", 4: "φ"}[len(atoms)]
+    return f"{prefix}({'-'.join(map(str, atoms))})"
+
+
+def map_axes(rules: Any = None, user_monitors: Sequence[Sequence[int]] = ()) -> list[MapAxis]:
+    """The monitors of the rules (file order), then the added ones not already among them."""
+    out: list[MapAxis] = []
+    seen: set[tuple[int, ...]] = set()
+    if rules is not None:
+        for name, mon in rules.monitors.items():
+            out.append(MapAxis(name, tuple(mon.atoms), True))
+            seen.update({tuple(mon.atoms), tuple(mon.atoms)[::-1]})
+    for atoms in user_monitors:
+        atoms = tuple(int(a) for a in atoms)
+        if atoms not in seen and 2 <= len(atoms) <= 4:
+            out.append(MapAxis(added_monitor_name(atoms), atoms, False))
+            seen.update({atoms, atoms[::-1]})
+    return out
+
+
+def _measure_all(trajs: list, axes: Sequence[MapAxis], cache: dict | None) -> list[np.ndarray]:
+    """Each axis' monitor over every frame of every run, stacked end to end (cached per atom tuple).
+
+    One :func:`measure` call per run and monitor (gathering all runs' atoms first and measuring once
+    was no faster on 1,000 x 1,000 frames: the copy costs what the calls save).  Runs with too few
+    atoms give NaN.
+    """
+    out = []
+    for a in axes:
+        key = ("map", a.atoms)
+        if cache is not None and key in cache:
+            out.append(cache[key])
+            continue
+        idx = [i - 1 for i in a.atoms]
+        parts = [measure(t.positions, idx) if max(idx) < t.n_atoms else np.full(t.n_frames, np.nan) for t in trajs]
+        values = np.concatenate(parts).astype(np.float64, copy=False) if parts else np.zeros(0)
+        if cache is not None:
+            cache[key] = values
+        out.append(values)
+    return out
+
+
+@dataclass
+class MapData:
+    """Two monitors over every frame of every run, stacked end to end (full resolution)."""
+
+    run_ids: list[str]
+    x: np.ndarray        # (T,)
+    y: np.ndarray        # (T,)
+    starts: np.ndarray   # (R,) first index of each run
+    ends: np.ndarray     # (R,) one past the last
+    x_axis: MapAxis
+    y_axis: MapAxis
+
+    @classmethod
+    def build(cls, tset, x_axis: MapAxis, y_axis: MapAxis, cache: dict | None = None) -> "MapData":
+        """Measure both monitors for every run of ``tset`` (values cached per atom tuple in ``cache``)."""
+        trajs = list(tset)
+        lengths = np.array([t.n_frames for t in trajs], dtype=np.intp)
+        ends = np.cumsum(lengths)
+        x, y = _measure_all(trajs, [x_axis, y_axis], cache)
+        return cls([t.run_id for t in trajs], x, y, ends - lengths, ends, x_axis, y_axis)
+
+    @property
+    def n_runs(self) -> int:
+        return len(self.run_ids)
+
+    def index(self, run_id: str) -> int | None:
+        try:
+            return self.run_ids.index(run_id)
+        except ValueError:
+            return None
+
+    def run_xy(self, run_id: str) -> tuple[np.ndarray, np.ndarray] | None:
+        r = self.index(run_id)
+        if r is None:
+            return None
+        s = slice(int(self.starts[r]), int(self.ends[r]))
+        return self.x[s], self.y[s]
+
+
+def decimated_indices(starts: np.ndarray, ends: np.ndarray, max_points: int = MAX_DRAW_POINTS) -> np.ndarray:
+    """Indices into the stacked arrays that keep at most about ``max_points`` per run, always the first
+    and last frame of each run (the ends are what the classification looks at)."""
+    starts, ends = np.asarray(starts, np.intp), np.asarray(ends, np.intp)
+    n = int(ends[-1]) if ends.size else 0
+    if n == 0:
+        return np.zeros(0, dtype=np.intp)
+    lengths = ends - starts
+    stride = np.maximum(1, np.ceil(lengths / max(1, max_points - 1))).astype(np.intp)
+    run_of = np.repeat(np.arange(starts.size), lengths)
+    local = np.arange(n) - starts[run_of]
+    keep = (local % stride[run_of] == 0)
+    keep[ends[lengths > 0] - 1] = True
+    return np.flatnonzero(keep)
+
+
+def grouped_paths(data: MapData, labels: Mapping[str, str], max_points: int = MAX_DRAW_POINTS
+                  ) -> dict[str, tuple[np.ndarray, np.ndarray, int]]:
+    """Per label: (x, y, number of runs), the runs' thinned paths joined with a NaN between runs."""
+    keep = decimated_indices(data.starts, data.ends, max_points)
+    if keep.size == 0:
+        return {}
+    lengths = data.ends - data.starts
+    run_of = np.repeat(np.arange(data.n_runs), lengths)[keep]
+    run_label = np.array([labels.get(r) or NO_LABEL for r in data.run_ids], dtype=object)
+    out: dict[str, tuple[np.ndarray, np.ndarray, int]] = {}
+    last_of_run = np.append(run_of[1:] != run_of[:-1], True)
+    for label in dict.fromkeys(run_label):
+        runs = np.flatnonzero(run_label == label)
+        mask = np.isin(run_of, runs)
+        idx = keep[mask]
+        # a NaN after each run's last point breaks the line between runs (connect="finite")
+        breaks = np.flatnonzero(last_of_run[mask]) + 1
+        x = np.insert(data.x[idx], breaks, np.nan)
+        y = np.insert(data.y[idx], breaks, np.nan)
+        out[str(label)] = (x, y, int(runs.size))
+    return out
+
+
+def nearest_on_paths(data: MapData, px: float, py: float, sx: float, sy: float,
+                     runs: np.ndarray | None = None) -> tuple[int, int, float] | None:
+    """The run nearest to the point (px, py) on its full-resolution path, measured in screen pixels.
+
+    ``sx``/``sy`` are data units per pixel along x and y (the two axes have different units).  Returns
+    (run index, frame index of the nearer segment end, distance in pixels), or None when there is no
+    data.  ``runs``: a boolean mask (R,) of the runs to consider.  Vectorised over every segment.
+    """
+    n = data.x.size
+    if n == 0:
+        return None
+    x = (data.x - px) / sx
+    y = (data.y - py) / sy
+    lengths = data.ends - data.starts
+    run_of = np.repeat(np.arange(data.n_runs), lengths)
+    ok_pt = np.isfinite(x) & np.isfinite(y)
+    if runs is not None:
+        ok_pt &= np.asarray(runs, bool)[run_of]
+    if not ok_pt.any():
+        return None
+    # segments i -> i+1 inside one run
+    ax, ay, bx, by = x[:-1], y[:-1], x[1:], y[1:]
+    seg_ok = ok_pt[:-1] & ok_pt[1:] & (run_of[:-1] == run_of[1:])
+    dx, dy = bx - ax, by - ay
+    len2 = dx * dx + dy * dy
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = np.clip(-(ax * dx + ay * dy) / np.where(len2 > 0, len2, 1.0), 0.0, 1.0)
+    cx, cy = ax + t * dx, ay + t * dy
+    d2 = np.where(seg_ok, cx * cx + cy * cy, np.inf)
+    pt_d2 = np.where(ok_pt, x * x + y * y, np.inf)  # single-frame runs have no segment
+    i_seg = int(np.argmin(d2)) if d2.size else -1
+    i_pt = int(np.argmin(pt_d2))
+    if i_seg >= 0 and d2[i_seg] <= pt_d2[i_pt]:
+        idx = i_seg + (1 if t[i_seg] > 0.5 else 0)
+        dist = math.sqrt(float(d2[i_seg]))
+    else:
+        idx, dist = i_pt, math.sqrt(float(pt_d2[i_pt]))
+    r = int(run_of[idx])
+    return r, int(idx - data.starts[r]), dist
+
+
+@dataclass(frozen=True)
+class BasinRegion:
+    basin: str
+    x0: float
+    x1: float
+    y0: float
+    y1: float
+    elsewhere: tuple[str, ...]  # conditions on other monitors (not visible on this plane)
+
+
+def basin_regions(rules: Any, x_key: str, y_key: str) -> list[BasinRegion]:
+    """Rectangles of the basins on the plane of two rules monitors (open sides at ±infinity).
+
+    A basin with no condition on either monitor covers the whole plane and is left out.
+    """
+    if rules is None:
+        return []
+    out = []
+    for name, basin in rules.basins.items():
+        cx, cy = basin.condition(x_key), basin.condition(y_key)
+        if cx is None and cy is None:
+            continue
+        x0, _, x1, _ = cx.interval() if cx is not None else (-math.inf, 0, math.inf, 0)
+        y0, _, y1, _ = cy.interval() if cy is not None else (-math.inf, 0, math.inf, 0)
+        other = tuple(c.describe() for c in basin.conditions if c.monitor not in (x_key, y_key))
+        out.append(BasinRegion(name, x0, x1, y0, y1, other))
+    return out
+
+
+# --- drawing ---------------------------------------------------------------------------------
+
+def _finite(v: float) -> float:
+    return max(-_FAR, min(_FAR, v))
