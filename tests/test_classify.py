@@ -330,6 +330,11 @@ def test_write_automatic_labels(tmp_path, rules):
         other = dataclasses.replace(rules, sha256="0" * 64)
         assert write_automatic_labels(j, table, other) == 3
         assert [e for e in j.events if e.get("run") == "late"][-1]["rules_hash"] == "0" * 64
+        # an undone automatic label no longer counts: classifying again records it anew
+        j.undo("late", reason="test")
+        assert j.auto_event("late")["rules_hash"] == rules.sha256
+        assert write_automatic_labels(j, table, other) == 1
+        assert j.auto_event("late")["rules_hash"] == "0" * 64
 
 
 # --- command line -------------------------------------------------------------------------------------

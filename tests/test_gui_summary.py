@@ -114,7 +114,7 @@ def test_runs_needed_follows_the_half_width(win):
     panel.half_width.setValue(0.1)
     core = _core(win, half_width=0.1)
     assert panel.summary.runs_needed == core.runs_needed
-    assert f"about {core.runs_needed} runs" in panel.lines.text()
+    assert f"about {core.runs_needed} counted runs" in panel.lines.text()
 
 
 def test_histograms_come_from_core_timing(win):

@@ -307,3 +307,12 @@ def test_failed_write_reports_nothing_saved_and_next_open_recovers(jpath, monkey
         assert again.final_label("r2") is None
         again.record("r2", "beta", content_hash=H1)
     assert verify_journal(jpath) == []
+
+
+@pytest.mark.parametrize("bad", ["beta\nx", "beta\u2028x", "beta\u2029x", "beta\x85x", "beta\x9bx", "beta\x7f"])
+def test_labels_with_line_breaks_or_control_characters_are_refused(bad):
+    from basinmark.core.labels import LabelError, validate_label
+
+    with pytest.raises(LabelError, match="control characters or line breaks"):
+        validate_label(bad)
+    assert validate_label("bêta-2") == "bêta-2"  # other Unicode is fine

@@ -197,3 +197,40 @@ def test_snapshot_written_once_even_when_two_opens_race(tmp_path):
     assert [p.name for p in folder.iterdir()] == ["set-k"]  # no temporary folder left behind
     runs, failures = set_cache.load_snapshot(folder, "k")
     np.testing.assert_array_equal(runs["run-1"].positions, tset["run-1"].positions)
+
+
+def test_a_copied_set_names_its_own_files_even_from_the_cache(tmp_path):
+    import shutil
+
+    first = tmp_path / "one"
+    write_run(first, "run-1")
+    (first / "run-2.bwd.xyz").write_text("2\n\nC 0 0 0\nH x 0 0\n")
+    write(first / "run-2.fwd.xyz", _frames(2, [0.0, 0.5]), format="extxyz")
+    open_set(first)  # fills the cache
+    second = tmp_path / "two"
+    shutil.copytree(first, second)  # the cache comes along
+    again = open_set(second)
+    assert all(str(s.path).startswith(str(second.resolve())) for s in again["run-1"].sources)
+    assert str(second) in str(again.failures[0]) and str(first) + "/" not in str(again.failures[0])
+
+
+def test_backward_half_listed_from_its_far_end_is_turned_round(tmp_path):
+    bwd, fwd = _frames(4, -0.5 * np.arange(4), shift=-0.01), _frames(5, 0.5 * np.arange(5), shift=0.01)
+    write(tmp_path / "a.bwd.xyz", bwd[::-1], format="extxyz")  # times -1.5, -1.0, -0.5, 0
+    write(tmp_path / "a.fwd.xyz", fwd, format="extxyz")
+    t = open_set(tmp_path, use_cache=False)["a"]
+    np.testing.assert_allclose(t.times, 0.5 * np.arange(-3, 5))
+    np.testing.assert_allclose(t.positions[0], bwd[-1].positions, atol=1e-5)  # the far end comes first
+    np.testing.assert_allclose(t.positions[3], fwd[0].positions, atol=1e-5)   # the TS at t = 0
+    assert any("read in reverse" in p for p in t.problems)
+
+
+def test_odd_runs_are_named(tmp_path):
+    write_run(tmp_path, "run-1")
+    write_run(tmp_path, "run-2", symbols="CHHN")
+    tset = open_set(tmp_path, use_cache=False)
+    assert "run-2" in tset.warnings[0] and "other atoms" in tset.warnings[0]
+    assert any("atoms differ" in p for p in tset["run-2"].problems)
+    # a joined run without negative times says that it has no backward half
+    write(tmp_path / "late.xyz", _frames(3, [100.0, 101.0, 102.0]), format="extxyz")
+    assert any("no frame at or before t = 0" in p for p in open_set(tmp_path, use_cache=False)["late"].problems)

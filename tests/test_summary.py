@@ -322,3 +322,16 @@ def test_command_end_to_end_on_a_small_written_set(tmp_path, capsys):
     data = json.loads(out)
     assert code == 0 and data["notes"] == [] and data["n_excluded"] == 1
     assert (data["ratio"]["k_a"], data["ratio"]["k_b"]) == (8, 3)
+
+
+def test_runs_needed_is_compared_with_the_counted_runs():
+    # 30 a, 30 b, 300 excluded and 100 unlabelled: only 60 runs count, and the sentence must say so.
+    # n = z^2 p(1-p)/h^2 at p = 0.5, h = 0.05: 1.95996^2 * 0.25 / 0.0025 = 384.1 -> 385 (normal approximation)
+    import pandas as pd
+    from basinmark.core.summary import build_summary
+
+    labels = pd.DataFrame({"run": [f"r{i}" for i in range(460)],
+                           "final_label": ["a"] * 30 + ["b"] * 30 + ["excluded"] * 300 + [None] * 100})
+    s = build_summary(labels, ["a", "b"])
+    assert s.runs_needed == 385 and s.n_counted == 60
+    assert "325 more than the 60 counted here" in s.to_text()

@@ -347,14 +347,10 @@ def write_automatic_labels(journal, table: pd.DataFrame, rules: Rules) -> int:
     """
     import basinmark
 
-    latest: dict[str, dict] = {}
-    for ev in journal.events:
-        if ev.get("kind") == "label" and ev.get("source") == "rule":
-            latest[ev["run"]] = ev
     entries = []
     for row in table.itertuples(index=False):
         reason = f"flags: {row.flags.replace(';', ', ')}" if row.flags else ""
-        prev = latest.get(row.run)
+        prev = journal.auto_event(row.run)  # the automatic label in force (an undone one does not count)
         if (prev is not None and prev.get("label") == row.outcome and prev.get("reason", "") == reason
                 and prev.get("rules_hash") == rules.sha256 and prev.get("content_hash") == row.content_hash):
             continue

@@ -336,7 +336,10 @@ class LabelJournal:
         return self._write([{"kind": "undo", "source": "hand", "undone_source": top.get("source"),
                              "labeler": labeler or self.labeler,
                              "run": run_id, "content_hash": top.get("content_hash", ""),
-                             "label": probe.final_label(run_id), "replaces": before, "undoes": top["seq"],
+                             # "replaces": the label taken back (the undone event's own), which is the
+                             # final label before unless a hand label stood above an undone rule label
+                             "label": probe.final_label(run_id), "replaces": top.get("label", before),
+                             "undoes": top["seq"],
                              "reason": reason or ""}])[0]
 
     def adjudicate(self, run_id: str, label: str, *, content_hash: str, label_a: str | None,
@@ -394,6 +397,10 @@ class LabelJournal:
 
     def labelers(self) -> list[str]:
         return self._replay.labelers()
+
+    def auto_event(self, run_id: str) -> dict | None:
+        """The run's automatic label event in force after replay (undone events excluded), or None."""
+        return self._replay.auto_event(run_id)
 
     def final_label(self, run_id: str) -> str | None:
         return self._replay.final_label(run_id)

@@ -10,6 +10,8 @@ A label is what a run did (or why it is left out of the counts):
 
 from __future__ import annotations
 
+import unicodedata
+
 from typing import Iterable, Sequence
 
 from basinmark.core.errors import BasinmarkError
@@ -51,8 +53,9 @@ def check_label_text(label: object) -> str:
         raise LabelError("a label cannot be empty")
     if len(text) > _MAX_LABEL_LENGTH:
         raise LabelError(f"the label {text[:20]!r}... is longer than {_MAX_LABEL_LENGTH} characters")
-    if any(ord(c) < 32 or ord(c) == 127 for c in text):
-        raise LabelError(f"the label {text!r} contains control characters")
+    # control characters (C0 and C1) and Unicode line/paragraph separators would break lines in tables
+    if any(unicodedata.category(c) in ("Cc", "Zl", "Zp") for c in text):
+        raise LabelError(f"the label {text!r} contains control characters or line breaks")
     return text
 
 

@@ -37,7 +37,13 @@ def snapshot_key(fingerprint: str, plan_runs, hashes: dict[Path, str], failures)
     return h.hexdigest()
 
 
-def load_snapshot(folder: Path, key: str) -> tuple[dict[str, Trajectory], list[LoadFailure]] | None:
+def _rerooted(path: str, old_root: str, root: Path) -> Path:
+    p = Path(path)
+    return root / p if not p.is_absolute() else Path(path.replace(old_root, str(root), 1))
+
+
+def load_snapshot(folder: Path, key: str, root: Path | None = None) -> tuple[dict[str, Trajectory], list[LoadFailure]] | None:
+    """The entry ``key``, with file paths re-rooted at ``root`` (a set may have been moved or copied since)."""
     entry = folder / f"set-{key}"
     try:
         index = json.loads((entry / "index.json").read_text(encoding="utf-8"))
@@ -46,18 +52,23 @@ def load_snapshot(folder: Path, key: str) -> tuple[dict[str, Trajectory], list[L
         energies = {k: np.load(entry / f"energy_{k}.npy") for k in index["energy_keys"]}
     except (OSError, ValueError, KeyError):
         return None  # missing or damaged: simply rebuilt
+    old_root = index.get("root", "")
+    root = Path(root) if root is not None else Path(old_root or ".")
     runs: dict[str, Trajectory] = {}
     for r in index["runs"]:
         a, b = r["start"], r["stop"]
         ens = {k: energies[k][a:b] for k in r["energies"]}
-        sources = tuple(SourceFile(Path(p), sha, role) for p, sha, role in r["sources"])
+        sources = tuple(SourceFile(_rerooted(p, old_root, root), sha, role) for p, sha, role in r["sources"])
         runs[r["run_id"]] = Trajectory(r["run_id"], np.asarray(r["numbers"]), positions[a:b], times[a:b], ens,
                                        sources=sources, problems=list(r["problems"]))
-    failures = [LoadFailure(Path(f["path"]), f["reason"], f["line"]) for f in index["failures"]]
+    failures = [LoadFailure(_rerooted(f["path"], old_root, root),
+                            f["reason"].replace(old_root, str(root)) if old_root else f["reason"], f["line"])
+                for f in index["failures"]]
     return runs, failures
 
 
-def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures: list[LoadFailure]) -> None:
+def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures: list[LoadFailure],
+                   root: Path | None = None) -> None:
     """Write the entry atomically (a temporary folder renamed into place); never raises on I/O trouble."""
     trajs = list(runs.values())
     if not trajs:
@@ -76,14 +87,23 @@ def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures
         for k in keys:
             _save_parts(tmp / f"energy_{k}.npy",
                         [t.energies.get(k, np.full(t.n_frames, np.nan)) for t in trajs], "<f8")
+        base = str(Path(root)) if root is not None else ""
+
+        def rel(path: Path) -> str:
+            try:
+                return str(Path(path).relative_to(base)) if base else str(path)
+            except ValueError:
+                return str(path)
+
         index = {
             "version": SNAPSHOT_VERSION,
+            "root": base,
             "energy_keys": keys,
             "runs": [{"run_id": t.run_id, "start": int(a), "stop": int(b), "numbers": t.numbers.tolist(),
                       "energies": [k for k in keys if k in t.energies],
-                      "sources": [[str(s.path), s.sha256, s.role] for s in t.sources],
+                      "sources": [[rel(s.path), s.sha256, s.role] for s in t.sources],
                       "problems": list(t.problems)} for t, a, b in zip(trajs, starts, stops)],
-            "failures": [{"path": str(f.path), "reason": f.reason, "line": f.line} for f in failures],
+            "failures": [{"path": rel(f.path), "reason": f.reason, "line": f.line} for f in failures],
         }
         (tmp / "index.json").write_text(json.dumps(index), encoding="utf-8")
         final = folder / f"set-{key}"

@@ -168,6 +168,15 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
     return _Half(block.numbers, positions, times, energies, list(block.warnings))
 
 
+def _oldest_first(half: _Half) -> bool:
+    """A backward half whose times are all ≤ 0 and rise towards 0: stored from its far end to the TS."""
+    t = half.times
+    if t is None or t.size < 2:
+        return False
+    step = float(np.max(np.abs(np.diff(t)))) or 1.0
+    return bool(t[-1] > t[0] and np.all(t <= 0.5 * step) and abs(t[-1]) <= 0.5 * step)
+
+
 def _half_times(half: _Half, layout: SetLayout, path: Path, backward: bool) -> np.ndarray:
     n = half.positions.shape[0]
     if half.times is None:
@@ -207,6 +216,13 @@ def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = Non
         if half.positions.shape[0] > 1 and not np.all(np.diff(times) > 0):
             raise TrajectoryFileError(spec.joined, "times are not increasing (a joined run must run from "
                                                    "negative to positive times)")
+        if times.size and times[0] > 0:
+            problems.append(f"{spec.joined.name}: no frame at or before t = 0 (times {times[0]:g} to "
+                            f"{times[-1]:g} fs), so the run has no backward half and the transition state is "
+                            "taken to be its first frame; a joined run should span negative to positive times")
+        elif times.size > 1 and float(np.min(np.abs(times))) > 0.5 * float(np.max(np.diff(times))):
+            problems.append(f"{spec.joined.name}: t = 0 is not among the times; the frame nearest to it is "
+                            "taken as the transition state")
         sources = (SourceFile(spec.joined, sha(spec.joined), "joined"),)
         return Trajectory(spec.run_id, half.numbers, half.positions, times, half.energies,
                           sources=sources, problems=problems + half.problems)
@@ -219,6 +235,14 @@ def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = Non
             i = int(np.flatnonzero(bwd.numbers != fwd.numbers)[0])
             why = f"atom {i + 1} is element {bwd.numbers[i]} in the backward half, {fwd.numbers[i]} forward"
         raise TrajectoryFileError(spec.forward, f"the halves of run {spec.run_id} do not match: {why}")
+    if _oldest_first(bwd):
+        # times rising to t = 0 at the end: the file lists the backward half from its far end to the TS;
+        # turn it round so that, like every half, it starts at the transition state
+        bwd.positions = bwd.positions[::-1]
+        bwd.times = bwd.times[::-1]
+        bwd.energies = {k: v[::-1] for k, v in bwd.energies.items()}
+        problems.append(f"{spec.backward.name} lists the backward half from its far end to the transition "
+                        "state (times rise to 0); read in reverse")
     tb = _half_times(bwd, layout, spec.backward, backward=True)
     tf = _half_times(fwd, layout, spec.forward, backward=False)
     gap = float(np.max(np.abs(bwd.positions[0] - fwd.positions[0])))
@@ -232,6 +256,10 @@ def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = Non
     del bwd.positions, fwd.positions  # the halves' arrays go as soon as the joined one exists
     times = np.concatenate([tb[:0:-1], tf])
     energies = {}
+    for key in sorted(set(bwd.energies) ^ set(fwd.energies)):
+        has, lacks = ("backward", "forward") if key in bwd.energies else ("forward", "backward")
+        problems.append(f"{key} energy only in the {has} half (the {lacks} half has none), so the run "
+                        f"carries no {key} energy and its energy check is incomplete")
     for key in set(bwd.energies) & set(fwd.energies):
         energies[key] = np.concatenate([bwd.energies[key][:0:-1], fwd.energies[key]])
     sources = (SourceFile(spec.backward, sha(spec.backward), "backward"),
@@ -372,6 +400,28 @@ def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = No
                 fut.cancel()
 
 
+def _check_atoms(tset: TrajectorySet) -> TrajectorySet:
+    """Runs whose atoms differ from the set's first run are named: rules number atoms for the whole set."""
+    runs = list(tset.runs.values())
+    if not runs:
+        return tset
+    first = runs[0]
+    odd = []
+    for t in runs[1:]:
+        if not np.array_equal(t.numbers, first.numbers):
+            odd.append(t.run_id)
+            why = (f"{t.n_atoms} atoms" if t.n_atoms != first.n_atoms
+                   else "the same number of atoms in another order or of other elements")
+            msg = f"atoms differ from the set's first run {first.run_id} ({why}): atom numbers in rules mean other atoms here"
+            if msg not in t.problems:
+                t.problems.append(msg)
+    if odd:
+        tset.warnings.append(f"{len(odd)} run(s) have other atoms than {first.run_id} ({', '.join(odd[:5])}"
+                             f"{', ...' if len(odd) > 5 else ''}); their classification uses the same atom "
+                             "numbers and may be meaningless")
+    return tset
+
+
 def _metadata(plan: SetPlan) -> dict:
     meta = {"name": plan.layout.name}
     if plan.layout.tst is not None:
@@ -397,7 +447,7 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
         hashes = hash_files(plan, workers)
         cache_folder = RunCache(plan.root, plan.layout).folder
         key = snapshot_key(plan.layout.fingerprint, plan.runs, hashes, plan.failures)
-        hit = load_snapshot(cache_folder, key)
+        hit = load_snapshot(cache_folder, key, plan.root.resolve())
         if hit is not None:
             runs, failed = hit
             for traj in runs.values():
@@ -405,7 +455,8 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
                     on_run(traj)
             if progress:
                 progress(total, total, None)
-            return TrajectorySet(plan.root, runs, list(plan.failures) + failed, metadata=_metadata(plan))
+            return _check_atoms(TrajectorySet(plan.root, runs, list(plan.failures) + failed,
+                                              metadata=_metadata(plan)))
     loaded: dict[str, Trajectory] = {}
     failures = list(plan.failures)
     done = 0
@@ -421,9 +472,9 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
             progress(done, total, spec.run_id)
     order = {spec.run_id: i for i, spec in enumerate(plan.runs)}
     runs = {rid: loaded[rid] for rid in sorted(loaded, key=order.__getitem__)}
-    tset = TrajectorySet(plan.root, runs, failures, metadata=_metadata(plan))
+    tset = _check_atoms(TrajectorySet(plan.root, runs, failures, metadata=_metadata(plan)))
     if key is not None and done == total:
-        store_snapshot(cache_folder, key, runs, failures[len(plan.failures):])
+        store_snapshot(cache_folder, key, runs, failures[len(plan.failures):], plan.root.resolve())
     if done < total:
         tset.warnings.append(f"loading was cancelled after {done} of {total} runs")
     if total == 0:

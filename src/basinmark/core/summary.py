@@ -156,10 +156,11 @@ class Summary:
                        f"{temp:.2f} K: the barrier difference TST would need to give the observed ratio")
         target = f"For ±{s['half_width']:g} on the share of {self.a} among {self.a} + {self.b}"
         if self.runs_needed is not None:
-            still = self.runs_needed - self.n_runs
-            tail = (f"{still} more than the {self.n_runs} here" if still > 0
-                    else f"the {self.n_runs} here are enough")
-            out.append(f"{target}, about {self.runs_needed} runs in all are needed at the present mix "
+            # runs_needed counts runs that count (labelled, not excluded), so compare like with like
+            still = self.runs_needed - self.n_counted
+            tail = (f"{still} more than the {self.n_counted} counted here" if still > 0
+                    else f"the {self.n_counted} counted here are enough")
+            out.append(f"{target}, about {self.runs_needed} counted runs in all are needed at the present mix "
                        f"({tail}; normal approximation)")
         elif self.n_pair > 0:
             out.append(f"{target}, the number of runs needed cannot be estimated until both products have "
