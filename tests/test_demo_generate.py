@@ -138,6 +138,11 @@ def test_make_demo_command(tmp_path, capsys):
     assert "2 runs written" in printed and "warning: only" in printed
     assert len(list((out / "runs").glob("*.xyz.gz"))) == 4
     assert main(["make-demo", str(out), "--runs", "0"]) == 2
+    # a folder that already holds runs is not mixed with a new set, unless asked, and then replaced whole
+    assert main(["make-demo", str(out), "--runs", "1", "--max-time", "20"]) == 2
+    assert "already holds 4 run files" in capsys.readouterr().err
+    assert main(["make-demo", str(out), "--runs", "1", "--seed", "3", "--max-time", "20", "--force"]) == 0
+    assert len(list((out / "runs").glob("*.xyz.gz"))) == 2
     (tmp_path / "afile").write_text("x")
     assert main(["make-demo", str(tmp_path / "afile"), "--runs", "1"]) == 2
     assert "is not a folder" in capsys.readouterr().err

@@ -224,3 +224,19 @@ def test_labels_changing_elsewhere_do_not_move_the_window(setup, qtbot):
     panel.queue_view.selectRow(0)
     assert panel.decide_side("B")
     assert win.state.run_id == "toy-005" and panel.current_row()["run"] == "toy-005"
+
+
+def test_opening_another_set_drops_the_review_so_nothing_of_it_is_decided_there(setup, qtbot, tmp_path):
+    win, dock, root, other = setup
+    panel = win.review_panel
+    panel.set_mode("file")
+    panel.other.setText(str(other))
+    assert panel.compare() is not None and len(panel.queue) == 3
+    second = make_toy_set(tmp_path / "second", OUTCOMES)
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(second, use_cache=False)
+    assert panel.review is None and len(panel.queue) == 0 and panel.queue_view.rowCount() == 0
+    before = journal_path(second).read_bytes() if journal_path(second).exists() else b""
+    panel.decide_side("B")  # nothing to decide: must not write
+    after = journal_path(second).read_bytes() if journal_path(second).exists() else b""
+    assert after == before

@@ -316,3 +316,20 @@ def test_labels_with_line_breaks_or_control_characters_are_refused(bad):
     with pytest.raises(LabelError, match="control characters or line breaks"):
         validate_label(bad)
     assert validate_label("bêta-2") == "bêta-2"  # other Unicode is fine
+
+
+def test_undo_takes_back_the_persons_label_below_a_later_automatic_one(tmp_path):
+    from basinmark.core.journal import LabelJournal
+
+    with LabelJournal.open(tmp_path / "j.jsonl", labeler="mira") as j:
+        j.record_batch([{"run_id": "r1", "label": "alpha", "content_hash": "h"}], rules_hash="a" * 64)
+        hand = j.record("r1", "beta", content_hash="h", reason="looked")
+        j.record_batch([{"run_id": "r1", "label": "unfinished", "content_hash": "h"}], rules_hash="b" * 64)
+        u = j.undo("r1", reason="misclick")
+        assert u["undoes"] == hand["seq"] and u["replaces"] == "beta" and u["label"] == "unfinished"
+        st = j.state().set_index("run")
+        assert st.loc["r1", "auto_label"] == "unfinished" and pd.isna(st.loc["r1", "hand_label"])
+    # a fresh replay of the file agrees (the undo names the event it takes back)
+    again = LabelJournal.open(tmp_path / "j.jsonl", readonly=True)
+    assert again.final_label("r1") == "unfinished" and again.auto_event("r1")["rules_hash"] == "b" * 64
+    again.close()

@@ -92,7 +92,7 @@ def test_label_undo_history(small_set, capsys):
     assert code == 0 and "now alpha" in out
     code, out, err = run(["history", small_set, "t01"], capsys)
     assert code == 0 and out.count("label") >= 2 and "undo" in out
-    assert run(["history", small_set, "nosuch"], capsys)[0] == 1
+    assert run(["history", small_set, "nosuch"], capsys)[0] == 2
 
 
 def test_label_refuses_bad_input(small_set, capsys):
@@ -133,6 +133,8 @@ def test_compare_labelers_and_journals(small_set, tmp_path, capsys):
     assert "disagreements (2)" in out and "only 4 runs" in out
     md = report.read_text()
     assert md.startswith("# Review: auto vs hand") and "| t01 |" in md
+    code, out, err = run(["compare", small_set, "--labelers", "hand", "hand"], capsys)
+    assert code == 2 and "twice" in err
     code, out, err = run(["compare", small_set, "--labelers", "auto", "nobody"], capsys)
     assert code == 2 and "no labeler 'nobody'" in err
     code, out, err = run(["compare", small_set], capsys)

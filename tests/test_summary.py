@@ -335,3 +335,11 @@ def test_runs_needed_is_compared_with_the_counted_runs():
     s = build_summary(labels, ["a", "b"])
     assert s.runs_needed == 385 and s.n_counted == 60
     assert "325 more than the 60 counted here" in s.to_text()
+
+
+def test_summary_with_a_missing_journal_file_says_so(tmp_path, capsys):
+    from basinmark.cli import main
+
+    (tmp_path / "set").mkdir()
+    assert main(["summary", str(tmp_path / "set"), "--journal", str(tmp_path / "nope.jsonl")]) == 2
+    assert "no label journal there" in capsys.readouterr().err

@@ -22,6 +22,8 @@ def register(subparsers) -> None:
     p.add_argument("--temperature", type=float, default=298.15, help="temperature in K (default: 298.15)")
     p.add_argument("--max-time", type=float, default=None, metavar="FS",
                    help="longest half in fs (default: 400)")
+    p.add_argument("--force", action="store_true",
+                   help="write into a folder that already holds runs (its old run files are removed first)")
     add_format_option(p)
     p.set_defaults(func=run)
 
@@ -46,6 +48,15 @@ def run(args) -> int:
     def progress(done: int, total: int) -> None:
         print(f"  {steps.get(done, done)} ({done}/{total})", file=sys.stderr)
 
+    from pathlib import Path
+
+    old = sorted((Path(args.out) / "runs").glob("*.*.xyz.gz")) if (Path(args.out) / "runs").is_dir() else []
+    if old and not args.force:
+        print(f"basinmark: error: {args.out} already holds {len(old)} run files; a new demo set there would mix "
+              "with them. Choose an empty folder, or add --force to replace them.", file=sys.stderr)
+        return 2
+    for f in old:  # --force: the old runs go, so the folder holds exactly the new set
+        f.unlink()
     seed = DEFAULT_SEED if args.seed is None else args.seed
     summary = generate(args.out, runs=args.runs, seed=seed, temperature=args.temperature,
                        progress=progress, settings=settings)

@@ -216,7 +216,7 @@ def cmd_undo(args) -> int:
         ev = j.undo(args.run, reason=args.reason)
     emit(_event_row(ev), args.format)
     if args.format == "table":
-        now = ev.get("label") or "no label"
+        now = ev.get("label") or "no label in the journal (the automatic outcome applies once classified)"
         print(f"\nrun {args.run}: {ev.get('replaces')} taken back, now {now}")
     return 0
 
@@ -228,8 +228,9 @@ def cmd_history(args) -> int:
         _warn(j.warnings)
         hist = j.history(args.run)
     if hist.empty:
-        print(f"run {args.run} has no label events in {_journal(args)}", file=sys.stderr)
-        return 1
+        print(f"basinmark: error: run {args.run} has no label events in {_journal(args)} "
+              "(is the run id right? `basinmark info SET` lists them)", file=sys.stderr)
+        return 2
     emit(_plain(hist.drop(columns=["content_hash"])) if args.format == "table" else hist, args.format)
     return 0
 
@@ -276,6 +277,8 @@ def cmd_compare(args) -> int:
 
     if not 0 < args.confidence < 1:
         raise BasinmarkError("--confidence must be between 0 and 1")
+    if args.labelers and args.labelers[0] == args.labelers[1]:
+        raise BasinmarkError(f"--labelers names {args.labelers[0]!r} twice; choose two different label sources")
     if args.labelers:
         if args.b:
             raise BasinmarkError("give either two journals (A B) or one with --labelers X Y, not both")

@@ -125,6 +125,8 @@ def make_summary(args):
     rules_file = rules_path(root)
     rules = load_rules(rules_file, n_atoms=tset.n_atoms) if rules_file.is_file() else None
     jpath = Path(args.journal) if args.journal else journal_path(root)
+    if args.journal and not jpath.is_file():
+        raise SetError(f"{jpath}: no label journal there (check the path given with --journal)")
     labels, notes = journal_labels(jpath, dict(tset.content_hashes()))
     extra: list[str] = []
     if labels is None:

@@ -43,7 +43,7 @@ from basinmark.core.journal_lock import (JournalLockedError, acquire, describe, 
                                          release)
 from basinmark.core.journal_replay import Replay
 from basinmark.core.journal_verify import Problem, verify_journal
-from basinmark.core.labels import SOURCES, LabelError, validate_label
+from basinmark.core.labels import HAND_SOURCES, SOURCES, LabelError, validate_label
 
 __all__ = ["LabelJournal", "JournalError", "JournalLockedError", "verify_journal", "Problem", "default_labeler"]
 
@@ -325,19 +325,21 @@ class LabelJournal:
         return self._write(bodies) if bodies else []
 
     def undo(self, run_id: str, *, reason: str = "", labeler: str | None = None) -> dict:
-        """Append an undo event that takes back the run's latest label and restores the one before."""
-        top = self._replay.top_event(run_id)
-        if top is None:
+        """Append an undo event that takes back the run's latest label set by a person (hand, import or
+        review), or its latest automatic label when no person has labelled it, and restores what was below."""
+        stack = self._replay.stacks.get(run_id) or []
+        if not stack:
             raise JournalError(f"run {run_id} has no label to undo")
+        people = [i for i, ev in enumerate(stack) if ev.get("source") in HAND_SOURCES]
+        k = people[-1] if people else len(stack) - 1
+        top = stack[k]
         before = self._replay.final_label(run_id)
-        stack = self._replay.stacks[run_id][:-1]
         probe = Replay()
-        probe.stacks[run_id] = stack
+        probe.stacks[run_id] = stack[:k] + stack[k + 1:]
         return self._write([{"kind": "undo", "source": "hand", "undone_source": top.get("source"),
                              "labeler": labeler or self.labeler,
                              "run": run_id, "content_hash": top.get("content_hash", ""),
-                             # "replaces": the label taken back (the undone event's own), which is the
-                             # final label before unless a hand label stood above an undone rule label
+                             # "replaces": the label taken back (the undone event's own)
                              "label": probe.final_label(run_id), "replaces": top.get("label", before),
                              "undoes": top["seq"],
                              "reason": reason or ""}])[0]

@@ -44,7 +44,14 @@ class Replay:
         if kind == "label":
             stack.append(event)
         elif stack:
-            stack.pop()
+            # an undo takes back the event it names (a hand label may sit below a later automatic one)
+            target = event.get("undoes")
+            for i in range(len(stack) - 1, -1, -1):
+                if stack[i].get("seq") == target:
+                    del stack[i]
+                    break
+            else:
+                stack.pop()
         self.counts[run] = self.counts.get(run, 0) + 1
 
     # --- queries ---------------------------------------------------------------------------

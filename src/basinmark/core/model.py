@@ -243,6 +243,8 @@ class TrajectorySet:
         for f in self.failures:
             rows.append({"run": Path(f.path).name, "frames": 0, "t_start_fs": None, "t_end_fs": None,
                          "atoms": None, "drift_kcal_mol": None, "problems": f"not loaded: {f.reason}"})
-        return pd.DataFrame(rows, columns=["run", "frames", "t_start_fs", "t_end_fs", "atoms",
-                                           "drift_kcal_mol", "problems"])
+        table = pd.DataFrame(rows, columns=["run", "frames", "t_start_fs", "t_end_fs", "atoms",
+                                            "drift_kcal_mol", "problems"])
+        table["atoms"] = table["atoms"].astype("Int64")  # whole numbers, empty where a file failed
+        return table
 

@@ -209,6 +209,9 @@ class LabelPanel(QWidget):
         traj = st.traj
         if traj is None:
             return False
+        if st.journal is None and getattr(st, "loading", False):
+            self._say("The set is still loading; the label was not saved. Label again once it has loaded.")
+            return False
         if st.readonly or st.journal is None:
             self._say("The label journal is read-only here; the label was not saved.")
             return False
@@ -243,6 +246,8 @@ class LabelPanel(QWidget):
             self._say(f"Nothing undone: {exc}")
             return False
         st.refresh_labels()
-        restored = ev.get("label") or "no label"
-        self._say(f"Undone: {traj.run_id} is back to {restored}")
+        row = st.label_row(traj.run_id) or {}
+        final = row.get("final_label") or "no label"
+        how = "by hand" if row.get("hand_label") else "automatic"
+        self._say(f"Undone: {ev.get('replaces')} taken back; {traj.run_id} is now {final} ({how})")
         return True

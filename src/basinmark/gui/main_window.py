@@ -361,6 +361,7 @@ class MainWindow(QMainWindow):
         return self.job is not None
 
     def _busy(self, on: bool, phase: str = "") -> None:
+        self.state.loading = on
         self.progress.setVisible(on)
         self.cancel_button.setVisible(on)
         if on:

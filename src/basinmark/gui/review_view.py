@@ -311,6 +311,11 @@ class ReviewPanel(QWidget):
         self.review_changed.emit()
         return review
 
+    def reset(self, text: str = "Choose two label sources and press Compare.") -> None:
+        """Forget the review shown (another set or journal is open): nothing of it may be decided any more."""
+        self._show_error(text)
+        self.summary.setText(text)
+
     def _show_error(self, text: str) -> None:
         self.review = None
         self.summary.setText(f"<b>Not compared:</b> {text}")
@@ -554,6 +559,15 @@ def install_review_dock(window) -> QDockWidget:
     dock.hide()
     panel.message.connect(lambda text: window.statusBar().showMessage(text, 6000))
     window.state.labels_changed.connect(lambda: panel.refresh_queue() if dock.isVisible() else None)
+
+    def on_new_set() -> None:
+        # a review belongs to one set and journal: drop it, and compare afresh if the dock is showing
+        panel.reset()
+        if dock.isVisible() and window.state.journal is not None:
+            panel.compare()
+
+    window.state.set_changed.connect(on_new_set)
+    window.state.journal_changed.connect(on_new_set)
 
     menu = find_menu(window, "menu_analysis", "&Analysis")
     show = dock.toggleViewAction()

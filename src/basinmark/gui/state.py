@@ -39,6 +39,7 @@ class AppState(QObject):
         self.rules_error: str = ""
         self.classification: pd.DataFrame | None = None
         self.journal: Any = None
+        self.loading: bool = False  # a set is being loaded or classified in the background
         self.journal_message: str = ""
         self.labels: pd.DataFrame = pd.DataFrame(columns=LABEL_COLUMNS)
         self._results: dict[str, Any] = {}

@@ -218,6 +218,8 @@ class SummaryPanel(QWidget):
         if tst is not None:
             unit = tst["unit"] if tst["unit"] in UNITS else UNITS[0]
             self.set_tst(float(convert_energy(tst["ddg"], tst["unit"], unit)), unit, tst["temperature"])
+        elif tset is not None:
+            self.set_tst(None)  # another set's barrier must not be shown beside this set's ratio
 
     def set_tst(self, ddg: float | None, unit: str = "kcal/mol", temperature: float = 298.15) -> None:
         """Set ΔΔG‡ (None = no TST comparison), its unit and the temperature."""

@@ -118,6 +118,7 @@ class SweepView(QWidget):
         self.bound.currentIndexChanged.connect(self._target_changed)
         self.run_button.clicked.connect(self.run)
         state.rules_changed.connect(self.refresh_choices)
+        state.set_changed.connect(self.clear)
         self._apply_palette()
         self.refresh_choices()
 
@@ -231,6 +232,13 @@ class SweepView(QWidget):
         self.status.setText(f"Classifying {len(st.tset)} runs at {len(values)} values…")
         return self.worker.start(st.tset, st.rules, self.basin.currentText(), self.monitor.currentText(),
                                  self.bound.currentText(), values, a, b)
+
+    def clear(self) -> None:
+        """Drop the sweep shown (it belonged to the set open before)."""
+        self.worker.generation += 1  # a sweep still running for the old set is then ignored
+        self.table = None
+        self.plot.clear()
+        self.status.setText("Choose a basin, monitor and range, then sweep.")
 
     def _on_done(self, out: dict) -> None:
         if out["generation"] != self.worker.generation:
