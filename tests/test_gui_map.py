@@ -251,3 +251,13 @@ def test_hidden_map_waits_until_shown(win):
     assert panel.stale and "right" in panel.canvas.counts and panel.canvas.counts["right"] == 1
     win.docks["map"].show()
     assert not panel.stale and panel.canvas.counts["right"] == 2
+
+
+def test_a_basin_across_180_degrees_is_two_rectangles():
+    from basinmark.core.rules import parse_rules
+    from basinmark.gui.map_data import basin_regions
+
+    rules = parse_rules('reactant = "cis"\ndwell_fs = 2.0\n[monitors]\nw = [1, 2, 3, 4]\nd = [1, 2]\n'
+                        '[basins.cis]\nw = { between = [-30, 30] }\n[basins.trans]\nw = { between = [150, -150] }\n')
+    trans = [r for r in basin_regions(rules, "w", "d") if r.basin == "trans"]
+    assert sorted((r.x0, r.x1) for r in trans) == [(-180.0, -150.0), (150.0, 180.0)]

@@ -296,3 +296,53 @@ def test_equality_follows_basin_order():
     assert other.basin_names == ["reactant", "beta", "alpha"]
     assert other != r  # basin order sets the track indices
     assert parse_rules(GOOD.replace("dwell_fs = 20.0", "dwell_fs = 20")) == r  # 20 and 20.0 are the same value
+
+
+WRAP = """\
+reactant = "cis"
+dwell_fs = 2.0
+[monitors]
+w = [1, 2, 3, 4]
+d = [1, 2]
+[basins.cis]
+w = { between = [-30, 30] }
+[basins.trans]
+w = { between = [150, -150] }   # across ±180°
+"""
+
+
+def test_a_dihedral_range_across_180_degrees():
+    import numpy as np
+
+    rules = parse_rules(WRAP)
+    c = rules.basins["trans"].condition("w")
+    assert c.wraps and "across ±180°" in c.describe()
+    values = np.array([179.0, -179.0, 160.0, -155.0, 0.0, 149.0, -149.0])
+    assert list(c.holds(values)) == [True, True, True, True, False, False, False]
+    # it reloads identically
+    assert parse_rules(rules.to_toml()).basins == rules.basins
+    # a range across the seam is only meaningful for a dihedral
+    with pytest.raises(RulesError, match="not ordered"):
+        parse_rules(WRAP.replace('w = { between = [-30, 30] }', 'd = { between = [3, 1] }'))
+    # overlap is found across the seam too: 170..-170 and 175..180 share 175..180
+    with pytest.raises(RulesError, match="trans.*other|other.*trans"):
+        parse_rules(WRAP + '[basins.other]\nw = { above = 175 }\n')
+
+
+def test_a_wrapped_dihedral_basin_classifies_a_run_that_jitters_across_the_seam():
+    import numpy as np
+
+    from basinmark.core.classify import classify_run
+    from basinmark.core.geometry import dihedral
+    from basinmark.core.model import Trajectory
+
+    def frame(phi_deg):
+        phi = np.radians(phi_deg)
+        return np.array([[1.0, 0, 0], [0, 0, 0], [0, 0, 1.5], [np.cos(phi), np.sin(phi), 1.5]])
+
+    times = np.arange(-10, 11) * 1.0
+    angles = [0.0 + 2 * (k % 2) for k in range(10)] + [90.0] + [179.0 if k % 2 else -179.0 for k in range(10)]
+    traj = Trajectory("t", [6, 6, 6, 6], np.stack([frame(a) for a in angles]), times)
+    assert abs(abs(float(dihedral(traj.positions[-1], 0, 1, 2, 3))) - 179.0) < 0.01
+    res = classify_run(traj, parse_rules(WRAP))
+    assert res.backward_basin == "cis" and res.forward_basin == "trans" and res.outcome == "trans"

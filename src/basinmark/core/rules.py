@@ -93,27 +93,42 @@ class Condition:
     lo: float | None = None
     hi: float | None = None
 
+    @property
+    def wraps(self) -> bool:
+        """``between = [lo, hi]`` with lo > hi: a dihedral range across ±180° (v >= lo or v <= hi)."""
+        return self.kind == "between" and self.lo > self.hi
+
     def holds(self, values: np.ndarray) -> np.ndarray:
         v = np.asarray(values)
         if self.kind == "below":
             return v < self.hi
         if self.kind == "above":
             return v > self.lo
+        if self.wraps:
+            return (v >= self.lo) | (v <= self.hi)
         return (v >= self.lo) & (v <= self.hi)
 
     def interval(self) -> tuple[float, bool, float, bool]:
-        """(lo, lo_closed, hi, hi_closed)."""
+        """(lo, lo_closed, hi, hi_closed); for a range across ±180° see :meth:`intervals`."""
         if self.kind == "below":
             return (-math.inf, False, self.hi, False)
         if self.kind == "above":
             return (self.lo, False, math.inf, False)
         return (self.lo, True, self.hi, True)
 
+    def intervals(self) -> list[tuple[float, bool, float, bool]]:
+        """The condition as a union of ordinary intervals (two for a range across ±180°)."""
+        if self.wraps:
+            return [(self.lo, True, 180.0, True), (-180.0, False, self.hi, True)]
+        return [self.interval()]
+
     def describe(self) -> str:
         if self.kind == "below":
             return f"{self.monitor} < {self.hi:g}"
         if self.kind == "above":
             return f"{self.monitor} > {self.lo:g}"
+        if self.wraps:
+            return f"{self.monitor} >= {self.lo:g} or <= {self.hi:g} (across ±180°)"
         return f"{self.lo:g} <= {self.monitor} <= {self.hi:g}"
 
     def toml_value(self) -> str:
@@ -559,10 +574,11 @@ def _intersect(a: tuple, b: tuple) -> tuple:
 
 
 def _check_condition(c: Condition, m: Monitor, source: str, key: str) -> None:
-    if c.kind == "between" and c.lo > c.hi:
-        raise RulesError(source, f"between [{c.lo:g}, {c.hi:g}] is not ordered (lo must not exceed hi)", key=key)
+    if c.kind == "between" and c.lo > c.hi and m.kind != "dihedral":
+        raise RulesError(source, f"between [{c.lo:g}, {c.hi:g}] is not ordered (lo must not exceed hi; only for a "
+                                 "dihedral does lo > hi mean a range across ±180°)", key=key)
     dom = _DOMAINS[m.kind]
-    if not _nonempty(*_intersect(c.interval(), dom)):
+    if not any(_nonempty(*_intersect(iv, dom)) for iv in c.intervals()):
         raise RulesError(source, f"{c.describe()} can never hold for a {m.kind} "
                          f"({m.unit} values from {dom[0]:g} to {dom[2]:g})", key=key)
 
@@ -588,14 +604,15 @@ def _shared_region(a: Basin, b: Basin, monitors: Mapping[str, Monitor]) -> str |
     parts = []
     for mname in dict.fromkeys([c.monitor for c in a.conditions] + [c.monitor for c in b.conditions]):
         m = monitors[mname]
-        iv = _DOMAINS[m.kind]
+        region = [_DOMAINS[m.kind]]  # a union of intervals (a range across ±180° is two)
         for basin in (a, b):
             c = basin.condition(mname)
             if c is not None:
-                iv = _intersect(iv, c.interval())
-        if not _nonempty(*iv):
+                region = [_intersect(r, iv) for r in region for iv in c.intervals()]
+        region = [r for r in region if _nonempty(*r)]
+        if not region:
             return None
-        parts.append(_fmt_interval(mname, iv, m.unit, _DOMAINS[m.kind]))
+        parts.append(" or ".join(_fmt_interval(mname, r, m.unit, _DOMAINS[m.kind]) for r in region))
     return ", ".join(parts)
 
 

@@ -229,10 +229,12 @@ def basin_regions(rules: Any, x_key: str, y_key: str) -> list[BasinRegion]:
         cx, cy = basin.condition(x_key), basin.condition(y_key)
         if cx is None and cy is None:
             continue
-        x0, _, x1, _ = cx.interval() if cx is not None else (-math.inf, 0, math.inf, 0)
-        y0, _, y1, _ = cy.interval() if cy is not None else (-math.inf, 0, math.inf, 0)
+        everywhere = [(-math.inf, 0, math.inf, 0)]
         other = tuple(c.describe() for c in basin.conditions if c.monitor not in (x_key, y_key))
-        out.append(BasinRegion(name, x0, x1, y0, y1, other))
+        # a dihedral range across ±180° is two intervals, so its basin is two rectangles on the map
+        for x0, _, x1, _ in (cx.intervals() if cx is not None else everywhere):
+            for y0, _, y1, _ in (cy.intervals() if cy is not None else everywhere):
+                out.append(BasinRegion(name, x0, x1, y0, y1, other))
     return out
 
 
