@@ -8,7 +8,6 @@ writes a journal or a cache into the source tree.  Usage::
 
 from __future__ import annotations
 
-import argparse
 import os
 import shutil
 import sys
@@ -17,7 +16,7 @@ from pathlib import Path
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
-REPO = Path(__file__).resolve().parents[1]
+from _shots import parse_args  # noqa: E402  (scripts/ is on sys.path when run)
 
 
 def dark_palette():
@@ -83,15 +82,8 @@ def render(set_path: Path, out: Path, size: tuple[int, int], dark: bool = False)
 
 
 def main(argv: list[str] | None = None) -> int:
-    sys.path.insert(0, str(REPO / "src"))
-    from basinmark.gui.app import bundled_sample_set
-
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--set", type=Path, default=bundled_sample_set(), help="set folder (default: bundled sample)")
-    ap.add_argument("--out", type=Path, default=REPO / "docs" / "screenshots", help="output folder")
-    ap.add_argument("--size", default="1400x900", help="window size WxH in pixels")
-    args = ap.parse_args(argv)
-    w, h = (int(x) for x in args.size.lower().split("x"))
+    args = parse_args(__doc__, argv, size="1400x900")
+    w, h = args.size_px
     if not args.set.is_dir():
         print(f"screenshots: {args.set}: no such set folder", file=sys.stderr)
         return 2

@@ -8,7 +8,6 @@ tree.  Usage::
 
 from __future__ import annotations
 
-import argparse
 import os
 import shutil
 import sys
@@ -17,7 +16,7 @@ from pathlib import Path
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
-REPO = Path(__file__).resolve().parents[1]
+from _shots import parse_args  # noqa: E402  (scripts/ is on sys.path when run)
 
 
 def render(set_path: Path, out_dir: Path, map_size=(1100, 820), summary_size=(1300, 940)) -> list[Path]:
@@ -69,13 +68,7 @@ def render(set_path: Path, out_dir: Path, map_size=(1100, 820), summary_size=(13
 
 
 def main(argv: list[str] | None = None) -> int:
-    sys.path.insert(0, str(REPO / "src"))
-    from basinmark.gui.app import bundled_sample_set
-
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--set", type=Path, default=bundled_sample_set(), help="set folder (default: bundled sample)")
-    ap.add_argument("--out", type=Path, default=REPO / "docs" / "screenshots", help="output folder")
-    args = ap.parse_args(argv)
+    args = parse_args(__doc__, argv)
     if not args.set.is_dir():
         print(f"screenshots: {args.set}: no such set folder", file=sys.stderr)
         return 2

@@ -9,7 +9,6 @@ a few), so nothing is written into the source tree.  Usage::
 
 from __future__ import annotations
 
-import argparse
 import os
 import shutil
 import sys
@@ -18,7 +17,7 @@ from pathlib import Path
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
-REPO = Path(__file__).resolve().parents[1]
+from _shots import parse_args  # noqa: E402  (scripts/ is on sys.path when run)
 
 
 def demo_labels(root: Path, n_runs: int = 60, seed: int = 11) -> None:
@@ -115,15 +114,8 @@ def render(set_path: Path, out_dir: Path, size: tuple[int, int]) -> list[Path]:
 
 
 def main(argv: list[str] | None = None) -> int:
-    sys.path.insert(0, str(REPO / "src"))
-    from basinmark.gui.app import bundled_sample_set
-
-    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--set", type=Path, default=bundled_sample_set(), help="set folder (default: bundled sample)")
-    ap.add_argument("--out", type=Path, default=REPO / "docs" / "screenshots", help="output folder")
-    ap.add_argument("--size", default="1500x950", help="window size WxH in pixels")
-    args = ap.parse_args(argv)
-    w, h = (int(x) for x in args.size.lower().split("x"))
+    args = parse_args(__doc__, argv, size="1500x950")
+    w, h = args.size_px
     if not (args.set / "basins.toml").is_file():
         print(f"screenshots_review: {args.set}: not a set folder with basins.toml", file=sys.stderr)
         return 2
