@@ -15,26 +15,9 @@ import pytest
 from basinmark.cli import main
 from basinmark.core.journal import LabelJournal
 from basinmark.core.journal_lock import lock_path
+from rules_examples import two_bond_rules  # noqa: E402
 
-RULES = """
-name = "twinpath"
-reactant = "start"
-dwell_fs = 15.0
-
-[monitors]
-r_a = [1, 2]
-r_b = [1, 3]
-
-[basins.start]
-r_a = { above = 2.6 }
-r_b = { above = 2.6 }
-[basins.alpha]
-r_a = { below = 1.75 }
-r_b = { above = 2.3 }
-[basins.beta]
-r_b = { below = 1.75 }
-r_a = { above = 2.3 }
-"""
+RULES = two_bond_rules("twinpath", "start", 15.0)
 
 ENDS = {"alpha": (1.5, 3.0), "beta": (3.0, 1.5), "recrossing": (3.0, 3.0)}
 PLAN = ["alpha", "alpha", "beta", "alpha", "recrossing", "beta", "alpha", "alpha"]

@@ -14,6 +14,7 @@ import pytest
 from basinmark.core import stats
 from basinmark.core.model import SourceFile, Trajectory, TrajectorySet
 from basinmark.core.summary import SummaryError, build_summary
+from rules_examples import two_bond_rules  # noqa: E402
 
 PRODUCTS = ["alpha", "beta"]
 
@@ -134,25 +135,7 @@ def test_bad_settings_are_refused():
 
 # --- the command, over a small fake set ---------------------------------------------------
 
-RULES_TOML = """
-name = "forkdemo"
-reactant = "reactant"
-dwell_fs = 20.0
-
-[monitors]
-r_a = [1, 2]
-r_b = [1, 3]
-
-[basins.reactant]
-r_a = { above = 2.6 }
-r_b = { above = 2.6 }
-[basins.alpha]
-r_a = { below = 1.75 }
-r_b = { above = 2.3 }
-[basins.beta]
-r_b = { below = 1.75 }
-r_a = { above = 2.3 }
-"""
+RULES_TOML = two_bond_rules("forkdemo", "reactant", 20.0)
 
 OUTCOMES = ["alpha"] * 30 + ["beta"] * 10 + ["recrossing"] * 4 + ["unfinished"] * 2
 
