@@ -79,17 +79,19 @@ def classify_in_memory(tset, rules) -> pd.DataFrame:
 
 
 def stale_auto_labels(labels: pd.DataFrame, classified: pd.DataFrame) -> list[str]:
-    """A warning when the journal's automatic labels differ from what the current rules give."""
+    """A warning (naming its runs) when the journal's automatic labels differ from what the current rules give."""
+    from basinmark.core.summary import SummaryWarning
+
     if "auto_label" not in labels:
         return []
     now = dict(zip(classified["run"], classified["outcome"]))
-    pairs = [(a, now[r]) for r, a in zip(labels["run"], labels["auto_label"]) if isinstance(a, str) and r in now]
-    differ = sum(1 for a, b in pairs if a != b)
+    pairs = [(r, a, now[r]) for r, a in zip(labels["run"], labels["auto_label"]) if isinstance(a, str) and r in now]
+    differ = [r for r, a, b in pairs if a != b]
     if not differ:
         return []
-    return [f"{differ} of {len(pairs)} automatic labels in the journal differ from what the current rules give: "
-            f"the rules (or the runs) have changed since they were recorded, so run `basinmark classify SET` "
-            f"again before trusting the counts."]
+    return [SummaryWarning(f"{len(differ)} of {len(pairs)} automatic labels in the journal differ from what the "
+                           f"current rules give: the rules (or the runs) have changed since they were recorded, so "
+                           f"run `basinmark classify SET` again before trusting the counts.", differ)]
 
 
 def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame, list[str]]:

@@ -9,10 +9,13 @@ from __future__ import annotations
 
 import json
 import math
+import re
+import textwrap
 from collections import Counter
 from dataclasses import dataclass, field
 from typing import Sequence
 
+import numpy as np
 import pandas as pd
 
 from basinmark.core import stats
@@ -24,6 +27,41 @@ FIXED_ORDER = ("recrossing", "unfinished", "ambiguous")
 
 class SummaryError(BasinmarkError):
     """The summary cannot be made as asked (unknown product, bad settings)."""
+
+
+class SummaryWarning(str):
+    """A warning sentence that also names the runs it is about (``run_ids``, in the set's order).
+
+    A ``str`` subclass, so every place that prints, joins or searches warnings keeps working; views
+    that can act on runs (filter the run table to them) read ``run_ids``.  An empty ``run_ids`` means the
+    warning is about the set as a whole or about runs that do not exist (e.g. "no run gave X").
+    """
+
+    run_ids: tuple[str, ...]
+
+    def __new__(cls, text: str, run_ids: Sequence[str] = ()) -> "SummaryWarning":
+        obj = super().__new__(cls, str(text))
+        obj.run_ids = tuple(str(r) for r in run_ids)
+        return obj
+
+    def __reduce__(self):  # keep the run ids through pickle and copy
+        return (SummaryWarning, (str(self), self.run_ids))
+
+    def with_runs(self) -> str:
+        """The sentence followed by the run ids it names (for plain-text output)."""
+        return f"{self} Runs: {', '.join(self.run_ids)}." if self.run_ids else str(self)
+
+
+def as_warning(text: str, run_ids: Sequence[str] | None = None) -> SummaryWarning:
+    """``text`` as a :class:`SummaryWarning` (keeping its run ids unless new ones are given)."""
+    if run_ids is None:
+        return text if isinstance(text, SummaryWarning) else SummaryWarning(text)
+    return SummaryWarning(text, run_ids)
+
+
+def run_ids_of(warning: str) -> tuple[str, ...]:
+    """The run ids a warning names (none for a plain string)."""
+    return tuple(getattr(warning, "run_ids", ()) or ())
 
 
 @dataclass
@@ -39,7 +77,7 @@ class Summary:
     ratio: tuple[float, float, float]  # (ratio, lo, hi), NaN when undefined
     tst_ratio: float | None  # None when no ΔΔG‡ was given
     effective_ddg: tuple[float, float, float]  # (ΔΔG, lo, hi) in settings['unit']
-    warnings: list[str]
+    warnings: list[SummaryWarning]  # str subclass: each also names its runs (.run_ids)
     n_runs: int  # rows given (labelled or not)
     n_counted: int  # runs in the denominator of the fractions
     n_excluded: int
@@ -97,7 +135,10 @@ class Summary:
             "outcomes": [{k: _json_number(v) for k, v in row.items()}
                          for row in self.table.to_dict(orient="records")],
             "ratio": None, "tst_ratio": None, "effective_ddg": None,
-            "runs_needed": self.runs_needed, "warnings": list(self.warnings), "notes": list(self.notes),
+            "runs_needed": self.runs_needed, "warnings": [str(w) for w in self.warnings],
+            # the same warnings with the runs each one is about (a list of run ids, maybe empty)
+            "warning_runs": [{"warning": str(w), "run_ids": list(run_ids_of(w))} for w in self.warnings],
+            "notes": list(self.notes),
         }
         if self.a and self.b:
             out["ratio"] = {"a": self.a, "b": self.b, "k_a": self.k_a, "k_b": self.k_b,
@@ -184,7 +225,12 @@ class Summary:
             out += [self._caption(), ""]
         out += self.lines()
         if self.warnings:
-            out += ["", "Warnings:"] + [f"  - {w}" for w in self.warnings]
+            out += ["", "Warnings:"]
+            for w in self.warnings:
+                out.append(f"  - {w}")
+                if run_ids_of(w):
+                    out += textwrap.wrap("runs: " + ", ".join(run_ids_of(w)), width=100, initial_indent="    ",
+                                         subsequent_indent="      ", break_on_hyphens=False)
         return "\n".join(out) + "\n"
 
     def to_markdown(self) -> str:
@@ -196,7 +242,10 @@ class Summary:
         if self.notes:
             out += [""] + [f"*Note:* {n}" for n in self.notes]
         if self.warnings:
-            out += ["", "### Warnings", ""] + [f"- {w}" for w in self.warnings]
+            out += ["", "### Warnings", ""]
+            for w in self.warnings:
+                ids = run_ids_of(w)
+                out.append(f"- {w}" + (f" Runs: {', '.join(f'`{r}`' for r in ids)}." if ids else ""))
         return "\n".join(out) + "\n"
 
     def _caption(self) -> str:
@@ -251,10 +300,11 @@ def _energy(x: float) -> str:
     return f"{x:.2f}"
 
 
-def flag_warnings(labels: pd.DataFrame) -> list[str]:
-    """Warnings about flagged runs that are still counted (see :func:`build_summary`)."""
+def flag_warnings(labels: pd.DataFrame) -> list[SummaryWarning]:
+    """Warnings about flagged runs that are still counted (see :func:`build_summary`), with their run ids."""
     if "flags" not in labels:
         return []
+    runs = _runs(labels)
     final = labels["final_label"]
     counted = final.notna() & (final.astype(str).str.strip() != "") & (final != "excluded")
     flags = labels["flags"].fillna("").astype(str)
@@ -268,17 +318,72 @@ def flag_warnings(labels: pd.DataFrame) -> list[str]:
     if drift.any():
         n, looked = int(drift.sum()), int((drift & by_hand).sum())
         seen = f"; {looked} of them kept by hand" if looked else ", none of them looked at by hand"
-        out.append(f"{n} counted run{'s' if n != 1 else ''} failed the energy check (total energy drifted more "
-                   f"than the rules allow){seen}. Their outcomes may be artefacts of a poor integration: look at "
-                   f"them and exclude the bad ones.")
+        out.append(SummaryWarning(
+            f"{n} counted run{'s' if n != 1 else ''} failed the energy check (total energy drifted more "
+            f"than the rules allow){seen}. Their outcomes may be artefacts of a poor integration: look at "
+            f"them and exclude the bad ones.", runs[drift.to_numpy()]))
     tally: Counter = Counter()
     for fl in flags[counted & ~by_hand]:
         tally.update(f for f in fl.split(";") if f and f not in ("energy_drift", "data_changed"))
     if tally:
-        n = int((counted & ~by_hand & flags.apply(lambda f: bool(set(f.split(";")) & set(tally)))).sum())
+        waiting = counted & ~by_hand & flags.apply(lambda f: bool(set(f.split(";")) & set(tally)))
+        n = int(waiting.sum())
         listed = ", ".join(f"{name} {k}" for name, k in sorted(tally.items()))
-        out.append(f"{n} counted run{'s' if n != 1 else ''} flagged for a look ({listed}) "
-                   f"{'have' if n != 1 else 'has'} no hand label yet.")
+        out.append(SummaryWarning(f"{n} counted run{'s' if n != 1 else ''} flagged for a look ({listed}) "
+                                  f"{'have' if n != 1 else 'has'} no hand label yet.", runs[waiting.to_numpy()]))
+    return out
+
+
+def _runs(labels: pd.DataFrame) -> np.ndarray:
+    """The run ids of a label table as an array (positional, so boolean masks index it)."""
+    if "run" in labels:
+        return np.asarray(labels["run"].astype(str), dtype=object)
+    return np.asarray([str(r) for r in labels.index], dtype=object)
+
+
+def _final_text(value) -> str | None:
+    """A final label as the outcome table reads it (None when missing: None, NaN or blank)."""
+    if value is None or (isinstance(value, float) and math.isnan(value)) or str(value).strip() == "":
+        return None
+    return str(value)
+
+
+def _label_mask(final: pd.Series, names: set[str]) -> np.ndarray:
+    return np.fromiter((_final_text(v) in names for v in final), dtype=bool, count=len(final))
+
+
+def attribute_reliability(counts: dict, products: Sequence[str], labels: pd.DataFrame, **kw) -> list[SummaryWarning]:
+    """:func:`stats.reliability_warnings` with each sentence given the runs it is about.
+
+    The rule: a sentence is about the runs whose final label it names; a sentence that names no label
+    (e.g. "only 12 runs reached a product") is about the runs that reached a product.  To find the
+    labels a sentence names without reading its wording, the warnings are made a second time with
+    every product (and every label the rules do not know) renamed to a unique token: the two calls see
+    the same counts, so they give the same sentences in the same order, and a token in the second
+    sentence says exactly which product the first one names (a product called "left" is not confused
+    with the words "left out").  The fixed labels keep their names and are found as whole words.
+    """
+    texts = stats.reliability_warnings(counts, products, **kw)
+    fixed = set(stats.NON_PRODUCT_LABELS) | {"reactant"}
+    names = [str(k) for k in counts if str(k) not in fixed]
+    names += [p for p in products if p not in names]
+    token = {name: f"\u27e6{i}\u27e7" for i, name in enumerate(names)}
+    tkw = dict(kw)
+    if kw.get("pair") is not None:
+        tkw["pair"] = tuple(token.get(p, p) for p in kw["pair"])
+    probe = stats.reliability_warnings({token.get(str(k), str(k)): v for k, v in counts.items()},
+                                       [token[p] for p in products], **tkw)
+    runs = _runs(labels)
+    final = labels["final_label"].reset_index(drop=True)
+    out = []
+    for i, text in enumerate(texts):
+        if len(probe) != len(texts):  # cannot happen while the checks read counts only; then say nothing
+            out.append(SummaryWarning(text))
+            continue
+        named = {name for name, tok in token.items() if tok in probe[i]}
+        named |= {f for f in fixed if re.search(rf"\b{re.escape(f)}\b", probe[i])}
+        named = named or set(products)
+        out.append(SummaryWarning(text, runs[_label_mask(final, named)]))
     return out
 
 
@@ -353,19 +458,24 @@ def build_summary(
     tst = stats.tst_ratio(ddg, unit, temperature) if ddg is not None and a and b else None
 
     counts_all = dict(counts, excluded=n_excluded)
-    warnings = stats.reliability_warnings(counts_all, products, ratio=ratio if a and b else None,
-                                          pair=(a, b) if a and b else None)
+    # every warning names its runs (SummaryWarning.run_ids), so that a view can show exactly those
+    warnings = attribute_reliability(counts_all, products, labels, ratio=ratio if a and b else None,
+                                     pair=(a, b) if a and b else None)
+    run_ids = _runs(labels)
     if n_missing:
-        warnings.append(f"{n_missing} run{'s have' if n_missing != 1 else ' has'} no label yet and "
-                        f"{'are' if n_missing != 1 else 'is'} not counted.")
+        blank = np.fromiter((_final_text(v) is None for v in labels["final_label"]), dtype=bool, count=len(labels))
+        warnings.append(SummaryWarning(f"{n_missing} run{'s have' if n_missing != 1 else ' has'} no label yet and "
+                                       f"{'are' if n_missing != 1 else 'is'} not counted.", run_ids[blank]))
     if "data_changed" in labels:
-        changed = int(labels["data_changed"].fillna(False).astype(bool).sum())
+        changed_mask = labels["data_changed"].fillna(False).astype(bool).to_numpy(dtype=bool)
+        changed = int(changed_mask.sum())
         if changed:
-            warnings.append(f"{changed} label{'s were' if changed != 1 else ' was'} set on run files that have "
-                            f"changed since: check those runs again before trusting the counts.")
+            warnings.append(SummaryWarning(
+                f"{changed} label{'s were' if changed != 1 else ' was'} set on run files that have "
+                f"changed since: check those runs again before trusting the counts.", run_ids[changed_mask]))
 
     warnings += flag_warnings(labels)
-    warnings += list(extra_warnings)
+    warnings += [as_warning(w) for w in extra_warnings]
 
     needed = None
     n_counted = int(table.attrs["n"])

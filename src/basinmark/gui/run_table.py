@@ -124,19 +124,22 @@ class RunFilterProxy(QSortFilterProxyModel):
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.mode = "all"
+        self.only: frozenset[str] | None = None  # a given list of runs (e.g. a summary warning's) instead
         self.setSortRole(Qt.ItemDataRole.UserRole)
 
-    def set_mode(self, mode: str) -> None:
+    def set_mode(self, mode: str, only: frozenset[str] | None = None) -> None:
         if hasattr(self, "beginFilterChange"):  # Qt >= 6.9; invalidateFilter is deprecated there
             self.beginFilterChange()
-            self.mode = mode
+            self.mode, self.only = mode, only
             self.endFilterChange()
         else:
-            self.mode = mode
+            self.mode, self.only = mode, only
             self.invalidateFilter()
 
     def filterAcceptsRow(self, source_row: int, source_parent: QModelIndex) -> bool:  # noqa: N802
         model = self.sourceModel()
+        if self.only is not None:
+            return model.row(source_row)["run"] in self.only
         return row_matches(model.row(source_row), self.mode)
 
 
@@ -208,6 +211,20 @@ class RunTable(QWidget):
         bar.addStretch(1)
         self.filter_buttons["all"].setChecked(True)
         lay.addLayout(bar)
+        # "showing only these runs" (show_only_runs): a caption naming why, and a way back to every run
+        only = QHBoxLayout()
+        self.only_caption = QLabel(self)
+        self.only_caption.setWordWrap(True)
+        self.only_caption.setObjectName("onlyRunsCaption")
+        self.only_clear = QToolButton(self)
+        self.only_clear.setText("Show All Runs")
+        self.only_clear.setToolTip("Leave this list and show every run again")
+        self.only_clear.clicked.connect(self.clear_only_runs)
+        only.addWidget(self.only_caption, 1)
+        only.addWidget(self.only_clear)
+        self.only_caption.setVisible(False)
+        self.only_clear.setVisible(False)
+        lay.addLayout(only)
         self.view = QTableView(self)
         self.view.setModel(self.proxy)
         self.view.setSortingEnabled(True)
@@ -275,13 +292,38 @@ class RunTable(QWidget):
 
     # --- filters and selection ---------------------------------------------------------------
     def set_filter(self, mode: str) -> None:
+        self.filter_group.setExclusive(True)
         self.filter_buttons[mode].setChecked(True)
+        self._show_only_caption("")
         self._syncing = True
         try:
             self.proxy.set_mode(mode)
         finally:
             self._syncing = False
         self._select_run(self.state.run_id)
+
+    def show_only_runs(self, run_ids, caption: str) -> None:
+        """Show exactly ``run_ids`` (e.g. the runs a summary warning names) under a caption saying why."""
+        only = frozenset(str(r) for r in run_ids)
+        self.filter_group.setExclusive(False)  # no quick filter is in force now
+        for b in self.filter_buttons.values():
+            b.setChecked(False)
+        self._show_only_caption(f"Showing only {len(only)} run{'s' if len(only) != 1 else ''}: {caption}")
+        self._syncing = True
+        try:
+            self.proxy.set_mode("all", only)
+        finally:
+            self._syncing = False
+        self._select_run(self.state.run_id)
+
+    def clear_only_runs(self) -> None:
+        self.set_filter("all")
+
+    def _show_only_caption(self, text: str) -> None:
+        self.only_caption.setText(text)
+        self.only_caption.setToolTip(text)
+        self.only_caption.setVisible(bool(text))
+        self.only_clear.setVisible(bool(text))
 
     @property
     def filter_mode(self) -> str:

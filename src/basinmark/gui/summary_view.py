@@ -15,12 +15,12 @@ import pandas as pd
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor, QPalette
-from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDockWidget, QDoubleSpinBox,
-                               QHBoxLayout, QHeaderView, QLabel, QMainWindow, QSplitter, QTableWidget,
-                               QTableWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDockWidget, QDoubleSpinBox, QFrame,
+                               QGridLayout, QHBoxLayout, QHeaderView, QLabel, QMainWindow, QPushButton, QSplitter,
+                               QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 from basinmark.core.errors import BasinmarkError
-from basinmark.core.summary import Summary, build_summary
+from basinmark.core.summary import Summary, build_summary, run_ids_of
 from basinmark.core.timing import commit_time_histogram, concerted_fraction, gap_mode
 from basinmark.core.units import convert_energy
 from basinmark.gui.colours import outcome_colour
@@ -37,10 +37,77 @@ def _fmt(x: float, digits: int = 3) -> str:
     return f"{x:.{digits}f}"
 
 
+def short_caption(warning: str, limit: int = 110) -> str:
+    """The first sentence of a warning, cut to ``limit`` characters (a caption above the run table)."""
+    first = str(warning).split(". ")[0].rstrip(".")
+    return first if len(first) <= limit else first[:limit - 1].rstrip() + "…"
+
+
+class WarningBox(QFrame):
+    """The summary's warnings, one line each, with a button that lists the runs a warning names."""
+
+    show_runs = Signal(tuple, str)   # run ids, caption
+
+    def __init__(self, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.setObjectName("summaryWarnings")
+        self.grid = QGridLayout(self)
+        self.grid.setContentsMargins(6, 4, 6, 4)
+        self.grid.setVerticalSpacing(2)
+        self.grid.setColumnStretch(0, 1)
+        self.labels: list[QLabel] = []
+        self.buttons: list[QPushButton] = []
+        self.warnings: list[str] = []
+        self._colour = "#b3261e"
+
+    def set_colour(self, colour: str) -> None:
+        self._colour = colour
+        self.setStyleSheet(f"QFrame#summaryWarnings {{ border: 1px solid {colour}; border-radius: 3px; }} "
+                           f"QLabel#summaryWarningText {{ color: {colour}; font-weight: bold; }}")
+
+    def set_warnings(self, warnings) -> None:
+        for w in self.labels + self.buttons:
+            self.grid.removeWidget(w)
+            w.deleteLater()
+        self.labels, self.buttons, self.warnings = [], [], list(warnings)
+        for i, w in enumerate(self.warnings):
+            ids = run_ids_of(w)
+            label = QLabel(f"⚠ {w}", self)
+            label.setObjectName("summaryWarningText")
+            label.setTextFormat(Qt.TextFormat.PlainText)
+            label.setWordWrap(True)
+            label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+            if ids:
+                shown = ", ".join(ids[:12]) + (f" and {len(ids) - 12} more" if len(ids) > 12 else "")
+                label.setToolTip(f"Runs: {shown}")
+            button = QPushButton(f"Show {len(ids)} run{'s' if len(ids) != 1 else ''}" if ids else "No runs", self)
+            button.setEnabled(bool(ids))
+            button.setToolTip("List exactly these runs in the run table" if ids else
+                              "This warning is about the set as a whole, not about particular runs")
+            button.clicked.connect(lambda _c=False, k=i: self.activate(k))
+            self.grid.addWidget(label, i, 0)
+            self.grid.addWidget(button, i, 1, Qt.AlignmentFlag.AlignTop)
+            label.show()   # a layout shows new children only later (queued) when the parent is visible
+            button.show()
+            self.labels.append(label)
+            self.buttons.append(button)
+        self.setVisible(bool(self.warnings))
+
+    def activate(self, i: int) -> None:
+        """Filter the run table to the runs of warning ``i``."""
+        w = self.warnings[i]
+        if run_ids_of(w):
+            self.show_runs.emit(run_ids_of(w), short_caption(w))
+
+    def text(self) -> str:
+        return "\n".join(lab.text() for lab in self.labels)
+
+
 class SummaryPanel(QWidget):
     """Counts, ratio, TST comparison, convergence and timings of the open set's final labels."""
 
     updated = Signal()
+    show_runs = Signal(tuple, str)   # a warning was clicked: list these runs (ids, caption)
 
     def __init__(self, state, parent: QWidget | None = None) -> None:
         super().__init__(parent)
@@ -109,11 +176,11 @@ class SummaryPanel(QWidget):
         controls.addStretch(1)
         outer.addLayout(controls)
 
-        self.warnings = QLabel(self)
-        self.warnings.setObjectName("summaryWarnings")
-        self.warnings.setWordWrap(True)
-        self.warnings.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
-        outer.addWidget(self.warnings)
+        self.warning_box = WarningBox(self)
+        self.warning_box.show_runs.connect(self.show_runs)
+        self.warnings = self.warning_box  # text() and visibility as before
+        self.warning_box.setVisible(False)
+        outer.addWidget(self.warning_box)
 
         split = QSplitter(Qt.Orientation.Vertical, self)
         top = QWidget(split)
@@ -191,8 +258,7 @@ class SummaryPanel(QWidget):
                 p.legend.setBrush(pg.mkBrush(bg))
                 p.legend.setLabelTextColor(text)
         warn = QColor("#b3261e") if base.lightness() > 128 else QColor("#ffb4a9")
-        self.warnings.setStyleSheet(f"QLabel#summaryWarnings {{ color: {warn.name()}; font-weight: bold; "
-                                    f"padding: 4px 6px; border: 1px solid {warn.name()}; border-radius: 3px; }}")
+        self.warning_box.set_colour(warn.name())
 
     def _title(self, plot, text: str) -> None:
         plot.setTitle(text, color=self.palette().color(QPalette.ColorRole.Text), size="10pt")
@@ -347,14 +413,12 @@ class SummaryPanel(QWidget):
         if s is None:
             self.table.setRowCount(0)
             self.lines.setText(self.error or "Open a set with rules (or labels) to see its summary.")
-            self.warnings.setText("")
-            self.warnings.setVisible(False)
+            self.warning_box.set_warnings([])
             return
         self._fill_table(s)
         text = [s._headline()] + s.lines()  # the core's own sentences + [f"Note: {n}" for n in s.notes]
         self.lines.setText("\n\n".join(text))
-        self.warnings.setText("\n".join(f"⚠ {w}" for w in s.warnings))
-        self.warnings.setVisible(bool(s.warnings))
+        self.warning_box.set_warnings(s.warnings)
         self._draw_outcomes(s)
         self._draw_convergence(s)
         self._draw_hist(self.p_commit, self.commit_hist, "commit_time")
@@ -492,6 +556,19 @@ def install_summary_dock(window: QMainWindow) -> QDockWidget:
     if isinstance(docks, dict):
         docks["summary"] = dock
     window.summary_panel = panel
+
+    def show_runs(run_ids: tuple, caption: str) -> None:
+        table = getattr(window, "run_table", None)
+        if table is None:
+            return
+        table.show_only_runs(run_ids, caption)
+        runs_dock = docks.get("runs") if isinstance(docks, dict) else None
+        if runs_dock is not None:
+            runs_dock.show()
+            runs_dock.raise_()
+        window.statusBar().showMessage(f"Run table: {len(run_ids)} runs of the warning “{caption}”", 8000)
+
+    panel.show_runs.connect(show_runs)
     act = dock.toggleViewAction()
     act.setText("S&ummary")
     act.setShortcut("Ctrl+Shift+M")
