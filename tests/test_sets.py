@@ -93,10 +93,13 @@ def test_bad_files_are_listed_and_the_rest_loads(tmp_path):
     assert tset.run_ids == ["run-1", "run-2"]
     reasons = " | ".join(str(f) for f in tset.failures)
     assert "run-3" in reasons and "do not match" in reasons
-    assert "run-4" in reasons and "no backward half" in reasons
     assert "run-5.bwd.xyz, line 4" in reasons
+    # a lone half is not a run: left out with the reason, not counted as a failure to load
+    assert [Path(f.path).name for f in tset.left_out] == ["run-4.fwd.xyz"]
+    assert "no backward half" in tset.left_out[0].reason
     table = tset.info_table()
-    assert len(table) == 5 and table["problems"].str.contains("not loaded").sum() == 3
+    assert len(table) == 5 and table["problems"].str.contains("not loaded").sum() == 2
+    assert table["problems"].str.startswith("left out").sum() == 1
 
 
 def test_cache_hit_skips_parsing_and_changed_file_misses(tmp_path, monkeypatch):

@@ -27,7 +27,11 @@ def run(args) -> int:
     if args.format == "table":
         n_frames = sum(t.n_frames for t in tset)
         print(f"\n{tset.name}: {len(tset)} runs loaded ({n_frames} frames) in {elapsed:.2f} s; "
-              f"{len(tset.failures)} file(s) not loaded.")
+              f"{len(tset.failures)} file(s) not loaded, {len(tset.left_out)} left out.")
+        for note in tset.notes:
+            print(f"  found: {note}")
+        for f in tset.left_out:
+            print(f"  left out: {f}")
         for f in tset.failures:
             print(f"  not loaded: {f}")
         for w in tset.warnings:

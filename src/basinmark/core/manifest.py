@@ -55,11 +55,13 @@ DEFAULT: dict = {
         "folders": [".", "runs"],
     },
     "units": {"time": "fs", "energy": "eV", "length": "angstrom"},
+    # compared without case; the first key a file carries is used.  ``energy`` is the key ase writes for a
+    # calculator's potential energy; ``kinetic``/``potential``/``total`` are common spellings of the rest
     "keys": {
         "time": ["time", "t", "time_fs"],
-        "potential": ["epot", "energy", "potential_energy", "e_pot"],
-        "kinetic": ["ekin", "kinetic_energy", "e_kin"],
-        "total": ["etot", "total_energy", "e_tot"],
+        "potential": ["epot", "energy", "potential_energy", "potential", "e_pot", "pot_energy"],
+        "kinetic": ["ekin", "kinetic_energy", "kinetic", "e_kin", "kin_energy"],
+        "total": ["etot", "total_energy", "total", "e_tot", "etotal", "tot_energy"],
     },
     "time": {"step_fs": None, "backward": "auto"},
     "tst": {"ddg": None, "unit": "kcal/mol", "temperature": 298.15, "source": ""},
@@ -99,6 +101,12 @@ class SetLayout:
     fingerprint: str  # hash of everything that changes how files are turned into runs
     source: Path | None = None
     tst: dict | None = None  # {"ddg", "unit", "temperature", "source"} when the manifest gives a ΔΔG‡
+    patterns_given: bool = False  # the manifest names file patterns; else runs are found by naming conventions
+
+    @property
+    def nested(self) -> bool:
+        """Some pattern names a sub-folder (``{run}/fwd.xyz``): look one folder down as well."""
+        return any("/" in p.pattern for p in self.backward + self.forward + self.joined)
 
     def role_of(self, filename: str) -> tuple[str, str] | None:
         """``(role, run_id)`` for a file name, or None when no pattern matches."""
@@ -168,6 +176,7 @@ def load_layout(root: str | Path) -> SetLayout:
                                                   sort_keys=True).encode()).hexdigest(),
             source=path if path.exists() else None,
             tst=_tst(cfg["tst"], path),
+            patterns_given=any(k in raw.get("files", {}) for k in ("backward", "forward", "joined")),
         )
     except (ValueError, TypeError) as exc:
         raise SetError(f"{path}: {exc}") from None

@@ -192,6 +192,10 @@ class TrajectorySet:
     failures: list[LoadFailure] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     metadata: dict = field(default_factory=dict)
+    #: files found in the folder that are not runs (an unpaired half, a single geometry, other atoms), with why
+    left_out: list[LoadFailure] = field(default_factory=list)
+    #: how the runs were found (one sentence per naming convention or layout)
+    notes: list[str] = field(default_factory=list)
 
     @property
     def name(self) -> str:
@@ -226,7 +230,7 @@ class TrajectorySet:
         return {rid: t.content_hash for rid, t in self.runs.items()}
 
     def info_table(self) -> pd.DataFrame:
-        """One row per run (and per failed file): id, frames, time span, atoms, drift, problems."""
+        """One row per run (and per file not loaded or left out): id, frames, time span, atoms, drift, problems."""
         rows = []
         for t in self.runs.values():
             t0, t1 = t.time_span
@@ -243,6 +247,9 @@ class TrajectorySet:
         for f in self.failures:
             rows.append({"run": Path(f.path).name, "frames": 0, "t_start_fs": None, "t_end_fs": None,
                          "atoms": None, "drift_kcal_mol": None, "problems": f"not loaded: {f.reason}"})
+        for f in self.left_out:
+            rows.append({"run": Path(f.path).name, "frames": 0, "t_start_fs": None, "t_end_fs": None,
+                         "atoms": None, "drift_kcal_mol": None, "problems": f"left out: {f.reason}"})
         table = pd.DataFrame(rows, columns=["run", "frames", "t_start_fs", "t_end_fs", "atoms",
                                             "drift_kcal_mol", "problems"])
         table["atoms"] = table["atoms"].astype("Int64")  # whole numbers, empty where a file failed

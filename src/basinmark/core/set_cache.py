@@ -60,7 +60,8 @@ def load_snapshot(folder: Path, key: str, root: Path | None = None) -> tuple[dic
         ens = {k: energies[k][a:b] for k in r["energies"]}
         sources = tuple(SourceFile(_rerooted(p, old_root, root), sha, role) for p, sha, role in r["sources"])
         runs[r["run_id"]] = Trajectory(r["run_id"], np.asarray(r["numbers"]), positions[a:b], times[a:b], ens,
-                                       sources=sources, problems=list(r["problems"]))
+                                       sources=sources, problems=list(r["problems"]),
+                                       metadata={"file_keys": list(r.get("file_keys", []))})
     failures = [LoadFailure(_rerooted(f["path"], old_root, root),
                             f["reason"].replace(old_root, str(root)) if old_root else f["reason"], f["line"])
                 for f in index["failures"]]
@@ -102,7 +103,8 @@ def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures
             "runs": [{"run_id": t.run_id, "start": int(a), "stop": int(b), "numbers": t.numbers.tolist(),
                       "energies": [k for k in keys if k in t.energies],
                       "sources": [[rel(s.path), s.sha256, s.role] for s in t.sources],
-                      "problems": list(t.problems)} for t, a, b in zip(trajs, starts, stops)],
+                      "problems": list(t.problems), "file_keys": list(t.metadata.get("file_keys", []))}
+                     for t, a, b in zip(trajs, starts, stops)],
             "failures": [{"path": rel(f.path), "reason": f.reason, "line": f.line} for f in failures],
         }
         (tmp / "index.json").write_text(json.dumps(index), encoding="utf-8")

@@ -15,6 +15,7 @@ import re
 import tempfile
 import threading
 import warnings
+from collections import Counter
 from concurrent.futures import ThreadPoolExecutor, as_completed
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -25,6 +26,7 @@ import numpy as np
 from basinmark.core.errors import BasinmarkError, SetError, TrajectoryFileError
 from basinmark.core.manifest import SetLayout, load_layout
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory, TrajectorySet
+from basinmark.core.pairing import RunSpec, describe, find_by_names, find_by_patterns
 from basinmark.core.set_cache import load_snapshot, snapshot_key, store_snapshot
 
 JOURNAL_NAME = "basinmark-labels.jsonl"
@@ -48,72 +50,31 @@ def rules_path(root: str | Path) -> Path:
 
 
 @dataclass
-class RunSpec:
-    """The files that make one run."""
-
-    run_id: str
-    backward: Path | None = None
-    forward: Path | None = None
-    joined: Path | None = None
-
-    @property
-    def files(self) -> list[Path]:
-        return [p for p in (self.backward, self.forward, self.joined) if p is not None]
-
-
-@dataclass
 class SetPlan:
     root: Path
     layout: SetLayout
     runs: list[RunSpec]
     failures: list[LoadFailure] = field(default_factory=list)
-
-
-def _natural_key(text: str):
-    return [int(tok) if tok.isdigit() else tok for tok in re.split(r"(\d+)", text)]
+    left_out: list[LoadFailure] = field(default_factory=list)  # files found but not runs, with the reason
+    notes: list[str] = field(default_factory=list)  # how the runs were found, one sentence per convention
+    conventions: dict = field(default_factory=dict)  # convention -> runs found by it (see pairing.describe)
+    plain: bool = True  # the set follows this project's own naming or the manifest's patterns
 
 
 def discover(root: str | Path) -> SetPlan:
-    """Find the runs of a set folder without reading them."""
+    """Find the runs of a set folder without reading them (see :mod:`basinmark.core.pairing`)."""
     root = Path(root).expanduser()
     if not root.exists():
         raise SetError(f"{root}: no such folder")
     if not root.is_dir():
         raise SetError(f"{root}: not a folder (a set is a folder of run files)")
     layout = load_layout(root)
-    specs: dict[str, RunSpec] = {}
-    failures: list[LoadFailure] = []
-    for folder in layout.folders:
-        base = (root / folder).resolve()
-        if not base.is_dir():
-            continue
-        for path in sorted(base.iterdir()):
-            if not path.is_file() or path.name.startswith("."):
-                continue
-            hit = layout.role_of(path.name)
-            if hit is None:
-                continue
-            role, run_id = hit
-            spec = specs.setdefault(run_id, RunSpec(run_id))
-            if getattr(spec, role) is not None and getattr(spec, role) != path:
-                failures.append(LoadFailure(path, f"{path}: run {run_id} already has a {role} file "
-                                                  f"({getattr(spec, role).name}); this one is ignored"))
-                continue
-            setattr(spec, role, path)
-    runs = []
-    for run_id in sorted(specs, key=_natural_key):
-        spec = specs[run_id]
-        if spec.joined is not None and (spec.backward or spec.forward):
-            failures.append(LoadFailure(spec.joined, f"{spec.joined}: run {run_id} has both a joined file and "
-                                                     "halves; the halves are used"))
-            spec.joined = None
-        if spec.joined is None and (spec.backward is None) != (spec.forward is None):
-            have = spec.backward or spec.forward
-            missing = "forward" if spec.forward is None else "backward"
-            failures.append(LoadFailure(have, f"{have}: run {run_id} has no {missing} half; the run is left out"))
-            continue
-        runs.append(spec)
-    return SetPlan(root, layout, runs, failures)
+    if layout.patterns_given:
+        pairing = find_by_patterns(root, layout)
+    else:
+        pairing = find_by_names(root, layout.folders)
+    return SetPlan(root, layout, pairing.runs, [], pairing.left_out, pairing.notes, pairing.conventions,
+                   plain=pairing.plain)
 
 
 # --- reading and joining ---------------------------------------------------------------------
@@ -126,12 +87,27 @@ def _sha256_file(path: Path) -> str:
     return h.hexdigest()
 
 
-def _pick(info: dict, candidates) -> np.ndarray | None:
+def _pick(info: dict, candidates) -> tuple[str | None, np.ndarray | None]:
+    """The first of ``candidates`` the file carries, compared without case: ``(key as written, values)``."""
+    by_lower = {k.lower(): k for k in info}
     for key in candidates:
-        for k in (key, key.lower(), key.upper(), key.capitalize()):
-            if k in info:
-                return np.asarray(info[k], dtype=np.float64)
-    return None
+        k = key if key in info else by_lower.get(key.lower())
+        if k is not None:
+            return k, np.asarray(info[k], dtype=np.float64)
+    return None, None
+
+
+def _kinetic_from_momenta(block) -> np.ndarray | None:
+    """Kinetic energy (eV) per frame from per-atom momenta in ase's units, as ase computes it:
+    ½ Σ p·p / m (``Atoms.get_kinetic_energy``); masses from the file, else ase's standard atomic masses."""
+    p = block.arrays.get("momenta")
+    if p is None or p.ndim != 3 or p.shape[-1] != 3:
+        return None
+    from ase.data import atomic_masses
+
+    masses = block.arrays.get("masses")
+    m = np.asarray(masses, dtype=np.float64) if masses is not None else atomic_masses[block.numbers][None, :]
+    return 0.5 * np.einsum("fai,fai->f", p, p / m[..., None]) if m.ndim == 2 else None
 
 
 @dataclass
@@ -141,6 +117,8 @@ class _Half:
     times: np.ndarray | None
     energies: dict
     problems: list
+    keys: list = field(default_factory=list)  # numeric comment keys the file carries
+    recipe: dict = field(default_factory=dict)  # which key gave which value (part of the run's reading hash)
 
 
 def _read_half(path: Path, layout: SetLayout) -> _Half:
@@ -152,7 +130,8 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
     positions = block.positions
     if layout.length_factor != 1.0:
         positions = positions * np.float32(layout.length_factor)
-    times = _pick(block.info, layout.keys["time"])
+    time_key, times = _pick(block.info, layout.keys["time"])
+    recipe = {"time": time_key}
     if times is not None:
         if np.isnan(times).any():
             bad = int(np.flatnonzero(np.isnan(times))[0])
@@ -162,10 +141,23 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
         times = times * layout.time_factor
     energies = {}
     for role in ("potential", "kinetic", "total"):
-        values = _pick(block.info, layout.keys[role])
+        key, values = _pick(block.info, layout.keys[role])
         if values is not None:
             energies[role] = values * layout.energy_factor
-    return _Half(block.numbers, positions, times, energies, list(block.warnings))
+            recipe[role] = key
+    if "kinetic" not in energies:
+        kinetic = _kinetic_from_momenta(block)
+        if kinetic is not None:
+            energies["kinetic"] = kinetic
+            recipe["kinetic"] = "(momenta)"
+    return _Half(block.numbers, positions, times, energies, list(block.warnings), sorted(block.info), recipe)
+
+
+def no_energy_note(keys) -> str:
+    """Said when a run carries no energies: which keys its files do carry, and where to name the right ones."""
+    carried = ", ".join(k for k in keys) or "none"
+    return (f"no energy key found, so no energy check is made (numeric comment keys in the files: {carried}; "
+            "name the energy keys under [keys] in basinmark-set.toml)")
 
 
 def _oldest_first(half: _Half) -> bool:
@@ -224,8 +216,10 @@ def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = Non
             problems.append(f"{spec.joined.name}: t = 0 is not among the times; the frame nearest to it is "
                             "taken as the transition state")
         sources = (SourceFile(spec.joined, sha(spec.joined), "joined"),)
+        if not half.energies:
+            problems.append(no_energy_note(half.keys))
         return Trajectory(spec.run_id, half.numbers, half.positions, times, half.energies,
-                          sources=sources, problems=problems + half.problems)
+                          sources=sources, problems=problems + half.problems, metadata={"file_keys": half.keys})
     bwd = _read_half(spec.backward, layout)
     fwd = _read_half(spec.forward, layout)
     if not np.array_equal(bwd.numbers, fwd.numbers):
@@ -264,7 +258,11 @@ def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = Non
         energies[key] = np.concatenate([bwd.energies[key][:0:-1], fwd.energies[key]])
     sources = (SourceFile(spec.backward, sha(spec.backward), "backward"),
                SourceFile(spec.forward, sha(spec.forward), "forward"))
+    keys = sorted(set(bwd.keys) | set(fwd.keys))
+    if not bwd.energies and not fwd.energies:
+        problems.append(no_energy_note(keys))
     return Trajectory(spec.run_id, bwd.numbers, positions, times, energies, sources=sources,
+                      metadata={"file_keys": keys},
                       problems=problems + bwd.problems + fwd.problems)
 
 
@@ -300,9 +298,10 @@ class RunCache:
             with np.load(path, allow_pickle=False) as z:
                 energies = {k[7:]: z[k] for k in z.files if k.startswith("energy_")}
                 problems = [str(p) for p in z["problems"]] if "problems" in z.files else []
+                keys = [str(k) for k in z["file_keys"]] if "file_keys" in z.files else []
                 return Trajectory(spec.run_id, z["numbers"], z["positions"], z["times"], energies,
                                   sources=tuple(SourceFile(p, sha, r) for (r, sha), (_, p) in zip(hashes, roles)),
-                                  problems=problems)
+                                  problems=problems, metadata={"file_keys": keys})
         except Exception:  # a damaged cache entry is simply rebuilt
             return None
 
@@ -311,7 +310,8 @@ class RunCache:
         try:
             self.folder.mkdir(parents=True, exist_ok=True)
             arrays = {"numbers": traj.numbers, "positions": traj.positions, "times": traj.times,
-                      "problems": np.array(traj.problems, dtype=str)}
+                      "problems": np.array(traj.problems, dtype=str),
+                      "file_keys": np.array(traj.metadata.get("file_keys", []), dtype=str)}
             arrays.update({f"energy_{k}": v for k, v in traj.energies.items()})
             fd, tmp = tempfile.mkstemp(dir=self.folder, suffix=".tmp")
             with os.fdopen(fd, "wb") as fh:
@@ -400,30 +400,85 @@ def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = No
                 fut.cancel()
 
 
-def _check_atoms(tset: TrajectorySet) -> TrajectorySet:
-    """Runs whose atoms differ from the set's first run are named: rules number atoms for the whole set."""
-    runs = list(tset.runs.values())
-    if not runs:
-        return tset
-    first = runs[0]
-    odd = []
-    for t in runs[1:]:
-        if not np.array_equal(t.numbers, first.numbers):
-            odd.append(t.run_id)
-            why = (f"{t.n_atoms} atoms" if t.n_atoms != first.n_atoms
-                   else "the same number of atoms in another order or of other elements")
-            msg = f"atoms differ from the set's first run {first.run_id} ({why}): atom numbers in rules mean other atoms here"
-            if msg not in t.problems:
-                t.problems.append(msg)
-    if odd:
-        tset.warnings.append(f"{len(odd)} run(s) have other atoms than {first.run_id} ({', '.join(odd[:5])}"
-                             f"{', ...' if len(odd) > 5 else ''}); their classification uses the same atom "
-                             "numbers and may be meaningless")
+def _single_frame(traj: Trajectory) -> LoadFailure | None:
+    """A file of one frame found as a joined run is a single geometry (a transition state, a minimum), not a run."""
+    if traj.n_frames != 1 or len(traj.sources) != 1:
+        return None
+    path = traj.sources[0].path
+    return LoadFailure(path, f"{path}: one frame only, a single geometry (such as a transition state or a "
+                             "minimum), not a run")
+
+
+def _sort_out(runs: dict[str, Trajectory], warnings_: list[str]) -> tuple[dict[str, Trajectory], list[LoadFailure]]:
+    """Leave out single-frame files and runs whose atoms differ from the set's (the atom list most runs share).
+
+    Rules number atoms for the whole set, so a run of other atoms cannot be classified by them.  When no atom
+    list is shared by more than half of the runs there is no telling which runs belong: all are kept, and the
+    odd ones are named instead.
+    """
+    left: list[LoadFailure] = []
+    kept = {}
+    for rid, t in runs.items():
+        single = _single_frame(t)
+        if single is not None:
+            left.append(single)
+        else:
+            kept[rid] = t
+    if len(kept) < 2:
+        return kept, left
+    counts = Counter(t.numbers.tobytes() for t in kept.values())
+    common, n_common = counts.most_common(1)[0]
+    ref = next(t for t in kept.values() if t.numbers.tobytes() == common)
+    odd = [t for t in kept.values() if not np.array_equal(t.numbers, ref.numbers)]
+    if not odd:
+        return kept, left
+
+    def why(t: Trajectory) -> str:
+        return (f"{t.n_atoms} atoms against {ref.n_atoms}" if t.n_atoms != ref.n_atoms
+                else "the same number of atoms in another order or of other elements")
+
+    if n_common * 2 > len(kept):
+        for t in odd:
+            del kept[t.run_id]
+            files = ", ".join(str(s.path) for s in t.sources) or t.run_id
+            left.append(LoadFailure(t.sources[0].path if t.sources else Path(t.run_id),
+                                    f"{files}: other atoms than the set's runs ({why(t)}, e.g. run {ref.run_id}), "
+                                    "so not a run of this set"))
+        return kept, left
+    first = next(iter(kept.values()))
+    others = [t for t in kept.values() if not np.array_equal(t.numbers, first.numbers)]
+    for t in others:
+        msg = (f"atoms differ from the set's first run {first.run_id} ({why(t)}): atom numbers in rules mean "
+               "other atoms here")
+        if msg not in t.problems:
+            t.problems.append(msg)
+    names = [t.run_id for t in others]
+    warnings_.append(f"{len(names)} run(s) have other atoms than {first.run_id} ({', '.join(names[:5])}"
+                     f"{', ...' if len(names) > 5 else ''}) and no atom list is shared by most runs; their "
+                     "classification uses the same atom numbers and may be meaningless")
+    return kept, left
+
+
+def _energy_warning(runs: dict[str, Trajectory]) -> list[str]:
+    """One set-level sentence when no run carries energies, naming the keys the files do carry."""
+    if not runs or any(t.energies for t in runs.values()):
+        return []
+    keys = sorted({k for t in runs.values() for k in t.metadata.get("file_keys", [])})
+    return [f"none of the {len(runs)} runs carries energies, so no energy check is made: " + no_energy_note(keys)]
+
+
+def _finish(plan: SetPlan, runs: dict[str, Trajectory], failures: list[LoadFailure]) -> TrajectorySet:
+    warnings_: list[str] = []
+    runs, left = _sort_out(runs, warnings_)
+    tset = TrajectorySet(plan.root, runs, failures, metadata=_metadata(plan))
+    tset.left_out = list(plan.left_out) + left
+    tset.notes = describe(plan.conventions, keep=set(runs)) if plan.conventions else list(plan.notes)
+    tset.warnings.extend(warnings_ + _energy_warning(runs))
     return tset
 
 
 def _metadata(plan: SetPlan) -> dict:
-    meta = {"name": plan.layout.name}
+    meta = {"name": plan.layout.name, "pairing_plain": plan.plain}
     if plan.layout.tst is not None:
         meta["tst"] = dict(plan.layout.tst)
     return meta
@@ -451,12 +506,11 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
         if hit is not None:
             runs, failed = hit
             for traj in runs.values():
-                if on_run:
+                if on_run and _single_frame(traj) is None:
                     on_run(traj)
             if progress:
                 progress(total, total, None)
-            return _check_atoms(TrajectorySet(plan.root, runs, list(plan.failures) + failed,
-                                              metadata=_metadata(plan)))
+            return _finish(plan, runs, list(plan.failures) + failed)
     loaded: dict[str, Trajectory] = {}
     failures = list(plan.failures)
     done = 0
@@ -466,18 +520,20 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
             failures.append(result)
         else:
             loaded[spec.run_id] = result
-            if on_run:
+            if on_run and _single_frame(result) is None:
                 on_run(result)
         if progress:
             progress(done, total, spec.run_id)
     order = {spec.run_id: i for i, spec in enumerate(plan.runs)}
     runs = {rid: loaded[rid] for rid in sorted(loaded, key=order.__getitem__)}
-    tset = _check_atoms(TrajectorySet(plan.root, runs, failures, metadata=_metadata(plan)))
     if key is not None and done == total:
         store_snapshot(cache_folder, key, runs, failures[len(plan.failures):], plan.root.resolve())
+    tset = _finish(plan, runs, failures)
     if done < total:
         tset.warnings.append(f"loading was cancelled after {done} of {total} runs")
     if total == 0:
-        tset.warnings.append(f"{plan.root}: no run files found (expected names like run-0001.bwd.xyz.gz and "
-                             "run-0001.fwd.xyz.gz, or joined run-0001.xyz; see basinmark-set.toml to change this)")
+        tset.warnings.append(f"{plan.root}: no run files found (expected halves named like run-0001.bwd.xyz.gz and "
+                             "run-0001.fwd.xyz.gz, run_1_backward.xyz and run_1_forward.xyz, or run1/bwd.xyz and "
+                             "run1/fwd.xyz, or joined run-0001.xyz; basinmark-set.toml can name other patterns, "
+                             "see docs/set-manifest.md)")
     return tset

@@ -28,22 +28,32 @@ def _table(parent: QWidget, headers: Sequence[str], rows: Sequence[Sequence[str]
 
 
 class FailuresDialog(QDialog):
-    """Lists the files of a set that could not be loaded, with the reason; the rest stays usable."""
+    """Lists the files of a set that could not be loaded, or were found but are not runs, with the reason."""
 
-    def __init__(self, set_name: str, failures: Sequence, parent: QWidget | None = None) -> None:
+    def __init__(self, set_name: str, failures: Sequence, parent: QWidget | None = None,
+                 left_out: Sequence = ()) -> None:
         super().__init__(parent)
-        self.setWindowTitle(f"Files not loaded — {set_name}")
+        self.setWindowTitle(f"Files not used — {set_name}" if left_out else f"Files not loaded — {set_name}")
         self.resize(820, 360)
         lay = QVBoxLayout(self)
-        n = len(failures)
-        lay.addWidget(QLabel(f"{n} file{'s' if n != 1 else ''} of this set could not be loaded and "
-                             f"{'are' if n != 1 else 'is'} left out of the table and the counts. "
-                             "The other runs are usable. Fix or remove these files and open the set again.", self))
+        n, m = len(failures), len(left_out)
+        parts = []
+        if n:
+            parts.append(f"{n} file{'s' if n != 1 else ''} of this set could not be loaded and "
+                         f"{'are' if n != 1 else 'is'} left out of the table and the counts. "
+                         "Fix or remove these files and open the set again.")
+        if m:
+            parts.append(f"{m} file{'s' if m != 1 else ''} found in the folder {'are' if m != 1 else 'is'} not "
+                         "counted as runs (the reason is given for each).")
+        parts.append("The other runs are usable.")
+        lay.addWidget(QLabel(" ".join(parts), self))
         rows = []
-        for f in failures:
-            line = getattr(f, "line", None)
-            reason = str(getattr(f, "reason", f))
-            rows.append((str(getattr(f, "path", "")), "" if line is None else str(line), reason))
+        for kind, items in (("not loaded", failures), ("left out", left_out)):
+            for f in items:
+                line = getattr(f, "line", None)
+                reason = str(getattr(f, "reason", f))
+                rows.append((str(getattr(f, "path", "")), "" if line is None else str(line),
+                             f"{kind}: {reason}" if m else reason))
         self.table = _table(self, ("File", "Line", "Reason"), rows)
         lay.addWidget(self.table, 1)
         buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Close, self)

@@ -29,6 +29,14 @@ from basinmark.gui.traces import TracesView
 MAX_RECENT = 8
 
 
+def _short_reason(failure) -> str:
+    """``ts.xyz (one frame only, …)``: the file's name and the reason without its full path."""
+    name = Path(failure.path).name
+    reason = str(failure.reason)
+    reason = reason.split(": ", 1)[1] if reason.startswith(str(failure.path)) and ": " in reason else reason
+    return f"{name} ({reason})"
+
+
 def default_settings() -> QSettings:
     return QSettings("basinmark", "basinmark")
 
@@ -392,8 +400,17 @@ class MainWindow(QMainWindow):
             elif not self.molecule.user_moved:
                 self.molecule.reset_view()  # oriented on the set's first run, not on whichever loaded first
             self._remember(tset.root)
-            if tset.warnings:
-                self._messages["set"] = " ".join(tset.warnings)
+            said = list(tset.warnings)
+            if tset.left_out or not tset.metadata.get("pairing_plain", True):
+                # runs found by a naming convention guessed from the files, or files left out: said out loud
+                said.insert(0, "Runs found: " + "; ".join(tset.notes) + "." if tset.notes else "No runs found.")
+                if tset.left_out:
+                    n = len(tset.left_out)
+                    said.insert(1, f"{n} file{'s' if n != 1 else ''} left out, not runs: "
+                                   + "; ".join(_short_reason(f) for f in tset.left_out[:3])
+                                   + (" …" if n > 3 else "") + ".")
+            if said:
+                self._messages["set"] = " ".join(said)
             self._open_journal(tset, result.get("rules"))
         if result.get("rules_error"):
             self._messages["rules"] = result["rules_error"]
@@ -412,7 +429,7 @@ class MainWindow(QMainWindow):
         self._show_banner()
         self._update_status()
         if tset is not None and tset.failures and not result.get("rules_only"):
-            self.failure_dialog = FailuresDialog(tset.name, tset.failures, self)
+            self.failure_dialog = FailuresDialog(tset.name, tset.failures, self, left_out=tset.left_out)
             self.failure_dialog.open()
         (self.rules_applied if result.get("rules_only") else self.set_loaded).emit()
 

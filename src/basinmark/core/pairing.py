@@ -1,0 +1,275 @@
+"""Which files of a set folder make which run: half names, one folder per run, or a manifest's patterns.
+
+Without ``[files]`` patterns in the manifest, runs are found by the conventions people use for the two
+halves of a run started at a transition state (any case, on any trajectory file ``.xyz``, ``.extxyz``,
+``.traj``, optionally ``.gz``/``.bz2``/``.xz``):
+
+* a word for the direction at the end or the start of the name, set off by ``.``, ``_``, ``-`` or a
+  space: ``run_001_fwd.xyz``/``run_001_bwd.xyz``, ``run-7.forward.xyz``/``run-7.back.xyz``,
+  ``fwd_12.xyz``/``bwd_12.xyz`` (words in :data:`FORWARD_WORDS` and :data:`BACKWARD_WORDS`);
+* one folder per run, the halves named by the word alone: ``run001/fwd.xyz``, ``run001/bwd.xyz``;
+* any other trajectory file is a joined run (backward and forward in one file) until reading says
+  otherwise (a single frame, or other atoms, is left out by :mod:`basinmark.core.sets`).
+
+Folders looked in: those of the manifest (default the set folder and ``runs/``) and, for one folder per
+run, each of their sub-folders.  Every decision is returned as a sentence: what was paired and how
+(:attr:`Pairing.notes`) and which files were left out and why (:attr:`Pairing.left_out`).
+"""
+
+from __future__ import annotations
+
+import re
+from collections import Counter, defaultdict
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from basinmark.core.model import LoadFailure
+
+#: words that mark a forward half (compared without case)
+FORWARD_WORDS = ("fwd", "fw", "forward", "forwards", "frwd", "fwrd")
+#: words that mark a backward half (compared without case)
+BACKWARD_WORDS = ("bwd", "bw", "backward", "backwards", "back", "bck", "bkwd", "rev", "reverse", "reversed")
+
+TRAJECTORY_SUFFIXES = (".xyz", ".extxyz", ".traj")
+COMPRESSION_SUFFIXES = (".gz", ".bz2", ".xz")
+_SKIP_FOLDERS = {".basinmark-cache", "__pycache__"}
+
+_WORDS = "|".join(sorted(FORWARD_WORDS + BACKWARD_WORDS, key=len, reverse=True))
+_SEP = r"[._\- ]+"
+_AT_END = re.compile(rf"^(?P<run>.*?[^._\- ])(?:{_SEP}|(?<=\d))(?P<word>{_WORDS})$", re.IGNORECASE)
+_AT_START = re.compile(rf"^(?P<word>{_WORDS})(?:{_SEP}|(?=\d))(?P<run>[^._\- ].*)$", re.IGNORECASE)
+_ALONE = re.compile(rf"^(?P<word>{_WORDS})$", re.IGNORECASE)
+
+
+@dataclass
+class RunSpec:
+    """The files that make one run."""
+
+    run_id: str
+    backward: Path | None = None
+    forward: Path | None = None
+    joined: Path | None = None
+
+    @property
+    def files(self) -> list[Path]:
+        return [p for p in (self.backward, self.forward, self.joined) if p is not None]
+
+
+@dataclass
+class Pairing:
+    runs: list[RunSpec]
+    left_out: list[LoadFailure] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    #: convention ("own", "names", "folders", "joined", "patterns") -> the runs found by it
+    conventions: dict = field(default_factory=dict)
+    #: True when every run follows this project's own naming (``<run>.bwd.*``/``<run>.fwd.*``, joined
+    #: ``<run>.xyz``) or a manifest's patterns, so that the pairing needs no mention on screen
+    plain: bool = True
+
+
+def natural_key(text: str):
+    return [(0, int(tok), "") if tok.isdigit() else (1, 0, tok) for tok in re.split(r"(\d+)", text)]
+
+
+def split_name(name: str) -> tuple[str, str] | None:
+    """``(stem, suffix)`` of a trajectory file name (``run_1_fwd``, ``.xyz.gz``), or None for other files."""
+    lower = name.lower()
+    comp = next((c for c in COMPRESSION_SUFFIXES if lower.endswith(c)), "")
+    body = lower[: len(lower) - len(comp)]
+    fmt = next((f for f in TRAJECTORY_SUFFIXES if body.endswith(f)), None)
+    if fmt is None:
+        return None
+    cut = len(fmt) + len(comp)
+    stem = name[: len(name) - cut]
+    return (stem, name[len(name) - cut:]) if stem else None
+
+
+def half_of(stem: str) -> tuple[str, str] | None:
+    """``(role, run part)`` when a file stem names a half (run part "" for the word alone), else None."""
+    for rx in (_ALONE, _AT_END, _AT_START):
+        m = rx.match(stem)
+        if m:
+            word = m.group("word").lower()
+            role = "forward" if word in FORWARD_WORDS else "backward"
+            return role, (m.groupdict().get("run") or "")
+    return None
+
+
+def _folders(root: Path, names) -> list[Path]:
+    seen: list[Path] = []
+    for name in names:
+        base = (root / name).resolve()
+        if base.is_dir() and base not in seen:
+            seen.append(base)
+    return seen
+
+
+def _listing(folder: Path) -> list[Path]:
+    try:
+        return sorted(p for p in folder.iterdir() if not p.name.startswith("."))
+    except OSError:
+        return []
+
+
+@dataclass
+class _Group:
+    folder: Path
+    part: str  # run part of the names ("" for a folder whose halves are named by the word alone)
+    files: dict = field(default_factory=dict)  # role -> Path
+    extra: list = field(default_factory=list)  # (role, Path) of second files for a role
+
+
+def find_by_names(root: Path, folders) -> Pairing:
+    """Runs found by the naming conventions above (no manifest patterns)."""
+    bases = _folders(root, folders)
+    candidates: list[tuple[Path, Path]] = []  # (folder, file)
+    for base in bases:
+        for entry in _listing(base):
+            if entry.is_file():
+                candidates.append((base, entry))
+            elif entry.is_dir() and entry.name not in _SKIP_FOLDERS and entry not in bases:
+                candidates.extend((entry, f) for f in _listing(entry) if f.is_file())
+    groups: dict[tuple[Path, str, str], _Group] = {}
+    for folder, path in candidates:
+        split = split_name(path.name)
+        if split is None:
+            continue
+        stem = split[0]
+        half = half_of(stem)
+        kind, role, part = ("halves", half[0], half[1]) if half else ("joined", "joined", stem)
+        g = groups.setdefault((folder, part.lower() if kind == "halves" else part, kind), _Group(folder, part))
+        if role in g.files:
+            g.extra.append((role, path))
+        else:
+            g.files[role] = path
+    # run ids: the run part of the names; the folder's name where the names carry none (one folder per
+    # run) or where the same run part recurs in several folders
+    per_folder = Counter(folder for folder, _, _ in groups)
+    by_part: dict[str, list] = defaultdict(list)
+    for key in groups:
+        by_part[key[1].lower()].append(key)
+    ids: dict[tuple, str] = {}
+    for key in groups:
+        folder, part, _kind = key
+        clash = bool(part) and len({k[0] for k in by_part[part.lower()]}) > 1
+        if part and not clash:
+            ids[key] = groups[key].part
+        elif folder not in bases and per_folder[folder] == 1:
+            ids[key] = folder.name
+        elif part:
+            ids[key] = f"{folder.name}/{groups[key].part}"
+        else:
+            ids[key] = folder.name
+    return _assemble(root, groups, ids)
+
+
+def _assemble(root: Path, groups: dict, ids: dict) -> Pairing:
+    left: list[LoadFailure] = []
+    specs: dict[str, RunSpec] = {}
+    kinds: dict[str, list] = defaultdict(list)  # convention -> run ids
+    for key in sorted(groups, key=lambda k: natural_key(ids[k])):
+        g, rid = groups[key], ids[key]
+        for role, path in g.extra:
+            left.append(LoadFailure(path, f"{path}: run {rid} already has a {role} file "
+                                          f"({g.files[role].name}); this one is left out"))
+        spec = specs.setdefault(rid, RunSpec(rid))
+        for role, path in g.files.items():
+            if getattr(spec, role) is not None:
+                left.append(LoadFailure(path, f"{path}: run {rid} already has a {role} file "
+                                              f"({getattr(spec, role).name}); this one is left out"))
+                continue
+            setattr(spec, role, path)
+    runs: list[RunSpec] = []
+    for rid in sorted(specs, key=natural_key):
+        spec = specs[rid]
+        if spec.joined is not None and (spec.backward or spec.forward):
+            left.append(LoadFailure(spec.joined, f"{spec.joined}: run {rid} has both a joined file and halves; "
+                                                 "the halves are used"))
+            spec.joined = None
+        if spec.joined is None and (spec.backward is None) != (spec.forward is None):
+            have = spec.backward or spec.forward
+            missing = "forward" if spec.forward is None else "backward"
+            left.append(LoadFailure(have, f"{have}: run {rid} has no {missing} half, so it is not a run "
+                                          f"(a run needs both halves)"))
+            continue
+        runs.append(spec)
+        kinds[_convention(root, spec)].append(spec)
+    return Pairing(runs, left, describe(kinds), dict(kinds), plain=set(kinds) <= {"own", "joined"})
+
+
+def describe(conventions: dict, keep=None) -> list[str]:
+    """One sentence per way runs were found; ``keep`` (run ids) limits the count to runs finally kept."""
+    notes = []
+    for kind, members in conventions.items():
+        members = [m for m in members if keep is None or m.run_id in keep]
+        if members:
+            notes.append(_describe(kind, members))
+    return notes
+
+
+def _convention(root: Path, spec: RunSpec) -> str:
+    if spec.joined is not None:
+        return "joined"
+    stem = split_name(spec.backward.name)[0]
+    if _ALONE.match(stem) or spec.backward.parent.name == spec.run_id:
+        return "folders"
+    if ".bwd." in spec.backward.name and ".fwd." in spec.forward.name:
+        return "own"
+    return "names"
+
+
+def _rel(root: Path, path: Path) -> str:
+    try:
+        return path.relative_to(root.resolve()).as_posix()
+    except ValueError:
+        return str(path)
+
+
+def _describe(kind: str, members: list[RunSpec]) -> str:
+    n = len(members)
+    first = members[0]
+    runs = f"{n} run{'s' if n != 1 else ''}"
+    if kind == "patterns":
+        return f"{runs} found by the [files] patterns of the manifest, e.g. {', '.join(p.name for p in first.files)}"
+    if kind == "joined":
+        return f"{runs} read from single files holding both halves (joined), e.g. {first.joined.name}"
+    if kind == "own":
+        return f"{runs} paired from halves named <run>.bwd.* + <run>.fwd.*, e.g. {first.backward.name}"
+    if kind == "folders":
+        return (f"{runs} found as one folder per run, each holding both halves, e.g. "
+                f"{first.backward.parent.name}/{first.backward.name} + {first.forward.parent.name}/"
+                f"{first.forward.name}")
+    return (f"{runs} paired from halves named for their direction, e.g. {first.backward.name} (backward) + "
+            f"{first.forward.name} (forward)")
+
+
+def find_by_patterns(root: Path, layout) -> Pairing:
+    """Runs found by a manifest's ``[files]`` patterns (matched against names, or relative paths with ``/``)."""
+    bases = _folders(root, layout.folders)
+    groups: dict[tuple[Path, str, str], _Group] = {}
+    ids: dict[tuple, str] = {}
+    for base in bases:
+        entries: list[tuple[str, Path]] = []
+        for entry in _listing(base):
+            if entry.is_file():
+                entries.append((entry.name, entry))
+            elif entry.is_dir() and entry.name not in _SKIP_FOLDERS and layout.nested:
+                entries.extend((f"{entry.name}/{f.name}", f) for f in _listing(entry) if f.is_file())
+        for rel, path in entries:
+            hit = layout.role_of(rel)
+            if hit is None:
+                continue
+            role, rid = hit
+            kind = "joined" if role == "joined" else "halves"
+            key = (root.resolve(), rid, kind)
+            g = groups.setdefault(key, _Group(base, rid))
+            ids[key] = rid
+            if role in g.files:
+                g.extra.append((role, path))
+            else:
+                g.files[role] = path
+    pairing = _assemble(root, groups, ids)
+    pairing.conventions = {"patterns": list(pairing.runs)}
+    pairing.notes = describe(pairing.conventions)
+    pairing.plain = True
+    return pairing
