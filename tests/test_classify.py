@@ -53,7 +53,7 @@ def make_run(run_id: str, pieces, t0=-200.0, t1=200.0, dt=1.0, times=None, energ
 
 INF = -math.inf
 CASES = {
-    # run id: (pieces, outcome, backward, forward, commit, backward commit, flags)
+    # run id: (pieces, outcome, backward, forward, forward commit, backward commit, flags)
     "to_alpha": ([(INF, R), (-60, N), (40, A)], "alpha", "reactant", "alpha", 40.0, -61.0, []),
     "to_beta": ([(INF, R), (-60, N), (40, B)], "beta", "reactant", "beta", 40.0, -61.0, []),
     "reversed": ([(INF, B), (-50, N), (30, R)], "beta", "beta", "reactant", 30.0, -51.0, []),
@@ -76,8 +76,8 @@ CASES = {
     # the backward half stays 50 fs in the reactant, then goes on to beta: two visits
     "bwd_wanderer": ([(INF, B), (-150, N), (-100, R), (-50, N), (40, R)], "beta", "beta", "reactant", 40.0,
                      -151.0, ["late_commit", "several_visits"]),
-    "bwd_dwell_exact": ([(INF, R), (-179, N), (30, A)], "alpha", "reactant", "alpha", 30.0, -180.0,
-                        ["late_commit"]),
+    # a late commit at the reactant end is no late commit: late_commit looks at the product end
+    "bwd_dwell_exact": ([(INF, R), (-179, N), (30, A)], "alpha", "reactant", "alpha", 30.0, -180.0, []),
     "bwd_dwell_short": ([(INF, R), (-180, N), (30, A)], "unfinished", None, "alpha", 30.0, None, []),
 }
 
@@ -93,7 +93,7 @@ def test_known_answers(rules, run_id):
     res = classify_run(make_run(run_id, pieces), rules)
     assert res.outcome == outcome
     assert (res.backward_basin, res.forward_basin) == (bwd, fwd)
-    assert res.commit_time_fs == (None if commit is None else pytest.approx(commit))
+    assert res.forward_commit_time_fs == (None if commit is None else pytest.approx(commit))
     assert res.backward_commit_time_fs == (None if bcommit is None else pytest.approx(bcommit))
     assert res.flags == flags
     assert res.basin_track.shape == (401,) and res.basin_track.dtype == np.int16
@@ -110,7 +110,7 @@ def test_dwell_boundary_with_float_time_steps(rules):
     # 0.1 fs steps: times are not exact multiples, the dwell of exactly 20 fs must still count
     times = np.arange(-2000, 2001) * 0.1
     ok = classify_run(make_run("f", [(INF, R), (-50, N), (179.95, A)], times=times), rules)
-    assert ok.outcome == "alpha" and ok.commit_time_fs == pytest.approx(180.0)
+    assert ok.outcome == "alpha" and ok.product_final_entry_fs == pytest.approx(180.0)
     short = classify_run(make_run("g", [(INF, R), (-50, N), (180.05, A)], times=times), rules)
     assert short.outcome == "unfinished"
 
@@ -118,7 +118,7 @@ def test_dwell_boundary_with_float_time_steps(rules):
 def test_zero_dwell_commits_on_one_frame():
     r = parse_rules(RULES.replace("dwell_fs = 20.0", "dwell_fs = 0.0"))
     res = classify_run(make_run("z", [(INF, R), (-50, N), (200, A)]), r)
-    assert res.outcome == "alpha" and res.commit_time_fs == 200.0
+    assert res.outcome == "alpha" and res.forward_commit_time_fs == 200.0
 
 
 def test_energy_drift_flag_and_note(rules):
@@ -262,12 +262,38 @@ def _reference(track, times, ts, dwell, late):
     bc = times[k] if bwd is not None else None
     fv = _ref_visits(track, times, list(range(ts, e + 1)), dwell)
     bv = _ref_visits(track, times, list(range(ts, -1, -1)), dwell)
+    ff = _ref_first_arrival(track, times, list(range(ts, e + 1)), dwell, fwd)
+    bf = _ref_first_arrival(track, times, list(range(ts, -1, -1)), dwell, bwd)
+    # the product end: the one end committed to a product (basin index 0 is the reactant)
+    f_prod, b_prod = fwd is not None and fwd != 0, bwd is not None and bwd != 0
+    product = (abs(fc), ff) if f_prod and not b_prod else (abs(bc), bf) if b_prod and not f_prod else None
+    f_re, b_re = fwd == 0, bwd == 0
+    reactant = (abs(fc), ff) if f_re and not b_re else (abs(bc), bf) if b_re and not f_re else None
     flags = []
-    if (fc is not None and abs(fc) > late) or (bc is not None and abs(bc) > late):
+    if product is not None and product[0] > late:
         flags.append("late_commit")
     if fv > 1 or bv > 1:
         flags.append("several_visits")
-    return bwd, fwd, fc, bc, flags
+    return bwd, fwd, fc, bc, flags, product, reactant
+
+
+def _ref_first_arrival(track, times, order, dwell, basin):
+    """Walk a half from the TS: the first frame in ``basin`` after the last stay of >= dwell elsewhere."""
+    if basin is None:
+        return None
+    first = None
+    k = 0
+    while k < len(order):
+        j = k
+        while j + 1 < len(order) and track[order[j + 1]] == track[order[k]]:
+            j += 1
+        b = track[order[k]]
+        if b == basin and first is None:
+            first = abs(times[order[k]])
+        elif b >= 0 and b != basin and abs(times[order[j]] - times[order[k]]) >= dwell - 1e-6:
+            first = None  # a visit elsewhere: the arrival must come after it
+        k = j + 1
+    return first
 
 
 run_strategy = st.tuples(
@@ -298,11 +324,17 @@ def test_vectorised_matches_reference(specs, dwell, late):
         refs.append(_reference(track, t, ts, dwell, late))
     prep = prepare(runs, r)
     res = classify_prepared(prep, r)
-    for k, (bwd, fwd, fc, bc, flags) in enumerate(refs):
+    for k, (bwd, fwd, fc, bc, flags, product, reactant) in enumerate(refs):
         assert res.backward_basin[k] == (None if bwd is None else names[bwd])
         assert res.forward_basin[k] == (None if fwd is None else names[fwd])
-        assert (np.isnan(res.commit_time_fs[k]) if fc is None else res.commit_time_fs[k] == fc)
+        assert (np.isnan(res.forward_commit_time_fs[k]) if fc is None else res.forward_commit_time_fs[k] == fc)
         assert (np.isnan(res.backward_commit_time_fs[k]) if bc is None else res.backward_commit_time_fs[k] == bc)
+        for side, want in (("product", product), ("reactant", reactant)):
+            final, first = getattr(res, f"{side}_final_entry_fs")[k], getattr(res, f"{side}_first_arrival_fs")[k]
+            if want is None:
+                assert np.isnan(final) and np.isnan(first)
+            else:
+                assert (final, first) == want
         assert res.flags[k] == flags
 
 

@@ -68,7 +68,8 @@ def test_build_actions_binds_slots(qtbot):
 
 def test_label_table_final_is_hand_else_auto():
     cls = pd.DataFrame({"run": ["a", "b", "c"], "outcome": ["left", "right", "unfinished"],
-                        "commit_time_fs": [10.0, None, np.nan], "flags": ["", "late_commit", ""]})
+                        "product_end": ["backward", None, None], "product_final_entry_fs": [10.0, None, np.nan],
+                        "flags": ["", "late_commit", ""]})
     jst = pd.DataFrame({"run": ["b", "c"], "auto_label": ["right", "unfinished"], "hand_label": ["left", None],
                         "final_label": ["left", "unfinished"], "labeler": ["ada", None], "time": ["", ""],
                         "reason": ["looks left", ""], "events": [1, 1],
@@ -79,7 +80,8 @@ def test_label_table_final_is_hand_else_auto():
     assert df["hand_label"].tolist() == ["", "left", "", ""]
     assert df["labeler"].tolist() == ["", "ada", "", ""]
     assert df["data_changed"].tolist() == [False, True, False, False]
-    assert np.isnan(df["commit_time_fs"][1])
+    assert np.isnan(df["product_final_entry_fs"][1])
+    assert df["product_end"].tolist() == ["backward", "", "", ""] and df["product_final_entry_fs"][0] == 10.0
 
 
 @given(st.lists(st.tuples(st.sampled_from(["", "left", "right"]), st.sampled_from(["", "left", "right"]),
@@ -161,7 +163,7 @@ def test_traces_show_rule_monitors_thresholds_band_and_energies(qtbot, toy):
     levels = sorted(round(line.value(), 6) for line in v.threshold_lines if line.angle == 0)
     assert levels == [1.75, 2.3, 2.6]
     assert "commit" in v.marks and "ts" in v.marks
-    assert v.marks["commit"].value() == pytest.approx(res.commit_time_fs)
+    assert v.marks["commit"].value() == pytest.approx(res.product_commit_time_fs)
     assert v.band_items  # reactant and product segments
     # energies relative to t = 0, in kcal/mol (core.units, 1 cal = 4.184 J)
     e = traj.energies["potential"]
@@ -255,7 +257,7 @@ def test_step_run_matches_a_plain_walk(qtbot, tmp_path_factory, labeled, current
     s.tset = TrajectorySet(tmp_path_factory.mktemp("w"), {r: toy_trajectory(r, "left", n_half=3) for r in ids})
     s.run_id = ids[current]
     s.labels = pd.DataFrame({"run": ids, "auto_label": "left", "hand_label": ["left" if x else "" for x in labeled],
-                             "final_label": "left", "commit_time_fs": 1.0, "flags": "", "labeler": "",
+                             "final_label": "left", "product_final_entry_fs": 1.0, "flags": "", "labeler": "",
                              "reason": "", "data_changed": False})
     s.labels_changed.emit()
     table.set_filter("unlabeled")

@@ -12,6 +12,7 @@ from basinmark.core.rules import load_rules
 from basinmark.core.sets import open_set
 from basinmark.gui.app import bundled_sample_set
 from basinmark.gui.main_window import MainWindow
+from basinmark.gui.run_table import COLUMNS
 
 pytestmark = pytest.mark.gui
 
@@ -38,4 +39,19 @@ def test_sample_set_table_and_counts_equal_core(qtbot, tmp_path):
         assert table.loc[row.run, "flags"] == row.flags
     assert win.state.run_id == tset.run_ids[0]
     assert win.failure_dialog is None  # every sample file loads
+    # Go to Commit goes to the product-side commit, at whichever end the product is
+    for end in ("backward", "forward"):
+        hit = core[core["product_end"] == end]
+        if hit.empty:
+            continue
+        row = hit.iloc[0]
+        win.state.set_run(row["run"])
+        win.jump_commit()
+        traj = win.state.traj
+        sign = -1.0 if end == "backward" else 1.0
+        assert traj.times[win.state.frame] == pytest.approx(sign * row["product_final_entry_fs"])
+        assert win.traces.marks["commit"].value() == pytest.approx(sign * row["product_final_entry_fs"])
+        shown = win.run_table.model.data(win.run_table.model.index(
+            win.run_table.model.row_of(row["run"]), [c for c, _ in COLUMNS].index("product_final_entry_fs")))
+        assert shown == f"{sign * row['product_final_entry_fs']:.1f}"
     win.close()

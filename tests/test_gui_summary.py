@@ -120,8 +120,11 @@ def test_runs_needed_follows_the_half_width(win):
 def test_histograms_come_from_core_timing(win):
     panel = win.summary_panel
     lab = win.state.labels
-    table = lab.rename(columns={"final_label": "outcome"})[["outcome", "commit_time_fs"]]
+    # the product side's final entry, whichever end holds the product
+    table = lab.rename(columns={"final_label": "outcome"})[["outcome", "product_final_entry_fs"]]
     expected = commit_time_histogram(table, bins=20)
+    assert expected.attrs["definition"] == "product side, final entry"
+    assert "product side, final entry" in panel.p_commit.titleLabel.text
     assert panel.commit_hist.reset_index(drop=True).equals(expected.reset_index(drop=True))
     cls = win.state.classification
     products = cls[cls["outcome"].isin(win.state.rules.products)]

@@ -144,7 +144,9 @@ def test_step_and_jump_keys(win, qtbot):
     qtbot.keyClick(view, Qt.Key.Key_T)
     assert traj.times[win.state.frame] == 0.0
     qtbot.keyClick(view, Qt.Key.Key_C)
-    assert traj.times[win.state.frame] == pytest.approx(win.state.label_row()["commit_time_fs"])
+    row = win.state.label_row()
+    assert row["product_end"] == "forward"  # the toy set's products are at the forward end
+    assert traj.times[win.state.frame] == pytest.approx(row["product_final_entry_fs"])
 
 
 def test_dragging_time_cursor_moves_molecule_frame(win, qtbot):

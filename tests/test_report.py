@@ -26,7 +26,8 @@ def _labels() -> pd.DataFrame:
         "auto_label": ["alpha", "beta", "recrossing", "alpha"],
         "hand_label": ["", "alpha", "", ""],
         "final_label": ["alpha", "alpha", "recrossing", "alpha"],
-        "commit_time_fs": [42.5, 18.0, np.nan, 99.25],
+        "product_end": ["forward", "backward", "", "forward"],
+        "product_final_entry_fs": [42.5, 18.0, np.nan, 99.25],
         "flags": ["", "late_commit;several_visits", "", "energy_drift"],
         "labeler": ["", "quill", "", ""],
         "reason": ["", "forms the ring, then, \"wobbles\"", "", ""],
@@ -43,7 +44,10 @@ def test_label_table_csv_reloads_to_the_same_table(tmp_path):
     assert back["run"].tolist() == want["run"].tolist()
     assert back["final_label"].tolist() == want["final_label"].tolist()
     assert back["reason"].fillna("").tolist() == want["reason"].tolist()  # commas and quotes survive
-    np.testing.assert_allclose(back["commit_time_fs"], want["commit_time_fs"])
+    np.testing.assert_allclose(back["product_final_entry_fs"], want["product_final_entry_fs"])
+    assert back["product_end"].fillna("").tolist() == want["product_end"].tolist()
+    # the commit columns follow the labels, named by the end they belong to
+    assert want.columns[6:8].tolist() == ["product_end", "product_final_entry_fs"]
     assert back["data_changed"].tolist() == want["data_changed"].tolist()
     assert label_export_table(labels).columns[0:3].tolist() == ["run", "final_label", "auto_label"]
 
@@ -54,12 +58,12 @@ def test_label_table_csv_reloads_to_the_same_table(tmp_path):
                           st.floats(-500, 500, allow_nan=False)), min_size=1, max_size=20, unique_by=lambda t: t[0]))
 def test_label_csv_round_trip_property(rows):
     labels = pd.DataFrame({"run": [r[0] for r in rows], "final_label": [r[1] for r in rows],
-                           "commit_time_fs": [r[2] for r in rows]})
+                           "product_final_entry_fs": [abs(r[2]) for r in rows]})
     buf = io.StringIO(label_export_table(labels).to_csv(index=False))
     back = pd.read_csv(buf, keep_default_na=False, dtype={"run": str, "final_label": str})
     assert back["run"].tolist() == labels["run"].tolist()
     assert back["final_label"].tolist() == labels["final_label"].tolist()
-    np.testing.assert_allclose(back["commit_time_fs"], labels["commit_time_fs"], rtol=1e-12)
+    np.testing.assert_allclose(back["product_final_entry_fs"], labels["product_final_entry_fs"], rtol=1e-12)
 
 
 def test_summary_markdown_and_csv(tmp_path):

@@ -249,7 +249,8 @@ def test_worked_example_of_the_docs(rules):
     from basinmark.core.classify import classify_run
     res = classify_run(run, rules)
     assert (res.outcome, res.backward_basin, res.forward_basin) == ("alpha", "reactant", "alpha")
-    assert (res.commit_time_fs, res.backward_commit_time_fs, res.flags) == (62.0, -48.0, [])
+    assert (res.forward_commit_time_fs, res.backward_commit_time_fs, res.flags) == (62.0, -48.0, [])
+    assert (res.product_end, res.product_final_entry_fs, res.reactant_final_entry_fs) == ("forward", 62.0, 48.0)
     tg = time_gaps([run], rules).iloc[0]
     assert (tg["t_r_a_fs"], tg["t_r_b_fs"], tg["gap_fs"], tg["mode"]) == (35.0, 62.0, 27.0, "concerted")
 

@@ -113,8 +113,9 @@ def run_classify(args) -> int:
     n = len(table)
     counts["fraction"] = counts["count"] / n if n else float("nan")
     warnings = stats.reliability_warnings(dict(zip(counts["outcome"], counts["count"])), rules.products)
-    flagged = table.loc[table["flags"] != "", ["run", "outcome", "flags", "backward_commit_time_fs",
-                                               "commit_time_fs"]]
+    # commit times named by the end they belong to (|t| from the TS, final entry: docs/commit-times.md)
+    flagged = table.loc[table["flags"] != "", ["run", "outcome", "flags", "product_end", "product_final_entry_fs",
+                                               "reactant_final_entry_fs"]]
     gap_line = _gap_sentence(table, rules, warnings)
     if args.dry_run:
         done = f"dry run: nothing written ({n} runs classified with {rules.source}, sha256 {rules.sha256[:12]})"

@@ -10,13 +10,22 @@ Definitions (all times in fs, t = 0 at the transition state):
 * the committed basin at an end is the basin the half's last frame is in, provided the half has
   stayed in it without a break for at least ``dwell_fs`` (time of the end frame minus time of the
   first frame of that final stay, inclusive comparison within 1e-6 fs); else None;
-* the commit time is when that final stay began (if the run left and came back, the later entry);
-  forward commit times are positive, backward ones negative (the run's time axis);
+* each end's commit time (``forward_commit_time_fs`` / ``backward_commit_time_fs``) is when that final
+  stay began (if the run left and came back, the later entry), on the run's time axis: forward ones
+  positive, backward ones negative;
+* the *product end* is the end committed to a product basin, when exactly one end is (None for
+  recrossings, runs with a product at both ends, and runs with no product end); the *reactant end*
+  likewise; at each such end, as |t| from the TS (see docs/commit-times.md):
+  - *final entry*: the start of the stay the run then keeps to the end (the end's commit time above);
+  - *first arrival*: the first entry into that basin after which the half visits no other basin (a
+    visit: an unbroken stay of at least ``dwell_fs``), i.e. the first entry from which the run commits
+    there; never later than the final entry;
 * outcome: an end with no commitment -> "unfinished"; the end frame in two basins -> "ambiguous";
   both ends in the same basin -> "recrossing"; reactant at one end and a product at the other ->
   that product's name; two different products -> "ambiguous".
 
-Flags: ``late_commit`` (a commit further than ``late_commit_fs`` from t = 0, either half),
+Flags: ``late_commit`` (the product end's final entry further than ``late_commit_fs`` from t = 0; a run
+without a product end is never flagged late),
 ``several_visits`` (a half has more than one visit: a stay of at least ``dwell_fs`` in a basin, two stays in
 the same basin less than ``dwell_fs`` apart counting as one, so threshold jitter is no visit), ``conflicting_basins``,
 ``energy_drift`` (drift of the total energy above ``max_energy_drift``), ``short_run`` (a half shorter than
@@ -37,11 +46,22 @@ import pandas as pd
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.geometry import monitor_arrays
 from basinmark.core.rules import Rules, RulesError
-from basinmark.core.timing import _TOL_FS, formation_pair
+from basinmark.core.timing import _TOL_FS, COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, formation_pair  # noqa: F401
 
 FLAG_NAMES = ("late_commit", "several_visits", "conflicting_basins", "energy_drift", "short_run", "data_changed")
-TABLE_COLUMNS = ["run", "outcome", "backward_basin", "forward_basin", "commit_time_fs", "backward_commit_time_fs",
+TABLE_COLUMNS = ["run", "outcome", "backward_basin", "forward_basin",
+                 "product_end", "product_first_arrival_fs", "product_final_entry_fs",
+                 "reactant_end", "reactant_first_arrival_fs", "reactant_final_entry_fs",
+                 "backward_commit_time_fs", "forward_commit_time_fs",
                  "flags", "time_gap_fs", "content_hash"]
+ENDS = ("backward", "forward")
+
+
+def signed_commit_time(end: str | None, elapsed_fs: float | None) -> float | None:
+    """A commit time given as |t| from the TS at ``end`` ("forward"/"backward") on the run's time axis."""
+    if end not in ENDS or elapsed_fs is None or not np.isfinite(elapsed_fs):
+        return None
+    return -float(elapsed_fs) if end == "backward" else float(elapsed_fs)
 
 
 @dataclass
@@ -52,14 +72,25 @@ class RunResult:
     outcome: str
     backward_basin: str | None
     forward_basin: str | None
-    commit_time_fs: float | None  # forward commit time (> = 0)
-    backward_commit_time_fs: float | None  # backward commit time (<= 0, run time axis)
+    forward_commit_time_fs: float | None  # forward end's final entry (>= 0, run time axis)
+    backward_commit_time_fs: float | None  # backward end's final entry (<= 0, run time axis)
     flags: list[str]
     basin_track: np.ndarray  # (F,) int16: -1 none (or conflict), else index into rules.basin_names
     monitors: dict[str, np.ndarray]  # name -> (F,) values (Å or degrees)
     conflict: np.ndarray = field(default_factory=lambda: np.zeros(0, bool))  # (F,) frames in two basins
     time_gap_fs: float | None = None
     content_hash: str = ""
+    product_end: str | None = None  # "forward"/"backward": the end committed to a product, if exactly one
+    product_first_arrival_fs: float | None = None  # |t| from the TS
+    product_final_entry_fs: float | None = None
+    reactant_end: str | None = None
+    reactant_first_arrival_fs: float | None = None
+    reactant_final_entry_fs: float | None = None
+
+    @property
+    def product_commit_time_fs(self) -> float | None:
+        """The product end's final entry on the run's time axis (negative at the backward end)."""
+        return signed_commit_time(self.product_end, self.product_final_entry_fs)
 
 
 @dataclass
@@ -87,12 +118,18 @@ class Classified:
     outcome: list[str]
     backward_basin: list[str | None]
     forward_basin: list[str | None]
-    commit_time_fs: np.ndarray
+    forward_commit_time_fs: np.ndarray
     backward_commit_time_fs: np.ndarray
     flags: list[list[str]]
     track: np.ndarray  # (T,)
     conflict: np.ndarray  # (T,)
     time_gap_fs: np.ndarray
+    product_end: list[str | None] = field(default_factory=list)
+    product_first_arrival_fs: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    product_final_entry_fs: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    reactant_end: list[str | None] = field(default_factory=list)
+    reactant_first_arrival_fs: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    reactant_final_entry_fs: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
 
 def _trajectories(tset) -> list:
@@ -174,7 +211,7 @@ def classify_prepared(prep: Prepared, rules: Rules, with_gap: bool = True) -> Cl
     names = rules.basin_names
     if r == 0:
         e = np.zeros(0)
-        return Classified([], [], [], e, e, [], track, conflict, e)
+        return Classified([], [], [], e, e, [], track, conflict, e, [], e, e, [], e, e)
     ts, b0, e1 = prep.ts, prep.starts, prep.ends - 1
     # Work on the (few) places where the track changes rather than on every frame: each unbroken
     # stay is one entry of `bounds` (its first frame) and `last` (its last frame).  Measured on 10^4 runs of
@@ -201,10 +238,24 @@ def classify_prepared(prep: Prepared, rules: Rules, with_gap: bool = True) -> Cl
     fl = rules.flags
     f_commit = np.where(f_ok, t[f_entry], np.nan)
     b_commit = np.where(b_ok, t[b_entry], np.nan)
+    f_first = _first_arrivals(bounds, last, track, t, prep, rules.dwell_fs, f_basin, f_ok, forward=True)
+    b_first = _first_arrivals(bounds, last, track, t, prep, rules.dwell_fs, b_basin, b_ok, forward=False)
+    f_first_t = np.where(f_ok, np.abs(t[np.maximum(f_first, 0)]), np.nan)
+    b_first_t = np.where(b_ok, np.abs(t[np.maximum(b_first, 0)]), np.nan)
+    react = names.index(rules.reactant)
+    ends = {}
+    for side, f_is, b_is in (("product", f_ok & (f_basin != react), b_ok & (b_basin != react)),
+                             ("reactant", f_ok & (f_basin == react), b_ok & (b_basin == react))):
+        fwd_only, bwd_only = f_is & ~b_is, b_is & ~f_is
+        ends[side] = (
+            [("forward" if fo else "backward" if bo else None) for fo, bo in zip(fwd_only, bwd_only)],
+            np.where(fwd_only, f_first_t, np.where(bwd_only, b_first_t, np.nan)),
+            np.where(fwd_only, np.abs(f_commit), np.where(bwd_only, np.abs(b_commit), np.nan)),
+        )
     late = np.zeros(r, dtype=bool)
     if fl.late_commit_fs is not None:
         with np.errstate(invalid="ignore"):
-            late = (np.abs(f_commit) > fl.late_commit_fs) | (np.abs(b_commit) > fl.late_commit_fs)
+            late = ends["product"][2] > fl.late_commit_fs
     drift = np.zeros(r, dtype=bool)
     if fl.max_energy_drift_ev is not None:
         with np.errstate(invalid="ignore"):
@@ -236,11 +287,51 @@ def classify_prepared(prep: Prepared, rules: Rules, with_gap: bool = True) -> Cl
     flags = [[name for arr, name in columns if arr[k]] for k in range(r)]
 
     gap = np.full(r, np.nan)
+    res = Classified(outcome, bwd_name, fwd_name, f_commit, b_commit, flags, track, conflict, gap,
+                     ends["product"][0], ends["product"][1], ends["product"][2],
+                     ends["reactant"][0], ends["reactant"][1], ends["reactant"][2])
     if with_gap and rules.time_gap is not None:
-        res = Classified(outcome, bwd_name, fwd_name, f_commit, b_commit, flags, track, conflict, gap)
         t1, t2, _ = formation_pair(prep, res, rules)
-        gap = np.abs(t2 - t1)
-    return Classified(outcome, bwd_name, fwd_name, f_commit, b_commit, flags, track, conflict, gap)
+        res.time_gap_fs = np.abs(t2 - t1)
+    return res
+
+
+def _first_arrivals(bounds: np.ndarray, last: np.ndarray, track: np.ndarray, t: np.ndarray, prep: Prepared,
+                    dwell_fs: float, end_basin: np.ndarray, ok: np.ndarray, forward: bool) -> np.ndarray:
+    """Per run, the frame of the first arrival in the basin ``end_basin`` that one half commits to (-1 where
+    ``ok`` is False): the TS-side frame of the stay in that basin nearest the TS among those with no
+    visit (unbroken stay of at least ``dwell_fs``) to another basin between it and the end of the half.
+
+    ``bounds``/``last``: first and last frame of every unbroken stay of the track, in order."""
+    r = prep.starts.size
+    run = np.searchsorted(prep.starts, bounds, side="right") - 1
+    ts = prep.ts[run]
+    if forward:
+        keep = last >= ts
+        first, lst = np.maximum(bounds, ts)[keep], last[keep]
+    else:
+        keep = bounds <= ts
+        first, lst = bounds[keep], np.minimum(last, ts)[keep]
+    run = run[keep]
+    basin = track[first].astype(np.intp)
+    committed = end_basin[run]
+    elsewhere = (basin >= 0) & (basin != committed) & (t[lst] - t[first] >= dwell_fs - _TOL_FS)
+    home = (basin == committed) & ok[run]
+    out = np.full(r, -1, dtype=np.intp)
+    if forward:  # the last visit elsewhere ends at `edge`; the first stay at home after it
+        edge = np.full(r, -1, dtype=np.intp)
+        np.maximum.at(edge, run[elsewhere], lst[elsewhere])
+        cand = home & (first > edge[run])
+        best = np.full(r, np.iinfo(np.intp).max, dtype=np.intp)
+        np.minimum.at(best, run[cand], first[cand])
+    else:  # mirrored: time runs outwards towards the start of the run
+        edge = np.full(r, np.iinfo(np.intp).max, dtype=np.intp)
+        np.minimum.at(edge, run[elsewhere], first[elsewhere])
+        cand = home & (lst < edge[run])
+        best = np.full(r, -1, dtype=np.intp)
+        np.maximum.at(best, run[cand], lst[cand])
+    out[ok] = best[ok]
+    return out
 
 
 def _visits(first: np.ndarray, last: np.ndarray, track: np.ndarray, t: np.ndarray, prep: Prepared,
@@ -278,10 +369,14 @@ def classify_run(traj, rules: Rules) -> RunResult:
     res = classify_prepared(prep, rules)
     return RunResult(
         run_id=traj.run_id, outcome=res.outcome[0], backward_basin=res.backward_basin[0],
-        forward_basin=res.forward_basin[0], commit_time_fs=_opt(res.commit_time_fs[0]),
+        forward_basin=res.forward_basin[0], forward_commit_time_fs=_opt(res.forward_commit_time_fs[0]),
         backward_commit_time_fs=_opt(res.backward_commit_time_fs[0]), flags=res.flags[0],
         basin_track=res.track, monitors=prep.monitors, conflict=res.conflict,
         time_gap_fs=_opt(res.time_gap_fs[0]), content_hash=prep.content_hashes[0],
+        product_end=res.product_end[0], product_first_arrival_fs=_opt(res.product_first_arrival_fs[0]),
+        product_final_entry_fs=_opt(res.product_final_entry_fs[0]), reactant_end=res.reactant_end[0],
+        reactant_first_arrival_fs=_opt(res.reactant_first_arrival_fs[0]),
+        reactant_final_entry_fs=_opt(res.reactant_final_entry_fs[0]),
     )
 
 
@@ -292,8 +387,14 @@ def results_table(prep: Prepared, res: Classified, rules: Rules) -> pd.DataFrame
         "outcome": res.outcome,
         "backward_basin": res.backward_basin,
         "forward_basin": res.forward_basin,
-        "commit_time_fs": res.commit_time_fs,
+        "product_end": res.product_end,
+        "product_first_arrival_fs": res.product_first_arrival_fs,
+        "product_final_entry_fs": res.product_final_entry_fs,
+        "reactant_end": res.reactant_end,
+        "reactant_first_arrival_fs": res.reactant_first_arrival_fs,
+        "reactant_final_entry_fs": res.reactant_final_entry_fs,
         "backward_commit_time_fs": res.backward_commit_time_fs,
+        "forward_commit_time_fs": res.forward_commit_time_fs,
         "flags": [";".join(f) for f in res.flags],
         "time_gap_fs": res.time_gap_fs,
         "content_hash": prep.content_hashes,

@@ -17,8 +17,10 @@ from ase import Atoms
 from basinmark.core.errors import BasinmarkError
 
 #: columns of the exported label table, in order (those present in the label table are written)
-LABEL_EXPORT_COLUMNS = ["run", "final_label", "auto_label", "hand_label", "labeler", "reason", "commit_time_fs",
-                        "flags", "data_changed"]
+#: the commit columns are the product end's (docs/commit-times.md): which end, and |t| from the TS of the
+#: final entry and of the first arrival
+LABEL_EXPORT_COLUMNS = ["run", "final_label", "auto_label", "hand_label", "labeler", "reason", "product_end",
+                        "product_final_entry_fs", "product_first_arrival_fs", "flags", "data_changed"]
 
 SUMMARY_SUFFIXES = {".md": "markdown", ".markdown": "markdown", ".csv": "csv", ".txt": "text", ".json": "json"}
 

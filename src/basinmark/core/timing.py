@@ -20,6 +20,17 @@ from basinmark.core.rules import DEFAULT_CONCERTED_FS
 
 _TOL_FS = 1e-6  # times compare equal within 1e-6 fs (float noise from summed time steps)
 
+#: the commit time the run table, the C key, ``late_commit`` and the histograms use unless told otherwise:
+#: the product end's final entry, |t| from the TS (docs/commit-times.md)
+DEFAULT_COMMIT_COLUMN = "product_final_entry_fs"
+#: column -> the definition in words, as shown beside any number or figure that uses it
+COMMIT_DEFINITIONS = {
+    "product_final_entry_fs": "product side, final entry",
+    "product_first_arrival_fs": "product side, first arrival",
+    "reactant_final_entry_fs": "reactant side, final entry",
+    "reactant_first_arrival_fs": "reactant side, first arrival",
+}
+
 MIN_RUNS_FOR_FRACTION = 30  # fewer runs with a gap than this gets a plain warning; common practice, no source
 
 
@@ -153,8 +164,9 @@ def concerted_fraction(gaps: Sequence[float] | pd.Series | pd.DataFrame,
             "warnings": warnings}
 
 
-def commit_time_summary(table: pd.DataFrame, column: str = "commit_time_fs") -> pd.DataFrame:
-    """Per outcome: n (runs with a commit time), median, mean, 10th and 90th percentile, max (fs)."""
+def commit_time_summary(table: pd.DataFrame, column: str = DEFAULT_COMMIT_COLUMN) -> pd.DataFrame:
+    """Per outcome: n (runs with a commit time), median, mean, 10th and 90th percentile, max (fs) of
+    |``column``|, by default the product end's final entry (see :data:`COMMIT_DEFINITIONS`)."""
     rows = []
     for outcome, grp in table.groupby("outcome", sort=False):
         v = pd.to_numeric(grp[column], errors="coerce").dropna().abs().to_numpy()
@@ -169,16 +181,22 @@ def commit_time_summary(table: pd.DataFrame, column: str = "commit_time_fs") -> 
 
 
 def commit_time_histogram(table: pd.DataFrame, bins: int | Sequence[float] = 20,
-                          column: str = "commit_time_fs") -> pd.DataFrame:
-    """Histogram of |commit time| per outcome on shared bins: columns outcome, bin_lo_fs, bin_hi_fs, count."""
+                          column: str = DEFAULT_COMMIT_COLUMN) -> pd.DataFrame:
+    """Histogram of |``column``| per outcome on shared bins: columns outcome, bin_lo_fs, bin_hi_fs, count.
+
+    By default the product end's final entry; ``df.attrs["definition"]`` names the one used."""
     v = pd.to_numeric(table[column], errors="coerce").abs()
     ok = v.notna()
     if not ok.any():
-        return pd.DataFrame(columns=["outcome", "bin_lo_fs", "bin_hi_fs", "count"])
+        out = pd.DataFrame(columns=["outcome", "bin_lo_fs", "bin_hi_fs", "count"])
+        out.attrs["definition"] = COMMIT_DEFINITIONS.get(column, column)
+        return out
     edges = np.histogram_bin_edges(v[ok].to_numpy(), bins=bins)
     rows = []
     for outcome in dict.fromkeys(table.loc[ok, "outcome"]):
         counts, _ = np.histogram(v[ok & (table["outcome"] == outcome)].to_numpy(), bins=edges)
         for lo, hi, c in zip(edges[:-1], edges[1:], counts):
             rows.append({"outcome": outcome, "bin_lo_fs": float(lo), "bin_hi_fs": float(hi), "count": int(c)})
-    return pd.DataFrame(rows, columns=["outcome", "bin_lo_fs", "bin_hi_fs", "count"])
+    out = pd.DataFrame(rows, columns=["outcome", "bin_lo_fs", "bin_hi_fs", "count"])
+    out.attrs["definition"] = COMMIT_DEFINITIONS.get(column, column)
+    return out

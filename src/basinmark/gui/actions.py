@@ -46,7 +46,8 @@ ACTIONS: tuple[ActionSpec, ...] = (
                "jump-start"),
     ActionSpec("jump_end", "Go to &End", "Playback", ("End",), "Last frame (end of the forward half)", "jump-end"),
     ActionSpec("jump_ts", "Go to &Transition State", "Playback", ("T",), "The frame at t = 0", "jump-ts"),
-    ActionSpec("jump_commit", "Go to &Commit", "Playback", ("C",), "The frame where the run committed forward",
+    ActionSpec("jump_commit", "Go to &Commit", "Playback", ("C",), "The frame where the run entered the product basin for good "
+               "(product-side commit, final entry; at either end)",
                "jump-commit"),
     ActionSpec("faster", "Faster", "Playback", ("]",), "Double the playback speed (up to 8x)"),
     ActionSpec("slower", "Slower", "Playback", ("[",), "Halve the playback speed (down to 0.25x)"),

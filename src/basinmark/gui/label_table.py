@@ -12,8 +12,12 @@ from typing import Sequence
 
 import pandas as pd
 
-LABEL_COLUMNS = ["run", "auto_label", "hand_label", "final_label", "commit_time_fs", "flags",
-                 "labeler", "reason", "data_changed"]
+LABEL_COLUMNS = ["run", "auto_label", "hand_label", "final_label", "product_end", "product_final_entry_fs",
+                 "product_first_arrival_fs", "flags", "labeler", "reason", "data_changed"]
+
+
+def _num(value) -> float:
+    return float("nan") if value is None or pd.isna(value) else float(value)
 
 
 def _text(value) -> str:
@@ -40,13 +44,14 @@ def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | Non
         c, j = cls.get(run, {}), jst.get(run, {})
         auto = _text(c.get("outcome")) or _text(j.get("auto_label"))
         hand = _text(j.get("hand_label"))
-        commit = c.get("commit_time_fs")
         rows.append({
             "run": run,
             "auto_label": auto,
             "hand_label": hand,
             "final_label": hand or auto,
-            "commit_time_fs": float("nan") if commit is None or pd.isna(commit) else float(commit),
+            "product_end": _text(c.get("product_end")),  # the end committed to the product (docs/commit-times.md)
+            "product_final_entry_fs": _num(c.get("product_final_entry_fs")),
+            "product_first_arrival_fs": _num(c.get("product_first_arrival_fs")),
             "flags": _text(c.get("flags")),
             "labeler": _text(j.get("labeler")) if hand else "",
             "reason": _text(j.get("reason")) if hand else "",

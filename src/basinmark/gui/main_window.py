@@ -553,7 +553,7 @@ class MainWindow(QMainWindow):
 
     def jump_commit(self) -> None:
         if not self.playback.jump_commit():
-            self.statusBar().showMessage("This run never committed forward (no commit time).", 4000)
+            self.statusBar().showMessage("This run has no product end (no product-side commit time).", 4000)
 
     # --- help -------------------------------------------------------------------------------
     def all_actions(self) -> dict:

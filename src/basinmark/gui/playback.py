@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
-import numpy as np
 from PySide6.QtCore import QObject, QSignalBlocker, Qt, QTimer, Signal
 from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QSlider, QToolButton, QVBoxLayout, QWidget
 
+from basinmark.core.classify import signed_commit_time
 from basinmark.gui.icons import icon
 from basinmark.gui.state import AppState
 
@@ -95,12 +95,13 @@ class PlaybackController(QObject):
             self.state.set_frame(traj.ts_index)
 
     def jump_commit(self) -> bool:
-        """Go to the forward commit time; False when the run never committed forward."""
+        """Go to the product-side commit (final entry), at whichever end the product is; False when the run
+        has no product end."""
         row = self.state.label_row()
-        t = None if row is None else row.get("commit_time_fs")
-        if t is None or not np.isfinite(t):
+        t = None if row is None else signed_commit_time(row.get("product_end"), row.get("product_final_entry_fs"))
+        if t is None:
             return False
-        self.state.set_time(float(t))
+        self.state.set_time(t)
         return True
 
     def _tick(self) -> None:

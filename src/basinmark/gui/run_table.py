@@ -13,6 +13,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QButtonGroup, QHBoxLayout, QHe
                                QTableView, QToolButton, QVBoxLayout, QWidget)
 
 from basinmark.core import stats
+from basinmark.core.classify import signed_commit_time
 from basinmark.core.labels import FIXED_LABELS
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.state import AppState
@@ -23,11 +24,15 @@ COLUMNS: tuple[tuple[str, str], ...] = (
     ("auto_label", "Automatic"),
     ("hand_label", "Hand"),
     ("final_label", "Final"),
-    ("commit_time_fs", "Commit fs"),
+    ("product_final_entry_fs", "Product commit fs"),
     ("flags", "Flags"),
     ("labeler", "Labeler"),
     ("data_changed", "Data"),
 )
+
+COMMIT_TIP = ("Product-side commit, final entry: when the run entered the product basin for the stay it keeps, "
+              "in fs on the run's time axis (negative when the product is at the backward end). "
+              "Sorted by distance from the transition state.")
 
 FILTERS: tuple[tuple[str, str, str], ...] = (
     ("all", "All", "Every run"),
@@ -77,6 +82,9 @@ class RunTableModel(QAbstractTableModel):
     def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):  # noqa: N802
         if orientation == Qt.Orientation.Horizontal and role == Qt.ItemDataRole.DisplayRole:
             return COLUMNS[section][1]
+        if (orientation == Qt.Orientation.Horizontal and role == Qt.ItemDataRole.ToolTipRole
+                and COLUMNS[section][0] == "product_final_entry_fs"):
+            return COMMIT_TIP
         return None
 
     def row(self, r: int) -> dict:
@@ -92,20 +100,23 @@ class RunTableModel(QAbstractTableModel):
         key = COLUMNS[index.column()][0]
         value = row.get(key)
         if role == Qt.ItemDataRole.DisplayRole:
-            if key == "commit_time_fs":
-                return "" if value is None or not np.isfinite(value) else f"{value:.1f}"
+            if key == "product_final_entry_fs":  # on the run's time axis: negative at the backward end
+                t = signed_commit_time(row.get("product_end"), value)
+                return "" if t is None else f"{t:.1f}"
             if key == "data_changed":
                 return "changed" if value else ""
             if key == "flags":
                 return (value or "").replace(";", ", ")
             return "" if value is None else str(value)
         if role == Qt.ItemDataRole.UserRole:  # sort key
-            if key == "commit_time_fs":
+            if key == "product_final_entry_fs":  # by distance from the TS, whichever end
                 return float("inf") if value is None or not np.isfinite(value) else float(value)
             if key == "run":
                 return index.row()  # the set's natural order
             return str(value or "")
         if role == Qt.ItemDataRole.ToolTipRole:
+            if key == "product_final_entry_fs":
+                return COMMIT_TIP
             if key == "hand_label" and row.get("reason"):
                 return f"reason: {row['reason']}"
             if key == "data_changed" and value:

@@ -21,7 +21,8 @@ from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDockWid
 
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.summary import Summary, build_summary, run_ids_of
-from basinmark.core.timing import commit_time_histogram, concerted_fraction, gap_mode
+from basinmark.core.timing import (COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, commit_time_histogram,
+                                   concerted_fraction, gap_mode)
 from basinmark.core.units import convert_energy
 from basinmark.gui.colours import outcome_colour
 
@@ -203,11 +204,12 @@ class SummaryPanel(QWidget):
         self.plots.setObjectName("summaryPlots")
         self.p_out = self.plots.addPlot(row=0, col=0, title="Outcomes")
         self.p_conv = self.plots.addPlot(row=0, col=1, title="Convergence")
-        self.p_commit = self.plots.addPlot(row=1, col=0, title="Commit times")
+        self.p_commit = self.plots.addPlot(row=1, col=0,
+                                           title=f"Commit times ({COMMIT_DEFINITIONS[DEFAULT_COMMIT_COLUMN]})")
         self.p_gap = self.plots.addPlot(row=1, col=1, title="Bond-formation time gap")
         self.p_out.setLabel("left", "fraction of counted runs")
         self.p_conv.setLabel("bottom", "runs so far")
-        self.p_commit.setLabel("bottom", "|commit time|", units="fs")
+        self.p_commit.setLabel("bottom", "|t| from the TS", units="fs")
         self.p_commit.setLabel("left", "runs")
         self.p_gap.setLabel("bottom", "time gap", units="fs")
         self.p_gap.setLabel("left", "runs")
@@ -385,8 +387,8 @@ class SummaryPanel(QWidget):
     def _timings(self, labels: pd.DataFrame) -> None:
         counted = labels[labels["final_label"].notna() & (labels["final_label"] != "excluded")]
         table = pd.DataFrame({"outcome": counted["final_label"].astype(str),
-                              "commit_time_fs": pd.to_numeric(counted["commit_time_fs"], errors="coerce")})
-        self.commit_hist = commit_time_histogram(table, bins=HIST_BINS)
+                              DEFAULT_COMMIT_COLUMN: pd.to_numeric(counted[DEFAULT_COMMIT_COLUMN], errors="coerce")})
+        self.commit_hist = commit_time_histogram(table, bins=HIST_BINS)  # product side, final entry
         rules, cls = self.state.rules, self.state.classification
         if rules is None or rules.time_gap is None or cls is None or "time_gap_fs" not in cls:
             return

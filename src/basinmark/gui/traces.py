@@ -19,6 +19,7 @@ from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor, QPalette
 from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
 
+from basinmark.core.classify import signed_commit_time
 from basinmark.core.geometry import measure
 from basinmark.core.model import Trajectory
 from basinmark.core.units import energy_factor
@@ -323,12 +324,26 @@ class TracesView(QWidget):
         result = self._result
         if result is None:
             return
-        if result.commit_time_fs is not None and np.isfinite(result.commit_time_fs):
-            self._mark("commit", float(result.commit_time_fs), "commit →", Qt.PenStyle.DotLine, 0.8)
-        bct = getattr(result, "backward_commit_time_fs", None)
-        if bct is not None and np.isfinite(bct):
-            # written to the left of its line, so the two commit marks never print over each other
-            self._mark("backward_commit", float(bct), "← commit", Qt.PenStyle.DotLine, 0.8, anchor=(1, 0))
+        # commit marks named by the basin they lead into (docs/commit-times.md); a mark at a negative time is
+        # written to the left of its line, so marks on the two sides never print over each other
+        ends = {}
+        for side in ("product", "reactant"):
+            end = getattr(result, f"{side}_end", None)
+            t = signed_commit_time(end, getattr(result, f"{side}_final_entry_fs", None))
+            if t is not None:
+                ends[end] = side
+                self._mark("commit" if side == "product" else "reactant_commit", t, f"{side} commit",
+                           Qt.PenStyle.DotLine, 0.8, anchor=(1, 0) if t < 0 else (0, 0))
+                first = signed_commit_time(end, getattr(result, f"{side}_first_arrival_fs", None))
+                if first is not None and abs(first - t) > 1e-6:
+                    self._mark(f"{side}_first_arrival", first, "first arrival", Qt.PenStyle.DashDotLine, 0.65,
+                               anchor=(1, 0) if first < 0 else (0, 0))
+        # an end that leads into neither a single product nor a single reactant (a recrossing) keeps its own mark
+        for end, key, text, anchor in (("forward", "forward_commit", "commit →", (0, 0)),
+                                       ("backward", "backward_commit", "← commit", (1, 0))):
+            t = getattr(result, f"{end}_commit_time_fs", None)
+            if end not in ends and t is not None and np.isfinite(t):
+                self._mark(key, float(t), text, Qt.PenStyle.DotLine, 0.8, anchor=anchor)
 
     def _draw_energies(self) -> None:
         traj = self._traj
