@@ -16,7 +16,7 @@ import warnings as _warnings
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
+from typing import Callable, Sequence
 
 import numpy as np
 
@@ -28,9 +28,12 @@ class FrameBlock:
     """All frames of one trajectory file, as arrays.
 
     ``info`` holds the comment-line keys whose values are all numbers (float64,
-    NaN in frames that lack the key); other keys go to ``text_info`` as strings
+    NaN in frames that lack the key); lists of numbers of one shape (``dipole=[0.1,
+    0.2, 0.3]``) go to ``vectors`` as ``(frames, ...)`` float64; other keys go to
+    ``text_info`` as sequences of strings, one per frame, stored compactly
     ("" where missing; a bare word is a flag "T"; booleans stay "T"/"F"; a
-    comment line without any ``key=value`` is kept whole under ``"comment"``).
+    comment line without any ``key=value`` is kept whole under ``"comment"``,
+    unless it changes on nearly every frame, which is said in ``warnings``).
     ``Properties``, ``Lattice`` and ``pbc`` are not repeated in either.
     ``arrays`` holds the per-atom columns of ``Properties=`` other than species
     and pos (R as float64, I as int64, L as bool, S as str).
@@ -40,8 +43,9 @@ class FrameBlock:
     numbers: np.ndarray  # (n_atoms,) int16 atomic numbers
     positions: np.ndarray  # (n_frames, n_atoms, 3) Å
     info: dict[str, np.ndarray] = field(default_factory=dict)  # per-frame numeric keys, float64, NaN if missing
-    text_info: dict[str, list[str]] = field(default_factory=dict)  # per-frame non-numeric keys ("" if missing)
+    text_info: dict[str, Sequence[str]] = field(default_factory=dict)  # per-frame non-numeric keys ("" if missing)
     arrays: dict[str, np.ndarray] = field(default_factory=dict)  # extra per-atom columns, (F, N) or (F, N, k)
+    vectors: dict[str, np.ndarray] = field(default_factory=dict)  # per-frame lists of numbers, (F, ...), NaN if missing
     frame_lines: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # 1-based start line per frame
     sha256: str = ""  # SHA-256 of the file's bytes as stored on disk
     warnings: list[str] = field(default_factory=list)

@@ -32,172 +32,18 @@ import numpy as np
 from ase.data import atomic_numbers, chemical_symbols
 
 from basinmark.core.errors import PartialReadWarning, TrajectoryFileError
+from basinmark.core.io.comment_keys import Comments, parse_comments
 from basinmark.core.io.registry import FrameBlock, load_bytes
 
 # ---------------------------------------------------------------------------------------------
-# comment lines (key=value pairs)
+# comment lines: see comment_line.py (one line) and comment_keys.py (columns over frames)
 
-_VALUE = rb'"(?:[^"\\\n]|\\.)*"|\'[^\'\n]*\'|\{[^}\n]*\}|[^\s"\'{=][^\s=]*'
-_KEY = rb'"[^"\n]*"|[^\s="\'{}]+'
-_PAIR = re.compile(rb"[ ]*(" + _KEY + rb")(?:[ ]*=[ ]*(" + _VALUE + rb"))?[ ]*")
-_BOOL_WORDS = {b"T", b"F", b"True", b"False", b"true", b"false", b"TRUE", b"FALSE"}
-_DROP_KEYS = {"Properties", "Lattice", "pbc"}  # Properties is parsed into columns; cell/pbc are not kept
 _FORTRAN = bytes.maketrans(b"dD", b"eE")
 _NUMBER = re.compile(rb"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eEdD][+-]?\d+)?|[+-]?(?:nan|inf|infinity)", re.I)
-
-
-def _unquote(v: bytes) -> bytes:
-    if len(v) >= 2 and v[:1] in (b'"', b"'") and v[-1:] == v[:1]:
-        v = v[1:-1]
-        if b"\\" in v:
-            v = v.replace(b'\\"', b'"').replace(b"\\\\", b"\\")
-    return v
-
-
-def parse_comment(line: bytes) -> list[tuple[bytes, bytes | None]] | None:
-    """Key/value pairs of one comment line (value None for a bare word), or None for free text."""
-    if b"=" not in line:
-        return None
-    pairs = []
-    pos, end = 0, len(line)
-    while pos < end:
-        m = _PAIR.match(line, pos)
-        if m is None or m.end() == pos:
-            return None  # unbalanced quote or stray '=': treat the line as free text
-        pairs.append((m.group(1), m.group(2)))
-        pos = m.end()
-    return pairs
-
-
-def _to_float(values: list[bytes]) -> np.ndarray | None:
-    """Values as float64, or None if any is not a single number (Fortran D exponents accepted)."""
-    try:
-        return np.array(list(map(float, values)), dtype=np.float64)
-    except ValueError:
-        pass
-    if all(_NUMBER.fullmatch(v) for v in values):
-        return np.array([float(v.translate(_FORTRAN)) for v in values], dtype=np.float64)
-    return None
-
-
-@dataclass
-class _Comments:
-    properties: list[bytes | None]  # per frame, the raw Properties value
-    info: dict[str, np.ndarray]
-    text_info: dict[str, list[str]]
-
-
-def _columns_to_info(n: int, cols: dict[bytes, list[bytes | None]], out: _Comments) -> None:
-    for rawkey, values in cols.items():
-        key = _unquote(rawkey).decode("utf-8", "replace")
-        if key in _DROP_KEYS and key != "Properties":
-            continue
-        complete = values.count(None) == 0
-        present = values if complete else [v for v in values if v is not None]
-        joined = b"".join(present)
-        if b'"' in joined or b"'" in joined:
-            present = [_unquote(v) for v in present]
-            values = [None if v is None else _unquote(v) for v in values]
-        if key == "Properties":
-            out.properties = values
-            continue
-        nums = _to_float(present) if _BOOL_WORDS.isdisjoint(present) else None
-        if nums is not None:
-            if complete:
-                out.info[key] = nums
-            else:
-                arr = np.full(n, np.nan)
-                arr[[i for i, v in enumerate(values) if v is not None]] = nums
-                out.info[key] = arr
-        else:
-            out.text_info[key] = ["" if v is None else v.decode("utf-8", "replace") for v in values]
-
-
-def _comments_by_tokens(comments: list[bytes], first: list[tuple[bytes, bytes | None]], out: _Comments) -> bool:
-    """Fast path for comment lines that all have the first line's keys in the same order.
-
-    The lines are split into whitespace tokens once; each key then owns the
-    same token positions on every line, which is verified for every line by
-    counting ``"\\n" + key + "="`` in the joined column (a key out of place
-    anywhere breaks the count).  Returns False, leaving ``out`` untouched,
-    when the lines are not that regular.
-    """
-    n = len(comments)
-    t0 = comments[0].split()
-    spans = []
-    j = 0
-    for k, v in first:
-        expect = [k] if v is None else (k + b"=" + v).split()
-        if t0[j:j + len(expect)] != expect:
-            return False  # spaces around '=', or a value the splitter cuts differently
-        spans.append((k, v, j, j + len(expect)))
-        j += len(expect)
-    width = j
-    if width != len(t0):
-        return False
-    toks = b"\n".join(comments).split()
-    if len(toks) != n * width:
-        return False
-    cols: dict[bytes, list[bytes]] = {}
-    for k, v, j0, j1 in spans:
-        col = toks[j0::width]
-        if v is None:
-            if col.count(k) != n:
-                return False
-            cols[k] = [b"T"] * n
-            continue
-        prefix = k + b"="
-        if (b"\n" + b"\n".join(col)).count(b"\n" + prefix) != n:
-            return False
-        if _unquote(k).decode("utf-8", "replace") in _DROP_KEYS - {"Properties"}:
-            continue  # position checked above; the value is not kept
-        skip = len(prefix)
-        values = [t[skip:] for t in col]
-        if j1 - j0 > 1:
-            values = [b" ".join(x) for x in zip(values, *(toks[jj::width] for jj in range(j0 + 1, j1)))]
-        if v[:1] in (b'"', b"'", b"{") or j1 - j0 > 1:
-            pattern = re.compile(_VALUE)
-            if not all(pattern.fullmatch(x) for x in values):
-                return False
-        cols[k] = values
-    _columns_to_info(n, cols, out)
-    return True
-
-
-def parse_comments(comments: list[bytes]) -> _Comments:
-    """Per-frame keys of all comment lines.
-
-    Fast path (:func:`_comments_by_tokens`) when every line has the same keys
-    in the same order, as writers produce; otherwise each line is parsed on
-    its own.  A line without any ``=`` is free text (``text_info['comment']``);
-    a bare word in a key=value line is a flag with value ``"T"``.
-    """
-    n = len(comments)
-    out = _Comments([None] * n, {}, {})
-    first = parse_comment(comments[0].strip())
-    if first is None:
-        joined = b"\n".join(comments)
-        if b"=" not in joined:
-            if joined.strip():
-                out.text_info["comment"] = [c.strip().decode("utf-8", "replace") for c in comments]
-            return out
-    elif _comments_by_tokens(comments, first, out):
-        return out
-    # general path: one line at a time (keys differ between frames)
-    cols = {}
-    free: list[str] = []
-    for i, line in enumerate(comments):
-        pairs = parse_comment(line.strip())
-        if pairs is None:
-            free.append(line.strip().decode("utf-8", "replace"))
-            continue
-        free.append("")
-        for k, v in pairs:
-            cols.setdefault(k, [None] * n)[i] = b"T" if v is None else v
-    _columns_to_info(n, cols, out)
-    if any(free):
-        out.text_info["comment"] = free
-    return out
+_INTEGER_TEXT = re.compile(rb"[0-9+\- \n]*")
+_BOOL_TOKENS = [b"T", b"F", b"True", b"False", b"true", b"false", b"TRUE", b"FALSE", b"1", b"0"]
+_TRUE_TOKENS = [b"T", b"True", b"true", b"TRUE", b"1"]
+_WHOLE = re.compile(rb"[+-]?\d+")
 
 
 # ---------------------------------------------------------------------------------------------
@@ -212,13 +58,13 @@ class _Column:
     start: int  # first token index within an atom line
 
 
-def _layout(props: bytes | None, path: Path, line: int) -> list[_Column]:
+def _layout(props: str | None, path: Path, line: int) -> list[_Column]:
     if props is None:
         return [_Column("species", "S", 1, 0), _Column("pos", "R", 3, 1)]
-    parts = props.decode("utf-8", "replace").split(":")
+    parts = props.split(":")
     bad = TrajectoryFileError(
         path,
-        f"Properties={props.decode('utf-8', 'replace')} is not a valid column list "
+        f"Properties={props} is not a valid column list "
         "(name:type:count triples, type one of S, R, I, L)",
         line,
     )
@@ -452,6 +298,8 @@ def _parse_fixed(block: bytes, n_lines: int, cols: list[_Column]) -> dict[str, n
                 fields.append(np.ascontiguousarray(cm[a:b].T).view(f"S{b - a}").ravel())
             else:
                 classes = _column_classes(cmin[a:b], cmax[a:b])
+                if c.kind == "I" and ("." in classes or "e" in classes):
+                    raise _Slow  # not whole numbers: the general path says where
                 fields.append(_fixed_number(cm, a, b, classes))
         out[c.name] = fields[0] if c.kind == "S" else np.stack(fields, axis=1)
     return out
@@ -469,8 +317,23 @@ def _parse_tokens(block: bytes, n_lines: int, cols: list[_Column], where) -> dic
         if c.kind in ("S", "L"):
             per = [np.array(toks[t::n_tokens]) for t in range(c.start, c.start + c.count)]
             if c.kind == "L":
-                per = [np.isin(p, [b"T", b"True", b"true", b"TRUE", b"1"]) for p in per]
+                for k, p in enumerate(per):
+                    ok = np.isin(p, _BOOL_TOKENS)
+                    if not ok.all():
+                        i = int(np.flatnonzero(~ok)[0])
+                        raise TrajectoryFileError(
+                            where.path, f"{_token_name(c.start + k, cols)} holds {p[i].decode('utf-8', 'replace')!r}, "
+                            "but Properties= declares it logical (L): T or F", where.line_of(i))
+                per = [np.isin(p, _TRUE_TOKENS) for p in per]
             out[c.name] = per[0] if c.count == 1 else np.stack(per, axis=1)
+        elif c.kind == "I":
+            for t in range(c.start, c.start + c.count):
+                col = toks[t::n_tokens]
+                if not _INTEGER_TEXT.fullmatch(b" ".join(col)):  # (a stray sign inside is caught as "not a number")
+                    i = next(i for i, x in enumerate(col) if not _WHOLE.fullmatch(x))
+                    raise TrajectoryFileError(
+                        where.path, f"{_token_name(t, cols)} holds {col[i].decode('utf-8', 'replace')!r}, but "
+                        "Properties= declares it a whole number (I)", where.line_of(i))
     num_idx = [t for c in numeric for t in range(c.start, c.start + c.count)]
     if num_idx == list(range(n_tokens - len(num_idx), n_tokens)) and n_tokens - len(num_idx) <= 1:
         if n_tokens > len(num_idx):
@@ -658,6 +521,19 @@ def _check_text(data: bytes, path: Path) -> None:
                 data.count(b"\n", 0, exc.start) + 1) from None
 
 
+def _comment_warnings(meta: Comments, path: Path, line_of_frame, warnings: list[str]) -> None:
+    """One warning per distinct unreadable token (naming its first line), and one per thing not kept."""
+    for frame, bad in meta.bad:
+        more = meta.bad_count.get(bad.text, 1) - 1
+        _partial(path, f"{path.name}, line {line_of_frame(frame)}: could not read {bad.text!r} in the comment line ({bad.why}); "
+                 "the other keys on the line were kept"
+                 + (f" (the same on {more} more line{'s' if more != 1 else ''})" if more else ""), warnings)
+    if meta.bad_count.get("…"):
+        _partial(path, f"{meta.bad_count['…']} more unreadable pieces of comment lines were skipped", warnings)
+    for why in meta.dropped.values():
+        _partial(path, why, warnings)
+
+
 def _partial(path: Path, message: str, warnings: list[str]) -> None:
     warnings.append(message)
     _warnings.warn(f"{path}: {message}", PartialReadWarning, stacklevel=4)
@@ -756,14 +632,19 @@ def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float
     block = b"\n".join([data[a:b] for a, b in zip(atoms_from, atoms_to)])
     n_lines = n_full * n
     meta = parse_comments(comments)
+    _comment_warnings(meta, path, lambda k: start + k * stride + 2, warnings)
     props = meta.properties
-    if props.count(props[0]) != len(props):
-        k = next(i for i, p in enumerate(props) if p != props[0])
-        raise TrajectoryFileError(
-            path, f"frame {k + 1} declares different per-atom columns (Properties=) than frame 1; this reader "
-            "needs the same columns in every frame", start + k * stride + 2)
-    cols = _layout(props[0], path, start + 2)
-    if props[0] is None:
+    first_props = None
+    if props is not None:
+        differ = np.flatnonzero(props.codes != props.codes[0])
+        if differ.size:
+            k = int(differ[0])
+            raise TrajectoryFileError(
+                path, f"frame {k + 1} declares different per-atom columns (Properties=) than frame 1; this reader "
+                "needs the same columns in every frame", start + k * stride + 2)
+        first_props = props[0]
+    cols = _layout(first_props, path, start + 2)
+    if first_props is None:
         n_first = len(line(2).split())
         if n_first < 4:
             raise TrajectoryFileError(path, f"this atom line has {n_first} values; an atom line needs an element "
@@ -811,7 +692,8 @@ def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float
         numbers=numbers,
         positions=positions.reshape(n_full, n, 3).astype(dtype, copy=False),
         info=meta.info,
-        text_info=meta.text_info,
+        text_info=dict(meta.text),
+        vectors=meta.vectors,
         arrays=arrays,
         frame_lines=start + 1 + np.arange(n_full, dtype=np.int64) * stride,
         sha256=sha256,

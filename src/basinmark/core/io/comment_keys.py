@@ -1,0 +1,421 @@
+"""The comment lines of many frames turned into per-frame columns, with memory bounded by the data.
+
+Each key becomes one column over all frames: numbers as float64 (NaN where a
+frame lacks the key), lists of numbers of one shape as float64 arrays
+``(frames, ...)``, anything else as a :class:`TextColumn` (one int32 code per
+frame into a table of distinct strings, so a value repeated on every frame is
+stored once).  Limits keep memory proportional to the frames, whatever the
+lines say: at most :data:`MAX_KEYS` keys, :data:`MAX_FLAGS` distinct words
+without ``=``, :data:`MAX_DISTINCT` distinct texts per key; what goes beyond is
+dropped and said once in a note.  (Common practice, no source: a word that
+changes on every frame, as in ``frame 17 time=17.0``, used to become a key of
+its own with a list over all frames, growing with the square of the frames.)
+"""
+
+from __future__ import annotations
+
+import re
+from array import array
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from basinmark.core.io.comment_line import BadToken, parse_line, parse_value
+
+MAX_KEYS = 256
+MAX_FLAGS = 32
+MAX_DISTINCT = 1024
+#: keys read for the layout of the atom lines or not kept (cell and periodicity mean nothing for a run)
+PROPERTIES = "Properties"
+DROPPED_KEYS = {"lattice", "pbc"}
+
+
+class TextColumn(Sequence):
+    """Per-frame strings stored as codes into a table of distinct values ("" where a frame has none)."""
+
+    __slots__ = ("table", "codes")
+
+    def __init__(self, table, codes: np.ndarray):
+        self.table = tuple(table)
+        self.codes = np.asarray(codes, dtype=np.int32)
+
+    @classmethod
+    def from_strings(cls, values) -> "TextColumn":
+        table: dict[str, int] = {"": 0}
+        codes = np.fromiter((table.setdefault(v, len(table)) for v in values), dtype=np.int32)
+        return cls(table, codes)
+
+    def __len__(self) -> int:
+        return int(self.codes.size)
+
+    def __getitem__(self, i):
+        if isinstance(i, slice):
+            return [self.table[c] for c in self.codes[i].tolist()]
+        return self.table[int(self.codes[i])]
+
+    def __iter__(self):
+        table = self.table
+        return (table[c] for c in self.codes.tolist())
+
+    def __eq__(self, other) -> bool:
+        if isinstance(other, TextColumn):
+            other = list(other)
+        if not isinstance(other, (list, tuple)):
+            return NotImplemented
+        return len(other) == len(self) and list(self) == list(other)
+
+    def __repr__(self) -> str:
+        head = list(self[:5])
+        return f"TextColumn({head}{' ...' if len(self) > 5 else ''}, {len(self)} frames)"
+
+    def distinct(self) -> int:
+        return len(self.table) - (0 if (self.codes == 0).any() else 1)
+
+
+def as_text(value) -> str:
+    """A parsed value as the text kept for it: booleans T/F, lists space-separated (rows by '; ')."""
+    if isinstance(value, (bool, np.bool_)):
+        return "T" if value else "F"
+    if isinstance(value, float):
+        return repr(value)
+    if isinstance(value, np.ndarray):
+        if value.ndim == 2:
+            return "; ".join(as_text(row) for row in value)
+        return " ".join(as_text(v.item() if hasattr(v, "item") else v) for v in value)
+    return str(value)
+
+
+@dataclass
+class Comments:
+    """What the comment lines of a block of frames hold."""
+
+    n: int
+    info: dict[str, np.ndarray] = field(default_factory=dict)
+    vectors: dict[str, np.ndarray] = field(default_factory=dict)
+    text: dict[str, TextColumn] = field(default_factory=dict)
+    properties: TextColumn | None = None
+    bad: list[tuple[int, BadToken]] = field(default_factory=list)  # (frame index, token), first few per text
+    bad_count: dict[str, int] = field(default_factory=dict)  # token text -> how many lines
+    dropped: dict[str, str] = field(default_factory=dict)  # what was not kept -> why
+
+
+class _Sparse:
+    """One key's values on the frames that have it (general path), kept in flat arrays."""
+
+    __slots__ = ("kind", "frames", "nums", "shape", "codes", "table")
+
+    def __init__(self):
+        self.kind = None  # 'num' | 'vec' | 'text'
+        self.frames = array("i")
+        self.nums = array("d")
+        self.shape = ()
+        self.codes = array("i")
+        self.table: dict[str, int] = {"": 0}
+
+    def add(self, frame: int, value) -> bool:
+        """Store one value; False when the key holds too many distinct texts to keep."""
+        if isinstance(value, (bool, np.bool_, str)):
+            kind = "text"
+        elif isinstance(value, (int, float)):
+            kind = "num"
+        elif isinstance(value, np.ndarray) and value.dtype.kind in "iuf":
+            kind = "vec"
+        else:
+            kind = "text"
+        if self.kind == "text" or (kind == "vec" and self.kind == "vec" and value.shape != self.shape):
+            kind = "text"
+        if self.kind is None:
+            self.kind = kind
+            self.shape = value.shape if kind == "vec" else ()
+        elif kind != self.kind:  # numbers here, text there: keep all as text
+            if not self._to_text():
+                return False
+            kind = "text"
+        self.frames.append(frame)
+        if self.kind == "text":
+            code = self.table.setdefault(as_text(value), len(self.table))
+            self.codes.append(code)
+            return len(self.table) <= MAX_DISTINCT + 1
+        if self.kind == "num":
+            self.nums.append(float(value))
+        else:
+            self.nums.extend(np.asarray(value, dtype=np.float64).ravel().tolist())
+        return True
+
+    def _to_text(self) -> bool:
+        size = int(np.prod(self.shape)) if self.kind == "vec" else 1
+        values = np.frombuffer(self.nums, dtype=np.float64) if len(self.nums) else np.zeros(0)
+        for i in range(len(self.frames)):
+            v = values[i * size:(i + 1) * size]
+            text = as_text(float(v[0]) if self.kind == "num" else v.reshape(self.shape))
+            self.codes.append(self.table.setdefault(text, len(self.table)))
+        self.kind, self.nums, self.shape = "text", array("d"), ()
+        return len(self.table) <= MAX_DISTINCT + 1
+
+    def store(self, key: str, out: Comments) -> None:
+        frames = np.frombuffer(self.frames, dtype=np.int32) if len(self.frames) else np.zeros(0, np.int32)
+        if self.kind == "num":
+            arr = np.full(out.n, np.nan)
+            arr[frames] = np.frombuffer(self.nums, dtype=np.float64)
+            out.info[key] = arr
+        elif self.kind == "vec":
+            arr = np.full((out.n,) + self.shape, np.nan)
+            arr[frames] = np.frombuffer(self.nums, dtype=np.float64).reshape((-1,) + self.shape)
+            out.vectors[key] = arr
+        else:
+            codes = np.zeros(out.n, np.int32)
+            codes[frames] = np.frombuffer(self.codes, dtype=np.int32)
+            out.text[key] = TextColumn(self.table, codes)
+
+
+def _note_bad(out: Comments, frame: int, bad: list[BadToken]) -> None:
+    for b in bad:
+        count = out.bad_count.get(b.text, 0)
+        if count == 0 and len(out.bad_count) < 20:
+            out.bad.append((frame, b))
+        if count or len(out.bad_count) < 20:
+            out.bad_count[b.text] = count + 1
+        else:
+            out.bad_count["…"] = out.bad_count.get("…", 0) + 1
+
+
+def _general(lines: list[str], out: Comments) -> None:
+    """Each line read on its own (keys differ between frames, or the lines are irregular)."""
+    cols: dict[str, _Sparse] = {}
+    free = _Sparse()
+    flags: set[str] = set()
+    flags_dropped = False
+    n_free = 0
+    for i, line in enumerate(lines):
+        parsed = parse_line(line)
+        if parsed is None:
+            if line and "comment" not in out.dropped:
+                n_free += 1
+                if not free.add(i, line):
+                    out.dropped["comment"] = ("the free-text comment lines differ on nearly every frame "
+                                              f"(more than {MAX_DISTINCT} different lines), so they were not kept")
+            continue
+        pairs, bad = parsed
+        if bad:
+            _note_bad(out, i, bad)
+        for p in pairs:
+            key = p.key
+            low = key.lower()
+            if low in DROPPED_KEYS:
+                continue
+            if low == PROPERTIES.lower():
+                key = PROPERTIES
+            if p.flag:
+                if flags_dropped:
+                    continue
+                if key not in flags:
+                    flags.add(key)
+                    if len(flags) > MAX_FLAGS:
+                        flags_dropped = True
+                        examples = ", ".join(repr(f) for f in sorted(flags)[:3])
+                        out.dropped["flags"] = (f"the comment lines hold more than {MAX_FLAGS} different words "
+                                                f"without '=' (such as {examples}); words that change from frame "
+                                                "to frame are not keys, so none of them were kept")
+                        for f in flags:
+                            cols.pop(f, None)
+                        continue
+            if key in out.dropped:
+                continue
+            col = cols.get(key)
+            if col is None:
+                if len(cols) >= MAX_KEYS:
+                    out.dropped.setdefault("keys", f"the comment lines name more than {MAX_KEYS} different keys; "
+                                                   f"the keys after the first {MAX_KEYS} were not kept")
+                    continue
+                col = cols[key] = _Sparse()
+            if not col.add(i, p.value):
+                del cols[key]
+                out.dropped[key] = (f"key {key!r} holds text that changes on nearly every frame (more than "
+                                    f"{MAX_DISTINCT} different values), so it was not kept")
+    for key, col in cols.items():
+        if key == PROPERTIES:
+            tmp = Comments(out.n)
+            col.store(key, tmp)
+            out.properties = tmp.text.get(key)
+            if out.properties is None:  # a numeric 'Properties=': keep it as text for the error message
+                out.properties = TextColumn.from_strings(["" if np.isnan(v) else repr(v) for v in tmp.info[key]])
+            continue
+        col.store(key, out)
+    if n_free and "comment" not in out.dropped:
+        free.store("comment", out)
+
+
+def _dense(key: str, values: list, out: Comments) -> bool:
+    """A complete column (every frame has the key); False when its values need the general path."""
+    kinds = {type(v) for v in values}
+    if kinds <= {int, float}:
+        out.info[key] = np.array(values, dtype=np.float64)
+        return True
+    if kinds == {np.ndarray}:
+        shapes = {v.shape for v in values}
+        if len(shapes) == 1 and all(v.dtype.kind in "iuf" for v in values):
+            out.vectors[key] = np.array(values, dtype=np.float64)
+            return True
+    texts = [as_text(v) for v in values]
+    col = TextColumn.from_strings(texts)
+    if len(col.table) > MAX_DISTINCT + 1:
+        out.dropped[key] = (f"key {key!r} holds text that changes on nearly every frame (more than {MAX_DISTINCT} "
+                            "different values), so it was not kept")
+        return True
+    if key == PROPERTIES:
+        out.properties = col
+    else:
+        out.text[key] = col
+    return True
+
+
+def _constant(key: str, value, out: Comments) -> None:
+    """A column with the same value on every frame."""
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        out.info[key] = np.full(out.n, float(value))
+    elif isinstance(value, np.ndarray) and value.dtype.kind in "iuf":
+        out.vectors[key] = np.broadcast_to(value.astype(np.float64), (out.n,) + value.shape).copy()
+    else:
+        col = TextColumn(("", as_text(value)), np.ones(out.n, np.int32))
+        if key == PROPERTIES:
+            out.properties = col
+        else:
+            out.text[key] = col
+
+
+_NUMERIC_BYTES = re.compile(rb"[0-9eE.+\-\n]*")
+
+
+def _column_floats(values: list[bytes]) -> np.ndarray | None:
+    """Plain decimal numbers converted in C; None if any value is something else."""
+    joined = b"\n".join(values)
+    if not _NUMERIC_BYTES.fullmatch(joined) or b"\n\n" in b"\n" + joined + b"\n":
+        return None
+    try:
+        return np.array(list(map(float, values)), dtype=np.float64)
+    except ValueError:
+        return None
+
+
+def _regular(lines: list[bytes], out: Comments) -> bool:
+    """Fast path when every line has the first line's keys in the same order, written ``key=value``.
+
+    The lines are split into whitespace tokens once; each key then owns the
+    same token positions on every line, which is verified for every line by
+    counting ``"\\n" + key + "="`` in the joined column (a key out of place
+    anywhere breaks the count).  A value spanning several tokens (a list
+    written with spaces) is joined again with single spaces, which is exact
+    only when no line holds two spaces in a row; that is checked.  Distinct
+    values are read once each.  Returns False, leaving ``out`` untouched, when
+    the lines are not that regular.
+    """
+    n = len(lines)
+    first = lines[0].decode("utf-8", "replace")
+    parsed = parse_line(first)
+    if parsed is None or parsed[1] or not parsed[0]:
+        return False
+    pairs = parsed[0]
+    joined = b"\n".join(lines)
+    if b"  " in joined or not first.isascii():
+        multi_ok = False
+    else:
+        multi_ok = True
+    t0 = lines[0].split()
+    spans = []
+    j = 0
+    for p in pairs:
+        if p.spaced:
+            return False
+        expect = first[p.start:p.end].encode().split()
+        if t0[j:j + len(expect)] != expect or (len(expect) > 1 and not multi_ok):
+            return False
+        is_flag = p.flag
+        spans.append((p.key, first[p.start:p.end].split("=", 1)[0].encode(), is_flag, j, j + len(expect)))
+        j += len(expect)
+    width = j
+    if width != len(t0):
+        return False
+    toks = joined.split()
+    if len(toks) != n * width:
+        return False
+    columns: list[tuple[str, list]] = []
+    for key, raw_key, is_flag, j0, j1 in spans:
+        col = toks[j0::width]
+        if is_flag:
+            if col.count(raw_key) != n:
+                return False
+            columns.append((key, [True] * n))
+            continue
+        prefix = raw_key + b"="
+        if (b"\n" + b"\n".join(col)).count(b"\n" + prefix) != n:
+            return False
+        low = key.lower()
+        if low in DROPPED_KEYS:
+            continue
+        skip = len(prefix)
+        raw = [t[skip:] for t in col]
+        if j1 - j0 > 1:
+            raw = [b" ".join(x) for x in zip(raw, *(toks[jj::width] for jj in range(j0 + 1, j1)))]
+        nums = None if j1 - j0 > 1 else _column_floats(raw)
+        if nums is not None:
+            columns.append((key, nums))
+            continue
+        if raw.count(raw[0]) == n:  # the same on every line (Properties=, tags): read once
+            try:
+                columns.append((key, (parse_value(raw[0].decode("utf-8", "replace")),)))
+            except ValueError:
+                return False
+            continue
+        cache: dict[bytes, object] = {}
+        values = []
+        for r in raw:
+            v = cache.get(r, cache)
+            if v is cache:
+                try:
+                    v = parse_value(r.decode("utf-8", "replace"))
+                except ValueError:
+                    return False
+                if len(cache) < 4 * MAX_DISTINCT:
+                    cache[r] = v
+            values.append(v)
+        columns.append((key, values))
+    for key, values in columns:
+        if key.lower() == PROPERTIES.lower():
+            key = PROPERTIES
+        if isinstance(values, np.ndarray):
+            out.info[key] = values
+        elif isinstance(values, tuple):
+            _constant(key, values[0], out)
+        else:
+            _dense(key, values, out)
+    return True
+
+
+def parse_comments(lines: list[bytes]) -> Comments:
+    """Per-frame columns of the comment lines of a block of frames.
+
+    A line without any ``=`` is free text (kept under ``"comment"`` when it
+    repeats enough to be worth keeping); a word without ``=`` in a key=value
+    line is a flag ("T").  Lines that cannot be read in full give bad tokens
+    (``Comments.bad``) and keep every other key.
+    """
+    out = Comments(len(lines))
+    lines = [ln.strip() for ln in lines]
+    if not lines:
+        return out
+    joined_has_eq = any(b"=" in ln for ln in lines)
+    if not joined_has_eq:
+        if any(lines):
+            col = TextColumn.from_strings(ln.decode("utf-8", "replace") for ln in lines)
+            if len(col.table) > MAX_DISTINCT + 1:
+                out.dropped["comment"] = ("the free-text comment lines differ on nearly every frame (more than "
+                                          f"{MAX_DISTINCT} different lines), so they were not kept")
+            else:
+                out.text["comment"] = col
+        return out
+    if _regular(lines, out):
+        return out
+    out = Comments(len(lines))
+    _general([ln.decode("utf-8", "replace") for ln in lines], out)
+    return out
