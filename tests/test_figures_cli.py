@@ -58,7 +58,7 @@ def test_map_errors_are_plain(toy_root, tmp_path, capsys):
 
 def test_export_summary_md_and_csv(toy_root, tmp_path, capsys):
     md = tmp_path / "s.md"
-    assert main(["export-summary", str(toy_root), "-o", str(md), "-q", "--no-cache", "--ddg", "1.0"]) == 0
+    assert main(["export-summary", str(toy_root), "-o", str(md), "-q", "--no-cache", "--ddg", "left", "right", "1.0"]) == 0
     text = md.read_text(encoding="utf-8")
     assert text.startswith("## Summary") and "| left | 3 |" in text and "TST with" in text
     assert "### Warnings" in text  # 4 reactive runs are far too few: the file says so

@@ -18,7 +18,7 @@ OUTCOMES = ["left", "right", "left", "right", "left", "recrossing"]
 
 def test_tst_and_sweep_do_not_carry_over(qtbot, tmp_path):
     first = make_toy_set(tmp_path / "first", OUTCOMES)
-    (first / "basinmark-set.toml").write_text('[tst]\nddg = 0.5\n')
+    (first / "basinmark-set.toml").write_text('[tst]\nmajor = "left"\nminor = "right"\nddg = 0.5\n')
     second = make_toy_set(tmp_path / "second", OUTCOMES)
     w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
     qtbot.addWidget(w)

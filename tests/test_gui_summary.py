@@ -100,8 +100,14 @@ def test_tst_ratio_and_effective_ddg(win):
     assert s.tst_ratio == pytest.approx(9.996, abs=0.01)
     assert s.tst_ratio == stats.tst_ratio(1.364, "kcal/mol", 298.15)
     assert "predicts 10.0" in panel.lines.text()
-    core = _core(win, ddg=1.364, unit="kcal/mol", temperature=298.15)
+    core = _core(win, a=s.a, b=s.b, ddg=1.364, unit="kcal/mol", temperature=298.15)
     assert s.effective_ddg == core.effective_ddg
+    # the ΔΔG‡ names its pair: asking for the ratio the other way round gives the reciprocal prediction
+    first, second = s.a, s.b
+    panel.set_pair(second, first)
+    assert (panel.summary.a, panel.summary.b) == (second, first)
+    assert panel.summary.tst_ratio == pytest.approx(1 / 9.996, abs=1e-4)
+    panel.set_pair(None, None)
     # switching the unit keeps the same energy: 1 cal = 4.184 J exactly (thermochemical calorie)
     panel.unit.setCurrentText("kJ/mol")
     assert panel.ddg.value() == pytest.approx(1.364 * 4.184, abs=0.006)

@@ -67,7 +67,7 @@ def test_label_csv_round_trip_property(rows):
 
 
 def test_summary_markdown_and_csv(tmp_path):
-    summary = build_summary(_labels(), ["alpha", "beta"], ddg=1.0)
+    summary = build_summary(_labels(), ["alpha", "beta"], "alpha", "beta", ddg=1.0)
     md = write_summary(summary, tmp_path / "s.md").read_text(encoding="utf-8")
     assert md == summary.to_markdown()
     assert "### Warnings" in md  # 3 reactive runs: the summary says the ratio is a rough guide

@@ -14,6 +14,7 @@ import pytest
 from basinmark.core import stats
 from basinmark.core.model import SourceFile, Trajectory, TrajectorySet
 from basinmark.core.summary import SummaryError, build_summary
+from basinmark.core.tst import TSTError, TSTEstimate
 from rules_examples import two_bond_rules  # noqa: E402
 
 PRODUCTS = ["alpha", "beta"]
@@ -29,7 +30,7 @@ def label_frame(counts: dict[str, int], extra_missing: int = 0) -> pd.DataFrame:
 
 def test_summary_numbers_match_stats():
     labels = label_frame({"alpha": 128, "beta": 32, "recrossing": 30, "unfinished": 10, "excluded": 3}, 2)
-    s = build_summary(labels, PRODUCTS, ddg=0.30)
+    s = build_summary(labels, PRODUCTS, "alpha", "beta", ddg=0.30)
     assert (s.a, s.b, s.k_a, s.k_b) == ("alpha", "beta", 128, 32)
     assert (s.n_runs, s.n_counted, s.n_excluded, s.n_unlabelled) == (205, 200, 3, 2)
     assert s.ratio == stats.ratio_interval(128, 32)
@@ -45,10 +46,10 @@ def test_summary_numbers_match_stats():
 
 def test_summary_text_report_reads_plainly():
     labels = label_frame({"alpha": 128, "beta": 32, "recrossing": 30, "unfinished": 10, "excluded": 3}, 2)
-    text = build_summary(labels, PRODUCTS, ddg=0.30).to_text()
+    text = build_summary(labels, PRODUCTS, "alpha", "beta", ddg=0.30).to_text()
     r, lo, hi = stats.ratio_interval(128, 32)
     assert f"alpha : beta = 4.00 (95 % CI {lo:.2f}–{hi:.2f}) from 160 reactive runs" in text
-    assert "TST with ΔΔG‡ = 0.30 kcal/mol at 298.15 K predicts 1.66" in text
+    assert "TST with ΔΔG‡ = 0.30 kcal/mol (G‡(beta) − G‡(alpha)) at 298.15 K predicts 1.66" in text
     assert "outside the observed interval" in text
     assert f"Effective ΔΔG = {stats.effective_ddg(4.0):.2f} kcal/mol" in text
     assert "3 runs were excluded" in text and "2 runs have no label" in text
@@ -70,8 +71,8 @@ def test_summary_defaults_to_the_two_most_common_products_and_accepts_a_choice()
 
 def test_summary_kj_per_mol_agrees_with_kcal():
     labels = label_frame({"alpha": 95, "beta": 5})
-    kcal = build_summary(labels, PRODUCTS, ddg=1.0)
-    kj = build_summary(labels, PRODUCTS, ddg=4.184, unit="kJ/mol")  # 1 cal = 4.184 J (thermochemical calorie)
+    kcal = build_summary(labels, PRODUCTS, "alpha", "beta", ddg=1.0)
+    kj = build_summary(labels, PRODUCTS, "alpha", "beta", ddg=4.184, unit="kJ/mol")  # 1 cal = 4.184 J (thermochemical calorie)
     assert kj.tst_ratio == pytest.approx(kcal.tst_ratio, rel=1e-12)
     # derived check (REFERENCES.md): 95:5 at 298.15 K is RT ln 19 = 1.745 kcal/mol = 7.30 kJ/mol
     assert kcal.effective_ddg[0] == pytest.approx(1.745, abs=5e-4)
@@ -80,7 +81,7 @@ def test_summary_kj_per_mol_agrees_with_kcal():
 
 
 def test_thin_data_is_flagged_and_zero_counts_are_stated():
-    s = build_summary(label_frame({"alpha": 6}), PRODUCTS, ddg=0.3)
+    s = build_summary(label_frame({"alpha": 6}), PRODUCTS, "alpha", "beta", ddg=0.3)
     text = s.to_text()
     assert math.isinf(s.ratio[0]) and math.isinf(s.ratio[2])
     assert "Only 6 runs reached a product" in text and "No run gave beta" in text
@@ -103,19 +104,23 @@ def test_changed_data_is_warned():
 
 
 def test_single_product_rules_give_no_ratio():
-    s = build_summary(label_frame({"alpha": 40, "recrossing": 5}), ["alpha"], ddg=1.0)
+    s = build_summary(label_frame({"alpha": 40, "recrossing": 5}), ["alpha"])
     assert s.b is None and s.tst_ratio is None
-    assert "fewer than two products" in s.to_text() and "nothing to compare TST with" in s.to_text()
+    text = s.to_text()
+    assert "product ratio" not in text and "Reactive fraction" in text and "Transmission coefficient" in text
+    with pytest.raises(TSTError, match="'beta' is not a product of the rules"):
+        build_summary(label_frame({"alpha": 40}), ["alpha"], tst=TSTEstimate.pair("alpha", "beta", 1.0))
 
 
 def test_renderings_json_frame_markdown():
-    s = build_summary(label_frame({"alpha": 20, "beta": 0, "recrossing": 3}), PRODUCTS, ddg=0.5, method="exact")
+    s = build_summary(label_frame({"alpha": 20, "beta": 0, "recrossing": 3}), PRODUCTS, "alpha", "beta", ddg=0.5, method="exact")
     data = json.loads(s.to_json())  # strict JSON: infinities must be encoded, NaN must not appear
     assert data["ratio"]["hi"] == "inf" and data["ratio"]["value"] == "inf"
     assert data["ratio"]["lo"] == pytest.approx(stats.ratio_interval(20, 0, method="exact")[1])
     assert data["settings"]["method"] == "exact" and data["n_counted"] == 23
     frame = s.to_frame()
-    assert list(frame["quantity"]) == ["fraction"] * 3 + ["ratio", "tst_ratio", "effective_ddg"]
+    assert list(frame["quantity"]) == ["fraction"] * 3 + ["ratio", "tst_ratio", "effective_ddg", "reactive_fraction",
+                                                          "recrossing_fraction", "transmission_coefficient"]
     assert frame.loc[frame["label"] == "alpha", "value"].item() == pytest.approx(20 / 23)
     md = s.to_markdown()
     assert "| alpha | 20 |" in md and "### Warnings" in md and "Clopper–Pearson exact" in md
@@ -179,7 +184,7 @@ def run_cli(args, capsys):
 
 def test_command_classifies_in_memory_when_the_journal_is_empty(set_dir, capsys):
     root, tset, calls = set_dir
-    code, out, err = run_cli(["summary", str(root), "--ddg", "0.3"], capsys)
+    code, out, err = run_cli(["summary", str(root), "--ddg", "alpha", "beta", "0.3"], capsys)
     assert code == 0, err
     assert calls == [["alpha", "beta"]]
     assert "not yet classified into the journal; run `basinmark classify SET`" in out

@@ -41,12 +41,10 @@ def register(sub) -> None:
                     "tidy CSV table (.csv; the warnings are printed).")
     _set_options(p)
     p.add_argument("-o", "--output", required=True, metavar="FILE", help="the file to write: .md or .csv")
-    from basinmark.commands.summary import UNITS
+    from basinmark.commands.summary import add_tst_options
 
     p.add_argument("--ratio", nargs=2, metavar=("A", "B"), help="the two products to compare (default: the two most common)")
-    p.add_argument("--ddg", type=float, metavar="X", help="ΔΔG‡ = G‡(B) − G‡(A), for the TST ratio")
-    p.add_argument("--unit", choices=UNITS, default="kcal/mol", help="energy unit (default kcal/mol)")
-    p.add_argument("--temperature", type=float, default=298.15, metavar="K", help="kelvin (default 298.15)")
+    add_tst_options(p)
     p.add_argument("--method", choices=("wilson", "exact"), default="wilson", help="interval method (default wilson)")
     p.add_argument("--confidence", type=float, default=0.95, metavar="C", help="confidence level (default 0.95)")
     p.add_argument("--half-width", type=float, default=0.05, metavar="H",

@@ -14,7 +14,6 @@ import pandas as pd
 
 from basinmark.commands._output import emit
 from basinmark.core.errors import SetError
-from basinmark.core.units import convert_energy
 
 FORMATS = ("table", "csv", "json", "markdown")
 UNITS = ("kcal/mol", "kJ/mol")
@@ -31,13 +30,7 @@ def register(sub) -> None:
     p.add_argument("set", metavar="SET", help="the set folder")
     p.add_argument("--ratio", nargs=2, metavar=("A", "B"),
                    help="the two products to compare as A : B (default: the two most common)")
-    p.add_argument("--ddg", type=float, metavar="X",
-                   help="ΔΔG‡ = G‡(B) − G‡(A), to show the ratio transition state theory predicts "
-                        "(default: [tst] ddg of the set's basinmark-set.toml, if any)")
-    p.add_argument("--no-tst", action="store_true", help="leave out the TST comparison")
-    p.add_argument("--unit", choices=UNITS, default="kcal/mol", help="energy unit of --ddg and of the report (default kcal/mol)")
-    p.add_argument("--temperature", type=float, default=None, metavar="K",
-                   help="temperature in kelvin (default: the set's [tst] temperature, else 298.15)")
+    add_tst_options(p)
     p.add_argument("--method", choices=("wilson", "exact"), default="wilson",
                    help="interval for proportions: Wilson score (default) or Clopper–Pearson exact")
     p.add_argument("--confidence", type=float, default=0.95, metavar="C", help="confidence level (default 0.95)")
@@ -51,6 +44,92 @@ def register(sub) -> None:
     p.add_argument("--quiet", "-q", action="store_true", help="no progress line on stderr")
     p.add_argument("--format", choices=FORMATS, default="table", help="output format (default: table)")
     p.set_defaults(func=run)
+
+
+def add_tst_options(p) -> None:
+    """The TST options shared by ``summary`` and ``export-summary``."""
+    p.add_argument("--ddg", nargs="+", metavar="ARG",
+                   help="the TST estimate as a named pair: --ddg MAJOR MINOR X, with X = ΔΔG‡ = G‡(MINOR) − "
+                        "G‡(MAJOR) (positive favours MAJOR); a lone --ddg X is read as G‡(B) − G‡(A) of --ratio A B "
+                        "(default: [tst] of the set's basinmark-set.toml, if any)")
+    p.add_argument("--barrier", nargs=2, action="append", metavar=("PRODUCT", "X"),
+                   help="a product's own free-energy barrier ΔG‡ (repeat for every product): TST then predicts "
+                        "every product's share and any pair's ratio")
+    p.add_argument("--no-tst", action="store_true", help="leave out the TST comparison")
+    p.add_argument("--unit", choices=UNITS, default="kcal/mol",
+                   help="energy unit of --ddg, --barrier and of the report (default kcal/mol)")
+    p.add_argument("--temperature", type=float, default=None, metavar="K",
+                   help="temperature in kelvin (default: the set's [tst] temperature, else 298.15)")
+
+
+def _float(text: str, option: str) -> float:
+    try:
+        return float(text)
+    except ValueError:
+        raise SetError(f"{option}: {text!r} is not a number") from None
+
+
+def tst_from_args(args, tset, products: list[str]) -> tuple[object, object, list[str], list[str]]:
+    """``(estimate, measured ratio, notes, warnings)`` from the command line, else the set's manifest.
+
+    The command line wins over the manifest; ``--no-tst`` leaves both out.  Values are checked
+    (finite, |ΔΔG‡| within bounds, positive temperature) with the option or file named.
+    """
+    from basinmark.core.tst import TSTEstimate, unnamed_ddg_message
+
+    notes: list[str] = []
+    warnings: list[str] = []
+    stated = tset.metadata.get("tst") if tset is not None else None
+    measured = stated.get("experiment") if stated else None
+    if getattr(args, "no_tst", False):
+        return None, measured, notes, warnings
+    temperature = args.temperature
+    ddg = getattr(args, "ddg", None)
+    barriers = getattr(args, "barrier", None)
+    if ddg is not None and barriers:
+        raise SetError("give either --ddg or --barrier, not both")
+    if ddg is not None or barriers:
+        t = 298.15 if temperature is None else temperature
+        if barriers:
+            values: dict[str, float] = {}
+            for name, value in barriers:
+                if name in values:
+                    raise SetError(f"--barrier {name} is given twice")
+                values[name] = _float(value, f"--barrier {name}")
+            return TSTEstimate.from_barriers(values, args.unit, t, origin="--barrier"), measured, notes, warnings
+        if len(ddg) == 3:
+            return (TSTEstimate.pair(ddg[0], ddg[1], _float(ddg[2], "--ddg"), args.unit, t, origin="--ddg"),
+                    measured, notes, warnings)
+        if len(ddg) == 1 and args.ratio:
+            a, b = args.ratio
+            notes.append(f"--ddg {ddg[0]} read as ΔΔG‡ = G‡({b}) − G‡({a}) for the ratio {a} : {b} asked")
+            return (TSTEstimate.pair(a, b, _float(ddg[0], "--ddg"), args.unit, t, origin="--ddg"),
+                    measured, notes, warnings)
+        if len(ddg) == 1:
+            raise SetError(f"--ddg {ddg[0]} does not say which product it favours: write --ddg MAJOR MINOR "
+                           f"{ddg[0]} (ΔΔG‡ = G‡(MINOR) − G‡(MAJOR)), or name the ratio with --ratio A B "
+                           f"(ΔΔG‡ = G‡(B) − G‡(A)); products: {', '.join(products) or '(none)'}")
+        raise SetError(f"--ddg takes MAJOR MINOR X (or one number with --ratio A B), not {len(ddg)} values")
+    if not stated:
+        return None, measured, notes, warnings
+    est = stated.get("estimate")
+    where = Path(stated.get("where", "basinmark-set.toml")).name
+    if est is None and stated.get("kind") == "unnamed":
+        if stated["ddg"] == 0.0 and len(products) == 2:  # equal barriers: the same for either naming
+            est = TSTEstimate.pair(products[0], products[1], 0.0, stated["unit"], stated["temperature"],
+                                   source=stated.get("source", ""), origin=where, experiment=measured)
+        else:
+            warnings.append(unnamed_ddg_message(stated["ddg"], stated["unit"], f"{where} [tst]", products)
+                            + " The TST comparison is left out until then.")
+            return None, measured, notes, warnings
+    if est is None:
+        return None, measured, notes, warnings
+    if temperature is not None and temperature != est.temperature:
+        notes.append(f"the TST estimate of {where} is stated at {est.temperature:g} K; --temperature "
+                     f"{temperature:g} K applies to the effective ΔΔG only")
+    notes.append(f"TST estimate ({est.text()}) from the set's {where}"
+                 + (f" ({est.source})" if est.source else ""))
+    return est, measured, notes, warnings
 
 
 def journal_labels(path: Path, current_hashes: dict[str, str]) -> tuple[pd.DataFrame | None, list[str]]:
@@ -157,19 +236,15 @@ def make_summary(args):
         notes.append(f"{len(tset.failures)} file(s) of the set failed to load; `basinmark info SET` lists them")
     notes += tset.warnings
     a, b = args.ratio if args.ratio else (None, None)
-    ddg, temperature = args.ddg, args.temperature
-    tst = tset.metadata.get("tst")
-    if ddg is None and tst is not None and not getattr(args, "no_tst", False):
-        ddg = float(convert_energy(tst["ddg"], tst["unit"], args.unit))
-        temperature = temperature if temperature is not None else tst["temperature"]
-        notes.append(f"ΔΔG‡ = {tst['ddg']:g} {tst['unit']} at {tst['temperature']:g} K from the set's "
-                     f"basinmark-set.toml" + (f" ({tst['source']})" if tst.get("source") else ""))
-    if getattr(args, "no_tst", False):
-        ddg = None
-    temperature = 298.15 if temperature is None else temperature
-    return build_summary(labels, products, a, b, ddg=ddg, unit=args.unit, temperature=temperature,
+    tst, measured, tst_notes, tst_warnings = tst_from_args(args, tset, products)
+    notes += tst_notes
+    extra += tst_warnings
+    temperature = args.temperature
+    if temperature is None:
+        temperature = tst.temperature if tst is not None else 298.15
+    return build_summary(labels, products, a, b, unit=args.unit, temperature=temperature,
                          confidence=args.confidence, method=args.method, half_width=args.half_width, notes=notes,
-                         extra_warnings=extra)
+                         extra_warnings=extra, tst=tst, experiment=measured)
 
 
 def run(args) -> int:

@@ -21,10 +21,24 @@ Without a manifest, a set uses :data:`DEFAULT`.  A manifest may override any key
     step_fs = 1.0                   # used only when the files carry no time key
     backward = "auto"               # auto | elapsed | signed: how backward halves write time
     [tst]                           # the study's own TST estimate, shown beside the observed ratio
-    ddg = 0.3                       # ΔΔG‡ = G‡(minor) − G‡(major), from separate transition states
+    major = "alpha"                 # the pair it names (products of the rules) ...
+    minor = "beta"
+    ddg = 0.3                       # ... and ΔΔG‡ = G‡(minor) − G‡(major), from separate transition states
     unit = "kcal/mol"
     temperature = 298.15
     source = "where the number comes from"
+    # instead of major/minor/ddg, one free-energy barrier per product (TST then predicts every share):
+    # [tst.barriers]
+    # alpha = 14.2
+    # beta = 14.5
+    # gamma = 15.9
+    # optionally a measured ratio with its uncertainty, shown beside the runs and TST:
+    # [tst.experiment]
+    # numerator = "alpha"
+    # denominator = "beta"
+    # ratio = 2.4
+    # uncertainty = 0.3
+    # source = "where the measurement comes from"
 
 The manifest is data only; nothing in it is ever evaluated.
 """
@@ -35,6 +49,7 @@ import copy
 import fnmatch
 import hashlib
 import json
+import math
 import re
 import tomllib
 from dataclasses import dataclass
@@ -64,7 +79,7 @@ DEFAULT: dict = {
         "total": ["etot", "total_energy", "total", "e_tot", "etotal", "tot_energy"],
     },
     "time": {"step_fs": None, "backward": "auto"},
-    "tst": {"ddg": None, "unit": "kcal/mol", "temperature": 298.15, "source": ""},
+    "tst": None,  # read on its own by _tst (its tables hold product names chosen by the study)
 }
 
 _TOP_KEYS = {"name", "files", "units", "keys", "time", "tst"}
@@ -100,7 +115,7 @@ class SetLayout:
     backward_time: str
     fingerprint: str  # hash of everything that changes how files are turned into runs
     source: Path | None = None
-    tst: dict | None = None  # {"ddg", "unit", "temperature", "source"} when the manifest gives a ΔΔG‡
+    tst: dict | None = None  # [tst] as read: kind, stated values and "estimate" (see _tst)
     patterns_given: bool = False  # the manifest names file patterns; else runs are found by naming conventions
 
     @property
@@ -132,17 +147,113 @@ def _merge(base: dict, over: dict, where: str) -> dict:
     return out
 
 
-def _tst(table: dict, path: Path) -> dict | None:
-    if table["ddg"] is None:
+def _tst(raw: object, path: Path, text: str) -> dict | None:
+    """The [tst] table: a named pair, or per-product barriers (see :mod:`basinmark.core.tst`).
+
+    Returns None without a ΔΔG‡ or barriers; else a dict with the stated values and, under
+    ``"estimate"``, the checked :class:`~basinmark.core.tst.TSTEstimate` (None when an old manifest
+    gives a ΔΔG‡ without naming its products: the summary then says how to name them).
+    """
+    from basinmark.core.tst import Experiment, TSTError, TSTEstimate
+
+    if raw is None:
         return None
+    if not isinstance(raw, dict):
+        raise SetError(f"{path}: [tst] must be a table")
+    known = ("major", "minor", "ddg", "unit", "temperature", "source", "barriers", "experiment")
+    for key in raw:
+        if key not in known:
+            raise SetError(f"{_where(path, text, 'tst', key)}: unknown key {key!r} in [tst] (known: {', '.join(known)})")
+    unit, temperature, source = raw.get("unit", "kcal/mol"), raw.get("temperature", 298.15), str(raw.get("source", ""))
     try:
-        ddg, temperature = float(table["ddg"]), float(table["temperature"])
-        energy_factor(str(table["unit"]))
-    except (TypeError, ValueError) as exc:
-        raise SetError(f"{path}: [tst] {exc}") from None
-    if not temperature > 0:
-        raise SetError(f"{path}: [tst] temperature must be a positive number of kelvin")
-    return {"ddg": ddg, "unit": str(table["unit"]), "temperature": temperature, "source": str(table["source"])}
+        experiment = None
+        if "experiment" in raw:
+            experiment = _experiment(raw["experiment"], path, text)
+        if "barriers" in raw:
+            clash = [k for k in ("major", "minor", "ddg") if k in raw]
+            if clash:
+                raise SetError(f"{_where(path, text, 'tst', clash[0])}: [tst] gives both barriers and "
+                               f"{', '.join(clash)}; keep one form (a named pair or one barrier per product)")
+            if not isinstance(raw["barriers"], dict):
+                raise SetError(f"{_where(path, text, 'tst', 'barriers')}: [tst.barriers] must be a table of "
+                               f"product = barrier")
+            est = TSTEstimate.from_barriers(raw["barriers"], unit, temperature, source=source, origin=path.name,
+                                            where=f"{_where(path, text, 'tst.barriers')}: [tst.barriers]",
+                                            experiment=experiment)
+            return {"kind": "barriers", "ddg": None, "barriers": dict(est.barriers), "unit": est.unit,
+                    "temperature": est.temperature, "source": source, "estimate": est, "where": str(path)}
+        if "ddg" not in raw:
+            if "major" in raw or "minor" in raw:
+                raise SetError(f"{_where(path, text, 'tst')}: [tst] names major/minor but gives no ddg "
+                               f"(ΔΔG‡ = G‡(minor) − G‡(major))")
+            if experiment is not None:
+                return {"kind": "experiment", "ddg": None, "unit": str(unit), "temperature": 298.15,
+                        "source": source, "estimate": None, "experiment": experiment, "where": str(path)}
+            return None
+        where = f"{_where(path, text, 'tst', 'ddg')}: [tst]"
+        if "major" in raw or "minor" in raw:
+            if not ("major" in raw and "minor" in raw):
+                raise SetError(f"{where} names only one product; give both major and minor "
+                               f"(ΔΔG‡ = G‡(minor) − G‡(major))")
+            est = TSTEstimate.pair(raw["major"], raw["minor"], raw["ddg"], unit, temperature, source=source,
+                                   origin=path.name, where=where, experiment=experiment)
+            return {"kind": "pair", "major": est.major, "minor": est.minor, "ddg": est.ddg, "unit": est.unit,
+                    "temperature": est.temperature, "source": source, "estimate": est, "where": str(path)}
+        # an old manifest: a ΔΔG‡ without its products; checked now, named later (see summary)
+        probe = TSTEstimate.pair("major", "minor", raw["ddg"], unit, temperature, where=where)
+        return {"kind": "unnamed", "ddg": probe.ddg, "unit": probe.unit, "temperature": probe.temperature,
+                "source": source, "estimate": None, "experiment": experiment, "where": str(path)}
+    except TSTError as exc:
+        raise SetError(str(exc)) from None
+
+
+def _experiment(raw: object, path: Path, text: str) -> object:
+    from basinmark.core.tst import Experiment, TSTError
+
+    where = f"{_where(path, text, 'tst.experiment')}: [tst.experiment]"
+    if not isinstance(raw, dict):
+        raise SetError(f"{where} must be a table")
+    need = ("numerator", "denominator", "ratio")
+    missing = [k for k in need if k not in raw]
+    unknown = [k for k in raw if k not in need + ("uncertainty", "source")]
+    if missing or unknown:
+        raise SetError(f"{where} needs numerator, denominator and ratio (optionally uncertainty and source)"
+                       + (f"; missing {', '.join(missing)}" if missing else "")
+                       + (f"; unknown {', '.join(unknown)}" if unknown else ""))
+    try:
+        ratio, unc = float(raw["ratio"]), float(raw.get("uncertainty", 0.0))
+    except (TypeError, ValueError):
+        raise SetError(f"{where} ratio and uncertainty must be numbers") from None
+    if not (math.isfinite(ratio) and ratio > 0 and math.isfinite(unc) and unc >= 0):
+        raise SetError(f"{where} ratio must be a positive finite number and uncertainty a finite number ≥ 0, "
+                       f"got {ratio:g} ± {unc:g}")
+    a, b = raw["numerator"], raw["denominator"]
+    if not (isinstance(a, str) and isinstance(b, str) and a.strip() and b.strip() and a.strip() != b.strip()):
+        raise SetError(f"{where} numerator and denominator must name two different products")
+    try:
+        return Experiment(a.strip(), b.strip(), ratio, unc, str(raw.get("source", "")))
+    except TSTError as exc:  # pragma: no cover - Experiment does not check further
+        raise SetError(str(exc)) from None
+
+
+def _where(path: Path, text: str, table: str, key: str | None = None) -> str:
+    """``path, line N`` for ``key`` in ``[table]`` (or the table's header), else just the path.
+
+    tomllib gives no positions, so the line is found by a plain scan of the text (enough for the
+    one-key-per-line tables a manifest holds).
+    """
+    current, header_line = "", None
+    for number, line in enumerate(text.splitlines(), start=1):
+        stripped = line.strip()
+        m = re.match(r"^\[\s*([^\[\]]+?)\s*\]", stripped)
+        if m:
+            current = m.group(1).replace(" ", "")
+            if current == table and header_line is None:
+                header_line = number
+            continue
+        if key is not None and current == table and re.match(rf"^\s*{re.escape(key)}\s*=", line):
+            return f"{path}, line {number}"
+    return f"{path}, line {header_line}" if header_line is not None else str(path)
 
 
 def load_layout(root: str | Path) -> SetLayout:
@@ -157,7 +268,8 @@ def load_layout(root: str | Path) -> SetLayout:
             raise SetError(f"{path}: not valid TOML: {exc}") from None
         except UnicodeDecodeError:
             raise SetError(f"{path}: not UTF-8 text") from None
-    cfg = _merge(DEFAULT, raw, str(path))
+    text = path.read_text(encoding="utf-8") if raw else ""
+    cfg = _merge(DEFAULT, {k: v for k, v in raw.items() if k != "tst"}, str(path))
     try:
         files = cfg["files"]
         layout = SetLayout(
@@ -175,7 +287,7 @@ def load_layout(root: str | Path) -> SetLayout:
             fingerprint=hashlib.sha256(json.dumps({k: v for k, v in cfg.items() if k != "tst"},
                                                   sort_keys=True).encode()).hexdigest(),
             source=path if path.exists() else None,
-            tst=_tst(cfg["tst"], path),
+            tst=_tst(raw.get("tst"), path, text),
             patterns_given=any(k in raw.get("files", {}) for k in ("backward", "forward", "joined")),
         )
     except (ValueError, TypeError) as exc:

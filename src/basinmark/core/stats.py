@@ -482,12 +482,18 @@ def reliability_warnings(
             warnings.append(f"All {excluded} labelled runs are excluded.")
         return warnings
     reactive = sum(counts.get(p, 0) for p in products)
+    # with one product there is no ratio: speak of the reactive fraction and transmission coefficient
+    single = len(products) < 2
+    what = "the reactive fraction and transmission coefficient" if single else "the product ratio"
     if reactive == 0:
-        warnings.append("No run reached a product: there is no product ratio to report.")
+        warnings.append("No run reached a product: there is no product ratio to report." if not single else
+                        "No run reached the product: the reactive fraction is zero and the transmission "
+                        "coefficient rests on recrossing runs alone.")
     elif reactive < MIN_REACTIVE_RUNS:
         warnings.append(
             f"Only {reactive} run{'s' if reactive != 1 else ''} reached a product; with fewer than "
-            f"{MIN_REACTIVE_RUNS} the product ratio is a rough guide only (rule of thumb). Run more trajectories.")
+            f"{MIN_REACTIVE_RUNS} {what} {'are rough guides' if single else 'is a rough guide'} only "
+            f"(rule of thumb). Run more trajectories.")
     compared = list(pair) if pair else [p for p in products]
     if reactive > 0 and len(compared) >= 2:
         for name in compared:
@@ -502,11 +508,15 @@ def reliability_warnings(
     if unfinished / counted > MAX_UNFINISHED_FRACTION:
         warnings.append(
             f"{_pct(unfinished / counted)} of runs ({unfinished} of {counted}) are unfinished: they never committed "
-            f"to a basin. If they would have split differently the ratio is biased; run them longer.")
+            f"to a basin. If they would have {'ended' if single else 'split'} differently {what} "
+            f"{'are' if single else 'is'} biased; run them longer.")
     ambiguous = counts.get("ambiguous", 0)
     if ambiguous:
         warnings.append(f"{ambiguous} run{'s are' if ambiguous != 1 else ' is'} labelled ambiguous and left out "
-                        f"of the product ratio.")
+                        f"of the product ratio." if not single else
+                        f"{ambiguous} run{'s are' if ambiguous != 1 else ' is'} labelled ambiguous: counted in the "
+                        f"reactive fraction's denominator but not as reactive, and left out of the transmission "
+                        f"coefficient.")
     if excluded:
         warnings.append(f"{excluded} run{'s were' if excluded != 1 else ' was'} excluded by hand and "
                         f"{'are' if excluded != 1 else 'is'} left out of every count.")

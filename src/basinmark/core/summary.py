@@ -20,9 +20,16 @@ import pandas as pd
 
 from basinmark.core import stats
 from basinmark.core.errors import BasinmarkError
-from basinmark.core.units import ENERGY_UNITS
+from basinmark.core.tst import Experiment, TSTEstimate
+from basinmark.core.units import ENERGY_UNITS, convert_energy
 
 FIXED_ORDER = ("recrossing", "unfinished", "ambiguous")
+
+#: How the transmission coefficient is estimated, in the words every rendering uses.
+KAPPA_DEFINITION = ("κ ≈ reactive / (reactive + recrossing), for runs started at the dividing surface: a run is "
+                    "reactive whichever of its halves reaches the product, and recrossing runs of both kinds "
+                    "(reactant at both ends, product at both ends) count in the denominator "
+                    "(common practice, no source)")
 
 
 class SummaryError(BasinmarkError):
@@ -86,6 +93,11 @@ class Summary:
     convergence: pd.DataFrame
     settings: dict
     notes: list[str] = field(default_factory=list)  # where the labels came from, etc.
+    tst: TSTEstimate | None = None  # the TST estimate with the products it names
+    shares: pd.DataFrame = field(default_factory=pd.DataFrame)  # product, count, share, lo, hi, tst_share
+    reactive: dict = field(default_factory=dict)  # reactive / recrossing fractions, transmission coefficient
+    experiment: tuple[float, float, float] | None = None  # measured a : b (ratio, lo, hi) in the order asked
+    measured: Experiment | None = None  # the measurement as stated
 
     # --- derived ----------------------------------------------------------------------------
     @property
@@ -99,6 +111,18 @@ class Summary:
     @property
     def confidence_text(self) -> str:
         return f"{100 * self.settings['confidence']:g} %"
+
+    @property
+    def show_shares(self) -> bool:
+        """Whether the per-product shares are worth a table of their own (three or more, or TST barriers)."""
+        return not self.shares.empty and (len(self.products) >= 3 or (self.tst is not None and not self.tst.is_pair))
+
+    def tst_ddg(self) -> float | None:
+        """ΔΔG‡ = G‡(b) − G‡(a) of the TST estimate for the ratio asked, in the report's unit (None if not covered)."""
+        if self.tst is None or not (self.a and self.b):
+            return None
+        d = self.tst.ddg_for(self.a, self.b)
+        return None if d is None else float(convert_energy(d, self.tst.unit, self.settings["unit"]))
 
     # --- renderings -------------------------------------------------------------------------
     def to_frame(self) -> pd.DataFrame:
@@ -119,9 +143,24 @@ class Summary:
             ddg = self.effective_ddg
             rows.append({"quantity": "effective_ddg", "label": pair, "count": self.n_pair, "value": ddg[0],
                          "lo": ddg[1], "hi": ddg[2], "unit": self.settings["unit"]})
+            if self.experiment is not None:
+                rows.append({"quantity": "experiment_ratio", "label": pair, "value": self.experiment[0],
+                             "lo": self.experiment[1], "hi": self.experiment[2], "unit": ""})
+        if self.show_shares:
+            for r in self.shares.itertuples(index=False):
+                rows.append({"quantity": "share", "label": r.product, "count": r.count, "value": r.share,
+                             "simultaneous_lo": r.lo, "simultaneous_hi": r.hi, "unit": ""})
+                if not math.isnan(r.tst_share):
+                    rows.append({"quantity": "tst_share", "label": r.product, "value": r.tst_share, "unit": ""})
+        for key in ("reactive_fraction", "recrossing_fraction", "transmission_coefficient"):
+            q = self.reactive.get(key)
+            if q is not None:
+                rows.append({"quantity": key, "label": "", "count": q["k"], "value": q["value"], "lo": q["lo"],
+                             "hi": q["hi"], "unit": ""})
         frame = pd.DataFrame(rows, columns=["quantity", "label", "count", "value", "lo", "hi",
                                             "simultaneous_lo", "simultaneous_hi", "unit"])
         frame["count"] = frame["count"].astype("Int64")
+        has_sim = has_sim or self.show_shares
         if not has_sim:
             frame = frame.drop(columns=["simultaneous_lo", "simultaneous_hi"])
         return frame
@@ -139,6 +178,11 @@ class Summary:
             # the same warnings with the runs each one is about (a list of run ids, maybe empty)
             "warning_runs": [{"warning": str(w), "run_ids": list(run_ids_of(w))} for w in self.warnings],
             "notes": list(self.notes),
+            "tst": _tst_dict(self.tst),
+            "shares": [{k: _json_number(v) for k, v in row.items()} for row in self.shares.to_dict(orient="records")],
+            "reactive": {k: {kk: _json_number(vv) for kk, vv in v.items()} if isinstance(v, dict) else v
+                         for k, v in self.reactive.items()},
+            "experiment_ratio": None,
         }
         if self.a and self.b:
             out["ratio"] = {"a": self.a, "b": self.b, "k_a": self.k_a, "k_b": self.k_b,
@@ -146,6 +190,8 @@ class Summary:
             out["effective_ddg"] = {"unit": self.settings["unit"],
                                     **dict(zip(("value", "lo", "hi"), map(_json_number, self.effective_ddg)))}
             out["tst_ratio"] = _json_number(self.tst_ratio)
+            if self.experiment is not None:
+                out["experiment_ratio"] = dict(zip(("value", "lo", "hi"), map(_json_number, self.experiment)))
         return out
 
     def to_json(self, indent: int | None = 2) -> str:
@@ -166,14 +212,14 @@ class Summary:
         return head, rows
 
     def lines(self) -> list[str]:
-        """The sentences of the report after the table (ratio, TST, effective ΔΔG, runs needed)."""
+        """The sentences of the report after the table (ratio, TST, effective ΔΔG, runs needed, κ)."""
         s = self.settings
         out: list[str] = []
         if not (self.a and self.b):
-            out.append("No product ratio: the rules name fewer than two products." if len(self.products) < 2
-                       else "No product ratio: no two products to compare.")
-            if s.get("ddg") is not None:
-                out.append("A ΔΔG‡ was given, but with no product ratio there is nothing to compare TST with.")
+            out += self._reactive_lines(full=True)
+            if self.tst is not None or s.get("ddg") is not None:
+                out.append("A TST estimate was given, but with fewer than two products there is no ratio to "
+                           "compare it with (nothing to compare TST with).")
             return out
         r, lo, hi = self.ratio
         ci = self.confidence_text
@@ -184,17 +230,26 @@ class Summary:
             out.append(f"{self.a} : {self.b} = {_num(r)} ({ci} CI {_num(lo)}–{_num(hi)}) from {self.n_pair} {group}"
                        f" ({self.k_a} : {self.k_b})")
         unit, temp = s["unit"], s["temperature"]
-        if self.tst_ratio is not None:
-            line = (f"TST with ΔΔG‡ = {s['ddg']:.2f} {unit} at {temp:.2f} K predicts {_num(self.tst_ratio)}")
+        if self.tst is not None:
+            out.append(self._tst_line())
+        if self.experiment is not None:
+            e, elo, ehi = self.experiment
+            exp = self.measured
+            line = (f"Experiment: {self.a} : {self.b} = {_num(e)} (from {_num(elo)} to {_num(ehi)})"
+                    + (f" ({exp.source})" if exp is not None and exp.source else ""))
             if not math.isnan(r):
-                inside = lo <= self.tst_ratio <= hi
-                line += (", inside the observed interval" if inside
-                         else ", outside the observed interval: the runs do not bear out the TST prediction")
+                line += (", overlapping the runs' interval" if elo <= hi and ehi >= lo
+                         else ", apart from the runs' interval: the runs and the measurement disagree")
             out.append(line)
+        elif self.measured is not None:
+            out.append(f"The measured ratio ({self.measured.text()}) is about another pair; choose "
+                       f"{self.measured.a} : {self.measured.b} to see it beside the runs")
         d, dlo, dhi = self.effective_ddg
         if not math.isnan(d):
             out.append(f"Effective ΔΔG = {_energy(d)} {unit} ({ci} CI {_energy(dlo)} to {_energy(dhi)}) at "
                        f"{temp:.2f} K: the barrier difference TST would need to give the observed ratio")
+        if self.show_shares and self.tst is not None and not self.tst.is_pair:
+            out.append(self._shares_line())
         target = f"For ±{s['half_width']:g} on the share of {self.a} among {self.a} + {self.b}"
         if self.runs_needed is not None:
             # runs_needed counts runs that count (labelled, not excluded), so compare like with like
@@ -206,6 +261,60 @@ class Summary:
         elif self.n_pair > 0:
             out.append(f"{target}, the number of runs needed cannot be estimated until both products have "
                        f"appeared")
+        out += self._reactive_lines(full=False)
+        return out
+
+    def _tst_line(self) -> str:
+        tst, unit, r, lo, hi = self.tst, self.settings["unit"], *self.ratio
+        if self.tst_ratio is None:
+            return (f"The TST estimate ({tst.text()}) names {', '.join(tst.products)}: it gives no prediction "
+                    f"for {self.a} : {self.b}")
+        form = "from per-product barriers" if not tst.is_pair else ""
+        line = (f"TST with ΔΔG‡ = {self.tst_ddg():.2f} {unit} (G‡({self.b}) − G‡({self.a}){', ' + form if form else ''})"
+                f" at {tst.temperature:.2f} K predicts {_num(self.tst_ratio)}")
+        if not math.isnan(r):
+            inside = lo <= self.tst_ratio <= hi
+            line += (", inside the observed interval" if inside
+                     else ", outside the observed interval: the runs do not bear out the TST prediction")
+        return line
+
+    def _shares_line(self) -> str:
+        sh = self.shares.dropna(subset=["tst_share"])
+        outside = [r.product for r in sh.itertuples(index=False) if not r.lo <= r.tst_share <= r.hi]
+        n = int(self.shares["count"].sum())
+        if n == 0:
+            return "TST shares cannot be compared: no run reached a product."
+        if outside:
+            return (f"TST shares ({self.tst.text()}) lie outside the simultaneous intervals for "
+                    f"{', '.join(outside)}: the runs do not bear out the TST prediction there")
+        return (f"TST shares ({self.tst.text()}) lie inside the simultaneous intervals of all {len(sh)} "
+                f"products with a barrier")
+
+    def _reactive_lines(self, full: bool) -> list[str]:
+        q = self.reactive
+        if not q:
+            return []
+        ci = self.confidence_text
+        rf, rc, kappa = q["reactive_fraction"], q["recrossing_fraction"], q["transmission_coefficient"]
+
+        def frac(d: dict) -> str:
+            return f"{_fixed(d['value'])} ({ci} CI {_fixed(d['lo'])}–{_fixed(d['hi'])})" if d["n"] else "undefined"
+
+        if not full:
+            return [f"Reactive fraction {frac(rf)}, recrossing fraction {frac(rc)} of {rf['n']} counted runs; "
+                    f"transmission coefficient κ ≈ reactive / (reactive + recrossing) = {frac(kappa)} "
+                    f"(both kinds of recrossing counted; common practice, no source)"]
+        names = ", ".join(self.products)
+        out = []
+        if not self.products:
+            out.append("No product among the labels: only the recrossing fraction can be reported.")
+        else:
+            out.append(f"Reactive fraction = {frac(rf)}: {rf['k']} of {rf['n']} counted runs joined the reactant "
+                       f"to {names}")
+        out.append(f"Recrossing fraction = {frac(rc)}: {rc['k']} of {rc['n']} counted runs ended in the same "
+                   f"basin at both ends")
+        out.append(f"Transmission coefficient = {frac(kappa)} from {kappa['k']} reactive and "
+                   f"{kappa['n'] - kappa['k']} recrossing runs; {KAPPA_DEFINITION}")
         return out
 
     def to_text(self) -> str:
@@ -223,6 +332,11 @@ class Summary:
         if rows:
             out += [fmt(head), fmt(["-" * w for w in widths])] + [fmt(r) for r in rows]
             out += [self._caption(), ""]
+        if self.show_shares:
+            shead, srows = self._share_rows()
+            widths = [max(len(h), *(len(r[i]) for r in srows)) for i, h in enumerate(shead)]
+            out += [self._share_title(), fmt(shead), fmt(["-" * w for w in widths])] + [fmt(r) for r in srows]
+            out.append("")
         out += self.lines()
         if self.warnings:
             out += ["", "Warnings:"]
@@ -238,7 +352,13 @@ class Summary:
         out = ["## Summary", "", self._headline(), "",
                "| " + " | ".join(head) + " |", "|" + "|".join([" --- "] + [" ---: "] * (len(head) - 1)) + "|"]
         out += ["| " + " | ".join(r) + " |" for r in rows]
-        out += ["", self._caption(), ""] + [f"- {line}" for line in self.lines()]
+        out += ["", self._caption(), ""]
+        if self.show_shares:
+            shead, srows = self._share_rows()
+            out += [self._share_title(), "", "| " + " | ".join(shead) + " |",
+                    "|" + "|".join([" --- "] + [" ---: "] * (len(shead) - 1)) + "|"]
+            out += ["| " + " | ".join(r) + " |" for r in srows] + [""]
+        out += [f"- {line}" for line in self.lines()]
         if self.notes:
             out += [""] + [f"*Note:* {n}" for n in self.notes]
         if self.warnings:
@@ -247,6 +367,24 @@ class Summary:
                 ids = run_ids_of(w)
                 out.append(f"- {w}" + (f" Runs: {', '.join(f'`{r}`' for r in ids)}." if ids else ""))
         return "\n".join(out) + "\n"
+
+    def _share_title(self) -> str:
+        n = int(self.shares["count"].sum())
+        return (f"Product shares among the {n} reactive runs ({self.confidence_text} Goodman simultaneous "
+                f"intervals, all products at once):")
+
+    def _share_rows(self) -> tuple[list[str], list[list[str]]]:
+        tst = "tst_share" in self.shares and self.shares["tst_share"].notna().any()
+        head = ["product", "runs", "share", "all products at once"] + (["TST share", "TST inside"] if tst else [])
+        rows = []
+        for r in self.shares.itertuples(index=False):
+            row = [r.product, str(r.count), _fixed(r.share), f"{_fixed(r.lo)}–{_fixed(r.hi)}"]
+            if tst:
+                known = not math.isnan(r.tst_share)
+                row += [_fixed(r.tst_share) if known else "—",
+                        ("yes" if r.lo <= r.tst_share <= r.hi else "no") if known and not math.isnan(r.share) else "—"]
+            rows.append(row)
+        return head, rows
 
     def _caption(self) -> str:
         method = "Wilson score" if self.settings["method"] == "wilson" else "Clopper–Pearson exact"
@@ -415,11 +553,14 @@ def build_summary(
     half_width: float = 0.05,
     notes: Sequence[str] = (),
     extra_warnings: Sequence[str] = (),
+    tst: TSTEstimate | None = None,
+    experiment: Experiment | None = None,
 ) -> Summary:
     """Summarise a label table (columns ``run``, ``final_label``; rows in the set's own order).
 
-    ``a``/``b`` default to the two most common products.  ``ddg`` (ΔΔG‡ = G‡(b) − G‡(a), in
-    ``unit``) adds the TST ratio.  Runs without a label and ``excluded`` runs are left out of
+    ``a``/``b`` default to the two most common products.  The TST comparison comes from ``tst`` (a
+    :class:`~basinmark.core.tst.TSTEstimate` naming its products: the ratio asked is converted to the
+    order asked) or from ``ddg`` = G‡(b) − G‡(a) in ``unit``, which needs ``a`` and ``b`` named.  Runs without a label and ``excluded`` runs are left out of
     the fractions.  Optional columns add warnings: ``data_changed`` (from the journal) for labels
     set on files that have changed since; ``flags`` (';'-joined, from classification) for counted
     runs that failed the energy check or await a look, using ``hand_label`` when present to tell
@@ -438,6 +579,15 @@ def build_summary(
     if not 0.0 < half_width < 1.0:
         raise SummaryError(f"the interval half-width must lie between 0 and 1, got {half_width}")
     products = [str(p) for p in products]
+    if ddg is not None:
+        if tst is not None:
+            raise SummaryError("give either ddg (with its pair) or a TST estimate, not both")
+        if a is None or b is None:
+            raise SummaryError(f"ΔΔG‡ = {ddg:g} {unit} does not say which products it compares: name the pair "
+                               f"(ΔΔG‡ = G‡(b) − G‡(a) for the ratio a : b)")
+        tst = TSTEstimate.pair(a, b, ddg, unit, temperature, origin="the ΔΔG‡ given")
+    if tst is not None:
+        tst.check_products(products)
     final = list(labels["final_label"])
     order = products + [name for name in FIXED_ORDER if name in set(map(str, final))]
     table = stats.outcome_table(final, confidence, method, order=order)
@@ -455,7 +605,18 @@ def build_summary(
         k_b = 0
         ratio = eff = (math.nan, math.nan, math.nan)
         conv = pd.DataFrame()
-    tst = stats.tst_ratio(ddg, unit, temperature) if ddg is not None and a and b else None
+    tst_r = tst.ratio(a, b) if tst is not None and a and b else None
+    if experiment is None and tst is not None:
+        experiment = tst.experiment
+    if experiment is not None:
+        for name in (experiment.a, experiment.b):
+            if name not in products:
+                raise SummaryError(f"the measured ratio names {name!r}, which is not a product of the rules; "
+                                   f"products are: {', '.join(products) or '(none)'}")
+    measured = experiment
+    experiment = measured.interval(a, b) if measured is not None and a and b else None
+    shares = product_shares(counts, products, confidence, tst)
+    reactive = reactive_counts(counts, products, confidence, method)
 
     counts_all = dict(counts, excluded=n_excluded)
     # every warning names its runs (SummaryWarning.run_ids), so that a view can show exactly those
@@ -484,9 +645,66 @@ def build_summary(
         pair_runs = stats.runs_needed(k_a / (k_a + k_b), half_width, confidence)
         needed = math.ceil(pair_runs / pair_share - 1e-9)
 
+    pair_ddg = tst.ddg_for(a, b) if tst is not None and a and b else None
     settings = {"confidence": confidence, "method": method, "unit": unit, "temperature": temperature,
-                "ddg": ddg, "half_width": half_width, "a": a, "b": b}
-    return Summary(table=table, products=products, a=a, b=b, k_a=k_a, k_b=k_b, ratio=ratio, tst_ratio=tst,
+                "ddg": None if pair_ddg is None else float(convert_energy(pair_ddg, tst.unit, unit)),
+                "half_width": half_width, "a": a, "b": b}
+    return Summary(table=table, products=products, a=a, b=b, k_a=k_a, k_b=k_b, ratio=ratio, tst_ratio=tst_r,
                    effective_ddg=eff, warnings=warnings, n_runs=len(labels), n_counted=n_counted,
                    n_excluded=n_excluded, n_unlabelled=n_missing, runs_needed=needed, convergence=conv,
-                   settings=settings, notes=list(notes))
+                   settings=settings, notes=list(notes), tst=tst, shares=shares, reactive=reactive,
+                   experiment=experiment, measured=measured)
+
+
+def product_shares(counts: dict[str, int], products: Sequence[str], confidence: float,
+                   tst: TSTEstimate | None = None) -> pd.DataFrame:
+    """Each product's share among the reactive runs, with Goodman simultaneous intervals over all products.
+
+    ``tst_share`` is the share TST predicts among the products it has a barrier for (NaN otherwise);
+    a pair estimate gives none here (its two shares are the ratio, shown on its own line).
+    """
+    cols = ["product", "count", "share", "lo", "hi", "tst_share"]
+    if len(products) < 2:
+        return pd.DataFrame(columns=cols)
+    k = [int(counts.get(p, 0)) for p in products]
+    n = sum(k)
+    region = stats.goodman_intervals(k, confidence)
+    predicted = tst.shares(products) if tst is not None and not tst.is_pair else {}
+    rows = [{"product": p, "count": c, "share": c / n if n else math.nan, "lo": region[i, 0], "hi": region[i, 1],
+             "tst_share": predicted.get(p, math.nan)} for i, (p, c) in enumerate(zip(products, k))]
+    return pd.DataFrame(rows, columns=cols)
+
+
+def reactive_counts(counts: dict[str, int], products: Sequence[str], confidence: float, method: str) -> dict:
+    """Reactive and recrossing fractions of the counted runs and the transmission coefficient.
+
+    Each entry is ``{"k", "n", "value", "lo", "hi"}`` with the interval of ``method``; the transmission
+    coefficient is reactive / (reactive + recrossing) (see :data:`KAPPA_DEFINITION`).
+    """
+    n = int(sum(counts.values()))
+    reactive = int(sum(counts.get(p, 0) for p in products))
+    recrossing = int(counts.get("recrossing", 0))
+
+    def part(k: int, total: int) -> dict:
+        lo, hi = stats.proportion_interval(k, total, confidence, method)
+        return {"k": k, "n": total, "value": k / total if total else math.nan,
+                "lo": lo if total else math.nan, "hi": hi if total else math.nan}
+
+    return {"reactive_fraction": part(reactive, n), "recrossing_fraction": part(recrossing, n),
+            "transmission_coefficient": part(reactive, reactive + recrossing), "definition": KAPPA_DEFINITION}
+
+
+def _tst_dict(tst: TSTEstimate | None) -> dict | None:
+    if tst is None:
+        return None
+    out = {"unit": tst.unit, "temperature": tst.temperature, "source": tst.source, "stated_in": tst.origin}
+    if tst.is_pair:
+        out.update({"major": tst.major, "minor": tst.minor, "ddg": tst.ddg})
+    else:
+        out["barriers"] = dict(tst.barriers)
+        out["shares"] = tst.shares()
+    if tst.experiment is not None:
+        e = tst.experiment
+        out["experiment"] = {"numerator": e.a, "denominator": e.b, "ratio": e.ratio,
+                             "uncertainty": e.uncertainty, "source": e.source}
+    return out

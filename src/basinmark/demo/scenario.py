@@ -127,7 +127,9 @@ def manifest_text(name: str, temperature: float) -> str:
     return (f'# Set manifest written by basinmark make-demo; see src/basinmark/core/manifest.py for every key.\n'
             f'name = "{name}"\n\n'
             f'[tst]\n'
-            f'ddg = {INVENTED_DDG_KCAL}            # G‡(beta) - G‡(alpha) of two hypothetical separate transition states\n'
+            f'major = "alpha"\n'
+            f'minor = "beta"\n'
+            f'ddg = {INVENTED_DDG_KCAL}            # G‡(minor) - G‡(major) of two hypothetical separate transition states\n'
             f'unit = "kcal/mol"\n'
             f'temperature = {temperature:g}\n'
             f'source = "invented for the demo scenario; see README.md"\n')

@@ -23,6 +23,7 @@ from basinmark.core.errors import BasinmarkError
 from basinmark.core.summary import Summary, build_summary, run_ids_of
 from basinmark.core.timing import (COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, commit_time_histogram,
                                    concerted_fraction, gap_mode)
+from basinmark.core.tst import MAX_DDG_KCAL
 from basinmark.core.units import convert_energy
 from basinmark.gui.colours import outcome_colour
 
@@ -137,12 +138,25 @@ class SummaryPanel(QWidget):
         self.tst_box = QCheckBox("Compare with &TST:", self)
         self.tst_box.setToolTip("Show the product ratio transition state theory predicts from a ΔΔG‡")
         self.ddg = QDoubleSpinBox(self)
-        self.ddg.setRange(-50.0, 50.0)
+        self.ddg.setRange(-MAX_DDG_KCAL, MAX_DDG_KCAL)
         self.ddg.setDecimals(3)
         self.ddg.setSingleStep(0.1)
         self.ddg.setPrefix("ΔΔG‡ = ")
-        self.ddg.setToolTip("ΔΔG‡ = G‡(B) − G‡(A) for the ratio A : B (positive favours A)")
+        self.ddg.setToolTip("ΔΔG‡ = G‡(second) − G‡(first): positive when the first product has the lower barrier")
         self.ddg.setEnabled(False)
+        # the pair the ΔΔG‡ is about, named on its own: the ratio asked may be in either order
+        self.major_combo = QComboBox(self)
+        self.minor_combo = QComboBox(self)
+        self.major_combo.setToolTip("The product the ΔΔG‡ favours when positive")
+        self.minor_combo.setToolTip("The other product: ΔΔG‡ = G‡(this one) − G‡(the first)")
+        self.tst_for = QLabel("favouring", self)
+        self.tst_over = QLabel("over", self)
+        self.tst_barriers = QLabel(self)  # shown instead of the pair when the set states one barrier per product
+        self.tst_barriers.setObjectName("tstBarriers")
+        self.tst_barriers.setVisible(False)
+        self._set_barriers = None  # TSTEstimate from the set's per-product barriers
+        self._measured = None  # measured ratio stated by the set
+        self._tst_warning = ""  # why the set's estimate cannot be used
         self.unit = QComboBox(self)
         self.unit.addItems(UNITS)
         self.unit.setToolTip("Energy unit of ΔΔG‡ and of the effective ΔΔG")
@@ -171,7 +185,8 @@ class SummaryPanel(QWidget):
         at = QLabel("at", self)
         need = QLabel("&Runs needed for:", self)
         need.setBuddy(self.half_width)
-        for w in (ratio, self.a_combo, colon, self.b_combo, self.tst_box, self.ddg, self.unit, at, self.temperature,
+        for w in (ratio, self.a_combo, colon, self.b_combo, self.tst_box, self.ddg, self.tst_for, self.major_combo,
+                  self.tst_over, self.minor_combo, self.tst_barriers, self.unit, at, self.temperature,
                   need, self.half_width):
             controls.addWidget(w)
         controls.addStretch(1)
@@ -231,7 +246,9 @@ class SummaryPanel(QWidget):
         self.split = split
         outer.addWidget(split, 1)
 
-        self.tst_box.toggled.connect(self.ddg.setEnabled)
+        self.tst_box.toggled.connect(lambda _on: self._tst_enabled())
+        self.major_combo.currentIndexChanged.connect(lambda _i: self.refresh())
+        self.minor_combo.currentIndexChanged.connect(lambda _i: self.refresh())
         self.tst_box.toggled.connect(lambda _on: self.refresh())
         self.ddg.valueChanged.connect(lambda _v: self.refresh())
         self.unit.currentTextChanged.connect(self._unit_changed)
@@ -275,33 +292,93 @@ class SummaryPanel(QWidget):
     def _unit_changed(self, unit: str) -> None:
         old, self._unit = self._unit, unit
         self.ddg.blockSignals(True)  # keep the same energy in the new unit
-        self.ddg.setValue(float(convert_energy(self.ddg.value(), old, unit)))
+        value = float(convert_energy(self.ddg.value(), old, unit))
+        bound = float(convert_energy(MAX_DDG_KCAL, "kcal/mol", unit))
+        self.ddg.setRange(-bound, bound)
+        self.ddg.setValue(value)
         self.ddg.blockSignals(False)
         self.refresh()
 
+    def _tst_enabled(self) -> None:
+        on, barriers = self.tst_box.isChecked(), self._set_barriers is not None
+        for w in (self.ddg, self.major_combo, self.minor_combo, self.tst_for, self.tst_over):
+            w.setVisible(not barriers)
+            w.setEnabled(on)
+        self.tst_barriers.setVisible(barriers)
+        self.tst_barriers.setEnabled(on)
+
     def _take_set_tst(self) -> None:
-        """A set whose basinmark-set.toml states a ΔΔG‡ ([tst]) starts with that comparison shown."""
+        """A set whose basinmark-set.toml states a TST estimate ([tst]) starts with that comparison shown."""
         tset = self.state.tset
-        tst = None if tset is None else tset.metadata.get("tst")
-        if tst is not None:
-            unit = tst["unit"] if tst["unit"] in UNITS else UNITS[0]
-            self.set_tst(float(convert_energy(tst["ddg"], tst["unit"], unit)), unit, tst["temperature"])
-        elif tset is not None:
+        stated = None if tset is None else tset.metadata.get("tst")
+        if tset is None:
+            return
+        self._measured = stated.get("experiment") if stated else None
+        self._tst_warning = ""
+        est = stated.get("estimate") if stated else None
+        if stated and stated.get("kind") == "unnamed":
+            from basinmark.core.tst import unnamed_ddg_message
+
+            self._tst_warning = unnamed_ddg_message(stated["ddg"], stated["unit"], "basinmark-set.toml [tst]",
+                                                    self.products()) + " The TST comparison is left out until then."
+        if est is not None and not est.is_pair:
+            self.set_barriers(est)
+        elif est is not None:
+            unit = est.unit if est.unit in UNITS else UNITS[0]
+            self.set_tst(float(convert_energy(est.ddg, est.unit, unit)), unit, est.temperature, est.major, est.minor)
+        else:
             self.set_tst(None)  # another set's barrier must not be shown beside this set's ratio
 
-    def set_tst(self, ddg: float | None, unit: str = "kcal/mol", temperature: float = 298.15) -> None:
-        """Set ΔΔG‡ (None = no TST comparison), its unit and the temperature."""
-        for w in (self.tst_box, self.ddg, self.unit, self.temperature):
+    def set_barriers(self, estimate) -> None:
+        """Compare with one barrier per product (a :class:`~basinmark.core.tst.TSTEstimate`); None = no TST."""
+        self._set_barriers = estimate
+        for w in (self.tst_box, self.temperature):
+            w.blockSignals(True)
+        if estimate is not None:
+            self.temperature.setValue(estimate.temperature)
+            self.tst_barriers.setText(f"per-product barriers ({len(estimate.barriers)} products, "
+                                      f"basinmark-set.toml)")
+            self.tst_barriers.setToolTip(estimate.text())
+        self.tst_box.setChecked(estimate is not None)
+        for w in (self.tst_box, self.temperature):
+            w.blockSignals(False)
+        self._tst_enabled()
+        self.refresh()
+
+    def set_tst(self, ddg: float | None, unit: str = "kcal/mol", temperature: float = 298.15,
+                major: str | None = None, minor: str | None = None) -> None:
+        """Set ΔΔG‡ = G‡(minor) − G‡(major) (None = no TST comparison), its unit and the temperature.
+
+        Without names, the pair is the ratio shown now (ΔΔG‡ = G‡(B) − G‡(A) for A : B).
+        """
+        self._set_barriers = None
+        widgets = (self.tst_box, self.ddg, self.unit, self.temperature, self.major_combo, self.minor_combo)
+        for w in widgets:
             w.blockSignals(True)
         self.unit.setCurrentText(unit)
         self._unit = unit
+        bound = float(convert_energy(MAX_DDG_KCAL, "kcal/mol", unit))
+        self.ddg.setRange(-bound, bound)
         self.temperature.setValue(temperature)
         self.tst_box.setChecked(ddg is not None)
-        self.ddg.setEnabled(ddg is not None)
         if ddg is not None:
             self.ddg.setValue(ddg)
-        for w in (self.tst_box, self.ddg, self.unit, self.temperature):
+            self._fill_pair()
+            if major is None or minor is None:
+                shown = self.summary
+                products = self.products()
+                major = major or (shown.a if shown is not None and shown.a else (products[0] if products else None))
+                minor = minor or (shown.b if shown is not None and shown.b else
+                                  next((p for p in products if p != major), None))
+            for combo, name in ((self.major_combo, major), (self.minor_combo, minor)):
+                i = combo.findData(name)
+                if i < 0 and name is not None:  # a name the rules do not have: shown, and refused by the core
+                    combo.addItem(name, name)
+                    i = combo.count() - 1
+                combo.setCurrentIndex(max(i, 0))
+        for w in widgets:
             w.blockSignals(False)
+        self._tst_enabled()
         self.refresh()
 
     def set_pair(self, a: str | None, b: str | None) -> None:
@@ -326,11 +403,37 @@ class SummaryPanel(QWidget):
             i = combo.findData(keep) if keep is not None else 0
             combo.setCurrentIndex(max(i, 0))
             combo.blockSignals(False)
+        for combo in (self.major_combo, self.minor_combo):
+            keep = combo.currentData()
+            if [combo.itemData(i) for i in range(combo.count())] == products:
+                continue
+            combo.blockSignals(True)
+            combo.clear()
+            for p in products:
+                combo.addItem(p, p)
+            if keep is not None and combo.findData(keep) < 0:
+                combo.addItem(keep, keep)
+            combo.setCurrentIndex(max(combo.findData(keep) if keep is not None else 0, 0))
+            combo.blockSignals(False)
 
     def settings(self) -> dict:
-        return {"a": self.a_combo.currentData(), "b": self.b_combo.currentData(),
-                "ddg": self.ddg.value() if self.tst_box.isChecked() else None, "unit": self.unit.currentText(),
-                "temperature": self.temperature.value(), "half_width": self.half_width.value()}
+        """The keyword arguments of build_summary (the TST estimate is checked here: TSTError if absurd)."""
+        return {"a": self.a_combo.currentData(), "b": self.b_combo.currentData(), "tst": self.tst_estimate(),
+                "unit": self.unit.currentText(), "temperature": self.temperature.value(),
+                "half_width": self.half_width.value(), "experiment": self._measured}
+
+    def tst_estimate(self):
+        """The TST estimate the controls state (None when unchecked)."""
+        from basinmark.core.tst import TSTEstimate
+
+        if not self.tst_box.isChecked():
+            return None
+        if self._set_barriers is not None:
+            b = self._set_barriers
+            return TSTEstimate.from_barriers(b.barriers, b.unit, self.temperature.value(), source=b.source,
+                                             origin=b.origin)
+        return TSTEstimate.pair(self.major_combo.currentData(), self.minor_combo.currentData(), self.ddg.value(),
+                                self.unit.currentText(), self.temperature.value(), origin="the TST controls")
 
     # --- computing (all in the core) ------------------------------------------------------
     def products(self) -> list[str]:
@@ -377,7 +480,9 @@ class SummaryPanel(QWidget):
             if st.rules is None:
                 notes.append("no rules: every label other than the fixed ones counts as a product")
             try:
-                self.summary = build_summary(labels, self.products(), notes=notes, **self.settings())
+                extra = [self._tst_warning] if self._tst_warning else []
+                self.summary = build_summary(labels, self.products(), notes=notes, extra_warnings=extra,
+                                             **self.settings())
             except BasinmarkError as exc:
                 self.error = str(exc)
             self._timings(labels)
