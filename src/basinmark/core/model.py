@@ -10,7 +10,10 @@ Conventions (see DEVELOPERS.md):
 * per-frame energies are in eV (ASE's unit) under the keys ``potential``,
   ``kinetic`` and ``total`` when known;
 * a run's identity for labels is :attr:`Trajectory.content_hash`, the SHA-256
-  over the SHA-256 of each source file's bytes, in order.
+  over the SHA-256 of each source file's decompressed content, in order, and
+  over :attr:`Trajectory.reading` (a digest of the settings that decided which
+  numbers were read: units, keys, time step and convention; see
+  :mod:`basinmark.core.content_hash`).
 """
 
 from __future__ import annotations
@@ -32,18 +35,20 @@ ENERGY_KEYS = ("potential", "kinetic", "total")
 
 @dataclass(frozen=True)
 class SourceFile:
-    """One file a run was read from, with the SHA-256 of its bytes as stored on disk."""
+    """One file a run was read from, with the SHA-256 of its content (after decompression)."""
 
     path: Path
     sha256: str
     role: str = "joined"  # "backward", "forward" or "joined"
 
 
-def combined_hash(sources: Sequence[SourceFile]) -> str:
-    """SHA-256 over the ordered list of the sources' hashes (the run's content hash)."""
+def combined_hash(sources: Sequence[SourceFile], reading: str = "") -> str:
+    """SHA-256 over the ordered list of the sources' hashes and the reading digest (the run's content hash)."""
     h = hashlib.sha256()
     for s in sources:
         h.update(f"{s.role}:{s.sha256}\n".encode("ascii"))
+    if reading:
+        h.update(f"reading:{reading}\n".encode("ascii"))
     return h.hexdigest()
 
 
@@ -60,6 +65,7 @@ class Trajectory:
     sources: tuple[SourceFile, ...] = ()
     metadata: dict = field(default_factory=dict)
     problems: list[str] = field(default_factory=list)  # non-fatal problems found while loading
+    reading: str = ""  # digest of how the files were read (units, keys, time settings); part of content_hash
 
     def __post_init__(self) -> None:
         self.numbers = np.asarray(self.numbers, dtype=np.int16)
@@ -96,7 +102,7 @@ class Trajectory:
 
     @property
     def content_hash(self) -> str:
-        return combined_hash(self.sources)
+        return combined_hash(self.sources, self.reading)
 
     @property
     def ts_index(self) -> int:

@@ -3,8 +3,9 @@
 Measured on the bundled set (200 runs): per-run ``.npz`` entries cost ~0.5 ms each to open (zip and
 header parsing dominate), a quarter of a second for the set; one entry of a few ``.npy`` arrays plus a
 JSON index opens in a few milliseconds.  The entry is named by a hash of every source file's SHA-256,
-the layout and the cache version, so any changed, added or removed file makes a new entry; the files are
-always hashed on open (cheap, and the content hashes bind the labels).  Positions are memory-mapped
+the layout and the cache version, so any changed, added or removed file makes a new entry; the stored
+bytes are hashed on every open (cheap: the key), while each run's content hash (of the decompressed
+content and of how it was read, which binds the labels) is computed once when a run is parsed and kept here.  Positions are memory-mapped
 read-only: stored once, shared by all runs as views, and paged in only when a run is looked at.
 """
 
@@ -21,7 +22,7 @@ import numpy as np
 
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory
 
-SNAPSHOT_VERSION = "1"
+SNAPSHOT_VERSION = "2"  # 2: content hashes of decompressed data and a reading digest per run
 _ENERGY_KEYS = ("potential", "kinetic", "total")
 
 
@@ -61,7 +62,8 @@ def load_snapshot(folder: Path, key: str, root: Path | None = None) -> tuple[dic
         sources = tuple(SourceFile(_rerooted(p, old_root, root), sha, role) for p, sha, role in r["sources"])
         runs[r["run_id"]] = Trajectory(r["run_id"], np.asarray(r["numbers"]), positions[a:b], times[a:b], ens,
                                        sources=sources, problems=list(r["problems"]),
-                                       metadata={"file_keys": list(r.get("file_keys", []))})
+                                       metadata={"file_keys": list(r.get("file_keys", []))},
+                                       reading=str(r.get("reading", "")))
     failures = [LoadFailure(_rerooted(f["path"], old_root, root),
                             f["reason"].replace(old_root, str(root)) if old_root else f["reason"], f["line"])
                 for f in index["failures"]]
@@ -103,7 +105,8 @@ def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures
             "runs": [{"run_id": t.run_id, "start": int(a), "stop": int(b), "numbers": t.numbers.tolist(),
                       "energies": [k for k in keys if k in t.energies],
                       "sources": [[rel(s.path), s.sha256, s.role] for s in t.sources],
-                      "problems": list(t.problems), "file_keys": list(t.metadata.get("file_keys", []))}
+                      "problems": list(t.problems), "file_keys": list(t.metadata.get("file_keys", [])),
+                      "reading": t.reading}
                      for t, a, b in zip(trajs, starts, stops)],
             "failures": [{"path": rel(f.path), "reason": f.reason, "line": f.line} for f in failures],
         }

@@ -23,6 +23,7 @@ from typing import Callable, Iterator
 
 import numpy as np
 
+from basinmark.core.content_hash import content_sha256, reading_digest
 from basinmark.core.errors import BasinmarkError, SetError, TrajectoryFileError
 from basinmark.core.manifest import SetLayout, load_layout
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory, TrajectorySet
@@ -32,7 +33,7 @@ from basinmark.core.set_cache import load_snapshot, snapshot_key, store_snapshot
 JOURNAL_NAME = "basinmark-labels.jsonl"
 RULES_NAME = "basins.toml"
 CACHE_NAME = ".basinmark-cache"
-CACHE_VERSION = "1"
+CACHE_VERSION = "2"  # 2: sources carry content hashes of decompressed data, and a reading digest
 #: first frames of the two halves must agree this well (Å) to be the same transition-state point
 TS_MATCH_TOLERANCE = 1e-3
 
@@ -131,7 +132,9 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
     if layout.length_factor != 1.0:
         positions = positions * np.float32(layout.length_factor)
     time_key, times = _pick(block.info, layout.keys["time"])
-    recipe = {"time": time_key}
+    recipe: dict = {"time_key": time_key}
+    if time_key is not None:
+        recipe["time_factor"] = layout.time_factor
     if times is not None:
         if np.isnan(times).any():
             bad = int(np.flatnonzero(np.isnan(times))[0])
@@ -144,12 +147,13 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
         key, values = _pick(block.info, layout.keys[role])
         if values is not None:
             energies[role] = values * layout.energy_factor
-            recipe[role] = key
+            recipe[f"{role}_key"] = key
+            recipe["energy_factor"] = layout.energy_factor
     if "kinetic" not in energies:
         kinetic = _kinetic_from_momenta(block)
         if kinetic is not None:
             energies["kinetic"] = kinetic
-            recipe["kinetic"] = "(momenta)"
+            recipe["kinetic_key"] = "(momenta)"
     return _Half(block.numbers, positions, times, energies, list(block.warnings), sorted(block.info), recipe)
 
 
@@ -179,12 +183,14 @@ def _half_times(half: _Half, layout: SetLayout, path: Path, backward: bool) -> n
         else:
             step = layout.step_fs
         t = np.arange(n) * step
+        half.recipe["step_fs"] = step
     else:
         t = half.times - half.times[0]  # elapsed from the transition state
     if backward:
         mode = layout.backward_time
         if mode == "auto":
             mode = "signed" if (half.times is not None and n > 1 and half.times[-1] < half.times[0]) else "elapsed"
+        half.recipe["backward_time"] = mode
         t = -np.abs(t) if mode == "elapsed" else t
         if n > 1 and not np.all(np.diff(t) < 0):
             raise TrajectoryFileError(path, "backward half: times do not move steadily away from t = 0")
@@ -194,8 +200,15 @@ def _half_times(half: _Half, layout: SetLayout, path: Path, backward: bool) -> n
     return t
 
 
-def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = None) -> Trajectory:
-    sha = (lambda path: hashes[path] if hashes and path in hashes else _sha256_file(path))  # noqa: E731
+def _reading(layout: SetLayout, **halves: _Half) -> str:
+    """Digest of how the run's files were read (folded into its content hash; see core/content_hash.py).
+
+    Any new manifest setting that changes the values read from a file must add itself to ``_Half.recipe``."""
+    return reading_digest({"length_factor": layout.length_factor, **{k: h.recipe for k, h in halves.items()}})
+
+
+def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
+    sha = content_sha256  # of the decompressed content: re-compressing a file keeps its labels
     problems: list[str] = []
     if spec.joined is not None:
         half = _read_half(spec.joined, layout)
@@ -205,6 +218,7 @@ def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = Non
             if layout.step_fs is None:
                 problems.append(f"{spec.joined.name} has no time key; 1 fs per frame from t = 0 assumed")
             times = np.arange(half.positions.shape[0]) * step
+            half.recipe["step_fs"] = step
         if half.positions.shape[0] > 1 and not np.all(np.diff(times) > 0):
             raise TrajectoryFileError(spec.joined, "times are not increasing (a joined run must run from "
                                                    "negative to positive times)")
@@ -219,7 +233,8 @@ def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = Non
         if not half.energies:
             problems.append(no_energy_note(half.keys))
         return Trajectory(spec.run_id, half.numbers, half.positions, times, half.energies,
-                          sources=sources, problems=problems + half.problems, metadata={"file_keys": half.keys})
+                          sources=sources, problems=problems + half.problems, metadata={"file_keys": half.keys},
+                          reading=_reading(layout, joined=half))
     bwd = _read_half(spec.backward, layout)
     fwd = _read_half(spec.forward, layout)
     if not np.array_equal(bwd.numbers, fwd.numbers):
@@ -262,7 +277,7 @@ def _join(spec: RunSpec, layout: SetLayout, hashes: dict[Path, str] | None = Non
     if not bwd.energies and not fwd.energies:
         problems.append(no_energy_note(keys))
     return Trajectory(spec.run_id, bwd.numbers, positions, times, energies, sources=sources,
-                      metadata={"file_keys": keys},
+                      metadata={"file_keys": keys}, reading=_reading(layout, backward=bwd, forward=fwd),
                       problems=problems + bwd.problems + fwd.problems)
 
 
@@ -288,10 +303,9 @@ class RunCache:
             h.update(f"{role}:{sha}\n".encode())
         return h.hexdigest()
 
-    def load(self, spec: RunSpec, known: dict[Path, str] | None = None) -> Trajectory | None:
-        roles = [(r, getattr(spec, r)) for r in ("backward", "forward", "joined") if getattr(spec, r)]
-        hashes = [(r, known[p] if known and p in known else _sha256_file(p)) for r, p in roles]
-        path = self.folder / f"{self.key(spec, hashes)}.npz"
+    def load(self, spec: RunSpec, stored: list[tuple[str, str]]) -> Trajectory | None:
+        """The cached run for these stored-bytes hashes ``[(role, sha)]``, or None."""
+        path = self.folder / f"{self.key(spec, stored)}.npz"
         if not path.exists():
             return None
         try:
@@ -299,24 +313,27 @@ class RunCache:
                 energies = {k[7:]: z[k] for k in z.files if k.startswith("energy_")}
                 problems = [str(p) for p in z["problems"]] if "problems" in z.files else []
                 keys = [str(k) for k in z["file_keys"]] if "file_keys" in z.files else []
+                content = [str(h) for h in z["source_sha"]]
+                roles = [(r, getattr(spec, r)) for r, _ in stored]
                 return Trajectory(spec.run_id, z["numbers"], z["positions"], z["times"], energies,
-                                  sources=tuple(SourceFile(p, sha, r) for (r, sha), (_, p) in zip(hashes, roles)),
-                                  problems=problems, metadata={"file_keys": keys})
+                                  sources=tuple(SourceFile(p, sha, r) for sha, (r, p) in zip(content, roles)),
+                                  problems=problems, metadata={"file_keys": keys}, reading=str(z["reading"]))
         except Exception:  # a damaged cache entry is simply rebuilt
             return None
 
-    def store(self, spec: RunSpec, traj: Trajectory) -> None:
-        hashes = [(s.role, s.sha256) for s in traj.sources]
+    def store(self, spec: RunSpec, traj: Trajectory, stored: list[tuple[str, str]]) -> None:
         try:
             self.folder.mkdir(parents=True, exist_ok=True)
             arrays = {"numbers": traj.numbers, "positions": traj.positions, "times": traj.times,
                       "problems": np.array(traj.problems, dtype=str),
-                      "file_keys": np.array(traj.metadata.get("file_keys", []), dtype=str)}
+                      "file_keys": np.array(traj.metadata.get("file_keys", []), dtype=str),
+                      "source_sha": np.array([s.sha256 for s in traj.sources], dtype=str),
+                      "reading": np.array(traj.reading)}
             arrays.update({f"energy_{k}": v for k, v in traj.energies.items()})
             fd, tmp = tempfile.mkstemp(dir=self.folder, suffix=".tmp")
             with os.fdopen(fd, "wb") as fh:
                 np.savez(fh, **arrays)
-            os.replace(tmp, self.folder / f"{self.key(spec, hashes)}.npz")
+            os.replace(tmp, self.folder / f"{self.key(spec, stored)}.npz")
         except OSError:
             pass  # no cache is no failure
 
@@ -325,13 +342,16 @@ class RunCache:
 
 def _load_one(spec: RunSpec, layout: SetLayout, cache: RunCache | None,
               hashes: dict[Path, str] | None = None) -> Trajectory:
-    if cache is not None:
-        hit = cache.load(spec, hashes)
-        if hit is not None:
-            return hit
-    traj = _join(spec, layout, hashes)
-    if cache is not None:
-        cache.store(spec, traj)
+    if cache is None:
+        return _join(spec, layout)
+    # the cache is keyed by the stored bytes (cheap to hash on every open); the run carries content hashes
+    stored = [(r, hashes[p] if hashes and p in hashes else _sha256_file(p))
+              for r in ("backward", "forward", "joined") if (p := getattr(spec, r)) is not None]
+    hit = cache.load(spec, stored)
+    if hit is not None:
+        return hit
+    traj = _join(spec, layout)
+    cache.store(spec, traj, stored)
     return traj
 
 
