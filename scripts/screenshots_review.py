@@ -80,9 +80,8 @@ def render(set_path: Path, out_dir: Path, size: tuple[int, int]) -> list[Path]:
 
         panel = win.review_panel
         review.toggleViewAction().trigger()
-        panel.set_mode("labelers")
-        panel.who_a.setCurrentText("labeler-a")
-        panel.who_b.setCurrentText("labeler-b")
+        panel.refresh_sources()
+        panel.set_sources(("person", "labeler-a"), ("person", "labeler-b"))
         panel.reviewer.setText("reviewer")
         panel.compare()
         panel.queue_view.selectRow(0)

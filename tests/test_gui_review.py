@@ -65,8 +65,7 @@ def setup(qtbot, tmp_path):
 def test_two_journals_list_exactly_the_disagreements(setup):
     win, dock, root, other = setup
     panel = win.review_panel
-    panel.set_mode("file")
-    panel.other.setText(str(other))
+    panel.set_sources(("final",), ("file", str(other)))
     review = panel.compare()
     assert review is not None and review.n == len(RUNS)
     assert list(panel.queue["run"]) == DISAGREE
@@ -92,8 +91,7 @@ def test_decisions_by_key_write_review_events_and_complete(setup, qtbot):
     win, dock, root, other = setup
     panel = win.review_panel
     dock.toggleViewAction().trigger()
-    panel.set_mode("file")
-    panel.other.setText(str(other))
+    panel.set_sources(("final",), ("file", str(other)))
     panel.compare()
     panel.reviewer.setText("carla")
     # selecting a queue entry shows that run in the window
@@ -136,9 +134,7 @@ def test_two_labelers_of_one_journal_and_export(setup, tmp_path):
         j.record(run, lab, content_hash=hashes[run], labeler="bo")
     panel = win.review_panel
     panel.refresh_sources()
-    panel.set_mode("labelers")
-    panel.who_a.setCurrentText("ann")
-    panel.who_b.setCurrentText("bo")
+    panel.set_sources(("person", "ann"), ("person", "bo"))
     review = panel.compare()
     assert list(panel.queue["run"]) == DISAGREE
     assert review.kappa == pytest.approx(cohen_kappa_score(ANN, BO), abs=1e-12)  # scikit-learn reference
@@ -146,7 +142,7 @@ def test_two_labelers_of_one_journal_and_export(setup, tmp_path):
     out = panel.export_report(tmp_path / "review.md")
     text = out.read_text()
     assert "# Review: ann vs bo" in text and "| toy-005 |" in text and "| toy-001 |" not in text
-    panel.who_b.setCurrentText("ann")
+    panel.source_b.set_source("person", "ann")
     assert panel.compare() is None and "different" in panel.summary.text()
 
 
@@ -166,7 +162,7 @@ def test_automatic_against_hand(qtbot, tmp_path):
     win = _open(qtbot, tmp_path, root)
     install_review_dock(win)
     panel = win.review_panel
-    panel.set_mode("auto_hand")
+    panel.set_sources(("auto",), ("hand",))
     review = panel.compare()
     assert review.n == 2 and list(panel.queue["run"]) == ["toy-003"]
     assert "only 2 runs" in panel.warning.text()
@@ -183,8 +179,7 @@ def test_readonly_journal_disables_decisions(qtbot, tmp_path):
         win = _open(qtbot, tmp_path, root)
         install_review_dock(win)
         panel = win.review_panel
-        panel.set_mode("file")
-        panel.other.setText(str(other))
+        panel.set_sources(("final",), ("file", str(other)))
         panel.compare()
         assert list(panel.queue["run"]) == DISAGREE
         assert not panel.take_a.isEnabled() and not panel.decide_button.isEnabled()
@@ -211,8 +206,7 @@ def test_labels_changing_elsewhere_do_not_move_the_window(setup, qtbot):
     win, dock, root, other = setup
     panel = win.review_panel
     dock.toggleViewAction().trigger()
-    panel.set_mode("file")
-    panel.other.setText(str(other))
+    panel.set_sources(("final",), ("file", str(other)))
     panel.compare()
     panel.queue_view.selectRow(2)
     assert win.state.run_id == "toy-008"
@@ -229,8 +223,7 @@ def test_labels_changing_elsewhere_do_not_move_the_window(setup, qtbot):
 def test_opening_another_set_drops_the_review_so_nothing_of_it_is_decided_there(setup, qtbot, tmp_path):
     win, dock, root, other = setup
     panel = win.review_panel
-    panel.set_mode("file")
-    panel.other.setText(str(other))
+    panel.set_sources(("final",), ("file", str(other)))
     assert panel.compare() is not None and len(panel.queue) == 3
     second = make_toy_set(tmp_path / "second", OUTCOMES)
     with qtbot.waitSignal(win.set_loaded, timeout=20000):

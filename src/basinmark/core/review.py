@@ -243,3 +243,94 @@ def render_markdown(review: Review, *, title: str | None = None, max_disagreemen
     else:
         lines.append("None.")
     return "\n".join(lines) + "\n"
+
+
+# --- label sources of a journal (for choosing A and B) and blind labeling ---------------------------
+
+CURRENT_RULES = "rules (current)"  # the labeler named on labels classified now, not read from the journal
+
+
+def current_auto_labels(classification: pd.DataFrame | None) -> pd.DataFrame:
+    """The automatic outcome of every run from a classification table (``run``, ``outcome``, ``flags``)
+    made now with the current rules, as a label frame indexed by run; nothing needs to be recorded first."""
+    if classification is None or not len(classification):
+        return pd.DataFrame(columns=["label", "labeler", "reason"])
+    runs = classification["run"].astype(str)
+    flags = (classification["flags"].fillna("").astype(str) if "flags" in classification
+             else pd.Series("", index=classification.index))
+    out = pd.DataFrame({"label": classification["outcome"].to_numpy(), "labeler": CURRENT_RULES,
+                        "reason": [f"flags: {f.replace(';', ', ')}" if f else "" for f in flags]},
+                       index=pd.Index(runs.to_numpy(), name="run"))
+    return out[out["label"].notna() & (out["label"].astype(str) != "")]
+
+
+def people(journal: LabelJournal) -> list[str]:
+    """Labelers who set labels by hand (hand, import or review events), in order of first appearance.
+
+    Automatic labels are credited to ``rule:<rules hash>``; those names are left out here.
+    """
+    from basinmark.core.labels import HAND_SOURCES
+
+    seen: dict[str, None] = {}
+    for ev in journal.events:
+        if ev.get("kind") == "label" and ev.get("source") in HAND_SOURCES and ev.get("labeler"):
+            seen.setdefault(str(ev["labeler"]), None)
+    return list(seen)
+
+
+def blind_state(journal: LabelJournal, labeler: str,
+                current_hashes: dict[str, str] | None = None) -> pd.DataFrame:
+    """The journal's current labels as ``labeler`` may see them while labeling blind.
+
+    Same columns as :meth:`LabelJournal.state`, but a run's hand label is only ``labeler``'s own
+    (latest, undo respected); other people's hand labels, names and reasons are left out, and the
+    final label falls back to the automatic one.  Used so that a second opinion is not anchored on
+    the first.
+    """
+    full = journal.state(current_hashes)
+    if full.empty:
+        return full
+    own = journal.labels(labeler)
+    auto = journal.labels("auto")
+
+    def changed(ev) -> object:
+        if current_hashes is None or ev is None or ev["run"] not in current_hashes:
+            return None
+        return ev.get("content_hash") != current_hashes[ev["run"]]
+
+    own_rows = own.to_dict("index")
+    auto_rows = auto.to_dict("index")
+    rows = []
+    for rec in full.to_dict("records"):
+        run = rec["run"]
+        mine = own_rows.get(run)
+        a = auto_rows.get(run)
+        if mine is not None:
+            mine = dict(mine, run=run)
+            rows.append(dict(rec, hand_label=mine["label"], final_label=mine["label"], labeler=labeler,
+                             time=mine.get("time"), reason=mine.get("reason", ""), data_changed=changed(mine)))
+        else:
+            a = None if a is None else dict(a, run=run)
+            rows.append(dict(rec, hand_label=None, final_label=a and a["label"], labeler=a and a.get("labeler"),
+                             time=a and a.get("time"), reason=(a.get("reason", "") if a else None),
+                             data_changed=changed(a)))
+    out = pd.DataFrame(rows, columns=full.columns)
+    out["events"] = out["events"].astype("int64")
+    out["data_changed"] = out["data_changed"].astype("boolean")
+    return out
+
+
+def blind_undo_refusal(journal: LabelJournal, run_id: str, labeler: str) -> str:
+    """Why ``labeler``, labeling blind, may not undo on ``run_id`` ('' when the undo is theirs to make).
+
+    An undo takes back the run's latest hand label, whoever set it; while labeling blind that could
+    silently take back another person's label, so it is refused (without saying what that label is).
+    """
+    hand = journal.labels("hand")
+    if run_id not in hand.index:
+        return ""
+    who = hand.at[run_id, "labeler"]
+    if who == labeler:
+        return ""
+    return (f"Nothing undone: the latest hand label of {run_id} is not yours, and undo would take it back. "
+            "Turn blind labeling off to see and undo it.")

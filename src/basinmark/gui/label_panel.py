@@ -189,6 +189,8 @@ class LabelPanel(QWidget):
             hist = j.history(run_id)
         except Exception:  # a tooltip must never break the panel
             return ""
+        if self.state.blind_labeler:  # blind labeling: only this person's own events
+            hist = hist[hist["labeler"] == self.state.blind_labeler]
         if hist.empty:
             return "No label events for this run in the journal."
         lines = []
@@ -240,6 +242,13 @@ class LabelPanel(QWidget):
         if row is None or not row.get("hand_label"):
             self._say(f"Nothing to undo: {traj.run_id} has no hand label.")
             return False
+        if st.blind_labeler:
+            from basinmark.core.review import blind_undo_refusal
+
+            refused = blind_undo_refusal(st.journal, traj.run_id, st.blind_labeler)
+            if refused:
+                self._say(refused)
+                return False
         try:
             ev = st.journal.undo(traj.run_id, labeler=self.labeler_name or None)
         except BasinmarkError as exc:

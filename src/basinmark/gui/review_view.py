@@ -1,7 +1,8 @@
 """Review mode: compare two label sources, list their disagreements, and adjudicate them.
 
-Sources: two labelers of the open journal, the open journal against another journal file, or the
-automatic against the hand labels.  Every number (matrix, agreement, kappa, interval, band) comes
+Sources (A and B, see :mod:`basinmark.gui.review_sources`): any person who labeled in the open journal,
+the automatic classification (made now with the current rules, or as recorded), the final labels, anyone's
+hand labels, or any of these from another journal file.  Every number (matrix, agreement, kappa, interval, band) comes
 from :mod:`basinmark.core.review`; decisions go into the open journal as review events
 (:meth:`LabelJournal.adjudicate`), and a ``review_complete`` event is written when the last
 disagreement is settled.  A disagreement counts as settled when the journal holds a review event for
@@ -17,18 +18,21 @@ import pandas as pd
 from PySide6.QtCore import QEvent, Qt, Signal
 from PySide6.QtGui import QAction, QBrush, QColor, QFont, QKeySequence, QPalette
 from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFileDialog, QFormLayout, QHBoxLayout,
-                               QHeaderView, QLabel, QLineEdit, QPushButton, QStackedWidget, QTableWidget,
+                               QHeaderView, QLabel, QLineEdit, QPushButton, QTableWidget,
                                QTableWidgetItem, QVBoxLayout, QWidget)
 
 from basinmark.core.errors import BasinmarkError
-from basinmark.core.journal import LabelJournal
-from basinmark.core.review import SE_METHOD, Review, compare_labelers, compare_labels, render_markdown
+from basinmark.core.review import SE_METHOD, Review, compare_labels, current_auto_labels, people, render_markdown
 from basinmark.gui.label_panel import panel_labels
+from basinmark.gui.review_sources import SourcePicker, source_labels
 from basinmark.gui.movie import find_menu
 
-MODES = (("labelers", "Two labelers of this journal"), ("file", "This journal against another journal file"),
-         ("auto_hand", "Automatic labels against hand labels"))
-SIDES = ("final", "auto", "hand")
+EMPTY_HINT = {
+    "auto": "no automatic labels are recorded in the journal; choose 'automatic, current rules' to compare the "
+            "classification made now",
+    "hand": "nobody has labeled a run by hand yet",
+    "person": "this person has no label in force (all undone)",
+}
 QUEUE_COLUMNS = ["run", "A", "labeler A", "reason A", "B", "labeler B", "reason B"]
 
 
@@ -91,51 +95,16 @@ class ReviewPanel(QWidget):
         self.state = state
         self.review: Review | None = None
         self.queue: pd.DataFrame = pd.DataFrame()
-        self.other_path: Path | None = None
         self._completed_key: tuple | None = None
         self._why_shown = ""
         lay = QVBoxLayout(self)
         lay.setContentsMargins(6, 4, 6, 4)
 
         form = QFormLayout()
-        self.mode = QComboBox(self)
-        for key, text in MODES:
-            self.mode.addItem(text, key)
-        self.mode.setToolTip("Which two label sources to compare")
-        form.addRow("Compare", self.mode)
-        self.pages = QStackedWidget(self)
-        # page 0: two labelers
-        p0 = QWidget(self)
-        l0 = QHBoxLayout(p0)
-        l0.setContentsMargins(0, 0, 0, 0)
-        self.who_a, self.who_b = QComboBox(p0), QComboBox(p0)
-        for c, tip in ((self.who_a, "Labeler A (rows of the matrix)"), (self.who_b, "Labeler B (columns)")):
-            c.setToolTip(tip)
-            c.setMinimumContentsLength(10)
-        l0.addWidget(QLabel("A", p0))
-        l0.addWidget(self.who_a, 1)
-        l0.addWidget(QLabel("B", p0))
-        l0.addWidget(self.who_b, 1)
-        self.pages.addWidget(p0)
-        # page 1: another journal
-        p1 = QWidget(self)
-        l1 = QHBoxLayout(p1)
-        l1.setContentsMargins(0, 0, 0, 0)
-        self.other = QLineEdit(p1)
-        self.other.setPlaceholderText("second journal file (.jsonl) or set folder")
-        self.other.setToolTip("Labels B come from this journal; A is the open set's journal")
-        self.browse = QPushButton("Browse…", p1)
-        self.browse.setToolTip("Choose the second label journal")
-        self.side = QComboBox(p1)
-        self.side.addItems(SIDES)
-        self.side.setToolTip("Which label of each run to compare: final (hand if any, else automatic), "
-                             "automatic or hand")
-        l1.addWidget(self.other, 1)
-        l1.addWidget(self.browse)
-        l1.addWidget(self.side)
-        self.pages.addWidget(p1)
-        self.pages.addWidget(QLabel("A: automatic labels (rules) · B: hand labels", self))
-        form.addRow("", self.pages)
+        self.source_a = SourcePicker("A", state, self)
+        self.source_b = SourcePicker("B", state, self)
+        form.addRow("Compare", self.source_a)
+        form.addRow("with", self.source_b)
         lay.addLayout(form)
         row = QHBoxLayout()
         self.compare_button = QPushButton("Compare", self)
@@ -209,8 +178,8 @@ class ReviewPanel(QWidget):
         self.status.setWordWrap(True)
         lay.addWidget(self.status)
 
-        self.mode.currentIndexChanged.connect(self._mode_changed)
-        self.browse.clicked.connect(self.choose_other)
+        for picker in (self.source_a, self.source_b):
+            picker.changed.connect(self._source_changed)
         self.compare_button.clicked.connect(self.compare)
         self.export_button.clicked.connect(lambda: self.export_report())
         self.queue_view.itemSelectionChanged.connect(self._selected)
@@ -220,33 +189,55 @@ class ReviewPanel(QWidget):
         self.decide_button.clicked.connect(lambda: self.decide(self.choice.currentText()))
         self.complete_button.clicked.connect(lambda: self.record_complete())
         state.journal_changed.connect(self.refresh_sources)
+        state.rules_changed.connect(self.refresh_sources)
         state.rules_changed.connect(self._fill_choices)
         self.refresh_sources()
         self._fill_choices()
-        self._mode_changed()
 
     # --- sources ----------------------------------------------------------------------------
-    @property
-    def mode_key(self) -> str:
-        return str(self.mode.currentData())
+    def source_entries(self) -> tuple[list[tuple[tuple, str]], tuple, tuple]:
+        """The open journal's label sources with their run counts, and the default A and B.
 
-    def set_mode(self, key: str) -> None:
-        self.mode.setCurrentIndex([k for k, _t in MODES].index(key))
+        Defaults: two people when two have labeled; else the automatic classification against the one
+        person (current rules, so nothing has to be recorded first); else automatic against hand.
+        """
+        j, cls = self.state.journal, self.state.classification
+        entries: list[tuple[tuple, str]] = []
 
-    def _mode_changed(self) -> None:
-        self.pages.setCurrentIndex(self.mode.currentIndex())
+        def runs(n: int) -> str:
+            return f"{n} run{'s' if n != 1 else ''}"
+
+        names = people(j) if j is not None else []
+        for name in names:
+            entries.append((("person", name), f"{name} — {runs(len(j.labels(name)))}"))
+        if cls is not None:
+            entries.append((("auto_now", ""), f"automatic, current rules — {runs(len(current_auto_labels(cls)))}"))
+        if j is not None:
+            entries.append((("auto", ""), f"automatic, recorded in the journal — {runs(len(j.labels('auto')))}"))
+            entries.append((("final", ""), f"final labels (hand, else recorded automatic) — "
+                                           f"{runs(len(j.labels('final')))}"))
+            entries.append((("hand", ""), f"hand labels, anyone — {runs(len(j.labels('hand')))}"))
+        auto = ("auto_now", "") if cls is not None else ("auto", "")
+        if len(names) >= 2:
+            return entries, ("person", names[0]), ("person", names[1])
+        if names:
+            return entries, auto, ("person", names[0])
+        return entries, auto, ("hand", "")
 
     def refresh_sources(self) -> None:
-        j = self.state.journal
-        names = list(SIDES) + (list(j.labelers()) if j is not None else [])
-        for combo, default in ((self.who_a, 0), (self.who_b, 1)):
-            keep = combo.currentText()
-            combo.blockSignals(True)
-            combo.clear()
-            combo.addItems(names)
-            combo.setCurrentIndex(names.index(keep) if keep in names else min(default, len(names) - 1))
-            combo.blockSignals(False)
+        entries, da, db = self.source_entries()
+        self.source_a.fill(entries, da)
+        self.source_b.fill(entries, db)
         self._update_enabled()
+
+    def set_sources(self, a: tuple, b: tuple) -> None:
+        """Choose A and B: each ``(kind, name)`` or ``(kind, name, which)`` (see review_sources.KINDS)."""
+        self.source_a.set_source(*a)
+        self.source_b.set_source(*b)
+
+    def _source_changed(self) -> None:
+        if self.review is not None:  # the numbers shown belong to the sources chosen before
+            self.compare()
 
     def _fill_choices(self) -> None:
         keep = self.choice.currentText()
@@ -256,26 +247,6 @@ class ReviewPanel(QWidget):
         if keep in labels:
             self.choice.setCurrentText(keep)
 
-    def choose_other(self) -> None:
-        start = str(self.state.tset.root) if self.state.tset is not None else str(Path.home())
-        path, _ = QFileDialog.getOpenFileName(self, "Second label journal", start,
-                                              "Label journals (*.jsonl);;All files (*)")
-        if path:
-            self.other.setText(path)
-            self.compare()
-
-    def _other_journal(self) -> Path:
-        from basinmark.core.sets import journal_path
-
-        text = self.other.text().strip()
-        if not text:
-            raise BasinmarkError("choose the second journal (a .jsonl file or a set folder) first")
-        p = Path(text).expanduser()
-        path = journal_path(p) if p.is_dir() else p
-        if not path.is_file():
-            raise BasinmarkError(f"there is no label journal at {path}")
-        return path
-
     # --- comparing -------------------------------------------------------------------------
     def compare(self) -> Review | None:
         """Compare the chosen sources (through core.review) and show the result."""
@@ -283,26 +254,29 @@ class ReviewPanel(QWidget):
         if j is None:
             self._show_error("No label journal is open for this set, so there is nothing to review.")
             return None
+        if getattr(self.state, "blind_labeler", ""):
+            self._show_error("Blind labeling is on, so other people's labels stay hidden and nothing is compared. "
+                             "Turn it off (Analysis ▸ Blind Labeling) to review.")
+            return None
         order = panel_labels(self.state.rules)
+        sa, sb = self.source_a.source(), self.source_b.source()
         try:
-            if self.mode_key == "labelers":
-                a, b = self.who_a.currentText(), self.who_b.currentText()
-                if a == b:
-                    raise BasinmarkError("choose two different label sources for A and B")
-                review = compare_labelers(j, a, b, order=order)
-            elif self.mode_key == "auto_hand":
-                review = compare_labelers(j, "auto", "hand", name_a="automatic", name_b="hand", order=order)
-            else:
-                other = self._other_journal()
-                which = self.side.currentText()
-                with LabelJournal.open(other, readonly=True) as jb:
-                    labels_b = jb.labels(which)
-                    for w in jb.warnings:
-                        self.message.emit(f"{other.name}: {w}")
-                name_a, name_b = j.path.name, other.name
-                if name_a == name_b:
-                    name_a, name_b = j.path.parent.name, other.parent.name
-                review = compare_labels(j.labels(which), labels_b, name_a=name_a, name_b=name_b, order=order)
+            if sa is None or sb is None:
+                raise BasinmarkError("choose a label source for both A and B")
+            if sa == sb:
+                raise BasinmarkError("choose two different label sources for A and B")
+            labels_a, notes_a = source_labels(self.state, sa)
+            labels_b, notes_b = source_labels(self.state, sb)
+            for note in notes_a + notes_b:
+                self.message.emit(note)
+            name_a, name_b = sa.title(), sb.title()
+            if name_a == name_b:
+                name_a, name_b = f"{name_a} (A)", f"{name_b} (B)"
+            review = compare_labels(labels_a, labels_b, name_a=name_a, name_b=name_b, order=order)
+            for side, src, lab in (("A", sa, labels_a), ("B", sb, labels_b)):
+                if not len(lab):
+                    review.warnings.insert(0, f"{side} ({src.title()}) labels no run: {EMPTY_HINT.get(src.kind, '')}"
+                                           .rstrip(": "))
         except (BasinmarkError, ValueError) as exc:
             self._show_error(str(exc))
             return None
@@ -558,7 +532,13 @@ def install_review_dock(window) -> QDockWidget:
         window.tabifyDockWidget(traces, dock)
     dock.hide()
     panel.message.connect(lambda text: window.statusBar().showMessage(text, 6000))
-    window.state.labels_changed.connect(lambda: panel.refresh_queue() if dock.isVisible() else None)
+    def on_labels() -> None:
+        # people who label in this session appear as sources at once (while the dock shows; else on show)
+        if dock.isVisible():
+            panel.refresh_sources()
+            panel.refresh_queue()
+
+    window.state.labels_changed.connect(on_labels)
 
     def on_new_set() -> None:
         # a review belongs to one set and journal: drop it, and compare afresh if the dock is showing
@@ -579,6 +559,7 @@ def install_review_dock(window) -> QDockWidget:
     def on_visible(visible: bool) -> None:
         if visible:
             dock.raise_()
+            panel.refresh_sources()
             if panel.review is None and window.state.journal is not None:
                 panel.compare()
             panel.queue_view.setFocus()
@@ -595,4 +576,57 @@ def install_review_dock(window) -> QDockWidget:
     window.addAction(show)
     window.review_panel = panel
     window.review_dock = dock
+    install_blind_action(window, panel)
     return dock
+
+
+def current_labeler(window) -> str:
+    """Who labels now: the label panel's name, else the name the journal records by default."""
+    name = getattr(getattr(window, "label_panel", None), "labeler_name", "") or ""
+    if not name and window.state.journal is not None:
+        name = getattr(window.state.journal, "labeler", "") or ""
+    if not name:
+        from basinmark.core.journal import default_labeler
+
+        name = default_labeler()
+    return name
+
+
+def install_blind_action(window, panel: ReviewPanel) -> QAction:
+    """Labels ▸ Blind Labeling: hide other people's hand labels (table, label panel, map, summary) while the
+    current labeler labels, so that a second opinion is not anchored on the first.  Off at every start."""
+    act = QAction("&Blind Labeling", window)
+    act.setObjectName("action_blind")
+    act.setCheckable(True)
+    act.setToolTip("Hide other people's hand labels while you label, so your opinion is your own; "
+                   "the review stays closed until you turn it off")
+    note = QLabel(window)
+    note.setObjectName("blindNote")
+    note.setVisible(False)
+    window.statusBar().addPermanentWidget(note)
+
+    def apply() -> None:
+        on = act.isChecked()
+        name = current_labeler(window) if on else ""
+        window.state.set_blind(name)
+        note.setText(f"Blind: only {name}'s labels shown" if on else "")
+        note.setToolTip(f"Blind labeling as {name}: other people's hand labels are hidden. Labels ▸ Blind "
+                        "Labeling turns it off." if on else "")
+        note.setVisible(on)
+        window.statusBar().showMessage(
+            f"Blind labeling as {name}: other people's hand labels are hidden." if on else
+            "Blind labeling is off: every label is shown again.", 6000)
+        panel.reset("Blind labeling is on: turn it off to review." if on else
+                    "Choose two label sources and press Compare.")
+        if not on and window.review_dock.isVisible() and window.state.journal is not None:
+            panel.compare()
+
+    act.toggled.connect(lambda _on: apply())
+    changed = getattr(getattr(window, "label_panel", None), "labeler_changed", None)
+    if changed is not None:  # the person changed: blind as the new name
+        changed.connect(lambda _name: apply() if act.isChecked() else None)
+    menu = getattr(window, "labels_menu", None) or find_menu(window, "menu_analysis", "&Analysis")
+    menu.addSeparator()
+    menu.addAction(act)
+    window.blind_action = act
+    return act

@@ -41,6 +41,8 @@ class AppState(QObject):
         self.journal: Any = None
         self.loading: bool = False  # a set is being loaded or classified in the background
         self.journal_message: str = ""
+        #: blind labeling: show only this person's hand labels, hide everyone else's ("" = off)
+        self.blind_labeler: str = ""
         self.labels: pd.DataFrame = pd.DataFrame(columns=LABEL_COLUMNS)
         self._results: dict[str, Any] = {}
         self.run_errors: dict[str, str] = {}
@@ -173,10 +175,20 @@ class AppState(QObject):
     def readonly(self) -> bool:
         return self.journal is None or bool(getattr(self.journal, "readonly", True))
 
+    def set_blind(self, labeler: str) -> None:
+        """Blind labeling as ``labeler`` (other people's hand labels hidden everywhere), or off with ""."""
+        self.blind_labeler = (labeler or "").strip()
+        self.refresh_labels()
+
     def refresh_labels(self) -> None:
         jstate = None
         if self.journal is not None and self.tset is not None:
-            jstate = self.journal.state(current_hashes=dict(self.tset.content_hashes()))
+            if self.blind_labeler:
+                from basinmark.core.review import blind_state
+
+                jstate = blind_state(self.journal, self.blind_labeler, dict(self.tset.content_hashes()))
+            else:
+                jstate = self.journal.state(current_hashes=dict(self.tset.content_hashes()))
         self.labels = build_label_table(self.run_ids, self.classification, jstate)
         self.labels_changed.emit()
 

@@ -479,6 +479,9 @@ class SummaryPanel(QWidget):
             notes = []
             if st.rules is None:
                 notes.append("no rules: every label other than the fixed ones counts as a product")
+            if getattr(st, "blind_labeler", ""):
+                notes.append(f"blind labeling: only {st.blind_labeler}'s hand labels count here, other people's "
+                             "are hidden")
             try:
                 extra = [self._tst_warning] if self._tst_warning else []
                 self.summary = build_summary(labels, self.products(), notes=notes, extra_warnings=extra,
@@ -523,7 +526,7 @@ class SummaryPanel(QWidget):
             self.warning_box.set_warnings([])
             return
         self._fill_table(s)
-        text = [s._headline()] + s.lines()  # the core's own sentences + [f"Note: {n}" for n in s.notes]
+        text = [s._headline()] + [f"Note: {n}" for n in s.notes] + s.lines()  # the core's own sentences
         self.lines.setText("\n\n".join(text))
         self.warning_box.set_warnings(s.warnings)
         self._draw_outcomes(s)
