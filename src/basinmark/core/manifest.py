@@ -1,6 +1,8 @@
 """The optional set manifest ``basinmark-set.toml``: how the files of a set are laid out.
 
-Without a manifest, a set uses :data:`DEFAULT`.  A manifest may override any key::
+Every key, with worked examples, is documented in ``docs/set-manifest.md``.  Without a manifest, a set
+uses :data:`DEFAULT` and runs are found by their names (:mod:`basinmark.core.pairing`).  Every error
+names the file, the line and the key (:func:`_validate`).  A manifest may override any key::
 
     name = "my study"
     [files]
@@ -51,12 +53,13 @@ import hashlib
 import json
 import math
 import re
-import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
 from basinmark.core.errors import SetError
-from basinmark.core.units import energy_factor, length_factor, time_factor
+from basinmark.core.toml_text import TomlTextError, line_of
+from basinmark.core.toml_text import read as read_toml
+from basinmark.core.units import ENERGY_UNITS, LENGTH_UNITS, TIME_UNITS, energy_factor, length_factor, time_factor
 
 MANIFEST_NAME = "basinmark-set.toml"
 
@@ -83,6 +86,7 @@ DEFAULT: dict = {
 }
 
 _TOP_KEYS = {"name", "files", "units", "keys", "time", "tst"}
+_UNIT_NAMES = {"time": list(TIME_UNITS), "energy": list(ENERGY_UNITS), "length": list(LENGTH_UNITS)}
 
 
 def _as_list(value) -> list[str]:
@@ -256,19 +260,84 @@ def _where(path: Path, text: str, table: str, key: str | None = None) -> str:
     return f"{path}, line {header_line}" if header_line is not None else str(path)
 
 
+_TEXTS = "a text or a list of texts"
+
+
+def _texts(value) -> bool:
+    return isinstance(value, str) or (isinstance(value, list) and bool(value)
+                                       and all(isinstance(v, str) for v in value))
+
+
+def _validate(raw: dict, path: Path, text: str) -> None:
+    """Check every key the manifest gives before it is used; each error names the file, the key and the line."""
+    def fail(table: str, key: str | None, problem: str) -> SetError:
+        line = line_of(text, table, key) if key is not None else line_of(text, table)
+        if line is None and key is not None and table == "":
+            line = line_of(text, key)  # a table given as [key]
+        where = f"{path}, line {line}" if line is not None else str(path)
+        name = f"[{table}] {key}" if table and key else (key or f"[{table}]")
+        return SetError(f"{where}: {name}: {problem}")
+
+    for key, value in raw.items():
+        if key not in DEFAULT:
+            known = ", ".join(sorted(DEFAULT))
+            raise fail("", key, f"unknown key {key!r} (known: {known}; see docs/set-manifest.md)")
+        if key == "tst":
+            continue  # checked by _tst
+        if isinstance(DEFAULT[key], dict):
+            if not isinstance(value, dict):
+                raise fail("", key, f"must be a table ([{key}] on a line of its own, then its keys)")
+            for sub in value:
+                if sub not in DEFAULT[key]:
+                    known = ", ".join(DEFAULT[key])
+                    raise fail(key, sub, f"unknown key {sub!r} in [{key}] (known: {known})")
+    if "name" in raw and not isinstance(raw["name"], str):
+        raise fail("", "name", "must be a text in quotes")
+    for key, value in raw.get("files", {}).items():
+        if key not in ("backward", "forward", "joined", "folders"):
+            continue
+        if not _texts(value):
+            raise fail("files", key, f"must be {_TEXTS}, e.g. {key} = \"{DEFAULT['files'][key][0]}\"")
+        if key != "folders":
+            for pattern in _as_list(value):
+                if pattern.count("{run}") != 1:
+                    raise fail("files", key, f"the pattern {pattern!r} must contain {{run}} exactly once "
+                                             "(where the run's name stands in the file name)")
+    checks = {"time": time_factor, "energy": energy_factor, "length": length_factor}
+    for key, value in raw.get("units", {}).items():
+        if key not in checks:
+            continue
+        if not isinstance(value, str):
+            problem = f"must be a unit in quotes; use one of: {', '.join(_UNIT_NAMES[key])}"
+            raise fail("units", key, problem)
+        try:
+            checks[key](value)
+        except ValueError as exc:
+            raise fail("units", key, str(exc)) from None
+    for key, value in raw.get("keys", {}).items():
+        if key in DEFAULT["keys"] and not _texts(value):
+            raise fail("keys", key, f"must be {_TEXTS} (the comment-line keys to look for, first found is used)")
+    timing = raw.get("time", {})
+    if "step_fs" in timing:
+        v = timing["step_fs"]
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v) or v <= 0:
+            raise fail("time", "step_fs", f"must be a positive number of fs (the time between frames), not {v!r}")
+    if "backward" in timing and timing["backward"] not in ("auto", "elapsed", "signed"):
+        raise fail("time", "backward", f"must be auto, elapsed or signed, not {timing['backward']!r}")
+
+
 def load_layout(root: str | Path) -> SetLayout:
-    """Read ``basinmark-set.toml`` from ``root`` if present, else the defaults."""
+    """Read ``basinmark-set.toml`` from ``root`` if present, else the defaults (see docs/set-manifest.md)."""
     root = Path(root)
     path = root / MANIFEST_NAME
     raw: dict = {}
+    text = ""
     if path.exists():
         try:
-            raw = tomllib.loads(path.read_text(encoding="utf-8"))
-        except tomllib.TOMLDecodeError as exc:
-            raise SetError(f"{path}: not valid TOML: {exc}") from None
-        except UnicodeDecodeError:
-            raise SetError(f"{path}: not UTF-8 text") from None
-    text = path.read_text(encoding="utf-8") if raw else ""
+            raw, text = read_toml(path)
+        except TomlTextError as exc:
+            raise SetError(str(exc)) from None
+    _validate(raw, path, text)
     cfg = _merge(DEFAULT, {k: v for k, v in raw.items() if k != "tst"}, str(path))
     try:
         files = cfg["files"]

@@ -1,6 +1,6 @@
 """The rules file (TOML): monitors, basins, dwell, flag limits and the time-gap setting.
 
-The file is read with :mod:`tomllib` only; nothing in it is ever evaluated as code.
+The file is read with :mod:`tomllib` only (through :mod:`basinmark.core.toml_text`); nothing in it is ever evaluated as code.
 Atom numbers in the file are **1-based**; :attr:`Monitor.indices` gives the 0-based
 indices the geometry code uses.  See docs/rules-file.md for the reference.
 
@@ -13,13 +13,13 @@ from __future__ import annotations
 import hashlib
 import math
 import re
-import tomllib
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Mapping
 
 import numpy as np
 
+from basinmark.core import toml_text
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.units import ENERGY_UNITS
 
@@ -372,25 +372,21 @@ def load_rules(path: str | Path, n_atoms: int | None = None) -> Rules:
     except OSError as exc:
         raise RulesError(p, f"cannot read the rules file ({exc.strerror or exc})") from None
     try:
-        text = data.decode("utf-8")
-    except UnicodeDecodeError as exc:
-        raise RulesError(p, f"not UTF-8 text (byte {exc.start})") from None
+        text = toml_text.decode(data, p)  # a leading byte-order mark is dropped
+    except toml_text.TomlTextError as exc:
+        raise RulesError(p, exc.problem, line=exc.line) from None
     rules = parse_rules(text, source=str(p), n_atoms=n_atoms)
     return replace(rules, sha256=hashlib.sha256(data).hexdigest(), path=p)
 
 
 def parse_rules(text: str, source: str = "<string>", n_atoms: int | None = None) -> Rules:
     """Parse and validate rules from TOML text; ``sha256`` is the hash of the UTF-8 text."""
+    if text.startswith(toml_text.BOM):
+        text = text[1:]  # the line scans below see the text as parsed
     try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        msg = str(exc)
-        m = re.search(r"\(at line (\d+), column \d+\)", msg)
-        line = int(m.group(1)) if m else getattr(exc, "lineno", None)
-        if line is None and "end of document" in msg:
-            line = max(1, len(text.splitlines()))
-        problem = re.sub(r" \((at line|at end of document).*\)", "", msg)
-        raise RulesError(source, f"TOML syntax error: {problem}", line=line) from None
+        doc = toml_text.loads(text, source)
+    except toml_text.TomlTextError as exc:
+        raise RulesError(source, f"TOML syntax error: {exc.detail}", line=exc.line) from None
     b = _Builder(source, text)
     rules = b.build(doc)
     rules = replace(rules, sha256=hashlib.sha256(text.encode("utf-8")).hexdigest(), warnings=tuple(b.warnings),

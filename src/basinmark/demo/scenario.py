@@ -124,7 +124,7 @@ flags should point at all of these.
 def manifest_text(name: str, temperature: float) -> str:
     """``basinmark-set.toml`` of a generated set: the default file layout, plus the scenario's invented TST
     estimate so that summaries show the comparison without being told."""
-    return (f'# Set manifest written by basinmark make-demo; see src/basinmark/core/manifest.py for every key.\n'
+    return (f'# Set manifest written by basinmark make-demo; docs/set-manifest.md describes every key.\n'
             f'name = "{name}"\n\n'
             f'[tst]\n'
             f'major = "alpha"\n'
