@@ -18,7 +18,10 @@ $(VENV)/.installed-test: $(VENV)/.installed
 	$(PY) -m pip install --quiet -e '.[test]'
 	touch $@
 
+# Qt's window platform (xcb) links system libraries a minimal Linux may lack: installed when run as root,
+# otherwise the exact install command is printed and make stops before the window would fail to start
 demo: $(VENV)/.installed
+	scripts/qt-system-libs.sh $(PY) xcb
 	$(PY) -m basinmark open $(DEMO_SET)
 
 test: $(VENV)/.installed-test
