@@ -10,9 +10,11 @@ v > x, ``between = [lo, hi]`` is lo <= v <= hi.  All conditions of a basin must 
 
 from __future__ import annotations
 
+import difflib
 import hashlib
 import math
 import re
+import unicodedata
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any, Mapping
@@ -36,10 +38,50 @@ _DOMAINS = {
 BOUNDS = ("below", "above")
 DEFAULT_MAX_DRIFT = 1.0  # kcal/mol over a run; common practice, no source
 DEFAULT_CONCERTED_FS = 60.0  # common practice in the dynamics literature, from memory
+#: How long a run must stay in a basin to commit when the file does not say.  20 fs outlasts nearly two
+#: periods of a C-H stretch (~3000 cm^-1, from memory: 1/(c * 3000 cm^-1) = 11.1 fs), the fastest vibration
+#: of an organic molecule, so a bond jittering about a threshold does not commit, while staying short against
+#: runs of a few hundred fs.  The choice of two periods is common practice, no source.
+DEFAULT_DWELL_FS = 20.0
+MAX_BASIN_NAME = 64  # the longest label the journal accepts (core.labels)
 
-_TOP_KEYS = {"name", "reactant", "dwell_fs", "allow_overlap", "monitors", "basins", "flags", "time_gap"}
-_FLAG_KEYS = {"late_commit_fs", "max_energy_drift", "energy_unit", "min_length_fs"}
-_GAP_KEYS = {"bonds", "form_below", "concerted_fs"}
+_TOP_KEYS = ("name", "reactant", "dwell_fs", "allow_overlap", "monitors", "basins", "flags", "time_gap")
+_FLAG_KEYS = ("late_commit_fs", "max_energy_drift", "energy_unit", "min_length_fs")
+_GAP_KEYS = ("bonds", "form_below", "concerted_fs")
+_CONDITION_KINDS = ("below", "above", "between")
+
+
+def did_you_mean(word: str, choices) -> str:
+    """" (did you mean X?)" for the nearest of ``choices`` (difflib's ratio), else ""."""
+    near = difflib.get_close_matches(str(word), [str(c) for c in choices], n=1, cutoff=0.6)
+    return f" (did you mean {near[0]}?)" if near else ""
+
+
+def basin_name_problem(name: object, others=()) -> str | None:
+    """Why ``name`` cannot be a basin name (every basin name is a possible label), or None.
+
+    Checked as a label is (core.labels.check_label_text): text, not empty, no surrounding spaces, no control
+    characters or line breaks, at most 64 characters; and no clash, ignoring case, with the fixed labels or
+    with another basin (``others``), which people would read as the same outcome.
+    """
+    if not isinstance(name, str):
+        return f"a basin name must be text, got {name!r}"
+    if not name.strip():
+        return "a basin name cannot be empty: it is the label of an outcome"
+    if name != name.strip():
+        return f"the basin name {name!r} starts or ends with a space, which a label cannot"
+    if len(name) > MAX_BASIN_NAME:
+        return f"the basin name {name[:20]!r}... is longer than {MAX_BASIN_NAME} characters, too long for a label"
+    if any(unicodedata.category(c) in ("Cc", "Zl", "Zp") for c in name):
+        return f"the basin name {name!r} contains control characters or line breaks, which a label cannot"
+    for fixed in RESERVED_LABELS:
+        if name.casefold() == fixed.casefold():
+            return (f"the basin name {name!r} is the fixed outcome label {fixed!r} (ignoring case); choose another "
+                    "basin name")
+    for other in others:
+        if other != name and other.casefold() == name.casefold():
+            return f"the basin names {other!r} and {name!r} differ only in case; outcome labels must be told apart"
+    return None
 
 
 class RulesError(BasinmarkError):
@@ -425,10 +467,13 @@ class _Builder:
             raise self.err("must be finite", key)
         return x
 
-    def unknown(self, table: Mapping, allowed: set[str], prefix: str) -> None:
+    def unknown(self, table: Mapping, allowed, prefix: str) -> None:
+        """Refuse a key not in ``allowed``, naming the nearest valid key: a typo would otherwise silently
+        fall back to a default."""
         for k in table:
             if k not in allowed:
-                self.warnings.append(f"{self.source}: unknown key {prefix}{k} is ignored")
+                raise self.err(f"unknown key {k!r}{did_you_mean(k, allowed)}; the keys here are "
+                               f"{', '.join(allowed)}", f"{prefix}{k}")
 
     def build(self, doc: dict) -> Rules:
         self.unknown(doc, _TOP_KEYS, "")
@@ -441,12 +486,16 @@ class _Builder:
         if not isinstance(reactant, str):
             raise self.err(f"must be a basin name (a string), got {reactant!r}", "reactant")
         if reactant not in basins:
-            raise self.err(f"the reactant {reactant!r} is not a basin; basins are {', '.join(basins)}", "reactant")
+            raise self.err(f"the reactant {reactant!r} is not a basin{did_you_mean(reactant, basins)}; basins are "
+                           f"{', '.join(basins)}", "reactant")
         if len(basins) < 2:
             raise self.err("needs at least one product basin besides the reactant", "basins")
-        if "dwell_fs" not in doc:
-            raise self.err("is missing: how long (fs) a run must stay in a basin to commit", "dwell_fs")
-        dwell = self.num(doc["dwell_fs"], "dwell_fs", minimum=0.0)
+        if "dwell_fs" in doc:
+            dwell = self.num(doc["dwell_fs"], "dwell_fs", minimum=0.0)
+        else:
+            dwell = DEFAULT_DWELL_FS
+            self.warnings.append(f"{self.source}: dwell_fs is not given; using the default {DEFAULT_DWELL_FS:g} fs "
+                                 "(docs/rules-file.md says why)")
         allow = doc.get("allow_overlap", False)
         if not isinstance(allow, bool):
             raise self.err(f"must be true or false, got {allow!r}", "allow_overlap")
@@ -483,8 +532,9 @@ class _Builder:
         out = {}
         for bname, conds in table.items():
             bkey = f"basins.{bname}"
-            if bname in RESERVED_LABELS:
-                raise self.err(f"{bname!r} is reserved for an outcome; choose another basin name", bkey)
+            problem = basin_name_problem(bname, list(out))
+            if problem is not None:
+                raise self.err(problem, bkey)
             if not isinstance(conds, dict):
                 raise self.err("must be a table of conditions", bkey)
             if not conds:
@@ -493,7 +543,8 @@ class _Builder:
             for mname, spec in conds.items():
                 key = f"{bkey}.{mname}"
                 if mname not in monitors:
-                    raise self.err(f"unknown monitor {mname!r}; monitors are {', '.join(monitors)}", key)
+                    raise self.err(f"unknown monitor {mname!r}{did_you_mean(mname, monitors)}; monitors are "
+                                   f"{', '.join(monitors)}", key)
                 items.append(self.condition(mname, spec, key, monitors[mname]))
             out[bname] = Basin(bname, tuple(items))
         return out
@@ -512,7 +563,8 @@ class _Builder:
             lo, hi = (self.num(x, f"{key}.between") for x in v)
             c = Condition(mname, "between", lo=lo, hi=hi)
         else:
-            raise self.err(f"unknown condition {kind!r}; use below, above or between", key)
+            raise self.err(f"unknown condition {kind!r}{did_you_mean(kind, _CONDITION_KINDS)}; use below, above or "
+                           "between", key)
         try:
             _check_condition(c, monitor, self.source, key)
         except RulesError as e:
@@ -545,7 +597,8 @@ class _Builder:
                            "time_gap.bonds")
         for b in bonds:
             if b not in monitors:
-                raise self.err(f"unknown monitor {b!r}; monitors are {', '.join(monitors)}", "time_gap.bonds")
+                raise self.err(f"unknown monitor {b!r}{did_you_mean(b, monitors)}; monitors are "
+                               f"{', '.join(monitors)}", "time_gap.bonds")
             if monitors[b].kind != "distance":
                 raise self.err(f"monitor {b!r} is an {monitors[b].kind}, not a distance", "time_gap.bonds")
         if bonds[0] == bonds[1]:
@@ -613,6 +666,10 @@ def _shared_region(a: Basin, b: Basin, monitors: Mapping[str, Monitor]) -> str |
 
 
 def _check_semantics(rules: Rules, source: str) -> None:
+    for name in rules.basins:
+        problem = basin_name_problem(name, list(rules.basins))
+        if problem is not None:
+            raise RulesError(source, problem, key=f"basins.{name}")
     if rules.reactant not in rules.basins:
         raise RulesError(source, f"the reactant {rules.reactant!r} is not a basin", key="reactant")
     if not rules.products:
