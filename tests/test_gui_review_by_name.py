@@ -27,6 +27,16 @@ RUNS = [f"toy-{i + 1:03d}" for i in range(len(OUTCOMES))]
 CHOICES = ["left", "right", "recrossing", "unfinished", "ambiguous"]
 
 
+@pytest.fixture(autouse=True)
+def _labeler_settled(monkeypatch):
+    """Where the window asks once who is labeling, answer with the name already set."""
+    try:
+        import basinmark.gui.labeler as labeler
+    except ImportError:
+        return
+    monkeypatch.setattr(labeler, "ask_labeler", lambda parent, current, login, **kw: current)
+
+
 def _people_labels(seed: int) -> tuple[dict[str, str], dict[str, str]]:
     """Two people's labels: mostly the designed outcome, sometimes another label (fixed seed)."""
     rng = random.Random(seed)

@@ -108,6 +108,16 @@ OUTCOMES = ["left", "right", "recrossing", "unfinished", "left", "right", "left"
             "left", "right"]
 
 
+@pytest.fixture(autouse=True)
+def _labeler_settled(monkeypatch):
+    """Where the window asks once who is labeling, answer with the name already set."""
+    try:
+        import basinmark.gui.labeler as labeler
+    except ImportError:
+        return
+    monkeypatch.setattr(labeler, "ask_labeler", lambda parent, current, login, **kw: current)
+
+
 @pytest.fixture
 def win(qtbot, tmp_path):
     from PySide6.QtCore import QSettings

@@ -38,6 +38,7 @@ EXTRAS = (
     ("basinmark.gui.rules_editor", "install_rules_editor"),
     ("basinmark.gui.exports", "install_export_menu"),
     ("basinmark.gui.movie", "install_movie_action"),
+    ("basinmark.gui.lock_dialog", "install_unlock_action"),
 )
 
 

@@ -22,6 +22,7 @@ from basinmark.gui.label_panel import Banner, LabelPanel
 from basinmark.gui.loader import LoadJob, RulesWorker, SetLoader
 from basinmark.gui.molecule_view import MoleculeView
 from basinmark.gui.playback import PlaybackBar, PlaybackController
+from basinmark.gui.lock_dialog import open_or_offer_break
 from basinmark.gui.run_table import RunTable
 from basinmark.gui.state import AppState
 from basinmark.gui.traces import TracesView
@@ -438,7 +439,9 @@ class MainWindow(QMainWindow):
         allowed = all_labels(rules) if rules is not None else None
         name = self.label_panel.labeler_name or None
         try:
-            journal = LabelJournal.open(path, set_id=tset.name, labeler=name, allowed=allowed)
+            # a lock left by a program that is gone: offered to break (recorded), else read-only below
+            journal = open_or_offer_break(self, path, lambda: LabelJournal.open(path, set_id=tset.name, labeler=name,
+                                                                                allowed=allowed))
             self._messages.pop("journal", None)
             msg = ""
         except JournalLockedError as exc:
@@ -454,7 +457,7 @@ class MainWindow(QMainWindow):
                     journal = None
             msg = (f"Read-only: the label journal {path.name} is in use by {holder}. "
                    "You can look at runs and labels, but not set labels, until it is released "
-                   "(if that program is gone, 'basinmark unlock' breaks the lock).")
+                   "(if that program is gone, Labels ▸ Unlock Label Journal… breaks the lock).")
             self._messages["journal"] = msg
         except (JournalError, OSError) as exc:
             journal = None
