@@ -4,6 +4,11 @@ import os
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 os.environ.setdefault("QT_QUICK_BACKEND", "software")
+# journal witnesses go to a throw-away folder, never the tester's own state folder
+if not os.environ.get("BASINMARK_STATE_DIR"):
+    import tempfile
+
+    os.environ["BASINMARK_STATE_DIR"] = tempfile.mkdtemp(prefix="basinmark-test-state-")
 
 from hypothesis import HealthCheck, settings  # noqa: E402
 

@@ -96,11 +96,9 @@ def test_inserted_forged_line_is_found(base, data):
     ev["seq"] = data.draw(st.sampled_from([ev["seq"], p, p + 1]))
     forged = seal(ev).encode("ascii")  # its own hash is correct: only the chain can tell
     probs = check(base, b"".join(lines[:p] + [forged] + lines[p:]))
-    prev_there = json.loads(lines[p - 1])["hash"] if p > 0 else ""
-    fits = ev["seq"] == p and ev["prev"] == prev_there and (p > 0) == (ev["kind"] != "header")
-    # a forgery that fits the chain exactly at its place can only be told from the event it
-    # imitates by what follows: that event now repeats the sequence number, one line later
-    assert first_line(probs) == (p + 2 if fits else p + 1)
+    # even a forgery that fits the chain exactly at its place is reported at its own line: the events
+    # before and after it follow each other without it (issue 12, item 7)
+    assert first_line(probs) == p + 1
 
 
 def test_writer_refuses_and_reader_warns_on_an_event_changed_in_place(tmp_path):
@@ -115,7 +113,7 @@ def test_writer_refuses_and_reader_warns_on_an_event_changed_in_place(tmp_path):
     lines[1] = lines[1].replace('"alpha"', '"beta"', 1)  # same hash, other content
     path.write_text("\n".join(lines) + "\n")
     before = path.read_bytes()
-    with pytest.raises(JournalError, match="line 2: the event's hash does not match"):
+    with pytest.raises(JournalError, match=r"line 2 \(event 1\): the event's hash does not match"):
         LabelJournal.open(path, labeler="t")
     ro = LabelJournal.open(path, readonly=True)
     assert any("line 2" in w and "hash does not match" in w for w in ro.warnings)

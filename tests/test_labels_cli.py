@@ -124,6 +124,10 @@ def test_compare_labelers_and_journals(small_set, tmp_path, capsys):
     assert code == 2
     other = tmp_path / "copy.jsonl"
     other.write_bytes((small_set / "basinmark-labels.jsonl").read_bytes())
+    # a journal copied without its head file cannot show that it was not cut short: it is reported as damaged
+    code, out, err = run(["compare", small_set, other, "--format", "json"], capsys)
+    assert code == 3 and "head file is missing" in err
+    (tmp_path / "copy.jsonl.head").write_bytes((small_set / "basinmark-labels.jsonl.head").read_bytes())
     code, out, err = run(["compare", small_set, other, "--format", "json"], capsys)
     data = json.loads(out)
     assert code == 0 and data["runs_compared"] == len(PLAN) and data["agreement"] == 1.0

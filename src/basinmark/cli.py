@@ -2,7 +2,9 @@
 
 Each sub-command lives in a module of :mod:`basinmark.commands` that exposes
 ``register(subparsers)``; this file only builds the parser and turns our own
-errors into a one-line message and a non-zero exit code.
+errors into a one-line message and a non-zero exit code.  A command that read a damaged label
+journal prints what it could (labels as of the journal's last good event), then says so at the end
+and exits with :data:`DAMAGED_EXIT`.
 """
 
 from __future__ import annotations
@@ -14,6 +16,10 @@ import sys
 
 from basinmark import __version__
 from basinmark.core.errors import BasinmarkError
+
+
+#: exit code of a command whose output comes from a damaged label journal (as of its last good event)
+DAMAGED_EXIT = 3
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -39,16 +45,25 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return 2
+    from basinmark.core.journal_check import take_damage_reports
+
+    take_damage_reports()
     try:
-        return int(args.func(args) or 0)
+        code = int(args.func(args) or 0)
     except BasinmarkError as exc:
         print(f"basinmark: error: {exc}", file=sys.stderr)
+        take_damage_reports()  # the error says enough
         return 2
     except KeyboardInterrupt:
         print("basinmark: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
         return 0
+    # a command that read a damaged label journal says so last, loudly, and does not exit 0
+    for text in take_damage_reports().values():
+        print(f"\nbasinmark: DAMAGED LABEL JOURNAL: {text}", file=sys.stderr)
+        code = code or DAMAGED_EXIT
+    return code
 
 
 if __name__ == "__main__":  # pragma: no cover

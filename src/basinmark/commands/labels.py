@@ -1,4 +1,5 @@
-"""Label commands: label, undo, history, verify, compare, export-labels, import-labels, unlock.
+"""Label commands: label, undo, history, verify, compare, export-labels, import-labels, unlock, recover,
+receipt.
 
 All of them work on a set's label journal (``<set>/basinmark-labels.jsonl``, or ``--journal``).
 Allowed labels are the products of the set's rules file plus the fixed labels.
@@ -60,9 +61,32 @@ def register(sub) -> None:
                                    "anything is wrong.")
     p.add_argument("set", metavar="SET")
     p.add_argument("--no-data", action="store_true", help="check only the journal, not the run files")
+    p.add_argument("--expect", metavar="RECEIPT", help="also check the journal against a receipt printed earlier "
+                   "by 'basinmark receipt' (the whole line, quoted)")
     _common(p, load=True)
     add_format_option(p)
     p.set_defaults(func=cmd_verify)
+
+    p = sub.add_parser("recover", help="set aside what a damaged journal cannot vouch for, and record why",
+                       description="When a label journal fails its check (a changed, missing, repeated or "
+                                   "inserted event, a cut end, a missing or wrong head file, an unfinished batch), "
+                                   "nothing more is written to it until this is run.  Every line from the first "
+                                   "untrusted one on is moved to a side file beside the journal (nothing is "
+                                   "deleted), and a 'recovered' event records the problems, what was set aside, "
+                                   "who and why.  Labels set aside can be labeled again or imported.")
+    p.add_argument("set", metavar="SET")
+    p.add_argument("--reason", default="", help="why (free text; recorded in the journal)")
+    _common(p, labeler=True)
+    p.set_defaults(func=cmd_recover)
+
+    p = sub.add_parser("receipt", help="print a one-line receipt of the journal's current end (for a notebook)",
+                       description="Print one line naming the journal, its number of events, the last event's "
+                                   "hash and the time.  Keep it somewhere else (a lab notebook); later, "
+                                   "'basinmark verify SET --expect \"RECEIPT\"' shows whether the journal still "
+                                   "holds that event unchanged.")
+    p.add_argument("set", metavar="SET")
+    _common(p)
+    p.set_defaults(func=cmd_receipt)
 
     p = sub.add_parser("compare", help="agreement between two labelers: matrix, kappa, disagreements",
                        description="Compare two labelers: two journals (files or set folders), or one set's "
@@ -236,28 +260,81 @@ def cmd_history(args) -> int:
 
 
 def cmd_verify(args) -> int:
-    from basinmark.core.journal import LabelJournal, verify_journal
+    from basinmark.core.journal_verify import verify_report
+    from basinmark.core.journal_witness import parse_receipt, receipt
 
     path = _existing_journal(args)
+    expect = parse_receipt(args.expect) if args.expect else None
     hashes, notes = (None, []) if args.no_data else _hashes(args)
-    problems = verify_journal(path, hashes)
+    problems, crash_notes, res = verify_report(path, hashes, expect=expect)
     table = pd.DataFrame([{"line": p.line, "event": p.event, "problem": p.what, "message": p.message}
                           for p in problems], columns=["line", "event", "problem", "message"])
+    table["line"] = table["line"].astype("Int64")
+    table["event"] = table["event"].astype("Int64")
     if args.format != "table":
         emit(_plain(table), args.format)
         return 1 if problems else 0
     if problems:
         print(table_text(_plain(table), max_width=200))
     _warn(notes)
-    with LabelJournal.open(path, readonly=True) as j:
-        n, seq, digest = len(j.events), j.last_seq, j.last_hash
+    for n in crash_notes:
+        print(f"note: {n}", file=sys.stderr)
+    n = res.n_lines if res is not None else 0
     checked = "the journal only" if args.no_data else f"and {len(hashes)} runs' data"
+    if expect is not None:
+        checked += f", against the receipt of {expect['time']}"
+    elif res is not None and res.witness is not None:
+        checked += f", against this account's witness of {res.witness.get('time', '?')}"
     if problems:
         print(f"\n{path}: {len(problems)} problem(s) found ({n} events checked, {checked}).")
+        if res is not None and res.broken:
+            print("Nothing more is written to this journal until 'basinmark recover SET' sets the damage aside.")
         return 1
+    jid = res.journal_id or ""
     print(f"{path}: intact, {n} events ({checked} checked).\n"
-          f"last event {seq}, hash {digest}\n(note this hash elsewhere to be able to show later that the journal "
-          "was not rewritten)")
+          f"last event {res.last_seq}, hash {res.last_hash}\n"
+          f"receipt (keep it elsewhere; 'verify --expect' checks against it):\n"
+          f"{receipt(jid, res.last_seq, res.last_hash)}")
+    return 0
+
+
+def cmd_recover(args) -> int:
+    from basinmark.core.journal import LabelJournal
+
+    path = _existing_journal(args)
+    ev = LabelJournal.recover(path, by=args.labeler, reason=args.reason)
+    if ev is None:
+        print(f"{path}: the journal passed its check; there is nothing to recover (nothing was written)")
+        return 0
+    print(f"{path}: {ev['problem_count']} problem(s) settled, recorded as event {ev['seq']}:")
+    for line in ev["problems"][:20]:
+        print(f"  {line}")
+    if ev["set_aside_file"]:
+        first, last = ev["set_aside_lines"]
+        print(f"lines {first} to {last} ({ev['set_aside_bytes']} bytes) were moved to {ev['set_aside_file']} "
+              f"beside the journal; {ev['kept_lines']} line(s) kept. Labels in the lines set aside no longer count: "
+              "label those runs again, or import them.")
+    else:
+        print(f"no line was set aside; the journal's {ev['kept_lines']} lines are kept as they are and its head "
+              "now records its end")
+    return 0
+
+
+def cmd_receipt(args) -> int:
+    from basinmark.core.journal import LabelJournal
+    from basinmark.core.journal_witness import receipt
+
+    path = _existing_journal(args)
+    with LabelJournal.open(path, readonly=True) as j:
+        if j.problems:
+            raise BasinmarkError(f"no receipt for a damaged journal: {j.integrity.summary(path)}")
+        if j.integrity is not None and (j.integrity.head_lag or j.integrity.open_batch is not None):
+            raise BasinmarkError(f"{path} is being written right now (or its writer stopped mid-write); "
+                                 "try again in a moment")
+        jid = j.header.get("hash") if j.header else None
+        if not jid:
+            raise BasinmarkError(f"{path} has no header; no receipt can be made")
+        print(receipt(jid, j.last_seq, j.last_hash))
     return 0
 
 
@@ -358,6 +435,7 @@ def cmd_unlock(args) -> int:
     from basinmark.core.journal import LabelJournal
 
     path = _existing_journal(args)
+    # (a lock whose process on this host is gone is also broken by the next writer on its own)
     ev = LabelJournal.break_lock(path, by=args.labeler, reason=args.reason, force=args.force)
     old = ev["old_lock"]
     print(f"lock of {path} held by {old.get('owner')} on {old.get('host')} (pid {old.get('pid')}) since "

@@ -8,25 +8,36 @@ hash (see :mod:`basinmark.core.journal_format`).  Current labels are a replay of
 events; nothing is ever edited in place, an undo is a new event.
 
 Durability: every write is one ``os.write`` of whole lines on a descriptor opened with
-``O_APPEND``, followed by ``fsync`` before the call returns.  A torn last line (a crash
-mid-write) is found on open, copied to ``<journal>.torn-<UTC time>`` and cut from the
-journal (the only change ever made to existing bytes, and only to bytes after the last
-complete line), with a warning in :attr:`LabelJournal.warnings`.
+``O_APPEND``, followed by ``fsync`` before the call returns; then the head file (and the
+witness outside the folder, :mod:`basinmark.core.journal_witness`) record the new end.  A batch
+(automatic labels, an import) is one write between ``batch_begin`` and ``batch_commit`` and
+counts only once the commit is on disk.  A write that fails is cut back to what was confirmed
+before.
+
+Trust: every open, read-only or not, checks header, lines, sequence, chain, batches, head and
+witness (:mod:`basinmark.core.journal_check`).  What a crash leaves is accepted, and a writer sets
+it aside while recording so: a torn last line is copied to ``<journal>.torn-<UTC time>`` and cut
+(bytes after the last complete line only); an unfinished batch of a writer that stopped gets a
+``batch_abandoned`` event; a lock left by a dead process on this host is broken (a
+``lock_broken`` event).  Anything else is a break: readers show labels as of the last good event
+and say so; writers refuse until :meth:`LabelJournal.recover` (``basinmark recover SET``) moves
+the untrusted lines to ``<journal>.set-aside-<UTC time>`` and records what and why.
 
 Only one process writes a journal at a time (``<journal>.lock``, see
 :mod:`basinmark.core.journal_lock`); read-only opens never take the lock.
 
-What the hash chain can and cannot show: any edit, deletion, duplication, reordering or
-insertion of lines is found by :func:`verify_journal`; cutting events off the end is found
-through the head file ``<journal>.head``.  Someone who rewrites the whole file and the head
-with freshly computed hashes cannot be caught from the files alone: note the head hash that
-``basinmark verify`` prints somewhere else (a lab notebook) to pin the journal's state.
+What can and cannot be shown: any edit, deletion, duplication, reordering or insertion of lines is
+found by the chain; cutting events off the end, by the head file; setting journal and head back
+together, by the witness (on this account, at this place) or by a receipt noted elsewhere
+(``basinmark receipt SET``).  Someone who rewrites the whole file and the head with freshly computed
+hashes, where no witness or receipt exists, cannot be caught from the files alone.
 """
 
 from __future__ import annotations
 
 import getpass
 import glob
+import hashlib
 import os
 import socket
 import threading
@@ -36,23 +47,43 @@ from typing import Iterable, Mapping, Sequence
 import pandas as pd
 
 from basinmark import __version__
-from basinmark.core.journal_format import (BINARY, HEADER_KIND, SCHEMA_VERSION, JournalError, event_hash, line_hash,
-                                           parse_line, read_head,
-                                           seal, split_lines, utc_now, utc_stamp, write_head)
-from basinmark.core.journal_lock import (JournalLockedError, acquire, describe, is_stale, lock_path, read_lock,
-                                         release)
+from basinmark.core import journal_witness
+from basinmark.core.journal_check import GONE, NOBODY, Integrity, Problem, check, note_damage
+from basinmark.core.journal_format import (BINARY, HEADER_KIND, SCHEMA_VERSION, JournalError, read_head_state, seal,
+                                           split_lines, utc_now, utc_stamp, write_head)
+from basinmark.core.journal_lock import (JournalFileError, JournalLockedError, acquire, describe, is_stale,
+                                         lock_path, read_lock, release)
 from basinmark.core.journal_replay import Replay
-from basinmark.core.journal_verify import Problem, verify_journal
+from basinmark.core.journal_verify import Snapshot, integrity_of, read_snapshot, verify_journal
 from basinmark.core.labels import HAND_SOURCES, SOURCES, LabelError, validate_label
 
-__all__ = ["LabelJournal", "JournalError", "JournalLockedError", "verify_journal", "Problem", "default_labeler"]
+__all__ = ["LabelJournal", "JournalError", "JournalLockedError", "JournalDamagedError", "JournalFileError",
+           "JournalWriteError", "verify_journal", "Problem", "default_labeler"]
+
+_BATCH = object()  # placeholder for the begin's seq in a batch's label events, filled in when sealed
 
 
-def _safe_event_hash(event: dict) -> str:
-    try:
-        return event_hash(event)
-    except (TypeError, ValueError):
-        return ""
+class JournalDamagedError(JournalError):
+    """The journal failed its integrity check; nothing is written until ``basinmark recover``.
+
+    ``integrity.problems`` lists each break with its line.
+    """
+
+    def __init__(self, path: str | Path, integrity: Integrity):
+        self.path = Path(path)
+        self.integrity = integrity
+        self.problems = list(integrity.problems)
+        super().__init__(integrity.summary(self.path))
+
+
+class JournalWriteError(JournalError):
+    """Events could not be written (``errno``, ``strerror`` from the file system); the message says what counts."""
+
+    def __init__(self, path: str | Path, exc: OSError, message: str):
+        self.path = Path(path)
+        self.errno = exc.errno
+        self.strerror = exc.strerror or str(exc)
+        super().__init__(message)
 
 
 def default_labeler() -> str:
@@ -94,6 +125,14 @@ class LabelJournal:
         self._fd: int | None = None
         self._lock: dict | None = None
         self._mutex = threading.Lock()  # one write at a time within this process (GUI worker threads)
+        self.integrity: Integrity | None = None
+        self.problems: list[Problem] = []
+        self._jid: str | None = None  # the header's hash: the journal's identity (for the witness)
+        self._crashed = False  # a failed write could not be undone: keep the lock as a crash would
+        self._head_lags = False
+        self._witness_warned = False
+        self._forced: str | None = None  # break_lock(force=True): why the person broke a live lock
+        self._recovered: dict | None = None  # the event recover wrote
 
     # --- opening --------------------------------------------------------------------------
     @classmethod
@@ -101,7 +140,12 @@ class LabelJournal:
              allowed: Sequence[str] | None = None) -> "LabelJournal":
         """Open (and for writing, create if missing) the journal at ``path``.
 
-        Writing takes the lock (:class:`JournalLockedError` if another process holds it).
+        Every open checks the whole journal first (:mod:`basinmark.core.journal_check`).  A damaged
+        journal opens read-only with the labels as of its last good event (:attr:`problems` says what
+        is wrong, :attr:`warnings` says it in a sentence); for writing it is refused with
+        :class:`JournalDamagedError` until ``basinmark recover`` (:meth:`recover`) has set the damage
+        aside.  Writing takes the lock (:class:`JournalLockedError` if a live process holds it; a lock
+        whose process on this host is gone is broken and that is recorded).
         ``allowed``: if given, every new label must be one of these.
         """
         j = cls()
@@ -113,117 +157,185 @@ class LabelJournal:
         if readonly:
             if not j.path.is_file():
                 raise JournalError(f"there is no label journal at {j.path}")
-            j._load(j.path.read_bytes(), writer=False)
+            try:
+                snap = read_snapshot(j.path)
+            except OSError as exc:
+                raise JournalFileError(j.path, "read the label journal", exc, outcome="nothing was read") from None
+            j._load(snap, writer=False)
             return j
+        return cls._open_writer(j, broken=None)
+
+    @classmethod
+    def _open_writer(cls, j: "LabelJournal", broken: dict | None, *, recover_reason: str | None = None):
         if not j.path.parent.is_dir():
             raise JournalError(f"cannot create the label journal {j.path}: the folder does not exist")
-        j._lock = acquire(j.path, j.labeler)
+        j._lock, stale = acquire(j.path, j.labeler)
+        broken = broken or stale
         try:
-            j._open_for_writing()
+            j._open_for_writing(broken, recover_reason)
         except BaseException:
+            if j._fd is not None:
+                os.close(j._fd)
+                j._fd = None
             release(j.path, j._lock)
             j._lock = None
             raise
         return j
 
-    def _open_for_writing(self) -> None:
+    def _open_for_writing(self, broken: dict | None, recover_reason: str | None) -> None:
         created = not self.path.exists()
-        self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT | BINARY, 0o644)
+        try:
+            self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT | BINARY, 0o644)
+        except OSError as exc:
+            raise JournalFileError(self.path, "open the label journal for writing", exc) from None
         if created:
             _fsync_dir(self.path.parent)
         for stale in self.path.parent.glob(glob.escape(self.path.name) + ".head.tmp-*"):
             stale.unlink(missing_ok=True)  # left by a writer that died while updating the head; we hold the lock
         data = self.path.read_bytes()
+        head, head_state = read_head_state(self.path)
+        if not data and head_state == "missing":
+            res = Integrity()  # a new journal (or one whose creation stopped before its header)
+        else:
+            snap = Snapshot(data, head, head_state, GONE if broken else NOBODY)
+            res = integrity_of(self.path, snap)
+        pending: list[dict] = []
+        if res.broken:
+            if recover_reason is None:
+                raise JournalDamagedError(self.path, res)
+            pending = self._set_aside_damage(data, res, head, head_state, recover_reason)
+            data = self.path.read_bytes()
+            res = check(*split_lines(data))  # the kept lines all passed the check: replay all of them
+            res.problems.clear()
+            res.notes.clear()
+            res.good_lines = res.n_lines
         _, tail = split_lines(data)
         if tail:
             self._set_aside(tail, len(data) - len(tail))
-        self._load(data[: len(data) - len(tail)], writer=True)
+        self._apply_checked(res, writer=True)
+        self._size = len(data) - len(tail)
+        bodies: list[dict] = []
         if self.header is None:
-            self._write([{"kind": HEADER_KIND, "schema": SCHEMA_VERSION, "set_id": self.set_id,
-                          "created_by": self.labeler, "created_at": utc_now(), "host": socket.gethostname(),
-                          "tool_version": __version__}])
-        else:
-            head = read_head(self.path)
-            if head is not None and (head[0] > self._last_seq or (head[0] == self._last_seq
-                                                                  and head[1] != self._last_hash)):
-                raise JournalError(f"{self.path} ends at event {self._last_seq} but its head file records event "
-                                   f"{head[0]} with another hash: events were removed or changed at the end; "
-                                   "labels cannot be added until this is resolved (run 'basinmark verify')")
-            if head is None or head[0] < self._last_seq:
-                behind = "missing" if head is None else f"behind by {self._last_seq - head[0]} event(s)"
-                self.warnings.append(f"the head file of {self.path} was {behind} (a writer stopped before "
-                                     "updating it); it now records the last event")
-                write_head(self.path, self._last_seq, self._last_hash)
+            bodies.append({"kind": HEADER_KIND, "schema": SCHEMA_VERSION, "set_id": self.set_id,
+                           "created_by": self.labeler, "created_at": utc_now(), "host": socket.gethostname(),
+                           "tool_version": __version__})
+        if self._replay.pending_begin is not None:
+            begin = self._replay.pending_begin
+            held = len(self._replay.pending or [])
+            why = ("its writer stopped before finishing it" if recover_reason is None
+                   else "set aside by recover")
+            bodies.append({"kind": "batch_abandoned", "source": "hand", "labeler": self.labeler, "batch": begin,
+                           "events": held, "reason": f"an unfinished batch ({held} event(s)): {why}; none of it counts"})
+            self.warnings.append(f"an unfinished batch in {self.path} (event {begin} on, {held} label event(s), "
+                                 "left by a writer that stopped) was set aside: none of its labels count")
+        if broken is not None:
+            old = {k: v for k, v in broken.items() if k != "token"}
+            bodies.append({"kind": "lock_broken", "source": "hand", "labeler": self.labeler, "old_lock": old,
+                           "stale": is_stale(broken), "automatic": not self._forced,
+                           "reason": self._forced or "its process is no longer running on this host"})
+            if not self._forced:
+                self.warnings.append(f"the lock of {self.path} was left by {describe(broken)}, which is no longer "
+                                     "running; it was broken and that is recorded in the journal")
+        bodies += pending
+        if bodies:
+            self._write(bodies)
+        elif res.head_lag:  # cannot happen without a broken lock (an event is then written); kept for safety
+            self._update_head(self._last_seq, self._last_hash)
+        self._recovered = pending[0] if pending else None
+
+    def _set_aside_damage(self, data: bytes, res: Integrity, head, head_state: str, reason: str) -> list[dict]:
+        """recover: move every line from the first untrusted one to a side file, cut the journal there,
+        and return the event that records what was set aside and why."""
+        lines, tail = split_lines(data)
+        keep = sum(len(x) + 1 for x in lines[: res.good_lines])
+        aside = data[keep:]
+        side = None
+        if aside:
+            side = Path(f"{self.path}.set-aside-{utc_stamp()}")
+            try:
+                fd = os.open(side, os.O_WRONLY | os.O_CREAT | os.O_EXCL | BINARY, 0o644)
+                try:
+                    os.write(fd, aside)
+                    os.fsync(fd)
+                finally:
+                    os.close(fd)
+                _fsync_dir(self.path.parent)
+                os.truncate(self.path, keep)
+                assert self._fd is not None
+                os.fsync(self._fd)
+            except OSError as exc:
+                raise JournalFileError(self.path, "set aside the damaged part of", exc,
+                                       outcome="the journal was not changed") from None
+        n_aside = len(lines) - res.good_lines
+        self.warnings.append(
+            (f"{n_aside} line(s) from line {res.good_lines + 1} on ({len(aside)} bytes) were moved to {side.name}"
+             if side else "no line had to be set aside") + f"; recorded as a 'recovered' event")
+        witness = getattr(res, "witness", None)
+        return [{"kind": "recovered", "source": "hand", "labeler": self.labeler, "reason": reason,
+                 "problems": [str(p) for p in res.problems[:100]], "problem_count": len(res.problems),
+                 "kept_lines": res.good_lines,
+                 "set_aside_file": side.name if side else None,
+                 "set_aside_lines": [res.good_lines + 1, len(lines) + (1 if tail else 0)] if aside else None,
+                 "set_aside_bytes": len(aside),
+                 "set_aside_sha256": hashlib.sha256(aside).hexdigest() if aside else None,
+                 "head_was": list(head) if head is not None else head_state,
+                 "witness_was": witness}]
 
     def _set_aside(self, tail: bytes, keep: int) -> None:
         side = Path(f"{self.path}.torn-{utc_stamp()}")
-        fd = os.open(side, os.O_WRONLY | os.O_CREAT | os.O_EXCL | BINARY, 0o644)
         try:
-            os.write(fd, tail)
-            os.fsync(fd)
-        finally:
-            os.close(fd)
-        _fsync_dir(self.path.parent)
-        os.truncate(self.path, keep)
-        assert self._fd is not None
-        os.fsync(self._fd)
+            fd = os.open(side, os.O_WRONLY | os.O_CREAT | os.O_EXCL | BINARY, 0o644)
+            try:
+                os.write(fd, tail)
+                os.fsync(fd)
+            finally:
+                os.close(fd)
+            _fsync_dir(self.path.parent)
+            os.truncate(self.path, keep)
+            assert self._fd is not None
+            os.fsync(self._fd)
+        except OSError as exc:
+            raise JournalFileError(self.path, "set aside the incomplete last line of", exc,
+                                   outcome="the journal was not changed") from None
         self.warnings.append(f"the last line of {self.path} was incomplete ({len(tail)} bytes, probably a crash "
                              f"while writing); it was moved to {side.name} and left out")
 
-    def _load(self, data: bytes, *, writer: bool) -> None:
-        lines, tail = split_lines(data)
-        if tail:
-            self.warnings.append(f"the last line of {self.path} is incomplete ({len(tail)} bytes, probably a "
-                                 "crash while writing); it is left out (opening for writing sets it aside)")
-        prev = ""
+    def _load(self, snap: Snapshot, *, writer: bool) -> None:
+        res = integrity_of(self.path, snap)
+        self._apply_checked(res, writer=writer)
+        self._size = len(snap.data) - res.tail
+
+    def _apply_checked(self, res: Integrity, *, writer: bool) -> None:
+        """Replay the trusted lines of a checked journal and note what the check found."""
+        self.integrity = res
+        self.problems = list(res.problems)
+        self.warnings += res.notes
+        if res.broken:
+            self.warnings.append(res.summary(self.path))
+            note_damage(self.path, res)
         apply = self._replay.apply
-        for i, raw in enumerate(lines):
-            ev = parse_line(raw)
+        for i, ev in enumerate(res.events[: res.good_lines]):
             if ev is None:
-                msg = f"{self.path}, line {i + 1} is not a valid journal event"
-                if writer:
-                    raise JournalError(f"{msg}; labels cannot be added until the journal is repaired "
-                                       "(run 'basinmark verify' for details)")
-                self.warnings.append(msg + "; skipped")
                 continue
-            stored = ev.get("hash")
-            if line_hash(raw, stored) != stored and _safe_event_hash(ev) != stored:
-                msg = (f"{self.path}, line {i + 1}: the event's hash does not match its content (it was changed "
-                       "after it was written)")
-                if writer:
-                    raise JournalError(f"{msg}; labels cannot be added to it: run 'basinmark verify' for details, "
-                                       "then restore the journal from a copy, or move it aside (keep it as evidence) "
-                                       "and start a new one")
-                self.warnings.append(msg + "; run 'basinmark verify' for details")
-            if writer and (ev.get("seq") != self._last_seq + 1 or ev.get("prev", "") != prev):
-                raise JournalError(f"{self.path}, line {i + 1}: the chain of events is broken (sequence or previous hash does "
-                                   "not follow); labels cannot be added until the journal is repaired "
-                                   "(run 'basinmark verify' for details)")
-            if i == 0:
-                where = f"{self.path}, line 1"
-                if ev.get("kind") != HEADER_KIND:
+            if i == 0 and ev.get("kind") == HEADER_KIND:
+                self.header = ev
+                self._jid = ev.get("hash") if isinstance(ev.get("hash"), str) else None
+                theirs = ev.get("set_id", "")
+                if self.set_id and theirs and theirs != self.set_id:
+                    self.warnings.append(f"{self.path} was started for the set {theirs!r}, not {self.set_id!r} "
+                                         "(a renamed folder, or another set's journal?)")
+                self.set_id = theirs or self.set_id
+                if isinstance(ev.get("schema"), int) and ev["schema"] > SCHEMA_VERSION:
+                    msg = (f"{self.path} was written by a newer basinmark (schema {ev['schema']}, this one "
+                           f"knows {SCHEMA_VERSION})")
                     if writer:
-                        raise JournalError(f"{where}: the journal does not start with a header")
-                    self.warnings.append(f"{where}: the journal does not start with a header")
-                else:
-                    self.header = ev
-                    theirs = ev.get("set_id", "")
-                    if self.set_id and theirs and theirs != self.set_id:
-                        self.warnings.append(f"{self.path} was started for the set {theirs!r}, not {self.set_id!r} "
-                                             "(a renamed folder, or another set's journal?)")
-                    self.set_id = theirs or self.set_id
-                    if isinstance(ev.get("schema"), int) and ev["schema"] > SCHEMA_VERSION:
-                        msg = (f"{self.path} was written by a newer basinmark (schema {ev['schema']}, this one "
-                               f"knows {SCHEMA_VERSION})")
-                        if writer:
-                            raise JournalError(msg + "; it is not safe to add labels with this version")
-                        self.warnings.append(msg)
+                        raise JournalError(msg + "; it is not safe to add labels with this version")
+                    self.warnings.append(msg)
             apply(ev)
-            prev = ev.get("hash", "")
             seq = ev.get("seq")
-            self._last_seq = seq if isinstance(seq, int) else self._last_seq + 1
-            self._last_hash = prev
-        self._size = len(data) - len(tail)
+            if isinstance(seq, int):
+                self._last_seq = seq
+                self._last_hash = ev.get("hash", "")
 
     # --- writing --------------------------------------------------------------------------
     def _require_writer(self) -> None:
@@ -245,6 +357,12 @@ class LabelJournal:
         parts = []
         for ev in bodies:
             seq += 1
+            if ev.get("kind") == "batch_begin":
+                begin = seq
+            elif ev.get("batch") is _BATCH:
+                ev["batch"] = begin
+            elif ev.get("kind") == "batch_commit":
+                ev["batch"] = begin
             ev["seq"] = seq
             ev.setdefault("time", now)
             ev["prev"] = prev
@@ -262,20 +380,58 @@ class LabelJournal:
                 view = view[n:]
             os.fsync(self._fd)
         except OSError as exc:
-            # nothing of this call counts as saved; a partial line is set aside by the next open
-            os.close(self._fd)
-            self._fd = None
-            raise JournalError(f"the label(s) could not be saved to {self.path} ({exc.strerror or exc}); "
-                               "nothing of this change was recorded; reopen the journal to go on") from None
+            self._undo_failed_write(exc)
         self._size += len(data)
         self._last_seq, self._last_hash = seq, prev
-        try:
-            write_head(self.path, seq, prev)
-        except OSError as exc:  # the events are saved; only the end marker lags (verify will say so)
-            self.warnings.append(f"the head file of {self.path} could not be updated ({exc.strerror or exc})")
+        if self.header is None and bodies and bodies[0].get("kind") == HEADER_KIND:
+            self.header = bodies[0]
+            self._jid = bodies[0]["hash"]
+        self._update_head(seq, prev)
         for ev in bodies:
             self._replay.apply(ev)
         return bodies
+
+    def _undo_failed_write(self, exc: OSError) -> None:
+        """A write or fsync failed: cut the journal back to what was confirmed before, then raise."""
+        assert self._fd is not None
+        why = exc.strerror or str(exc)
+        try:
+            os.ftruncate(self._fd, self._size)
+            os.fsync(self._fd)
+            undone = True
+        except OSError:
+            undone = False
+        os.close(self._fd)
+        self._fd = None
+        if undone:
+            raise JournalWriteError(self.path, exc, f"the label(s) could not be saved to {self.path} ({why}); "
+                                    "nothing of this change was recorded; reopen the journal to go on") from None
+        # keep the lock: to the next writer, what was written is then the leftover of a writer that stopped
+        # (an unfinished batch, or an incomplete line), which it sets aside without counting it
+        self._crashed = True
+        raise JournalWriteError(self.path, exc, f"the label(s) could not be saved to {self.path} ({why}) and the "
+                                "unfinished part could not be removed; it does not count as saved (a single "
+                                "label written whole may still show up); the lock stays until this program "
+                                "ends, then the next writer sets the rest aside") from None
+
+    def _update_head(self, seq: int, digest: str) -> None:
+        try:
+            write_head(self.path, seq, digest)
+            self._head_lags = False
+        except OSError as exc:  # the events are saved; only the end marker lags (retried at the next write)
+            self._head_lags = True
+            self.warnings.append(f"the head file of {self.path} could not be updated ({exc.strerror or exc}); "
+                                 "it is tried again at the next write and on closing")
+            return
+        if self._jid:
+            try:
+                journal_witness.write(self.path, self._jid, seq, digest)
+            except OSError as exc:
+                if not self._witness_warned:
+                    self._witness_warned = True
+                    self.warnings.append(f"the witness of {self.path} in {journal_witness.state_dir()} could not "
+                                         f"be updated ({exc.strerror or exc}); a rollback of the journal would "
+                                         "not be noticed there")
 
     def _label_event(self, run_id: str, label: str, content_hash: str, reason: str, source: str,
                      labeler: str | None, pending: dict[str, str | None] | None = None) -> dict:
@@ -299,8 +455,10 @@ class LabelJournal:
 
     def record_batch(self, entries: Iterable[Mapping], *, source: str = "rule", rules_hash: str | None = None,
                      tool_version: str | None = None, labeler: str | None = None) -> list[dict]:
-        """Append many label events in one write and one fsync (e.g. a whole set's automatic labels).
+        """Append many label events as one batch, in one write and one fsync (e.g. a whole set's automatic labels).
 
+        The events sit between a ``batch_begin`` and a ``batch_commit`` event; a reader counts them
+        only once the commit is on disk, so a batch is whole or absent.  Returns the label events.
         ``entries``: mappings with run_id, label, content_hash and optionally reason and labeler.  All are
         checked before anything is written.  Rule events are credited to ``rule:<rules hash>``
         unless ``labeler`` is given.
@@ -320,9 +478,16 @@ class LabelJournal:
             if source == "rule":
                 ev["rules_hash"] = rules_hash
                 ev["tool_version"] = tool_version or __version__
+            ev["batch"] = _BATCH
             pending[ev["run"]] = ev["label"]
             bodies.append(ev)
-        return self._write(bodies) if bodies else []
+        if not bodies:
+            return []
+        begin = {"kind": "batch_begin", "source": source, "labeler": labeler or self.labeler, "count": len(bodies)}
+        commit = {"kind": "batch_commit", "source": source, "labeler": labeler or self.labeler, "batch": _BATCH,
+                  "count": len(bodies)}
+        self._write([begin, *bodies, commit])
+        return bodies
 
     def undo(self, run_id: str, *, reason: str = "", labeler: str | None = None) -> dict:
         """Append an undo event that takes back the run's latest label set by a person (hand, import or
@@ -362,27 +527,50 @@ class LabelJournal:
     @classmethod
     def break_lock(cls, path: str | Path, *, by: str | None = None, reason: str = "",
                    force: bool = False) -> dict:
-        """Remove a stale lock (its process is gone) and record that as an event; returns the event.
+        """Break the journal's lock and record that as an event; returns the event.
 
-        A lock whose process still runs, or which was taken on another host, is only broken with
-        ``force=True``.
+        A lock whose process on this host is gone is broken by any writer on its own (this is the same,
+        with the person's name and reason).  A lock whose process still runs, or which was taken on
+        another host, is only broken with ``force=True``.
         """
         path = Path(path)
         holder = read_lock(path)
         if holder is None:
             raise JournalError(f"the label journal {path} is not locked")
-        if not force and not is_stale(holder):
-            raise JournalError(f"the lock of {path} is held by {describe(holder)}, which may still be running "
-                               "(or runs on another host); break it only if you are sure that program is gone "
-                               "(force)")
-        try:
-            lock_path(path).unlink()
-        except FileNotFoundError:
-            pass
-        with cls.open(path, labeler=by) as j:
-            old = {k: v for k, v in holder.items() if k != "token"}
-            return j._write([{"kind": "lock_broken", "source": "hand", "labeler": j.labeler,
-                              "old_lock": old, "stale": is_stale(holder), "reason": reason or ""}])[0]
+        if not is_stale(holder):
+            if not force:
+                raise JournalError(f"the lock of {path} is held by {describe(holder)}, which may still be running "
+                                   "(or runs on another host); break it only if you are sure that program is gone "
+                                   "(force)")
+            try:
+                lock_path(path).unlink()
+            except FileNotFoundError:
+                pass
+        j = cls()
+        j.path, j.readonly, j.labeler = path, False, by or default_labeler()
+        j._forced = reason or "broken on purpose"
+        if is_stale(holder):
+            j._forced = reason or "its process is no longer running on this host"
+        with cls._open_writer(j, broken=holder):
+            ev = next((e for e in reversed(j.events) if e.get("kind") == "lock_broken"), None)
+            assert ev is not None
+            return ev
+
+    @classmethod
+    def recover(cls, path: str | Path, *, by: str | None = None, reason: str = "") -> dict | None:
+        """Set aside what a damaged journal cannot vouch for, and record it; returns the ``recovered`` event.
+
+        Every line from the first untrusted one on is moved to ``<journal>.set-aside-<UTC time>``
+        (nothing is deleted), the journal is cut there, and a ``recovered`` event records the problems,
+        the lines and bytes set aside (with their SHA-256), the old head and witness, who and why.  The
+        head and witness then record the new end.  None when the journal is intact (nothing to do).
+        """
+        j = cls()
+        j.path, j.readonly, j.labeler = Path(path), False, by or default_labeler()
+        if not j.path.is_file():
+            raise JournalError(f"there is no label journal at {j.path}")
+        with cls._open_writer(j, broken=None, recover_reason=reason or "recover"):
+            return j._recovered
 
     # --- reading --------------------------------------------------------------------------
     def state(self, current_hashes: Mapping[str, str] | None = None) -> pd.DataFrame:
@@ -431,7 +619,14 @@ class LabelJournal:
         if self._fd is not None:
             os.close(self._fd)
             self._fd = None
+        if self._head_lags and not self._crashed:
+            self._update_head(self._last_seq, self._last_hash)
         if self._lock is not None:
+            if self._crashed or self._head_lags:
+                # the files look like a crash's leftovers; the lock stays as a crash would leave it, so the
+                # next writer (once this process has ended) accepts them as such
+                self._lock = None
+                return
             release(self.path, self._lock)
             self._lock = None
 

@@ -22,7 +22,11 @@ SCHEMA_VERSION = 1
 #: no newline translation on Windows (0 elsewhere)
 BINARY = getattr(os, "O_BINARY", 0)
 HEADER_KIND = "header"
-KINDS = ("header", "label", "undo", "lock_broken", "review_complete")
+#: a batch (automatic labels, an import) is written as batch_begin, its label events (each naming the
+#: begin's seq in ``batch``) and batch_commit; only a committed batch counts.  batch_abandoned sets an
+#: unfinished one aside; recovered records what ``basinmark recover`` set aside and why.
+BATCH_KINDS = ("batch_begin", "batch_commit", "batch_abandoned")
+KINDS = ("header", "label", "undo", "lock_broken", "review_complete", *BATCH_KINDS, "recovered")
 
 
 class JournalError(BasinmarkError):
@@ -123,11 +127,25 @@ def write_head(journal: str | Path, seq: int, digest: str) -> None:
 
 def read_head(journal: str | Path) -> tuple[int, str] | None:
     """The (seq, hash) in the head file, or None when it is missing or unreadable."""
+    return read_head_state(journal)[0]
+
+
+def read_head_state(journal: str | Path) -> tuple[tuple[int, str] | None, str]:
+    """((seq, hash) or None, and ``ok``, ``missing`` or ``unreadable``)."""
     try:
-        obj = json.loads(head_path(journal).read_text(encoding="ascii"))
-        return int(obj["seq"]), str(obj["hash"])
-    except (OSError, ValueError, KeyError, TypeError, UnicodeDecodeError):
-        return None
+        text = head_path(journal).read_text(encoding="ascii")
+    except FileNotFoundError:
+        return None, "missing"
+    except (OSError, UnicodeDecodeError):
+        return None, "unreadable"
+    try:
+        obj = json.loads(text)
+        seq, digest = obj["seq"], obj["hash"]
+    except (ValueError, KeyError, TypeError):
+        return None, "unreadable"
+    if not isinstance(seq, int) or isinstance(seq, bool) or not isinstance(digest, str):
+        return None, "unreadable"
+    return (seq, digest), "ok"
 
 
 def split_lines(data: bytes) -> tuple[list[bytes], bytes]:

@@ -4,6 +4,10 @@ Each run keeps a stack of its effective label events.  A label event pushes onto
 an undo pops the latest one.  The automatic label is the latest ``rule`` event on the stack,
 the hand label the latest ``hand``/``import``/``review`` event, and the final label is the
 hand label if there is one, else the automatic one.
+
+A batch counts only once committed: the label events after a ``batch_begin`` are held back
+until its ``batch_commit`` and dropped by ``batch_abandoned`` (or when the events end first).
+:attr:`Replay.events` lists the events that count, in order.
 """
 
 from __future__ import annotations
@@ -28,9 +32,25 @@ class Replay:
         self.stacks: dict[str, list[dict]] = {}
         self.counts: dict[str, int] = {}
         self.events: list[dict] = []
+        self.pending: list[dict] | None = None  # members of a batch under way (not counted yet)
+        self.pending_begin: int | None = None
 
     # --- applying events -----------------------------------------------------------------
     def apply(self, event: dict) -> None:
+        kind = event.get("kind")
+        if self.pending is not None:
+            if kind == "label" and event.get("batch") == self.pending_begin:
+                self.pending.append(event)
+                return
+            held, self.pending, self.pending_begin = self.pending, None, None
+            if kind == "batch_commit":
+                for ev in held:
+                    self._apply(ev)
+        if kind == "batch_begin":
+            self.pending, self.pending_begin = [], event.get("seq")
+        self._apply(event)
+
+    def _apply(self, event: dict) -> None:
         self.events.append(event)
         kind = event.get("kind")
         if kind != "label" and kind != "undo":

@@ -1,146 +1,119 @@
-"""Verification of a label journal: header, JSON form, sequence, hash chain, head file, run data.
+"""Verification of a label journal: header, JSON form, sequence, hash chain, batches, head file, witness,
+run data.
 
-:func:`verify_journal` reads the file without taking the lock and returns a list of
-:class:`Problem`; an empty list means the journal is intact (as far as the files can show,
-see :mod:`basinmark.core.journal`).
+:func:`verify_journal` reads a consistent snapshot of the files without taking the lock (see
+:func:`read_snapshot`) and returns a list of :class:`Problem`; an empty list means the journal is
+intact as far as the files (and the witness, when there is one) can show, see
+:mod:`basinmark.core.journal`.  What a crash leaves (a torn last line, one write past the head by a
+writer that is gone or still at work) is not a problem: :func:`verify_report` lists it as a note.
 """
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Mapping
 
-from basinmark.core.journal_format import (HEADER_KIND, KINDS, canonical, event_hash, head_path, line_hash,
-                                           parse_line, read_head, split_lines)
+from basinmark.core import journal_witness
+from basinmark.core.journal_check import Integrity, Problem, check, check_witness
+from basinmark.core.journal_format import read_head_state, split_lines
+from basinmark.core.journal_lock import holder_state, read_lock
 from basinmark.core.journal_replay import Replay
-from basinmark.core.labels import SOURCES
 
-_REQUIRED = {
-    "header": ("seq", "prev", "hash", "schema", "created_at"),
-    "label": ("seq", "prev", "hash", "time", "labeler", "source", "run", "content_hash", "label", "replaces"),
-    "undo": ("seq", "prev", "hash", "time", "labeler", "run", "undoes"),
-    "lock_broken": ("seq", "prev", "hash", "time", "labeler"),
-    "review_complete": ("seq", "prev", "hash", "time", "labeler"),
-}
+__all__ = ["Problem", "Snapshot", "read_snapshot", "verify_journal", "verify_report"]
 
 
-@dataclass(frozen=True)
-class Problem:
-    """One thing wrong with a journal: where (line, 1-based; event seq if known), what, and a sentence."""
+@dataclass
+class Snapshot:
+    """The journal's bytes with the head and lock as they were while those bytes were read."""
 
-    line: int | None
-    event: int | None
-    what: str  # short key: bad_json, not_canonical, bad_hash, bad_seq, bad_prev, header, torn, head, data_changed, ...
-    message: str
+    data: bytes
+    head: tuple[int, str] | None
+    head_state: str
+    writer: str  # journal_check.NOBODY / ACTIVE / GONE
+    witness: dict | None | str = "unread"  # read before the journal, so it is never ahead of it
 
-    def __str__(self) -> str:
-        where = f"line {self.line}" if self.line is not None else "journal"
-        if self.event is not None:
-            where += f" (event {self.event})"
-        return f"{where}: {self.message}"
+
+def read_snapshot(path: str | Path, tries: int = 100) -> Snapshot:
+    """Read head, journal, lock and head again, until the snapshot is one a single moment could show.
+
+    A writer appends and fsyncs, then replaces the head, and releases the lock only after that.  So
+    the journal read before the second head holds at most one write past it; when it also holds the
+    event that head names, journal and second head belong together, and the lock (read between
+    them) shows whether a writer was at it.  Otherwise (the head moved on past what was read) read
+    again.  Raises OSError when the journal cannot be read.
+    """
+    path = Path(path)
+    with open(path, "rb") as fh:  # the header line never changes: it names the witness
+        first = fh.readline()
+    witness = journal_witness.read_for(path, [first.rstrip(b"\n")]) if first.endswith(b"\n") else None
+    for attempt in range(tries):
+        head1 = read_head_state(path)
+        data = path.read_bytes()
+        holder = read_lock(path)
+        head2 = read_head_state(path)
+        if head1 == head2 or (head2[0] is not None and head2[0][0] < data.count(b"\n")):
+            break
+        time.sleep(0.001 * min(attempt + 1, 10))
+    return Snapshot(data, head2[0], head2[1], holder_state(holder), witness)
+
+
+def _witness_for(path: Path, lines: list[bytes]) -> dict | None:
+    return journal_witness.read_for(path, lines)
+
+
+def integrity_of(path: str | Path, snap: Snapshot, *, expect: dict | None = None,
+                 use_witness: bool = True) -> Integrity:
+    """Check a snapshot (and, when given, a receipt's ``expect`` instead of / besides the witness)."""
+    lines, tail = split_lines(snap.data)
+    if not use_witness:
+        witness = None
+    elif snap.witness == "unread":
+        witness = _witness_for(Path(path), lines)
+    else:
+        witness = snap.witness
+    res = check(lines, tail, head=snap.head, head_state=snap.head_state, writer=snap.writer, witness=witness)
+    res.journal_id = journal_witness.journal_id(lines)
+    if expect is not None:
+        jid = res.journal_id or ""
+        if expect.get("id") and not jid.startswith(expect["id"]):
+            res.problems.append(Problem(1, 0, "receipt", f"the receipt is for another journal (id {expect['id']}, "
+                                        f"this one is {jid[:16] or 'without a header'}): the journal was replaced, "
+                                        "or it is the wrong one"))
+        else:
+            check_witness(res, expect, {ev.get("seq"): i for i, ev in reversed(list(enumerate(res.events)))
+                                        if ev is not None and isinstance(ev.get("seq"), int)})
+        res.problems.sort(key=lambda p: len(lines) + 2 if p.line is None else p.line)
+    return res
+
+
+def verify_report(path: str | Path, current_hashes: Mapping[str, str] | None = None, *,
+                  expect: dict | None = None) -> tuple[list[Problem], list[str], Integrity | None]:
+    """(problems, notes about accepted crash leftovers, the integrity check or None if unreadable)."""
+    path = Path(path)
+    try:
+        snap = read_snapshot(path)
+    except OSError as exc:
+        return [Problem(None, None, "unreadable", f"cannot read {path}: {exc.strerror or exc}")], [], None
+    res = integrity_of(path, snap, expect=expect)
+    problems = list(res.problems)
+    if current_hashes is not None:
+        replay = Replay()
+        line_of: dict[int, int] = {}
+        for i, ev in enumerate(res.events[: res.good_lines]):
+            if ev is not None:
+                replay.apply(ev)
+                if isinstance(ev.get("seq"), int):
+                    line_of.setdefault(ev["seq"], i + 1)
+        _check_data(replay, current_hashes, line_of, problems.append)
+    big = res.n_lines + 2
+    return sorted(problems, key=lambda p: big if p.line is None else p.line), res.notes, res
 
 
 def verify_journal(path: str | Path, current_hashes: Mapping[str, str] | None = None) -> list[Problem]:
     """Check a journal file; with ``current_hashes`` (run -> content hash) also check the labeled runs' data."""
-    path = Path(path)
-    try:
-        data = path.read_bytes()
-    except OSError as exc:
-        return [Problem(None, None, "unreadable", f"cannot read {path}: {exc.strerror or exc}")]
-    lines, tail = split_lines(data)
-    problems: list[Problem] = []
-    add = problems.append
-    replay = Replay()
-    line_of: dict[int, int] = {}
-    expect_seq: int | None = 0
-    prev_ok: tuple[str, ...] | None = ("",)
-    last_seq, last_hash = -1, ""
-    for i, raw in enumerate(lines):
-        n = i + 1
-        ev = parse_line(raw)
-        if ev is None:
-            add(Problem(n, None, "bad_json", "this line is not a valid JSON object (damaged or edited)"))
-            expect_seq, prev_ok = None, None
-            continue
-        seq = ev.get("seq")
-        seq_i = seq if isinstance(seq, int) and not isinstance(seq, bool) else None
-        kind = ev.get("kind")
-        stored = ev.get("hash")
-        computed = line_hash(raw, stored)
-        if computed is None or computed != stored:
-            # the slow, exact path for lines that do not pass the shortcut
-            try:
-                is_canon = raw == canonical(ev).encode("ascii")
-            except (TypeError, ValueError, UnicodeEncodeError):
-                is_canon = False
-            if not is_canon:
-                add(Problem(n, seq_i, "not_canonical", "this line is not written the way basinmark writes "
-                            "events (edited by hand or by another program)"))
-            try:
-                computed = event_hash(ev)
-            except (TypeError, ValueError):
-                computed = ""
-            if stored != computed:
-                add(Problem(n, seq_i, "bad_hash", "the event's hash does not match its content: it was changed "
-                            "after it was written"))
-        if kind not in KINDS:
-            add(Problem(n, seq_i, "bad_kind", f"unknown event kind {kind!r}"))
-        else:
-            missing = [k for k in _REQUIRED[kind] if k not in ev]
-            if missing:
-                add(Problem(n, seq_i, "missing_field", f"the event lacks {', '.join(missing)}"))
-        if kind == "label" and (ev.get("source") not in SOURCES or not isinstance(ev.get("label"), str)
-                                or not isinstance(ev.get("run"), str)):
-            add(Problem(n, seq_i, "bad_field", "the label event's source, label or run is not valid"))
-        if i == 0 and kind != HEADER_KIND:
-            add(Problem(n, seq_i, "header", "the journal does not start with a header event"))
-        elif i > 0 and kind == HEADER_KIND:
-            add(Problem(n, seq_i, "header", "a second header in the middle of the journal"))
-        if expect_seq is not None and seq_i != expect_seq:
-            add(Problem(n, seq_i, "bad_seq", f"sequence number {seq!r} where {expect_seq} was expected "
-                        "(an event was removed, repeated, moved or inserted)"))
-        if prev_ok is not None and ev.get("prev") not in prev_ok:
-            add(Problem(n, seq_i, "bad_prev", "this event does not follow the one before it (the previous "
-                        "event's hash differs): events were removed, moved or inserted"))
-        expect_seq = None if seq_i is None else seq_i + 1
-        prev_ok = tuple(h for h in (stored, computed) if isinstance(h, str) and h)
-        if seq_i is not None:
-            line_of.setdefault(seq_i, n)
-            last_seq, last_hash = seq_i, stored if isinstance(stored, str) else ""
-        replay.apply(ev)
-    if not lines and not tail:
-        add(Problem(None, None, "header", "the journal is empty (no header)"))
-    if tail:
-        add(Problem(len(lines) + 1, None, "torn", f"the last line is incomplete ({len(tail)} bytes, probably a "
-                    "crash while writing); opening the journal for writing sets it aside"))
-    _check_head(path, lines, last_seq, last_hash, line_of, add)
-    if current_hashes is not None:
-        _check_data(replay, current_hashes, line_of, add)
-    big = len(lines) + 2
-    return sorted(problems, key=lambda p: big if p.line is None else p.line)
-
-
-def _check_head(path: Path, lines: list, last_seq: int, last_hash: str, line_of: dict, add) -> None:
-    if not lines:
-        return
-    head = read_head(path)
-    if head is None:
-        add(Problem(None, None, "head", f"the head file {head_path(path).name} is missing or unreadable, so "
-                    "events cut from the end could not be noticed"))
-        return
-    seq, digest = head
-    if seq > last_seq:
-        add(Problem(len(lines) + 1, last_seq + 1, "head", f"the journal ends at event {last_seq} but its head "
-                    f"file records event {seq}: events were removed from the end"))
-    elif seq < last_seq:
-        add(Problem(line_of.get(seq + 1), seq + 1, "head", f"{last_seq - seq} event(s) after the last one the "
-                    "head file records: written by a program that stopped before finishing, or added by "
-                    "another program (opening the journal for writing accepts them)"))
-    elif digest != last_hash:
-        # the last line is where the journal's end differs (an earlier event may carry the same number)
-        add(Problem(len(lines), seq, "head", "the last event's hash differs from the one in the head "
-                    "file: the end of the journal was changed"))
+    return verify_report(path, current_hashes)[0]
 
 
 def _check_data(replay: Replay, current: Mapping[str, str], line_of: dict, add) -> None:
