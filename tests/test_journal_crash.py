@@ -151,3 +151,27 @@ def test_stale_lock_is_broken_deliberately_and_recorded(tmp_path):
     with pytest.raises(JournalError, match="not locked"):
         LabelJournal.break_lock(path, by="chief")
     assert verify_journal(path) == []
+
+
+def test_failed_lock_creation_leaves_no_lock(tmp_path, monkeypatch):
+    """A full disk while the lock is written: a plain error, and no empty lock left to block every writer."""
+    from basinmark.core.journal_lock import JournalFileError
+
+    path = tmp_path / "basinmark-labels.jsonl"
+    real_write = os.write
+    lock = str(lock_path(path))
+
+    def no_space(fd, data):
+        if os.readlink(f"/proc/self/fd/{fd}") == lock:
+            raise OSError(28, "No space left on device")
+        return real_write(fd, data)
+    if not os.path.isdir("/proc/self/fd"):
+        pytest.skip("needs /proc to tell the lock's descriptor")
+    monkeypatch.setattr(os, "write", no_space)
+    with pytest.raises(JournalFileError, match="No space left on device") as err:
+        LabelJournal.open(path, labeler="mira")
+    assert err.value.errno == 28 and err.value.path == lock_path(path)
+    monkeypatch.undo()
+    assert not lock_path(path).exists()
+    with LabelJournal.open(path, labeler="mira") as j:
+        j.record("r1", "alpha", content_hash="ab" * 32)
