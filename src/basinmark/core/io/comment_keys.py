@@ -98,6 +98,7 @@ class Comments:
     bad: list[tuple[int, BadToken]] = field(default_factory=list)  # (frame index, token), first few per text
     bad_count: dict[str, int] = field(default_factory=dict)  # token text -> how many lines
     dropped: dict[str, str] = field(default_factory=dict)  # what was not kept -> why
+    flags: set[str] = field(default_factory=set)  # keys that were words without '='
 
 
 class _Sparse:
@@ -213,10 +214,7 @@ def _general(lines: list[str], out: Comments) -> None:
                     flags.add(key)
                     if len(flags) > MAX_FLAGS:
                         flags_dropped = True
-                        examples = ", ".join(repr(f) for f in sorted(flags)[:3])
-                        out.dropped["flags"] = (f"the comment lines hold more than {MAX_FLAGS} different words "
-                                                f"without '=' (such as {examples}); words that change from frame "
-                                                "to frame are not keys, so none of them were kept")
+                        out.dropped["flags"] = _FLAGS_NOTE.format(", ".join(repr(f) for f in sorted(flags)[:3]))
                         for f in flags:
                             cols.pop(f, None)
                         continue
@@ -233,6 +231,7 @@ def _general(lines: list[str], out: Comments) -> None:
                 del cols[key]
                 out.dropped[key] = (f"key {key!r} holds text that changes on nearly every frame (more than "
                                     f"{MAX_DISTINCT} different values), so it was not kept")
+    out.flags = set() if flags_dropped else flags
     for key, col in cols.items():
         if key == PROPERTIES:
             tmp = Comments(out.n)
@@ -284,18 +283,22 @@ def _constant(key: str, value, out: Comments) -> None:
             out.text[key] = col
 
 
-_NUMERIC_BYTES = re.compile(rb"[0-9eE.+\-\n]*")
+_SPECIAL = re.compile(rb"[=\"'\[\]{}\\]")
+_PLAIN_NUMBERS = re.compile(rb"[0-9eE.+\-]*")
 
 
 def _column_floats(values: list[bytes]) -> np.ndarray | None:
-    """Plain decimal numbers converted in C; None if any value is something else."""
-    joined = b"\n".join(values)
-    if not _NUMERIC_BYTES.fullmatch(joined) or b"\n\n" in b"\n" + joined + b"\n":
-        return None
+    """Numbers converted in C by float(); None if any value is something else.
+
+    float() also takes '1_000' and 'infinity', which the format does not write: values holding '_' or
+    letters other than e/E are left to the value parser."""
     try:
-        return np.array(list(map(float, values)), dtype=np.float64)
+        out = np.array(list(map(float, values)), dtype=np.float64)
     except ValueError:
         return None
+    if not _PLAIN_NUMBERS.fullmatch(b"".join(values)):
+        return None
+    return out
 
 
 def _regular(lines: list[bytes], out: Comments) -> bool:
@@ -340,12 +343,21 @@ def _regular(lines: list[bytes], out: Comments) -> bool:
     if len(toks) != n * width:
         return False
     columns: list[tuple[str, list]] = []
+    flag_keys: list[str] = []
+    varying: dict[bytes, None] = {}
     for key, raw_key, is_flag, j0, j1 in spans:
         col = toks[j0::width]
         if is_flag:
             if col.count(raw_key) != n:
-                return False
-            columns.append((key, [True] * n))
+                # a word that changes from line to line (``frame 17``): many distinct words are not keys
+                if _SPECIAL.search(b"".join(col)):
+                    return False
+                distinct = set(col)
+                if len(distinct) <= MAX_FLAGS:
+                    return False  # few distinct words: flags, read line by line
+                varying.update(dict.fromkeys(col[:3]))
+                continue
+            flag_keys.append(key)
             continue
         prefix = raw_key + b"="
         if (b"\n" + b"\n".join(col)).count(b"\n" + prefix) != n:
@@ -380,6 +392,13 @@ def _regular(lines: list[bytes], out: Comments) -> bool:
                     cache[r] = v
             values.append(v)
         columns.append((key, values))
+    if varying:
+        examples = ", ".join(repr(w.decode("utf-8", "replace")) for w in list(varying)[:3])
+        out.dropped["flags"] = _FLAGS_NOTE.format(examples)
+    else:
+        for key in flag_keys:
+            columns.append((key, (True,)))
+            out.flags.add(key)
     for key, values in columns:
         if key.lower() == PROPERTIES.lower():
             key = PROPERTIES
@@ -401,11 +420,10 @@ def parse_comments(lines: list[bytes]) -> Comments:
     (``Comments.bad``) and keep every other key.
     """
     out = Comments(len(lines))
-    lines = [ln.strip() for ln in lines]
     if not lines:
         return out
-    joined_has_eq = any(b"=" in ln for ln in lines)
-    if not joined_has_eq:
+    if not any(b"=" in ln for ln in lines):
+        lines = [ln.strip() for ln in lines]
         if any(lines):
             col = TextColumn.from_strings(ln.decode("utf-8", "replace") for ln in lines)
             if len(col.table) > MAX_DISTINCT + 1:
@@ -417,5 +435,92 @@ def parse_comments(lines: list[bytes]) -> Comments:
     if _regular(lines, out):
         return out
     out = Comments(len(lines))
-    _general([ln.decode("utf-8", "replace") for ln in lines], out)
+    _general([ln.strip().decode("utf-8", "replace") for ln in lines], out)
+    return out
+
+
+_FLAGS_NOTE = (f"the comment lines hold more than {MAX_FLAGS} different words without '=' (such as {{}}); words "
+               "that change from frame to frame are not keys, so none of them were kept")
+_TEXT_NOTE = ("key {!r} holds text that changes on nearly every frame (more than " + str(MAX_DISTINCT)
+              + " different values), so it was not kept")
+
+
+def _as_texts(part: Comments, key: str) -> TextColumn:
+    """One part's column as text, whatever it was stored as."""
+    if key in part.text:
+        return part.text[key]
+    if key in part.info:
+        return TextColumn.from_strings("" if np.isnan(v) else as_text(float(v)) for v in part.info[key].tolist())
+    rows = part.vectors[key]
+    return TextColumn.from_strings("" if np.isnan(r).all() else as_text(r) for r in rows)
+
+
+def _merge_text(cols: list[TextColumn | None], sizes: list[int], limit: int | None) -> TextColumn | None:
+    table: dict[str, int] = {"": 0}
+    codes = np.zeros(sum(sizes), np.int32)
+    at = 0
+    for col, size in zip(cols, sizes):
+        if col is not None:
+            remap = np.array([table.setdefault(t, len(table)) for t in col.table], dtype=np.int32)
+            codes[at:at + size] = remap[col.codes]
+            if limit is not None and len(table) > limit + 1:
+                return None
+        at += size
+    return TextColumn(table, codes)
+
+
+def merge(parts: list[Comments]) -> Comments:
+    """The columns of consecutive blocks of frames joined into one (a file read piece by piece)."""
+    if len(parts) == 1:
+        return parts[0]
+    sizes = [p.n for p in parts]
+    starts = np.cumsum([0] + sizes[:-1]).tolist()
+    out = Comments(sum(sizes))
+    for p in parts:
+        for k, v in p.dropped.items():
+            out.dropped.setdefault(k, v)
+    for p, at in zip(parts, starts):
+        for frame, bad in p.bad:
+            if bad.text not in out.bad_count and len(out.bad) < 20:
+                out.bad.append((frame + at, bad))
+        for text, count in p.bad_count.items():
+            out.bad_count[text] = out.bad_count.get(text, 0) + count
+    flags = set().union(*(p.flags for p in parts))
+    if "flags" in out.dropped or len(flags) > MAX_FLAGS:
+        out.dropped.setdefault("flags", _FLAGS_NOTE.format(", ".join(repr(f) for f in sorted(flags)[:3])))
+        skip = flags
+    else:
+        skip = set()
+        out.flags = flags
+    keys = [k for k in dict.fromkeys(k for p in parts for k in (*p.info, *p.vectors, *p.text))
+            if k not in skip and k not in out.dropped]
+    if len(keys) > MAX_KEYS:
+        out.dropped.setdefault("keys", f"the comment lines name more than {MAX_KEYS} different keys; the keys after "
+                                       f"the first {MAX_KEYS} were not kept")
+        keys = keys[:MAX_KEYS]
+    for key in keys:
+        where = [("num" if key in p.info else "vec" if key in p.vectors else "text" if key in p.text else None)
+                 for p in parts]
+        kinds = {w for w in where if w is not None}
+        shapes = {p.vectors[key].shape[1:] for p, w in zip(parts, where) if w == "vec"}
+        if kinds == {"num"}:
+            arr = np.full(out.n, np.nan)
+            for p, at, w in zip(parts, starts, where):
+                if w:
+                    arr[at:at + p.n] = p.info[key]
+            out.info[key] = arr
+        elif kinds == {"vec"} and len(shapes) == 1:
+            arr = np.full((out.n,) + shapes.pop(), np.nan)
+            for p, at, w in zip(parts, starts, where):
+                if w:
+                    arr[at:at + p.n] = p.vectors[key]
+            out.vectors[key] = arr
+        else:
+            col = _merge_text([_as_texts(p, key) if w else None for p, w in zip(parts, where)], sizes, MAX_DISTINCT)
+            if col is None:
+                out.dropped[key] = _TEXT_NOTE.format(key)
+            else:
+                out.text[key] = col
+    if any(p.properties is not None for p in parts):
+        out.properties = _merge_text([p.properties for p in parts], sizes, None)
     return out

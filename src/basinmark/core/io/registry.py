@@ -12,6 +12,7 @@ import bz2
 import hashlib
 import importlib
 import lzma
+import os
 import warnings as _warnings
 import zlib
 from dataclasses import dataclass, field
@@ -150,6 +151,115 @@ def load_bytes(path: str | Path) -> tuple[bytes, str, list[str]]:
         warnings.append(message)
         _warnings.warn(f"{path}: {message}", PartialReadWarning, stacklevel=3)
     return data, sha, warnings
+
+
+#: stored bytes read at a time, and the most decompressed bytes handed on at a time, when a file is streamed
+RAW_PIECE = 1 << 20
+
+
+def _decoder(kind: str):
+    if kind == "gzip":
+        return zlib.decompressobj(wbits=31)
+    if kind == "bzip2":
+        return bz2.BZ2Decompressor()
+    return lzma.LZMADecompressor()
+
+
+class ByteStream:
+    """A file's (decompressed) bytes in pieces of at most ``piece`` bytes, so that a reader never holds it whole.
+
+    Iterate once; afterwards ``sha256`` is the SHA-256 of the stored bytes, ``warnings`` holds what
+    :func:`load_bytes` would warn (misnamed compression, data cut short) and ``size``/``produced`` the
+    stored and decompressed sizes.  Opening errors and damaged data raise :class:`TrajectoryFileError`.
+    """
+
+    def __init__(self, path: str | Path, piece: int | None = None):
+        self.path = Path(path)
+        self.piece = piece or RAW_PIECE
+        self.sha256 = ""
+        self.warnings: list[str] = []
+        self.produced = 0
+        try:
+            self._fh = open(self.path, "rb")
+        except FileNotFoundError:
+            raise TrajectoryFileError(self.path, "the file does not exist") from None
+        except IsADirectoryError:
+            raise TrajectoryFileError(self.path, "this is a folder, not a trajectory file") from None
+        except OSError as exc:
+            raise TrajectoryFileError(self.path, f"the file could not be read ({exc.strerror or exc})") from None
+        try:
+            self.size = os.fstat(self._fh.fileno()).st_size
+        except OSError:
+            self.size = 0
+        self._hash = hashlib.sha256()
+
+    def _read(self) -> bytes:
+        try:
+            chunk = self._fh.read(self.piece)
+        except OSError as exc:
+            raise TrajectoryFileError(self.path, f"the file could not be read ({exc.strerror or exc})") from None
+        self._hash.update(chunk)
+        return chunk
+
+    def __iter__(self):
+        try:
+            yield from self._pieces()
+            while self._read():  # hash whatever was not decompressed (trailing bytes)
+                pass
+            self.sha256 = self._hash.hexdigest()
+        finally:
+            self._fh.close()
+
+    def _pieces(self):
+        data = self._read()
+        kind = sniff_compression(data)
+        named = split_suffix(self.path)[1]
+        if kind is None:
+            if named is not None and data:
+                self.warnings.append(f"{self.path.name} is named as {named}-compressed but is not; read it as "
+                                     "plain text.")
+            while data:
+                self.produced += len(data)
+                yield data
+                data = self._read()
+            return
+        try:
+            yield from self._decompressed(data, kind)
+        except (zlib.error, OSError, EOFError, lzma.LZMAError, ValueError) as exc:
+            raise TrajectoryFileError(
+                self.path, f"the {kind} data is damaged and cannot be decompressed ({exc}); recopy the file from "
+                "its source") from None
+
+    def _decompressed(self, data: bytes, kind: str):
+        """Members/streams followed one after another, as gzip/bzip2/xz tools do; output bounded per step."""
+        d = _decoder(kind)
+        while True:
+            out = d.decompress(data, self.piece)
+            data = d.unconsumed_tail if kind == "gzip" else b""
+            if out:
+                self.produced += len(out)
+                yield out
+            if d.eof:
+                rest = d.unused_data + data
+                if kind == "gzip":
+                    rest = rest.lstrip(b"\x00")  # padding after a gzip member is allowed
+                if not rest:
+                    rest = self._read()
+                    if kind == "gzip":
+                        rest = rest.lstrip(b"\x00")
+                if not rest or sniff_compression(rest) != kind:
+                    return  # the end, or trailing garbage after the last member: keep what decoded
+                d, data = _decoder(kind), rest
+                continue
+            need_input = (not data and len(out) < self.piece) if kind == "gzip" else d.needs_input
+            if need_input:
+                data = self._read()
+                if not data:
+                    message = (f"the {kind} data ends early (the file was cut short); read the {self.produced} "
+                               "bytes that decompressed")
+                    self.warnings.append(message)
+                    _warnings.warn(f"{self.path}: {message}", PartialReadWarning, stacklevel=4)
+                    return
 
 
 def _resolve(target: str) -> Callable[..., FrameBlock]:

@@ -37,6 +37,11 @@ def read_ase(path: str | Path, *, dtype=np.float32) -> FrameBlock:
     _, sha, warnings = load_bytes(path)  # hash of the stored bytes, and a clear error if missing
     try:
         frames = ase.io.read(path, index=":")
+    except MemoryError:
+        raise TrajectoryFileError(
+            path, f"there is not enough memory to read this file ({path.stat().st_size / 1e6:.1f} MB on disk); close "
+            "other programs, read the set on a machine with more memory, or split the file into shorter runs"
+        ) from None
     except Exception as exc:  # ase raises many types; say which, in one sentence
         kind = type(exc).__name__
         raise TrajectoryFileError(

@@ -7,18 +7,11 @@ element symbols are compared frame by frame as whole arrays.  Why not ``ase.io.r
 and parses line by line, which is too slow for sets of thousands of runs
 (bench/bench_reader.py measures the difference).
 
-Two numeric paths, chosen automatically:
-
-* fixed-width columns (what dynamics codes and ase write): the atom lines
-  form a byte matrix; it is transposed once, every byte column classified by
-  its minimum and maximum, and each number assembled from its digit columns
-  by exact float32 vector-matrix products, the fastest way we measured;
-* anything else (irregular spacing, mixed widths, long mantissas):
-  whitespace tokens joined and converted in C by ``numpy.fromstring``.
-
-Both give the correctly rounded value of every token.  The fixed-width path
-gives up on anything unexpected, and the general path then reads the file and
-reports problems with their line.
+The file is streamed: decompressed and cut into pieces of whole frames
+(:data:`CHUNK_BYTES` of text each), each piece parsed on its own, and the
+pieces' arrays joined at the end, so that memory holds the results and one
+piece of text, never the whole text.  Atom lines: atom_columns.py; comment
+lines: comment_line.py (one line) and comment_keys.py (columns over frames).
 """
 
 from __future__ import annotations
@@ -32,362 +25,11 @@ import numpy as np
 from ase.data import atomic_numbers, chemical_symbols
 
 from basinmark.core.errors import PartialReadWarning, TrajectoryFileError
+from basinmark.core.io.atom_columns import _parse_fixed  # noqa: F401  (tests reach it here)
+from basinmark.core.io.atom_columns import _AXES, _NUMBER, _Column, _layout, _parse_tokens, _Slow
 from basinmark.core.io.comment_keys import Comments, parse_comments
-from basinmark.core.io.registry import FrameBlock, load_bytes
-
-# ---------------------------------------------------------------------------------------------
-# comment lines: see comment_line.py (one line) and comment_keys.py (columns over frames)
-
-_FORTRAN = bytes.maketrans(b"dD", b"eE")
-_NUMBER = re.compile(rb"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eEdD][+-]?\d+)?|[+-]?(?:nan|inf|infinity)", re.I)
-_INTEGER_TEXT = re.compile(rb"[0-9+\- \n]*")
-_BOOL_TOKENS = [b"T", b"F", b"True", b"False", b"true", b"false", b"TRUE", b"FALSE", b"1", b"0"]
-_TRUE_TOKENS = [b"T", b"True", b"true", b"TRUE", b"1"]
-_WHOLE = re.compile(rb"[+-]?\d+")
-
-
-# ---------------------------------------------------------------------------------------------
-# per-atom column layout (extended XYZ Properties=)
-
-
-@dataclass(frozen=True)
-class _Column:
-    name: str
-    kind: str  # S, R, I, L
-    count: int
-    start: int  # first token index within an atom line
-
-
-def _layout(props: str | None, path: Path, line: int) -> list[_Column]:
-    if props is None:
-        return [_Column("species", "S", 1, 0), _Column("pos", "R", 3, 1)]
-    parts = props.split(":")
-    bad = TrajectoryFileError(
-        path,
-        f"Properties={props} is not a valid column list "
-        "(name:type:count triples, type one of S, R, I, L)",
-        line,
-    )
-    if len(parts) % 3:
-        raise bad
-    cols, start = [], 0
-    for i in range(0, len(parts), 3):
-        name, kind, count = parts[i], parts[i + 1].upper(), parts[i + 2]
-        if kind not in ("S", "R", "I", "L") or not count.isdigit() or int(count) < 1 or not name:
-            raise bad
-        cols.append(_Column(name, kind, int(count), start))
-        start += int(count)
-    names = [c.name for c in cols]
-    if "pos" not in names and "positions" not in names:
-        raise TrajectoryFileError(path, "Properties= names no 'pos' column, so there are no coordinates", line)
-    if "species" not in names and "Z" not in names:
-        raise TrajectoryFileError(path, "Properties= names no 'species' (or 'Z') column, so the atoms are unknown",
-                                  line)
-    pos = cols[names.index("pos" if "pos" in names else "positions")]
-    if pos.kind not in ("R", "I") or pos.count != 3:
-        raise TrajectoryFileError(
-            path, f"Properties= declares {pos.name} as {pos.kind}:{pos.count}; coordinates need R:3", line)
-    for i, c in enumerate(cols):
-        if c.name in ("species", "Z") and c.count != 1:
-            raise TrajectoryFileError(path, f"Properties= declares {c.name} with {c.count} values per atom; "
-                                      "it needs 1", line)
-        if c.name == "species" and c.kind != "S":
-            cols[i] = _Column(c.name, "S", 1, c.start)  # symbols or atomic numbers, read as text either way
-        if c.name == "Z" and c.kind != "I":
-            cols[i] = _Column(c.name, "I", 1, c.start)
-    return cols
-
-
-# ---------------------------------------------------------------------------------------------
-# numeric parsing
-
-
-class _Slow(Exception):
-    """The fixed-width path does not apply; use the general path."""
-
-
-def _fixed_width_matrix(block: bytes, n_lines: int) -> np.ndarray | None:
-    """The atom lines as an (n_lines, width) byte matrix, if all have the same length."""
-    width = block.find(b"\n") if n_lines > 1 else len(block)
-    if width <= 0 or len(block) != n_lines * (width + 1) - 1:
-        return None
-    buf = np.frombuffer(block, np.uint8)
-    # rows of `width` bytes, `width + 1` apart (the last line has no line break after it)
-    grid = np.lib.stride_tricks.as_strided(buf, shape=(n_lines, width), strides=(width + 1, 1), writeable=False)
-    if n_lines > 1 and not (buf[width::width + 1] == 10).all():
-        return None
-    return grid
-
-
-_POW10 = np.array([10.0**k for k in range(309)])
-_CLASS_RE = re.compile(r"(m*)(d+)(?:(\.)(d*))?(?:(e)(m?)(d+))?|(m*)(d*)(\.)(d+)(?:(e)(m?)(d+))?")
-
-
-def _column_classes(cmin: np.ndarray, cmax: np.ndarray) -> str:
-    """One letter per byte column: d = digits only, . = dot only, e = one exponent letter, m = mixed."""
-    out = []
-    for lo, hi in zip(cmin.tolist(), cmax.tolist()):
-        if 48 <= lo and hi <= 57:
-            out.append("d")
-        elif lo == hi == 46:
-            out.append(".")
-        elif lo == hi and lo in b"eEdD":
-            out.append("e")
-        else:
-            out.append("m")
-    return "".join(out)
-
-
-def _sign_zone(zone: np.ndarray) -> np.ndarray:
-    """Check the leading mixed columns of a number (spaces, then an optional sign, then digits).
-
-    ``zone`` is (columns, lines).  Returns a boolean per line: negative.  Raises _Slow on anything else.
-    """
-    isdig = (zone >= 48) & (zone <= 57)
-    space = zone == 32
-    minus = zone == 45
-    sign = minus | (zone == 43)
-    if not (isdig | space | sign).all():
-        raise _Slow
-    nonspace = ~space
-    if (nonspace[:-1] & space[1:]).any() or (sign[1:] & nonspace[:-1]).any():
-        raise _Slow
-    return minus.any(axis=0)
-
-
-_W32 = [np.array([10.0 ** (k - 1 - i) for i in range(k)], dtype=np.float32) for k in range(8)]
-
-
-def _horner(cm: np.ndarray, columns: list[int], mixed: int) -> np.ndarray:
-    """Integer value of digit columns (the first ``mixed`` may hold spaces or a sign: counted as 0).
-
-    ``cm`` is the byte matrix transposed, (columns, lines), so each column is
-    contiguous.  Columns are taken in chunks of at most 7 from the right; each
-    chunk's digits times their place values are summed by a float32
-    vector-matrix product.  Every product and partial sum is an integer below
-    2**24, so the float32 result is exact; chunks are combined in float64,
-    exact below 2**53 (the caller sends longer numbers elsewhere).
-    """
-    value = np.zeros(cm.shape[1])
-    hi = len(columns)
-    scale = 1.0
-    while hi > 0:
-        lo = max(0, hi - 7)
-        idx = columns[lo:hi]
-        k = hi - lo
-        if idx[-1] - idx[0] == k - 1:
-            chunk = cm[idx[0]:idx[-1] + 1] - np.uint8(48)
-        else:
-            chunk = cm[idx] - np.uint8(48)
-        if lo < mixed:
-            head = chunk[:mixed - lo]
-            head[head > 9] = 0
-        part = _W32[k] @ chunk.astype(np.float32)
-        if scale == 1.0:
-            value += part
-        else:
-            value += part.astype(np.float64) * scale
-        scale *= 10.0 ** k
-        hi = lo
-    return value
-
-
-def _digit_span(cm: np.ndarray, a: int, n_lead: int) -> int:
-    """How many of the leading mixed columns can hold a digit (from the first one that does)."""
-    if not n_lead:
-        return 0
-    capable = np.flatnonzero(cm[a:a + n_lead].max(axis=1) >= 48)
-    return n_lead - int(capable[0]) if len(capable) else 0
-
-
-def _field_by_strtod(cm: np.ndarray, a: int, end: int) -> np.ndarray:
-    """Convert a validated field in C with numpy.fromstring (for mantissas beyond 15 digits, where
-    place-value sums in float64 would no longer be exact)."""
-    w, n = end - a, cm.shape[1]
-    text = np.full((n, w + 1), 32, np.uint8)
-    text[:, :w] = cm[a:end].T
-    raw = text.tobytes()
-    if b"d" in raw or b"D" in raw:
-        raw = raw.translate(_FORTRAN)
-    values = np.fromstring(raw, sep=" ")
-    if values.size != n:
-        raise _Slow
-    return values
-
-
-def _fixed_number(cm: np.ndarray, a: int, end: int, classes: str) -> np.ndarray:
-    """Convert one fixed-width numeric field, byte columns ``a:end`` (classes: its column letters)."""
-    m = _CLASS_RE.fullmatch(classes)
-    if m is None:
-        raise _Slow
-    g = m.groups()
-    if g[0] is not None or g[1] is not None and g[7] is None:  # first form: m* d+ (. d*)? (e m? d+)?
-        lead, ipart, dot, frac, exp, esign, edig = g[0:7]
-    else:  # second form: m* d* . d+ (e m? d+)?
-        lead, ipart, dot, frac, exp, esign, edig = g[7:14]
-    lead, ipart, frac = lead or "", ipart or "", frac or ""
-    n_lead, n_int = len(lead), len(ipart)
-    if _digit_span(cm, a, n_lead) + n_int + len(frac) > 15:
-        return _field_by_strtod(cm, a, end)
-    negative = _sign_zone(cm[a:a + n_lead]) if n_lead else None
-    mant_cols = list(range(a, a + n_lead + n_int))
-    if dot:
-        mant_cols += list(range(a + n_lead + n_int + 1, a + n_lead + n_int + 1 + len(frac)))
-    value = _horner(cm, mant_cols, n_lead)
-    decimals = len(frac)
-    if exp:
-        e0 = a + n_lead + n_int + (1 + len(frac) if dot else 0) + 1
-        eneg = _sign_zone(cm[e0:e0 + len(esign)]) if esign else None
-        expo = _horner(cm, list(range(e0, e0 + len(esign) + len(edig))), len(esign)).astype(np.int64)
-        if eneg is not None:
-            np.negative(expo, out=expo, where=eneg)
-        q = expo - decimals
-        # one multiplication or division by an exact power of ten (10**22 is the largest) rounds
-        # correctly; the rare rows beyond that are converted by float() from their text
-        far = np.abs(q) > 22
-        qc = np.clip(q, -22, 22)
-        value = np.where(qc >= 0, value * _POW10[np.clip(qc, 0, None)], value / _POW10[np.clip(-qc, 0, None)])
-        for r in np.flatnonzero(far).tolist():
-            value[r] = float(cm[a:end, r].tobytes().translate(_FORTRAN))
-        if negative is not None and far.any():
-            negative = negative & ~far  # float() already applied the sign
-    elif decimals:
-        value /= _POW10[decimals]
-    if negative is not None:
-        np.negative(value, out=value, where=negative)
-    return value
-
-
-def _parse_fixed(block: bytes, n_lines: int, cols: list[_Column]) -> dict[str, np.ndarray]:
-    """Fixed-width path (columns at the same byte offsets on every atom line); raises _Slow when it does not apply.
-
-    The byte matrix is transposed once so that every byte column is
-    contiguous (the strided alternative re-reads the whole file per column).
-    Each column is summarised by its minimum and maximum over all lines, which
-    classifies it (digits only, the decimal point, an exponent letter, or
-    mixed); only the few mixed columns are checked byte by byte.  Any doubt
-    raises _Slow, and the general path then parses the file (and reports
-    errors with their line).
-    """
-    if any(c.kind not in ("S", "R", "I") or (c.kind == "S" and c.count != 1) for c in cols):
-        raise _Slow
-    grid = _fixed_width_matrix(block, n_lines)
-    if grid is None:
-        raise _Slow
-    cm = np.ascontiguousarray(grid.T)
-    cmin, cmax = cm.min(axis=1), cm.max(axis=1)
-    if cmin.min() < 32 or cmax.max() > 126:
-        raise _Slow
-    used = (cmax != 32).view(np.int8)
-    edges = np.flatnonzero(np.diff(np.concatenate(([0], used, [0]))))
-    starts, ends = edges[0::2].tolist(), edges[1::2].tolist()
-    if len(starts) != sum(c.count for c in cols):
-        raise _Slow
-    out: dict[str, np.ndarray] = {}
-    for c in cols:
-        fields = []
-        for t in range(c.start, c.start + c.count):
-            a, b = starts[t], ends[t]
-            if c.kind == "S":
-                ns = cm[a:b] != 32
-                # exactly one token per line in this field
-                if not ns[0].all() and not ns[-1].all():
-                    raise _Slow
-                if b - a > 1 and (ns[1:] & ~ns[:-1]).sum() + int(ns[0].sum()) != n_lines:
-                    raise _Slow
-                fields.append(np.ascontiguousarray(cm[a:b].T).view(f"S{b - a}").ravel())
-            else:
-                classes = _column_classes(cmin[a:b], cmax[a:b])
-                if c.kind == "I" and ("." in classes or "e" in classes):
-                    raise _Slow  # not whole numbers: the general path says where
-                fields.append(_fixed_number(cm, a, b, classes))
-        out[c.name] = fields[0] if c.kind == "S" else np.stack(fields, axis=1)
-    return out
-
-
-def _parse_tokens(block: bytes, n_lines: int, cols: list[_Column], where) -> dict[str, np.ndarray]:
-    """General path: whitespace tokens; numbers converted in C by numpy.fromstring."""
-    n_tokens = sum(c.count for c in cols)
-    toks = block.split()
-    if len(toks) != n_lines * n_tokens:
-        _column_count_error(block, n_tokens, cols, where)
-    out: dict[str, np.ndarray] = {}
-    numeric = [c for c in cols if c.kind in ("R", "I")]
-    for c in cols:
-        if c.kind in ("S", "L"):
-            per = [np.array(toks[t::n_tokens]) for t in range(c.start, c.start + c.count)]
-            if c.kind == "L":
-                for k, p in enumerate(per):
-                    ok = np.isin(p, _BOOL_TOKENS)
-                    if not ok.all():
-                        i = int(np.flatnonzero(~ok)[0])
-                        raise TrajectoryFileError(
-                            where.path, f"{_token_name(c.start + k, cols)} holds {p[i].decode('utf-8', 'replace')!r}, "
-                            "but Properties= declares it logical (L): T or F", where.line_of(i))
-                per = [np.isin(p, _TRUE_TOKENS) for p in per]
-            out[c.name] = per[0] if c.count == 1 else np.stack(per, axis=1)
-        elif c.kind == "I":
-            for t in range(c.start, c.start + c.count):
-                col = toks[t::n_tokens]
-                if not _INTEGER_TEXT.fullmatch(b" ".join(col)):  # (a stray sign inside is caught as "not a number")
-                    i = next(i for i, x in enumerate(col) if not _WHOLE.fullmatch(x))
-                    raise TrajectoryFileError(
-                        where.path, f"{_token_name(t, cols)} holds {col[i].decode('utf-8', 'replace')!r}, but "
-                        "Properties= declares it a whole number (I)", where.line_of(i))
-    num_idx = [t for c in numeric for t in range(c.start, c.start + c.count)]
-    if num_idx == list(range(n_tokens - len(num_idx), n_tokens)) and n_tokens - len(num_idx) <= 1:
-        if n_tokens > len(num_idx):
-            del toks[0::n_tokens]  # drop the species column in place (C speed)
-        nums = toks
-    else:
-        nums = np.array(toks, dtype=object).reshape(n_lines, n_tokens)[:, num_idx].ravel().tolist()
-    text = b" ".join(nums)
-    if b"d" in text or b"D" in text:
-        text = text.translate(_FORTRAN)
-    try:
-        values = np.fromstring(text, sep=" ")
-    except ValueError:
-        values = np.zeros(0)
-    if values.size != len(nums):
-        for i, tok in enumerate(nums):
-            if not _NUMBER.fullmatch(tok):
-                line_index, k = divmod(i, len(num_idx))
-                name = _token_name(num_idx[k], cols)
-                raise TrajectoryFileError(where.path, f"{name} {tok.decode('utf-8', 'replace')!r} is not a number",
-                                          where.line_of(line_index))
-        raise TrajectoryFileError(where.path, "some atom lines hold values that are not numbers", where.line_of(0))
-    values = values.reshape(n_lines, len(num_idx))
-    pos = 0
-    for c in numeric:
-        out[c.name] = values[:, pos:pos + c.count]
-        pos += c.count
-    return out
-
-
-_AXES = "xyz"
-
-
-def _token_name(t: int, cols: list[_Column]) -> str:
-    for c in cols:
-        if c.start <= t < c.start + c.count:
-            if c.name in ("pos", "positions"):
-                return f"the {_AXES[t - c.start]} coordinate"
-            return f"column {c.name!r}" + (f" (component {t - c.start + 1})" if c.count > 1 else "")
-    return f"column {t + 1}"
-
-
-def _column_count_error(block: bytes, n_tokens: int, cols: list[_Column], where) -> None:
-    if cols[0].name == "species" and cols[1].start == 1 and (len(cols) == 2 or cols[2].name.startswith("_col")):
-        what = f"an element and three coordinates, like the first atom line, line {where.line_of(0)}"
-    else:
-        what = "as Properties= declares: " + ", ".join(
-            c.name + (f"×{c.count}" if c.count > 1 else "") for c in cols)
-    for i, line in enumerate(block.split(b"\n")):
-        k = len(line.split())
-        if k != n_tokens:
-            raise TrajectoryFileError(
-                where.path, f"this atom line has {k} values but {n_tokens} are expected ({what})", where.line_of(i))
-    raise TrajectoryFileError(where.path, "the atom lines do not have the expected columns", where.line_of(0))
+from basinmark.core.io.comment_keys import merge as merge_comments
+from basinmark.core.io.registry import RAW_PIECE, ByteStream, FrameBlock
 
 
 # ---------------------------------------------------------------------------------------------
@@ -504,12 +146,13 @@ def _frame_boundary_error(lines: list[bytes], k: int, n: int, where: _Where) -> 
     _atom_count(head, where.path, ln)
 
 
-def _check_text(data: bytes, path: Path) -> None:
+def _check_text(data: bytes, path: Path, base: int = 0) -> None:
+    """NUL bytes and text that is not UTF-8, named with their line (``base``: file lines before ``data``)."""
     nul = data.find(b"\x00")
     if nul >= 0:
         raise TrajectoryFileError(
             path, "the file holds binary data (a NUL byte), so it is not a text XYZ file",
-            data.count(b"\n", 0, nul) + 1)
+            base + data.count(b"\n", 0, nul) + 1)
     if not data.isascii():
         try:
             data.decode("utf-8")
@@ -518,7 +161,7 @@ def _check_text(data: bytes, path: Path) -> None:
                 path,
                 f"the file is not UTF-8 text (byte 0x{data[exc.start]:02x} cannot be decoded); it may be binary, "
                 "or saved in another encoding — save it as UTF-8 or plain ASCII",
-                data.count(b"\n", 0, exc.start) + 1) from None
+                base + data.count(b"\n", 0, exc.start) + 1) from None
 
 
 def _comment_warnings(meta: Comments, path: Path, line_of_frame, warnings: list[str]) -> None:
@@ -539,170 +182,340 @@ def _partial(path: Path, message: str, warnings: list[str]) -> None:
     _warnings.warn(f"{path}: {message}", PartialReadWarning, stacklevel=4)
 
 
+#: text parsed at a time; the arrays made from it are a few times its size, so this bounds the reader's
+#: working memory beside its results (measured: 2 MB pieces read as fast as whole files)
+CHUNK_BYTES = 2 << 20
+_BOM = b"\xef\xbb\xbf"
+_WHITESPACE = bytes.maketrans(b"\t\f\v", b"   ")
+_BLANK_LINES = re.compile(rb"(?:[ ]*\n)*")
+
+
+@dataclass
+class _Part:
+    """The frames parsed from one piece of text."""
+
+    first_line: int  # 1-based file line of the piece's first atom-count line
+    n_frames: int
+    positions: np.ndarray
+    numbers: np.ndarray
+    meta: Comments
+    arrays: dict
+    props: str | None
+
+
+class _FrameReader:
+    """Reads an XYZ text piece by piece: each piece holds whole frames and is parsed on its own."""
+
+    def __init__(self, path: Path, dtype, fixed_width: bool, chunk_bytes: int):
+        self.path = path
+        self.dtype = dtype
+        self.fixed_width = fixed_width
+        self.chunk_bytes = chunk_bytes
+        self.warnings: list[str] = []
+        self.line = 0  # file lines before the text not yet parsed
+        self.n: int | None = None
+        self.cols: list[_Column] | None = None
+        self.parts: list[_Part] = []
+        self.at_start = True
+
+    def read(self, pieces) -> None:
+        buf = b""
+        held_cr = False
+        for piece in pieces:
+            if self.at_start and not buf and piece.startswith(_BOM):
+                piece = piece[3:]  # a UTF-8 byte-order mark, as some Windows editors write
+            if held_cr:
+                piece = b"\r" + piece
+            held_cr = piece.endswith(b"\r")
+            if held_cr:
+                piece = piece[:-1]  # may be the first half of a CR LF pair
+            if b"\r" in piece:
+                piece = piece.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
+            if b"\t" in piece or b"\f" in piece or b"\v" in piece:
+                piece = piece.translate(_WHITESPACE)
+            buf = buf + piece if buf else piece
+            while len(buf) >= self.chunk_bytes:
+                rest = self._consume(buf, final=False)
+                if len(rest) == len(buf):
+                    break  # not one whole frame yet
+                buf = rest
+        self._consume(buf + b"\n" if held_cr else buf, final=True)
+
+    def _consume(self, buf: bytes, final: bool) -> bytes:
+        """Parse the whole frames at the start of ``buf``; return what is left for the next piece."""
+        if self.n is None:
+            skip = _BLANK_LINES.match(buf).end()
+            if skip:
+                self.line += buf.count(b"\n", 0, skip)
+                buf = buf[skip:]
+            eol = buf.find(b"\n")
+            if eol < 0 and not final:
+                return buf
+            if not buf.strip():
+                raise TrajectoryFileError(self.path, "the file is empty (no atom count, no frames)")
+            first = buf if eol < 0 else buf[:eol]
+            _check_text(first, self.path, self.line)
+            self.n = _atom_count(first, self.path, self.line + 1)
+        if final:
+            if buf.strip() or not self.parts:
+                self._parse(buf, final=True)
+            return b""
+        stride = self.n + 2
+        window = np.frombuffer(buf, np.uint8)[:self.chunk_bytes]
+        breaks = np.flatnonzero(window == 10)
+        k = len(breaks) // stride
+        if k == 0:  # a frame longer than a piece: take one whole frame
+            breaks = np.flatnonzero(np.frombuffer(buf, np.uint8) == 10)[:stride]
+            if len(breaks) < stride:
+                return buf
+            k = 1
+        cut = int(breaks[k * stride - 1])
+        self._parse(buf[:cut], final=False)
+        self.line += k * stride
+        return buf[cut + 1:]
+
+    def _parse(self, data: bytes, final: bool) -> None:
+        """Parse whole frames (``final``: the rest of the file, which may end in blank lines or a cut frame)."""
+        path, base = self.path, self.line
+        _check_text(data, path, base)
+        # Line offsets from one numpy scan; the text is cut per frame, not per line (60,000 line objects
+        # cost more to create and join again than the parse itself, measured).
+        buf = np.frombuffer(data, np.uint8)
+        breaks = np.flatnonzero(buf == 10)
+        line_start = np.concatenate(([0], breaks + 1))
+        line_end = np.append(breaks, len(data))
+        end = len(line_start)
+        if final:
+            while end and not data[line_start[end - 1]:line_end[end - 1]].strip():
+                end -= 1
+        last_line_ended = end < len(line_start) or not final
+        line_start, line_end = line_start[:end], line_end[:end]
+        n_total = end
+        del breaks
+
+        def line(i: int) -> bytes:
+            return data[line_start[i]:line_end[i]]
+
+        def all_lines() -> list[bytes]:  # for diagnosing problems only
+            return data.split(b"\n")[:end]
+
+        n = self.n
+        first = line(0)
+        where = _Where(path, base, n + 2, n)
+        stride = n + 2
+        n_full, rem = divmod(n_total, stride)
+
+        head_start, head_end = line_start[0::stride], line_end[0::stride]
+        same = (head_end - head_start) == len(first)
+        if same.any():
+            gathered = buf[head_start[same][:, None] + np.arange(len(first))]
+            same[same] = (gathered == np.frombuffer(first, np.uint8)).all(axis=1)
+        if not same.all():
+            lines = all_lines()
+            c0 = first.strip()
+            for k in np.flatnonzero(~same).tolist():
+                if lines[k * stride].strip() != c0:
+                    if k == len(head_start) - 1 and rem == 1 and not last_line_ended:
+                        break  # the count line itself is cut short: a truncated last frame
+                    if _COUNT.fullmatch(lines[k * stride]) and int(lines[k * stride]) == n:
+                        continue  # the same count written with other spacing
+                    _frame_boundary_error(lines, k, n, where)
+
+        cut = False
+        if rem == 0 and not last_line_ended and n_full:
+            # no final line break: the last atom line may have been cut mid-way.  Evidence: fewer values
+            # than the first atom line, or a shorter line in a file whose other atom lines (at least 8)
+            # all have one length (fixed-width output, as dynamics codes write).
+            last, ref = line(n_total - 1), line(2)
+            cut = len(last.split()) < len(ref.split())
+            if not cut and n_full * n > 8:
+                widths = (line_end - line_start).reshape(n_full, stride)[:, 2:].ravel()[:-1]
+                cut = bool((widths == widths[0]).all() and len(last) < widths[0])
+            if cut:
+                n_full, rem = n_full - 1, stride
+        if rem:
+            got = max(rem - 2, 0)
+            first_ln = base + n_full * stride + 1
+            if cut:
+                msg = (f"the last frame (from line {first_ln}) is incomplete: its last line (line {base + n_total}) "
+                       "is cut short and the file has no final line break")
+            else:
+                msg = (f"the last frame (from line {first_ln}) is incomplete: the file ends at line "
+                       f"{base + n_total} after {got} of {n} atom lines")
+            before = n_full + sum(p.n_frames for p in self.parts)
+            if before == 0:
+                raise TrajectoryFileError(path, msg + " and there is no complete frame to load; check the atom "
+                                          f"count on line {base + 1} or whether the file was cut short",
+                                          base + n_total)
+            _partial(path, msg + f"; loaded the {before} complete frame{'s' if before != 1 else ''} before it",
+                     self.warnings)
+        if n_full == 0:
+            return
+
+        span = n_full * stride
+        comments = [data[a:b] for a, b in zip(line_start[1:span:stride].tolist(), line_end[1:span:stride].tolist())]
+        atoms_from = line_start[2:span:stride].tolist()
+        atoms_to = line_end[stride - 1:span:stride].tolist()
+        first_atom_line = line(2)
+        del line_start, line_end, head_start, head_end
+        block = b"\n".join([data[a:b] for a, b in zip(atoms_from, atoms_to)])
+        del atoms_from, atoms_to
+        n_lines = n_full * n
+        meta = parse_comments(comments)
+        del comments
+        props = meta.properties
+        first_props = None
+        if props is not None:
+            differ = np.flatnonzero(props.codes != props.codes[0])
+            if differ.size:
+                k = int(differ[0])
+                raise TrajectoryFileError(
+                    path, f"frame {k + 1 + sum(p.n_frames for p in self.parts)} declares different per-atom columns "
+                    "(Properties=) than frame 1; this reader needs the same columns in every frame",
+                    base + k * stride + 2)
+            first_props = props[0]
+        if self.parts and first_props != self.parts[0].props:
+            raise TrajectoryFileError(
+                path, f"frame {sum(p.n_frames for p in self.parts) + 1} declares different per-atom columns "
+                "(Properties=) than frame 1; this reader needs the same columns in every frame", base + 2)
+        if self.cols is None:
+            cols = _layout(first_props, path, base + 2)
+            if first_props is None:
+                n_first = len(first_atom_line.split())
+                if n_first < 4:
+                    raise TrajectoryFileError(path, f"this atom line has {n_first} values; an atom line needs an "
+                                              "element and three coordinates", where.line_of(0))
+                if n_first > 4:
+                    cols = cols + [_Column(f"_col{i + 1}", "R", 1, i) for i in range(4, n_first)]  # parsed, not kept
+            self.cols = cols
+        cols = self.cols
+
+        parsed = None
+        if self.fixed_width:
+            try:
+                parsed = _parse_fixed(block, n_lines, cols)
+            except _Slow:
+                parsed = None
+        if parsed is None:
+            parsed = _parse_tokens(block, n_lines, cols, where)
+        del block
+
+        pos_name = "pos" if "pos" in parsed else "positions"
+        positions = parsed.pop(pos_name)
+        if positions.shape[1] != 3:
+            raise TrajectoryFileError(path, "the pos column must have 3 components (x, y, z)", base + 2)
+        finite = np.isfinite(positions)
+        if not finite.all():
+            i, axis = (int(x) for x in np.argwhere(~finite)[0])
+            raise TrajectoryFileError(
+                path, f"the {_AXES[axis]} coordinate is {positions[i, axis]} (not a finite number); the run "
+                "probably blew up here — cut the file before this frame or exclude the run", where.line_of(i))
+        del finite
+        positions = positions.reshape(n_full, n, 3).astype(self.dtype, copy=False)
+        if "species" in parsed:
+            numbers = _numbers(parsed.pop("species"), n_full, n, where)
+        else:
+            z = parsed.pop("Z").reshape(n_full, n)
+            numbers = _numbers(np.char.encode(z.astype(np.int64).astype(str)).ravel(), n_full, n, where)
+        if self.parts and not np.array_equal(numbers, self.parts[0].numbers):
+            a = int(np.flatnonzero(numbers != self.parts[0].numbers)[0])
+            z0, z1 = int(self.parts[0].numbers[a]), int(numbers[a])
+            raise TrajectoryFileError(
+                path, f"the element order changes: atom {a + 1} is {chemical_symbols[z0]} in frame 1 but "
+                f"{chemical_symbols[z1]} in frame {sum(p.n_frames for p in self.parts) + 1}; every frame must list "
+                "the same atoms in the same order", base + 3 + a)
+        arrays = {}
+        for c in cols:
+            if c.name in parsed and not c.name.startswith("_col"):
+                a = parsed[c.name]
+                if c.kind == "I":
+                    a = a.astype(np.int64)
+                elif c.kind == "S":
+                    a = np.char.strip(np.char.decode(a, "utf-8", "replace"))
+                if a.ndim == 2 and a.shape[1] == 1:
+                    a = a[:, 0]
+                arrays[c.name] = a.reshape((n_full, n) + a.shape[1:])
+        self.parts.append(_Part(base + 1, n_full, positions, numbers, meta, arrays, first_props))
+
+    def block(self, sha256: str, warnings: list[str]) -> FrameBlock:
+        """All parts joined into one FrameBlock (each part's arrays let go as soon as they are copied)."""
+        parts, path = self.parts, self.path
+        warnings = list(warnings) + self.warnings
+        stride = self.n + 2
+        frame_lines = np.concatenate([p.first_line + np.arange(p.n_frames, dtype=np.int64) * stride for p in parts])
+        meta = merge_comments([p.meta for p in parts])
+        _comment_warnings(meta, path, lambda k: int(frame_lines[k]) + 1, warnings)
+        numbers = parts[0].numbers
+        if len(parts) == 1:
+            positions, arrays = parts[0].positions, parts[0].arrays
+        else:
+            total = sum(p.n_frames for p in parts)
+            positions = np.empty((total,) + parts[0].positions.shape[1:], dtype=parts[0].positions.dtype)
+            arrays = {k: np.empty((total,) + v.shape[1:], dtype=v.dtype) for k, v in parts[0].arrays.items()
+                      if v.dtype.kind != "U"}
+            strings = {k: [] for k, v in parts[0].arrays.items() if v.dtype.kind == "U"}
+            at = 0
+            for p in parts:
+                positions[at:at + p.n_frames] = p.positions
+                for k, v in p.arrays.items():
+                    if k in strings:
+                        strings[k].append(v)
+                    else:
+                        arrays[k][at:at + p.n_frames] = v
+                at += p.n_frames
+                p.positions, p.arrays = None, {}
+            for k, v in strings.items():
+                arrays[k] = np.concatenate(v)
+        self.parts = []
+        return FrameBlock(path=path, numbers=numbers, positions=positions, info=meta.info, text_info=dict(meta.text),
+                          vectors=meta.vectors, arrays=arrays, frame_lines=frame_lines, sha256=sha256,
+                          warnings=warnings)
+
+
+def _size(n_bytes: int) -> str:
+    for unit in ("bytes", "kB", "MB", "GB", "TB"):
+        if n_bytes < 1000 or unit == "TB":
+            return f"{n_bytes:.0f} {unit}" if unit == "bytes" else f"{n_bytes:.1f} {unit}"
+        n_bytes /= 1000
+    return ""
+
+
+def _out_of_memory(path: Path, stored: int, text: int) -> TrajectoryFileError:
+    extra = f", {_size(text)} of text decompressed so far" if text and text != stored else ""
+    return TrajectoryFileError(
+        path, f"there is not enough memory to read this file ({_size(stored)} on disk{extra}); close other "
+        "programs, read the set on a machine with more memory, or split the file into shorter runs")
+
+
 def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float32,
-              warnings: list[str] | None = None, fixed_width: bool = True) -> FrameBlock:
+              warnings: list[str] | None = None, fixed_width: bool = True,
+              chunk_bytes: int = CHUNK_BYTES) -> FrameBlock:
     """Parse the (decompressed) bytes of an XYZ / extended-XYZ file; see :func:`read_xyz`.
 
-    ``fixed_width=False`` forces the general numeric path (used by tests).
+    ``fixed_width=False`` forces the general numeric path, and ``chunk_bytes`` sets how much text is
+    parsed at a time (both for tests).
     """
     path = Path(path)
-    warnings = list(warnings or [])
-    _check_text(data, path)
-    if data.startswith(b"\xef\xbb\xbf"):
-        data = data[3:]  # a UTF-8 byte-order mark, as some Windows editors write
-    if b"\r" in data:
-        data = data.replace(b"\r\n", b"\n").replace(b"\r", b"\n")
-    if b"\t" in data or b"\f" in data or b"\v" in data:
-        data = data.translate(bytes.maketrans(b"\t\f\v", b"   "))
-    # Line offsets from one numpy scan; the text is cut per frame, not per line (60,000 line objects
-    # cost more to create and join again than the parse itself, measured).
-    buf = np.frombuffer(data, np.uint8)
-    breaks = np.flatnonzero(buf == 10)
-    line_start = np.concatenate(([0], breaks + 1))
-    line_end = np.append(breaks, len(data))
-    end = len(line_start)
-    while end and not data[line_start[end - 1]:line_end[end - 1]].strip():
-        end -= 1
-    last_line_ended = end < len(line_start)
-    start = 0
-    while start < end and not data[line_start[start]:line_end[start]].strip():
-        start += 1
-    if start == end:
-        raise TrajectoryFileError(path, "the file is empty (no atom count, no frames)")
-    line_start, line_end = line_start[start:end], line_end[start:end]
-    n_total = end - start
-
-    def line(i: int) -> bytes:
-        return data[line_start[i]:line_end[i]]
-
-    def all_lines() -> list[bytes]:  # for diagnosing problems only
-        return data.split(b"\n")[start:end]
-
-    first = line(0)
-    n = _atom_count(first, path, start + 1)
-    where = _Where(path, start, n + 2, n)
-    stride = n + 2
-    n_full, rem = divmod(n_total, stride)
-
-    head_start, head_end = line_start[0::stride], line_end[0::stride]
-    same = (head_end - head_start) == len(first)
-    if same.any():
-        gathered = buf[head_start[same][:, None] + np.arange(len(first))]
-        same[same] = (gathered == np.frombuffer(first, np.uint8)).all(axis=1)
-    if not same.all():
-        lines = all_lines()
-        c0 = first.strip()
-        for k in np.flatnonzero(~same).tolist():
-            if lines[k * stride].strip() != c0:
-                if k == len(head_start) - 1 and rem == 1 and not last_line_ended:
-                    break  # the count line itself is cut short: a truncated last frame
-                _frame_boundary_error(lines, k, n, where)
-
-    cut = False
-    if rem == 0 and not last_line_ended and n_full:
-        # no final line break: the last atom line may have been cut mid-way.  Evidence: fewer values
-        # than the first atom line, or a shorter line in a file whose other atom lines (at least 8)
-        # all have one length (fixed-width output, as dynamics codes write).
-        last, ref = line(n_total - 1), line(2)
-        cut = len(last.split()) < len(ref.split())
-        if not cut and n_full * n > 8:
-            widths = (line_end - line_start).reshape(n_full, stride)[:, 2:].ravel()[:-1]
-            cut = bool((widths == widths[0]).all() and len(last) < widths[0])
-        if cut:
-            n_full, rem = n_full - 1, stride
-    if rem:
-        got = max(rem - 2, 0)
-        first_ln = start + n_full * stride + 1
-        if cut:
-            msg = (f"the last frame (from line {first_ln}) is incomplete: its last line (line {start + n_total}) "
-                   "is cut short and the file has no final line break")
-        else:
-            msg = (f"the last frame (from line {first_ln}) is incomplete: the file ends at line "
-                   f"{start + n_total} after {got} of {n} atom lines")
-        if n_full == 0:
-            raise TrajectoryFileError(path, msg + " and there is no complete frame to load; "
-                                      f"check the atom count on line {start + 1} or whether the file was cut short",
-                                      start + n_total)
-        _partial(path, msg + f"; loaded the {n_full} complete frame{'s' if n_full != 1 else ''} before it", warnings)
-
-    span = n_full * stride
-    comments = [data[a:b] for a, b in zip(line_start[1:span:stride].tolist(), line_end[1:span:stride].tolist())]
-    atoms_from = line_start[2:span:stride].tolist()
-    atoms_to = line_end[stride - 1:span:stride].tolist()
-    block = b"\n".join([data[a:b] for a, b in zip(atoms_from, atoms_to)])
-    n_lines = n_full * n
-    meta = parse_comments(comments)
-    _comment_warnings(meta, path, lambda k: start + k * stride + 2, warnings)
-    props = meta.properties
-    first_props = None
-    if props is not None:
-        differ = np.flatnonzero(props.codes != props.codes[0])
-        if differ.size:
-            k = int(differ[0])
-            raise TrajectoryFileError(
-                path, f"frame {k + 1} declares different per-atom columns (Properties=) than frame 1; this reader "
-                "needs the same columns in every frame", start + k * stride + 2)
-        first_props = props[0]
-    cols = _layout(first_props, path, start + 2)
-    if first_props is None:
-        n_first = len(line(2).split())
-        if n_first < 4:
-            raise TrajectoryFileError(path, f"this atom line has {n_first} values; an atom line needs an element "
-                                      "and three coordinates", where.line_of(0))
-        if n_first > 4:
-            cols = cols + [_Column(f"_col{i + 1}", "R", 1, i) for i in range(4, n_first)]  # parsed, not kept
-
-    parsed = None
-    if fixed_width:
-        try:
-            parsed = _parse_fixed(block, n_lines, cols)
-        except _Slow:
-            parsed = None
-    if parsed is None:
-        parsed = _parse_tokens(block, n_lines, cols, where)
-
-    pos_name = "pos" if "pos" in parsed else "positions"
-    positions = parsed.pop(pos_name)
-    if positions.shape[1] != 3:
-        raise TrajectoryFileError(path, "the pos column must have 3 components (x, y, z)", start + 2)
-    finite = np.isfinite(positions)
-    if not finite.all():
-        i, axis = (int(x) for x in np.argwhere(~finite)[0])
-        raise TrajectoryFileError(
-            path, f"the {_AXES[axis]} coordinate is {positions[i, axis]} (not a finite number); the run probably "
-            "blew up here — cut the file before this frame or exclude the run", where.line_of(i))
-    if "species" in parsed:
-        numbers = _numbers(parsed.pop("species"), n_full, n, where)
-    else:
-        z = parsed.pop("Z").reshape(n_full, n)
-        numbers = _numbers(np.char.encode(z.astype(np.int64).astype(str)).ravel(), n_full, n, where)
-    arrays = {}
-    for c in cols:
-        if c.name in parsed and not c.name.startswith("_col"):
-            a = parsed[c.name]
-            if c.kind == "I":
-                a = a.astype(np.int64)
-            elif c.kind == "S":
-                a = np.char.strip(np.char.decode(a, "utf-8", "replace"))
-            if a.ndim == 2 and a.shape[1] == 1:
-                a = a[:, 0]
-            arrays[c.name] = a.reshape((n_full, n) + a.shape[1:])
-    return FrameBlock(
-        path=path,
-        numbers=numbers,
-        positions=positions.reshape(n_full, n, 3).astype(dtype, copy=False),
-        info=meta.info,
-        text_info=dict(meta.text),
-        vectors=meta.vectors,
-        arrays=arrays,
-        frame_lines=start + 1 + np.arange(n_full, dtype=np.int64) * stride,
-        sha256=sha256,
-        warnings=warnings,
-    )
+    try:
+        reader = _FrameReader(path, dtype, fixed_width, chunk_bytes)
+        view = memoryview(data)
+        reader.read(bytes(view[i:i + chunk_bytes]) for i in range(0, len(data), chunk_bytes))
+        return reader.block(sha256, list(warnings or []))
+    except MemoryError:
+        raise _out_of_memory(path, len(data), len(data)) from None
 
 
-def read_xyz(path: str | Path, *, dtype=np.float32) -> FrameBlock:
-    """Read an XYZ or extended-XYZ file (optionally gzip/bzip2/xz-compressed) into a FrameBlock."""
+def read_xyz(path: str | Path, *, dtype=np.float32, chunk_bytes: int = CHUNK_BYTES) -> FrameBlock:
+    """Read an XYZ or extended-XYZ file (optionally gzip/bzip2/xz-compressed) into a FrameBlock.
+
+    The file is streamed: decompressed and parsed piece by piece, so that memory holds the results
+    and one piece of text at a time, never the whole text.
+    """
     path = Path(path)
-    data, sha, warnings = load_bytes(path)
-    return parse_xyz(data, path, sha256=sha, dtype=dtype, warnings=warnings)
+    stream = ByteStream(path, min(RAW_PIECE, chunk_bytes))
+    try:
+        reader = _FrameReader(path, dtype, True, chunk_bytes)
+        reader.read(iter(stream))
+        return reader.block(stream.sha256, stream.warnings)
+    except MemoryError:
+        raise _out_of_memory(path, stream.size, stream.produced) from None
