@@ -302,8 +302,8 @@ class Summary:
 
         if not full:
             return [f"Reactive fraction {frac(rf)}, recrossing fraction {frac(rc)} of {rf['n']} counted runs; "
-                    f"transmission coefficient κ ≈ reactive / (reactive + recrossing) = {frac(kappa)} "
-                    f"(both kinds of recrossing counted; common practice, no source)"]
+                    f"transmission coefficient {frac(kappa)} = reactive / (reactive + recrossing) "
+                    f"(common practice, no source)"]
         names = ", ".join(self.products)
         out = []
         if not self.products:

@@ -209,7 +209,22 @@ class SummaryPanel(QWidget):
         self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
         self.table.setToolTip("Counts and fractions of the final labels; 'all at once' are simultaneous "
                               "intervals that hold for every outcome together")
-        tl.addWidget(self.table, 2)
+        # each product's share among the reactive runs (three or more products, or TST barriers)
+        self.shares_table = QTableWidget(0, 5, top)
+        self.shares_table.setObjectName("summaryShares")
+        self.shares_table.setHorizontalHeaderLabels(["product", "runs", "share of reactive", "all products at once",
+                                                     "TST share"])
+        self.shares_table.verticalHeader().setVisible(False)
+        self.shares_table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.shares_table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        self.shares_table.setToolTip("Each product's share among the runs that reached a product, with Goodman "
+                                     "simultaneous intervals that hold for every product together")
+        self.shares_table.setVisible(False)
+        left = QVBoxLayout()
+        left.setContentsMargins(0, 0, 0, 0)
+        left.addWidget(self.table, 3)
+        left.addWidget(self.shares_table, 2)
+        tl.addLayout(left, 2)
         self.lines = QLabel(top)
         self.lines.setWordWrap(True)
         self.lines.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
@@ -413,7 +428,8 @@ class SummaryPanel(QWidget):
                 combo.addItem(p, p)
             if keep is not None and combo.findData(keep) < 0:
                 combo.addItem(keep, keep)
-            combo.setCurrentIndex(max(combo.findData(keep) if keep is not None else 0, 0))
+            first = 1 if combo is self.minor_combo and combo.count() > 1 else 0  # two different products at first
+            combo.setCurrentIndex(max(combo.findData(keep) if keep is not None else first, 0))
             combo.blockSignals(False)
 
     def settings(self) -> dict:
@@ -522,6 +538,8 @@ class SummaryPanel(QWidget):
         s = self.summary
         if s is None:
             self.table.setRowCount(0)
+            self.shares_table.setRowCount(0)
+            self.shares_table.setVisible(False)
             self.lines.setText(self.error or "Open a set with rules (or labels) to see its summary.")
             self.warning_box.set_warnings([])
             return
@@ -547,7 +565,36 @@ class SummaryPanel(QWidget):
                 item = QTableWidgetItem(c)
                 if j:
                     item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                else:
+                    item.setData(Qt.ItemDataRole.DecorationRole, self._colour(r.label))
                 self.table.setItem(i, j, item)
+        self._fill_shares(s)
+
+    def _fill_shares(self, s: Summary) -> None:
+        sh = s.shares
+        self.shares_table.setVisible(s.show_shares)
+        if not s.show_shares:
+            self.shares_table.setRowCount(0)
+            return
+        tst = bool(sh["tst_share"].notna().any())
+        self.shares_table.setColumnHidden(4, not tst)
+        self.shares_table.setHorizontalHeaderItem(
+            3, QTableWidgetItem(f"all products at once ({s.confidence_text})"))
+        self.shares_table.setRowCount(len(sh))
+        for i, r in enumerate(sh.itertuples(index=False)):
+            cells = [r.product, str(int(r.count)), _fmt(r.share), f"{_fmt(r.lo)}–{_fmt(r.hi)}", _fmt(r.tst_share)]
+            for j, c in enumerate(cells):
+                item = QTableWidgetItem(c)
+                if j:
+                    item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+                else:
+                    item.setData(Qt.ItemDataRole.DecorationRole, self._colour(r.product))
+                if j == 4 and tst and not np.isnan(r.tst_share) and not r.lo <= r.tst_share <= r.hi:
+                    item.setToolTip("outside the simultaneous interval: the runs do not bear this TST share out")
+                    font = item.font()
+                    font.setBold(True)
+                    item.setFont(font)
+                self.shares_table.setItem(i, j, item)
 
     def _draw_outcomes(self, s: Summary) -> None:
         tab = s.table
@@ -563,7 +610,10 @@ class SummaryPanel(QWidget):
         self.error_bars = pg.ErrorBarItem(x=x, y=frac, top=hi - frac, bottom=frac - lo, beam=0.25,
                                           pen=pg.mkPen(text, width=1.5))
         self.p_out.addItem(self.error_bars)
-        self.p_out.getAxis("bottom").setTicks([[(i, f"{lab} ({int(c)})") for i, (lab, c)
+        sep = "\n" if len(tab) > 5 else " "  # many outcomes: the count below its name, so that names do not collide
+        line = self.fontMetrics().height()
+        self.p_out.getAxis("bottom").setHeight(2 * line + 14 if len(tab) > 5 else None)
+        self.p_out.getAxis("bottom").setTicks([[(i, f"{lab}{sep}({int(c)})") for i, (lab, c)
                                                 in enumerate(zip(tab["label"], tab["count"]))]])
         self.p_out.setYRange(0, max(1e-9, float(np.nanmax(hi))) * 1.08, padding=0)
         self.p_out.setXRange(-0.6, len(tab) - 0.4, padding=0)
