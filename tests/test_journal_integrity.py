@@ -13,7 +13,7 @@ import json
 import shutil
 
 import pytest
-from hypothesis import given
+from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from basinmark.core import journal_witness
@@ -123,6 +123,7 @@ def expected_state(lines: list[bytes], good: int):
     return replay.state()
 
 
+@settings(max_examples=150)  # eleven kinds of damage: a dozen or more cases of each
 @given(data=st.data())
 def test_every_tamper_is_reported_by_verify_readers_and_writers(pristine, tmp_path_factory, data):
     kind = data.draw(st.sampled_from(KINDS))

@@ -42,6 +42,13 @@ def tampered(lines, kind):
         ev = json.loads(lines[-1])
         ev.update(seq=ev["seq"] + 1, prev=ev["hash"], run="toy-004", label="left", reason="forged")
         return b"".join(lines) + seal(ev).encode("ascii"), "keep", n + 1
+    if kind == "byte_changed":  # a hand label's run changed by one character, hash left as it was
+        return b"".join(lines[: n - 2] + [lines[n - 2].replace(b'"toy-002"', b'"toy-005"')] + lines[n - 1:]), \
+            "keep", n - 1
+    if kind == "deleted":
+        return b"".join(lines[: n - 3] + lines[n - 2:]), "keep", n - 2
+    if kind == "cut_three_head_kept":
+        return b"".join(lines[: n - 3]), "keep", n - 2
     if kind == "swapped":
         return b"".join(lines[: n - 2] + [lines[n - 1], lines[n - 2]]), "keep", n - 1
     if kind == "cut_three_head_deleted":
@@ -73,7 +80,8 @@ def damaged(labeled, request, tmp_path):
     return work, line, request.param
 
 
-KINDS = ["duplicate_undo_like", "forged_last_label", "swapped", "cut_three_head_deleted", "rollback_journal_and_head"]
+KINDS = ["byte_changed", "deleted", "duplicate_undo_like", "forged_last_label", "swapped", "cut_three_head_kept",
+         "cut_three_head_deleted", "rollback_journal_and_head"]
 
 
 @pytest.mark.parametrize("damaged", KINDS, indirect=True)
