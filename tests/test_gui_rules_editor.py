@@ -299,3 +299,19 @@ def test_add_basin(win, qtbot):
     assert rules.products == ["left", "right", "middle"]
     assert [ed.reactant.itemText(i) for i in range(ed.reactant.count())] == rules.basin_names
     _same_table(win.state.classification, _core(win, rules))
+
+
+def test_nearest_atom_conditions_survive_the_editor(win, qtbot):
+    """The form has no rows for nearest-atom conditions; an edit elsewhere must not drop them."""
+    from basinmark.core.rules import parse_rules
+
+    ed = win.rules_editor
+    text = win.state.rules.to_toml().replace(
+        "[basins.left]", "[basins.left]\nnearest = { atom = 1, among = [2, 3], is = 2 }").replace(
+        "[basins.right]", "[basins.right]\nnearest = { atom = 1, among = [2, 3], is = 3 }")
+    with_nearest = parse_rules(text)
+    ed.load(with_nearest)
+    ed.name.setText("renamed")
+    rebuilt = ed.build_rules()
+    assert rebuilt.basins["left"].nearest == with_nearest.basins["left"].nearest
+    assert rebuilt.basins["right"].nearest[0].is_ == 3

@@ -288,7 +288,7 @@ def test_documented_example_loads_and_errors_are_as_documented():
     with pytest.raises(RulesError) as info:
         r.with_threshold("alpha", "r_a", "below", 3.0)
     flat = " ".join(doc.split())
-    assert info.value.problem.split(" (tighten")[0] in flat
+    assert info.value.problem.split(". Tighten")[0] in flat
 
 
 def test_equality_follows_basin_order():

@@ -44,7 +44,7 @@ import numpy as np
 import pandas as pd
 
 from basinmark.core.errors import BasinmarkError
-from basinmark.core.geometry import monitor_arrays
+from basinmark.core.geometry import monitor_arrays, nearest_among
 from basinmark.core.rules import Rules, RulesError
 from basinmark.core.timing import _TOL_FS, COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, formation_pair  # noqa: F401
 
@@ -149,13 +149,17 @@ def prepare(tset, rules: Rules, progress: Callable[[int, int, str | None], None]
     """
     trajs = _trajectories(tset)
     idx = rules.monitor_indices()
-    need = max((max(i) for i in idx.values()), default=-1) + 1
+    nearest = rules.nearest_conditions()
+    need = max([max(i) + 1 for i in idx.values()] + [max(n.atom, *n.among) for n in nearest.values()], default=0)
     total = len(trajs)
     lengths_a = np.fromiter((t.n_frames for t in trajs), dtype=np.intp, count=total)
     ends = np.cumsum(lengths_a)
     starts = ends - lengths_a
     n_total = int(ends[-1]) if total else 0
     mons = {m: np.empty(n_total) for m in idx}  # filled run by run, no final concatenation
+    for key in nearest:  # nearest atom (1-based number) and its distance, per frame
+        mons[key] = np.empty(n_total)
+        mons[key + ":d"] = np.empty(n_total)
     times = np.empty(n_total)
     ts, drift = [], []
     for k, t in enumerate(trajs):
@@ -164,6 +168,10 @@ def prepare(tset, rules: Rules, progress: Callable[[int, int, str | None], None]
                              f"{need}", key="monitors")
         for name, values in monitor_arrays(t.positions, idx).items():
             mons[name][starts[k]:ends[k]] = values
+        for key, n in nearest.items():
+            who, dist = nearest_among(t.positions, n.atom - 1, [a - 1 for a in n.group])
+            mons[key][starts[k]:ends[k]] = who + 1
+            mons[key + ":d"][starts[k]:ends[k]] = dist
         ts.append(t.ts_index)
         times[starts[k]:ends[k]] = t.times
         d = t.energy_drift()
@@ -190,6 +198,8 @@ def basin_membership(monitors: dict[str, np.ndarray], rules: Rules) -> tuple[np.
         inside = np.ones(n, dtype=bool)
         for c in basin.conditions:
             inside &= c.holds(monitors[c.monitor])
+        for nc in basin.nearest:
+            inside &= nc.holds_in(monitors)
         count += inside
         track[inside] = b
     conflict = count > 1
@@ -201,6 +211,7 @@ def classify_prepared(prep: Prepared, rules: Rules, with_gap: bool = True) -> Cl
     """Classify prepared runs with ``rules`` (whose monitors must match those of ``prepare``)."""
     stale = [m for m, mon in rules.monitors.items()
              if m not in prep.monitors or (prep.monitor_atoms and prep.monitor_atoms.get(m) != mon.atoms)]
+    stale += [n.describe() for key, n in rules.nearest_conditions().items() if key not in prep.monitors]
     if stale:
         raise ValueError(f"the prepared runs lack monitor(s) {', '.join(stale)} as these rules define them: "
                          f"call prepare() with these rules")
@@ -400,17 +411,57 @@ def results_table(prep: Prepared, res: Classified, rules: Rules) -> pd.DataFrame
         "content_hash": prep.content_hashes,
     }, columns=TABLE_COLUMNS)
     df.attrs["rules_sha256"] = rules.sha256
-    df.attrs["notes"] = classification_notes(prep, rules)
+    df.attrs["notes"] = classification_notes(prep, rules, res)
     return df
 
 
-def classification_notes(prep: Prepared, rules: Rules) -> list[str]:
-    """Plain sentences about checks that could not be made."""
+def classification_notes(prep: Prepared, rules: Rules, res: Classified | None = None) -> list[str]:
+    """Plain sentences about checks that could not be made, and about overlapping basins in the data."""
     notes = []
     missing = int(np.isnan(prep.drift_ev).sum())
     if rules.flags.max_energy_drift is not None and missing:
         notes.append(f"{missing} of {len(prep.run_ids)} runs carry no total energy: their energy drift was "
                      f"not checked.")
+    if rules.allow_overlap:
+        notes += overlap_notes(prep, rules, res)
+    return notes
+
+
+def overlap_notes(prep: Prepared, rules: Rules, res: Classified | None = None) -> list[str]:
+    """With ``allow_overlap = true``: for every pair of basins that both hold somewhere in the runs, how many
+    frames of how many runs, the first such frame (run and time), and the runs counted ambiguous for it."""
+    if not prep.run_ids:
+        return []
+    inside = {}
+    for name, basin in rules.basins.items():
+        m = np.ones(prep.times.size, dtype=bool)
+        for c in basin.conditions:
+            m &= c.holds(prep.monitors[c.monitor])
+        for nc in basin.nearest:
+            m &= nc.holds_in(prep.monitors)
+        inside[name] = m
+    ends = np.concatenate([prep.starts, prep.ends - 1])
+    outcome = res.outcome if res is not None else None
+    notes = []
+    names = rules.basin_names
+    for i, a in enumerate(names):
+        for b in names[i + 1:]:
+            both = inside[a] & inside[b]
+            frames = np.flatnonzero(both)
+            if frames.size == 0:
+                continue
+            runs = np.unique(np.searchsorted(prep.starts, frames, side="right") - 1)
+            f0 = frames[0]
+            r0 = int(np.searchsorted(prep.starts, f0, side="right") - 1)
+            end_runs = np.unique(np.searchsorted(prep.starts, ends[both[ends]], side="right") - 1)
+            if outcome is not None:
+                end_runs = [r for r in end_runs if outcome[r] == "ambiguous"]
+            notes.append(
+                f"basins {a!r} and {b!r} both hold in {frames.size} frame{'s' if frames.size != 1 else ''} of "
+                f"{runs.size} run{'s' if runs.size != 1 else ''} (first: run {prep.run_ids[r0]} at "
+                f"{prep.times[f0]:.1f} fs); allow_overlap = true counts those frames in neither basin, so "
+                f"{len(end_runs)} run{'s' if len(end_runs) != 1 else ''} ending there "
+                f"{'is' if len(end_runs) == 1 else 'are'} counted ambiguous instead of by its product.")
     return notes
 
 

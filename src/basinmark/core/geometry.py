@@ -101,6 +101,21 @@ def monitor_arrays(positions: np.ndarray, monitors: Mapping[str, Sequence[int]])
     return {name: measure(positions, idx) for name, idx in monitors.items()}
 
 
+def nearest_among(positions: np.ndarray, atom: int, group: Sequence[int]) -> tuple[np.ndarray, np.ndarray]:
+    """For every frame, the member of ``group`` nearest to ``atom`` (0-based) and its distance (Å).
+
+    Returns ``(index (F,) int, distance (F,) float64)``; a tie goes to the lowest index of the group.
+    """
+    p = _pos(positions)
+    g = np.array(sorted(int(x) for x in group), dtype=np.intp)
+    if p.ndim == 2:
+        p = p[None]
+    d = np.subtract(p[:, g, :], p[:, [int(atom)], :], dtype=np.float64)  # (F, G, 3)
+    dist = np.sqrt(np.einsum("fgk,fgk->fg", d, d))
+    k = np.argmin(dist, axis=1)  # the first minimum: the lowest atom of a tie
+    return g[k], dist[np.arange(dist.shape[0]), k]
+
+
 def set_monitor_arrays(tset, monitors: Mapping[str, Sequence[int]]) -> dict[str, dict[str, np.ndarray]]:
     """Monitors for all runs of a set: ``{run_id: {name: (F,) array}}`` (0-based indices)."""
     return {t.run_id: monitor_arrays(t.positions, monitors) for t in tset}

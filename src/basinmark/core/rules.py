@@ -5,7 +5,9 @@ Atom numbers in the file are **1-based**; :attr:`Monitor.indices` gives the 0-ba
 indices the geometry code uses.  See docs/rules-file.md for the reference.
 
 Condition semantics (per monitor value v): ``below = x`` is v < x, ``above = x`` is
-v > x, ``between = [lo, hi]`` is lo <= v <= hi.  All conditions of a basin must hold.
+v > x, ``between = [lo, hi]`` is lo <= v <= hi.  A nearest-atom condition
+``nearest = { atom = A, among = [...], is = B, within = d }`` holds when B is the member of the group closest
+to A (and, with ``within``, closer than d Å).  All conditions of a basin must hold.
 """
 
 from __future__ import annotations
@@ -181,16 +183,90 @@ class Condition:
         return f"{{ between = [{_num(self.lo)}, {_num(self.hi)}] }}"
 
 
+NEAREST_KEY = "nearest"  # the key of nearest-atom conditions in a basin table (so no monitor may be named so)
+_NEAREST_KEYS = ("atom", "among", "is", "within")
+
+
+@dataclass(frozen=True)
+class NearestCondition:
+    """Atom ``atom``'s nearest neighbour among ``among`` is ``is_`` (and, with ``within``, closer than that, Å).
+
+    Atom numbers are 1-based.  A tie goes to the lowest atom number of the group.  Two basins whose conditions
+    name different nearest atoms for the same atom and group can never hold at once."""
+
+    atom: int
+    among: tuple[int, ...]
+    is_: int
+    within: float | None = None
+
+    @property
+    def group(self) -> tuple[int, ...]:
+        """The group sorted: conditions on the same group compare equal however it was written."""
+        return tuple(sorted(self.among))
+
+    @property
+    def series_key(self) -> str:
+        """Name of the per-frame series (nearest atom number, 1-based) in the prepared monitors."""
+        return f"{NEAREST_KEY}:{self.atom}:{','.join(map(str, self.group))}"
+
+    @property
+    def distance_key(self) -> str:
+        return self.series_key + ":d"
+
+    def holds_in(self, series: Mapping[str, np.ndarray]) -> np.ndarray:
+        inside = np.asarray(series[self.series_key]) == self.is_
+        if self.within is not None:
+            inside &= np.asarray(series[self.distance_key]) < self.within
+        return inside
+
+    def separates(self, other: "NearestCondition") -> bool:
+        """True when this and ``other`` can never hold at once (same atom and group, another nearest atom)."""
+        return self.atom == other.atom and self.group == other.group and self.is_ != other.is_
+
+    def describe(self) -> str:
+        group = ", ".join(map(str, self.among))
+        within = f" within {self.within:g} Å" if self.within is not None else ""
+        return f"atom {self.is_} is the nearest of {group} to atom {self.atom}{within}"
+
+    def toml_value(self) -> str:
+        within = f", within = {_num(self.within)}" if self.within is not None else ""
+        return (f"{{ atom = {self.atom}, among = [{', '.join(map(str, self.among))}], is = {self.is_}"
+                f"{within} }}")
+
+
 @dataclass(frozen=True)
 class Basin:
     name: str
     conditions: tuple[Condition, ...]
+    nearest: tuple[NearestCondition, ...] = ()
 
     def condition(self, monitor: str) -> Condition | None:
         return next((c for c in self.conditions if c.monitor == monitor), None)
 
     def describe(self) -> str:
-        return " and ".join(c.describe() for c in self.conditions)
+        return " and ".join([c.describe() for c in self.conditions] + [n.describe() for n in self.nearest])
+
+
+@dataclass(frozen=True)
+class Overlap:
+    """Two basins that can hold at once: where, and one example (monitor values, with any nearest-atom
+    conditions both share) at which both hold."""
+
+    first: str
+    second: str
+    region: str
+    example: dict[str, float]
+
+    def example_text(self, monitors: Mapping[str, "Monitor"]) -> str:
+        parts = [f"{m} = {v:.3g}{' ' + monitors[m].unit if m in monitors and monitors[m].unit else ''}"
+                 for m, v in self.example.items()]
+        return ", ".join(parts)
+
+
+#: what ``allow_overlap = true`` does, said wherever an overlap is reported
+ALLOW_OVERLAP_EFFECT = ("with allow_overlap = true, a frame where two basins hold counts in neither (and is flagged "
+                        "conflicting_basins), and a run whose end frame lies in both is counted ambiguous, not as a "
+                        "product: if most of a product's runs end there, that product's count drops accordingly")
 
 
 @dataclass(frozen=True)
@@ -261,26 +337,44 @@ class Rules:
         """``{name: 0-based indices}`` for :func:`basinmark.core.geometry.monitor_arrays`."""
         return {m.name: m.indices for m in self.monitors.values()}
 
+    def nearest_conditions(self) -> dict[str, NearestCondition]:
+        """``{series key: condition}`` of every nearest-atom condition (one entry per atom and group)."""
+        out: dict[str, NearestCondition] = {}
+        for b in self.basins.values():
+            for n in b.nearest:
+                out.setdefault(n.series_key, n)
+        return out
+
     # --- checks ------------------------------------------------------------------------------
     def check_atoms(self, n_atoms: int) -> None:
-        """Raise RulesError when a monitor names an atom beyond ``n_atoms``."""
+        """Raise RulesError when a monitor or a nearest-atom condition names an atom beyond ``n_atoms``."""
         for m in self.monitors.values():
             for a in m.atoms:
                 if a > n_atoms:
                     raise RulesError(self.source, f"atom {a} is out of range: the runs have {n_atoms} atoms "
                                      f"(atoms are numbered from 1)", key=f"monitors.{m.name}")
+        for b in self.basins.values():
+            for n in b.nearest:
+                for a in (n.atom, *n.among):
+                    if a > n_atoms:
+                        raise RulesError(self.source, f"atom {a} is out of range: the runs have {n_atoms} atoms "
+                                         f"(atoms are numbered from 1)", key=f"basins.{b.name}.{NEAREST_KEY}")
 
-    def overlaps(self) -> list[str]:
-        """Sentences naming each pair of basins that can hold at once (empty when none)."""
+    def overlap_pairs(self) -> list["Overlap"]:
+        """Every pair of basins that can hold at once, each with the shared region and an example point."""
         out = []
         names = self.basin_names
         for a in range(len(names)):
             for b in range(a + 1, len(names)):
-                region = _shared_region(self.basins[names[a]], self.basins[names[b]], self.monitors)
-                if region is not None:
-                    out.append(f"basins {names[a]!r} and {names[b]!r} can both hold at once, where "
-                               f"{region}; no monitor separates them")
+                found = _shared_region(self.basins[names[a]], self.basins[names[b]], self.monitors)
+                if found is not None:
+                    out.append(Overlap(names[a], names[b], found[0], found[1]))
         return out
+
+    def overlaps(self) -> list[str]:
+        """Sentences naming each pair of basins that can hold at once (empty when none)."""
+        return [f"basins {o.first!r} and {o.second!r} can both hold at once, where {o.region}; no monitor "
+                f"separates them" for o in self.overlap_pairs()]
 
     def validated(self) -> "Rules":
         """Re-check cross-field consistency (overlap, order of bounds); returns self."""
@@ -353,6 +447,10 @@ class Rules:
         for b in self.basins.values():
             lines += ["", f"[basins.{_key(b.name)}]"]
             lines += [f"{_key(c.monitor)} = {c.toml_value()}" for c in b.conditions]
+            if len(b.nearest) == 1:
+                lines.append(f"{NEAREST_KEY} = {b.nearest[0].toml_value()}")
+            elif b.nearest:
+                lines.append(f"{NEAREST_KEY} = [{', '.join(n.toml_value() for n in b.nearest)}]")
         lines += ["", "[flags]"]
         f = self.flags
         for k in ("late_commit_fs", "max_energy_drift", "min_length_fs"):
@@ -515,6 +613,9 @@ class _Builder:
         out = {}
         for name, atoms in table.items():
             key = f"monitors.{name}"
+            if name == NEAREST_KEY:
+                raise self.err(f"{NEAREST_KEY!r} is the word of nearest-atom conditions; name the monitor otherwise",
+                               key)
             if not isinstance(atoms, list) or not all(isinstance(a, int) and not isinstance(a, bool) for a in atoms):
                 raise self.err(f"must be a list of 1-based atom numbers, got {atoms!r}", key)
             if len(atoms) not in MONITOR_KINDS:
@@ -539,15 +640,53 @@ class _Builder:
                 raise self.err("must be a table of conditions", bkey)
             if not conds:
                 raise self.err("has no conditions", bkey)
-            items = []
+            items, nearest = [], []
             for mname, spec in conds.items():
                 key = f"{bkey}.{mname}"
+                if mname == NEAREST_KEY:
+                    specs = spec if isinstance(spec, list) else [spec]
+                    nearest += [self.nearest(x, key) for x in specs]
+                    continue
                 if mname not in monitors:
                     raise self.err(f"unknown monitor {mname!r}{did_you_mean(mname, monitors)}; monitors are "
                                    f"{', '.join(monitors)}", key)
                 items.append(self.condition(mname, spec, key, monitors[mname]))
-            out[bname] = Basin(bname, tuple(items))
+            out[bname] = Basin(bname, tuple(items), tuple(nearest))
         return out
+
+    def nearest(self, spec: Any, key: str) -> NearestCondition:
+        form = "{ atom = A, among = [B, C, ...], is = B } (optionally within = d, in Å)"
+        if not isinstance(spec, dict):
+            raise self.err(f"a nearest-atom condition is written {form}; got {spec!r}", key)
+        self.unknown(spec, _NEAREST_KEYS, f"{key}.")
+        for k in ("atom", "among", "is"):
+            if k not in spec:
+                raise self.err(f"the nearest-atom condition lacks {k!r}: write {form}", key)
+
+        def atom_no(v: Any, what: str) -> int:
+            if isinstance(v, bool) or not isinstance(v, int) or v < 1:
+                raise self.err(f"{what} must be an atom number from 1, got {v!r}", key)
+            return v
+
+        atom = atom_no(spec["atom"], "atom")
+        among = spec["among"]
+        if not isinstance(among, list) or len(among) < 2:
+            raise self.err(f"among must list at least two atoms to choose from, got {among!r}", key)
+        among = tuple(atom_no(a, "each atom of among") for a in among)
+        if len(set(among)) != len(among):
+            raise self.err(f"an atom is listed twice in among = {list(among)}", key)
+        if atom in among:
+            raise self.err(f"atom {atom} is among its own candidates {list(among)}; its nearest neighbour would "
+                           "always be itself", key)
+        is_ = atom_no(spec["is"], "is")
+        if is_ not in among:
+            raise self.err(f"is = {is_} is not one of among = {list(among)}", key)
+        within = None
+        if "within" in spec:
+            within = self.num(spec["within"], f"{key}.within", minimum=0.0)
+            if within <= 0:
+                raise self.err(f"within must be a distance above 0 Å, got {within:g}", f"{key}.within")
+        return NearestCondition(atom, among, is_, within)
 
     def condition(self, mname: str, spec: Any, key: str, monitor: Monitor) -> Condition:
         if not isinstance(spec, dict) or len(spec) != 1:
@@ -648,9 +787,24 @@ def _fmt_interval(name: str, iv: tuple, unit: str, domain: tuple) -> str:
     return f"{name} any value"
 
 
-def _shared_region(a: Basin, b: Basin, monitors: Mapping[str, Monitor]) -> str | None:
-    """Description of where both basins hold, or None when a monitor separates them."""
-    parts = []
+def _example(region: list[tuple], m: Monitor) -> float:
+    """One value inside a union of intervals (the first), away from its edges where it can be."""
+    lo, lo_c, hi, hi_c = region[0]
+    dom = _DOMAINS[m.kind]
+    lo, hi = max(lo, dom[0]), min(hi, dom[2])
+    if math.isinf(hi):
+        hi = lo + (1.0 if m.kind == "distance" else 20.0)
+    if lo == hi:
+        return float(lo)
+    return float((lo + hi) / 2.0)
+
+
+def _shared_region(a: Basin, b: Basin, monitors: Mapping[str, Monitor]) -> tuple[str, dict[str, float]] | None:
+    """Where both basins hold (a description and one example of monitor values), or None when a monitor or a
+    nearest-atom condition separates them."""
+    if any(na.separates(nb) for na in a.nearest for nb in b.nearest):
+        return None
+    parts, example = [], {}
     for mname in dict.fromkeys([c.monitor for c in a.conditions] + [c.monitor for c in b.conditions]):
         m = monitors[mname]
         region = [_DOMAINS[m.kind]]  # a union of intervals (a range across ±180° is two)
@@ -662,7 +816,26 @@ def _shared_region(a: Basin, b: Basin, monitors: Mapping[str, Monitor]) -> str |
         if not region:
             return None
         parts.append(" or ".join(_fmt_interval(mname, r, m.unit, _DOMAINS[m.kind]) for r in region))
-    return ", ".join(parts)
+        example[mname] = _example(region, m)
+    parts += [n.describe() for n in dict.fromkeys(a.nearest + b.nearest)]
+    return ", ".join(parts) or "any geometry (neither has a condition)", example
+
+
+def overlap_message(rules: Rules) -> str | None:
+    """The refusal of overlapping basins: every overlapping pair with one example where both hold, and what
+    ``allow_overlap = true`` would do to the counts; None when no two basins overlap."""
+    pairs = rules.overlap_pairs()
+    if not pairs:
+        return None
+    lines = []
+    for o in pairs:
+        ex = o.example_text(rules.monitors)
+        lines.append(f"{o.first!r} and {o.second!r} where {o.region}" + (f" (e.g. a frame with {ex})" if ex else ""))
+    head = ("2 basins can both hold at once" if len(pairs) == 1
+            else f"{len(pairs)} pairs of basins can both hold at once")
+    return (f"{head}, and no monitor separates them: " + "; ".join(lines) + ". Tighten a condition (a "
+            "nearest-atom condition tells equivalent partners apart without overlap), or accept it: "
+            + ALLOW_OVERLAP_EFFECT + ".")
 
 
 def _check_semantics(rules: Rules, source: str) -> None:
@@ -678,10 +851,9 @@ def _check_semantics(rules: Rules, source: str) -> None:
         for c in b.conditions:
             _check_condition(c, rules.monitors[c.monitor], source, f"basins.{b.name}.{c.monitor}")
     if not rules.allow_overlap:
-        problems = rules.overlaps()
-        if problems:
-            raise RulesError(source, problems[0] + " (tighten a condition, or set allow_overlap = true to "
-                             "accept it; such frames are then flagged conflicting_basins)", key="basins")
+        problem = overlap_message(rules)
+        if problem:
+            raise RulesError(source, problem, key="basins")
 
 
 def _find_line(text: str, key: str) -> int | None:

@@ -501,6 +501,10 @@ class RulesEditor(QWidget):
             else:
                 cond = Condition(mon, "above", lo=self._number(vals, key))
             basins.setdefault(bname, []).append(cond)
+        # nearest-atom conditions have no row in this form: they are kept as the loaded rules have them
+        kept_nearest = {b.name: b.nearest for b in self.rules.basins.values() if b.nearest} if self.rules else {}
+        for bname in kept_nearest:
+            basins.setdefault(bname, [])
         reactant = self.reactant.currentText().strip()
         if reactant not in basins and basins:
             reactant = self.rules.reactant if self.rules is not None and self.rules.reactant in basins else reactant
@@ -516,7 +520,8 @@ class RulesEditor(QWidget):
                            energy_unit=self.energy_unit.currentText(),
                            min_length_fs=off(self.spin_value(self.min_length)))
         base = self.rules
-        draft = Rules(monitors=monitors, basins={b: Basin(b, tuple(c)) for b, c in basins.items()},
+        draft = Rules(monitors=monitors, basins={b: Basin(b, tuple(c), kept_nearest.get(b, ()))
+                                                 for b, c in basins.items()},
                       reactant=reactant, dwell_fs=self.spin_value(self.dwell), flags=flags,
                       time_gap=base.time_gap if base is not None else None, name=self.name.text().strip(),
                       allow_overlap=base.allow_overlap if base is not None else False)
