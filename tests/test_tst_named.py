@@ -3,8 +3,6 @@
 from __future__ import annotations
 
 import math
-import shutil
-from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -16,7 +14,6 @@ from basinmark.core.manifest import load_layout
 from basinmark.core.summary import build_summary
 from basinmark.core.tst import MAX_DDG_KCAL, TSTError, TSTEstimate
 
-SAMPLE = Path(__file__).resolve().parents[1] / "sample_sets" / "ringfork"
 
 
 def labels(counts: dict[str, int]) -> pd.DataFrame:
@@ -51,8 +48,13 @@ def test_the_same_pair_gives_reciprocal_predictions_for_the_two_orders():
 
 @pytest.fixture()
 def ringfork(tmp_path):
-    root = tmp_path / "ringfork"
-    shutil.copytree(SAMPLE, root, ignore=shutil.ignore_patterns(".basinmark-cache", "basinmark-labels.jsonl*"))
+    """A small two-product set of our own toy (products alpha and beta), no manifest yet."""
+    from gui_fixtures import make_toy_set
+
+    root = make_toy_set(tmp_path / "fork", ["left"] * 8 + ["right"] * 3 + ["recrossing"])
+    rules = (root / "basins.toml").read_text()
+    (root / "basins.toml").write_text(rules.replace("[basins.left]", "[basins.alpha]")
+                                      .replace("[basins.right]", "[basins.beta]"))
     return root
 
 
@@ -66,7 +68,6 @@ def test_manifest_pair_is_converted_for_the_order_asked(ringfork, capsys):
 
 
 def test_command_line_ddg_names_its_pair(ringfork, capsys):
-    (ringfork / "basinmark-set.toml").unlink()
     assert main(["summary", str(ringfork), "-q", "--no-cache", "--ratio", "beta", "alpha",
                  "--ddg", "alpha", "beta", "0.5"]) == 0
     assert "predicts 0.43" in capsys.readouterr().out

@@ -69,6 +69,46 @@ def _float(text: str, option: str) -> float:
         raise SetError(f"{option}: {text!r} is not a number") from None
 
 
+def command_line_tst(args, products: list[str] | None, notes: list[str] | None = None):
+    """The TST estimate of ``--ddg``/``--barrier`` (None when neither is given), checked.
+
+    Called once before the set is opened (``products=None``), so that absurd values fail at once; a lone
+    ``--ddg X`` without ``--ratio`` is then left for the second call, whose message lists the products.
+    """
+    from basinmark.core.tst import TSTEstimate
+
+    notes = notes if notes is not None else []
+    temperature = args.temperature
+    ddg = getattr(args, "ddg", None)
+    barriers = getattr(args, "barrier", None)
+    if getattr(args, "no_tst", False) or (ddg is None and not barriers):
+        return None
+    if ddg is not None and barriers:
+        raise SetError("give either --ddg or --barrier, not both")
+    t = 298.15 if temperature is None else temperature
+    if barriers:
+        values: dict[str, float] = {}
+        for name, value in barriers:
+            if name in values:
+                raise SetError(f"--barrier {name} is given twice")
+            values[name] = _float(value, f"--barrier {name}")
+        return TSTEstimate.from_barriers(values, args.unit, t, origin="--barrier")
+    if len(ddg) == 3:
+        return TSTEstimate.pair(ddg[0], ddg[1], _float(ddg[2], "--ddg"), args.unit, t, origin="--ddg")
+    if len(ddg) == 1 and args.ratio:
+        a, b = args.ratio
+        notes.append(f"--ddg {ddg[0]} read as ΔΔG‡ = G‡({b}) − G‡({a}) for the ratio {a} : {b} asked")
+        return TSTEstimate.pair(a, b, _float(ddg[0], "--ddg"), args.unit, t, origin="--ddg")
+    if len(ddg) == 1:
+        if products is None:
+            _float(ddg[0], "--ddg")
+            return None  # said in full once the products are known
+        raise SetError(f"--ddg {ddg[0]} does not say which product it favours: write --ddg MAJOR MINOR "
+                       f"{ddg[0]} (ΔΔG‡ = G‡(MINOR) − G‡(MAJOR)), or name the ratio with --ratio A B "
+                       f"(ΔΔG‡ = G‡(B) − G‡(A)); products: {', '.join(products) or '(none)'}")
+    raise SetError(f"--ddg takes MAJOR MINOR X (or one number with --ratio A B), not {len(ddg)} values")
+
+
 def tst_from_args(args, tset, products: list[str]) -> tuple[object, object, list[str], list[str]]:
     """``(estimate, measured ratio, notes, warnings)`` from the command line, else the set's manifest.
 
@@ -83,33 +123,9 @@ def tst_from_args(args, tset, products: list[str]) -> tuple[object, object, list
     measured = stated.get("experiment") if stated else None
     if getattr(args, "no_tst", False):
         return None, measured, notes, warnings
-    temperature = args.temperature
-    ddg = getattr(args, "ddg", None)
-    barriers = getattr(args, "barrier", None)
-    if ddg is not None and barriers:
-        raise SetError("give either --ddg or --barrier, not both")
-    if ddg is not None or barriers:
-        t = 298.15 if temperature is None else temperature
-        if barriers:
-            values: dict[str, float] = {}
-            for name, value in barriers:
-                if name in values:
-                    raise SetError(f"--barrier {name} is given twice")
-                values[name] = _float(value, f"--barrier {name}")
-            return TSTEstimate.from_barriers(values, args.unit, t, origin="--barrier"), measured, notes, warnings
-        if len(ddg) == 3:
-            return (TSTEstimate.pair(ddg[0], ddg[1], _float(ddg[2], "--ddg"), args.unit, t, origin="--ddg"),
-                    measured, notes, warnings)
-        if len(ddg) == 1 and args.ratio:
-            a, b = args.ratio
-            notes.append(f"--ddg {ddg[0]} read as ΔΔG‡ = G‡({b}) − G‡({a}) for the ratio {a} : {b} asked")
-            return (TSTEstimate.pair(a, b, _float(ddg[0], "--ddg"), args.unit, t, origin="--ddg"),
-                    measured, notes, warnings)
-        if len(ddg) == 1:
-            raise SetError(f"--ddg {ddg[0]} does not say which product it favours: write --ddg MAJOR MINOR "
-                           f"{ddg[0]} (ΔΔG‡ = G‡(MINOR) − G‡(MAJOR)), or name the ratio with --ratio A B "
-                           f"(ΔΔG‡ = G‡(B) − G‡(A)); products: {', '.join(products) or '(none)'}")
-        raise SetError(f"--ddg takes MAJOR MINOR X (or one number with --ratio A B), not {len(ddg)} values")
+    est = command_line_tst(args, products, notes)
+    if est is not None:
+        return est, measured, notes, warnings
     if not stated:
         return None, measured, notes, warnings
     est = stated.get("estimate")
@@ -124,6 +140,7 @@ def tst_from_args(args, tset, products: list[str]) -> tuple[object, object, list
             return None, measured, notes, warnings
     if est is None:
         return None, measured, notes, warnings
+    temperature = args.temperature
     if temperature is not None and temperature != est.temperature:
         notes.append(f"the TST estimate of {where} is stated at {est.temperature:g} K; --temperature "
                      f"{temperature:g} K applies to the effective ΔΔG only")
@@ -202,6 +219,7 @@ def make_summary(args):
     root = Path(args.set)
     if not root.is_dir():
         raise SetError(f"{root}: not a folder (a set is a folder of runs)")
+    command_line_tst(args, None)  # absurd TST values fail before the set is read
     tset = open_set(root, progress=progress_printer(args.quiet), use_cache=not args.no_cache)
     rules_file = rules_path(root)
     rules = load_rules(rules_file, n_atoms=tset.n_atoms) if rules_file.is_file() else None
