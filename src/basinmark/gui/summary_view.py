@@ -9,6 +9,7 @@ labels, rules or its own settings change.
 from __future__ import annotations
 
 import math
+import re
 
 import numpy as np
 import pandas as pd
@@ -39,9 +40,9 @@ def _fmt(x: float, digits: int = 3) -> str:
     return f"{x:.{digits}f}"
 
 
-def short_caption(warning: str, limit: int = 110) -> str:
-    """The first sentence of a warning, cut to ``limit`` characters (a caption above the run table)."""
-    first = str(warning).split(". ")[0].rstrip(".")
+def short_caption(warning: str, limit: int = 80) -> str:
+    """The warning's first clause, cut to ``limit`` characters (a caption above the run table)."""
+    first = re.split(r"\. |; | \(|, none of|(?<=\S): ", str(warning).strip(), maxsplit=1)[0].rstrip(".")
     return first if len(first) <= limit else first[:limit - 1].rstrip() + "…"
 
 
