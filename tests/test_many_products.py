@@ -189,12 +189,14 @@ def test_window_shows_seven_products_in_distinct_colours(qtbot, seven, tmp_path)
     from PySide6.QtCore import QSettings, Qt
 
     from basinmark.gui.main_window import MainWindow
+    from basinmark.gui.map_view import install_map_dock
     from basinmark.gui.summary_view import install_summary_dock
 
     root, designed = seven
     w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
     qtbot.addWidget(w)
     install_summary_dock(w)
+    install_map_dock(w)
     with qtbot.waitSignal(w.set_loaded, timeout=30000):
         w.open_set(root, use_cache=False)
     qtbot.waitUntil(lambda: len(w.state.labels) == len(designed), timeout=20000)
@@ -224,4 +226,53 @@ def test_window_shows_seven_products_in_distinct_colours(qtbot, seven, tmp_path)
         seen[label] = model.data(model.index(r, final), Qt.ItemDataRole.DecorationRole).name()
     assert all(seen[p] == shown[p].name() for p in SITES)
     assert model.products == SITES and w.run_table.count_bar.products == SITES  # the outcome band
+    # map: paths coloured by final label with the same colours
+    w.map_panel.refresh(force=True)
+    canvas = w.map_panel.canvas
+    qtbot.waitUntil(lambda: canvas.products == SITES, timeout=20000)
+    assert set(canvas.curves) >= set(SITES)
+    drawn = [canvas.curves[p].opts["pen"].color().name() for p in SITES]
+    assert drawn == [shown[p].name() for p in SITES]
+    w.close()
+
+
+@pytest.mark.gui
+def test_review_panel_matrix_with_seven_products(qtbot, seven, tmp_path):
+    from PySide6.QtCore import QSettings
+
+    from basinmark.core.journal import LabelJournal
+    from basinmark.core.sets import journal_path, open_set
+    from basinmark.gui.main_window import MainWindow
+    from basinmark.gui.review_view import install_review_dock
+
+    root, designed = seven
+    work = tmp_path / "sevenfold"
+    import shutil
+    shutil.copytree(root, work, ignore=shutil.ignore_patterns(".basinmark-cache", "basinmark-labels.jsonl*"))
+    hashes = dict(open_set(work, use_cache=False).content_hashes())
+    runs = list(designed)
+    other_labels = dict(designed)
+    other_labels[runs[0]], other_labels[runs[7]] = "site_b", "site_a"
+    other = tmp_path / "second-labels.jsonl"
+    for path, who, labels in ((journal_path(work), "first", designed), (other, "second", other_labels)):
+        with LabelJournal.open(path, labeler=who) as j:
+            for run in runs:
+                j.record(run, labels[run], content_hash=hashes[run])
+    w = MainWindow(QSettings(str(tmp_path / "s.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(w)
+    with qtbot.waitSignal(w.set_loaded, timeout=30000):
+        w.open_set(work, use_cache=False)
+    install_review_dock(w)
+    panel = w.review_panel
+    panel.set_sources(("final",), ("file", str(other)))
+    review = panel.compare()
+    assert review is not None and review.n == len(runs)
+    for p in SITES:
+        assert p in review.confusion.index and p in review.confusion.columns
+    m = panel.matrix
+    assert m.rowCount() >= len(review.confusion) and m.columnCount() >= len(review.confusion.columns)
+    for p in SITES:
+        i, k = review.confusion.index.get_loc(p), list(review.confusion.columns).index(p)
+        assert m.item(i, k).text() == str(int(review.confusion.loc[p, p]))
+    assert int(np.trace(review.confusion.to_numpy())) == len(runs) - 2
     w.close()
