@@ -262,16 +262,16 @@ def test_step_run_matches_a_plain_walk(qtbot, tmp_path_factory, labeled, current
     s.labels_changed.emit()
     table.set_filter("unlabeled")
     visible = [r for r, x in zip(ids, labeled) if not x]
-    if ids[current] in visible:
-        j = visible.index(ids[current]) + step
-    else:
-        after = [k for k, r in enumerate(visible) if r > ids[current]]
-        first_after = after[0] if after else len(visible)
-        j = first_after + step - 1 if step > 0 else first_after + step
-    expected = visible[j] if 0 <= j < len(visible) else ids[current]
+    # a filter that hides the current run moves to its first run (or to no run when it is empty)
+    start = ids[current] if ids[current] in visible else (visible[0] if visible else "")
+    assert s.run_id == start
+    assert table.selected_run() == start
+    j = visible.index(start) + step if start else -1
+    expected = visible[j] if 0 <= j < len(visible) else start
     moved = table.step_run(step)
     assert moved == (0 <= j < len(visible))
     assert s.run_id == expected
+    assert table.selected_run() == expected
     table.deleteLater()
 
 

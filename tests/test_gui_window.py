@@ -67,11 +67,21 @@ def test_opening_fills_table_with_core_counts(win, toy_root):
     assert "toy-001" in win.status_where.text()
 
 
+def _label_key(win, qtbot, key, reason: str = "") -> None:
+    """A number key in the run table starts a pending label; the reason typed, Enter saves both."""
+    win.run_table.view.setFocus()
+    qtbot.keyClick(win.run_table.view, key)
+    assert win.label_panel.pending is not None and win.label_panel.reason.hasFocus()
+    if reason:
+        qtbot.keyClicks(win.label_panel.reason, reason)
+    qtbot.keyClick(win.label_panel.reason, Qt.Key.Key_Return)
+
+
 def test_number_key_writes_journal_and_undo_restores(win, qtbot, toy_root):
     assert win.state.run_id == "toy-001"
     # button order: products (left, right) then recrossing, unfinished, ambiguous, excluded: key 3 = recrossing
-    win.label_panel.reason.setText("turns back late")
-    qtbot.keyClick(win.run_table.view, Qt.Key.Key_3)
+    _label_key(win, qtbot, Qt.Key.Key_3, "turns back late")
+    assert win.run_table.view.hasFocus()  # back in the viewer after Enter
     events = [e for e in _journal_events(toy_root) if e.get("kind") == "label"]
     assert events[-1]["run"] == "toy-001" and events[-1]["label"] == "recrossing"
     assert events[-1]["reason"] == "turns back late" and events[-1]["source"] == "hand"
@@ -93,18 +103,21 @@ def test_excluded_needs_a_reason(win, toy_root):
 
 
 def test_next_flagged_and_next_unlabeled(win, qtbot):
-    qtbot.keyClick(win.run_table.view, Qt.Key.Key_F)
+    view = win.molecule  # single-letter keys act in the molecule and traces, not while typing in the table
+    view.setFocus()
+    qtbot.keyClick(view, Qt.Key.Key_F)
     assert win.state.run_id == "toy-005"  # the only run with energy drift
     assert "energy_drift" in win.state.label_row()["flags"]
     win.state.set_run("toy-002")
     win.label_panel.apply_label("right")
     win.state.set_run("toy-001")
     win.label_panel.apply_label("left")
-    qtbot.keyClick(win.run_table.view, Qt.Key.Key_U)
+    view.setFocus()
+    qtbot.keyClick(view, Qt.Key.Key_U)
     assert win.state.run_id == "toy-003"
-    qtbot.keyClick(win.run_table.view, Qt.Key.Key_PageDown)
+    qtbot.keyClick(view, Qt.Key.Key_PageDown)
     assert win.state.run_id == "toy-004"
-    qtbot.keyClick(win.run_table.view, Qt.Key.Key_P)
+    qtbot.keyClick(view, Qt.Key.Key_P)
     assert win.state.run_id == "toy-003"
 
 
@@ -141,9 +154,10 @@ def test_step_and_jump_keys(win, qtbot):
     assert win.state.frame == 11
     qtbot.keyClick(view, Qt.Key.Key_End)
     assert win.state.frame == traj.n_frames - 1
-    qtbot.keyClick(view, Qt.Key.Key_T)
+    win.molecule.setFocus()
+    qtbot.keyClick(win.molecule, Qt.Key.Key_T)
     assert traj.times[win.state.frame] == 0.0
-    qtbot.keyClick(view, Qt.Key.Key_C)
+    qtbot.keyClick(win.molecule, Qt.Key.Key_C)
     row = win.state.label_row()
     assert row["product_end"] == "forward"  # the toy set's products are at the forward end
     assert traj.times[win.state.frame] == pytest.approx(row["product_final_entry_fs"])
@@ -332,10 +346,10 @@ def test_advance_after_labeling_follows_the_filter(win, qtbot):
     win.actions_["auto_advance"].setChecked(True)
     win.run_table.set_filter("unlabeled")
     win.state.set_run("toy-002")
-    qtbot.keyClick(win.run_table.view, Qt.Key.Key_2)
+    _label_key(win, qtbot, Qt.Key.Key_2)
     assert win.state.label_row("toy-002")["hand_label"] == "right"
     assert win.state.run_id == "toy-003"  # the next unlabeled run after it
-    qtbot.keyClick(win.run_table.view, Qt.Key.Key_3)
+    _label_key(win, qtbot, Qt.Key.Key_3)
     assert win.state.run_id == "toy-004"
     assert "toy-003" not in win.run_table.visible_runs()
     assert win.settings.value("auto_advance") in (True, "true")
@@ -344,10 +358,13 @@ def test_advance_after_labeling_follows_the_filter(win, qtbot):
 def test_labeling_under_a_filter_keeps_the_run_shown(win, qtbot):
     win.run_table.set_filter("unlabeled")
     win.state.set_run("toy-002")
-    qtbot.keyClick(win.run_table.view, Qt.Key.Key_2)
-    assert "toy-002" not in win.run_table.visible_runs()
-    assert win.state.run_id == "toy-002"  # the row left the filtered table; the run stays on screen
+    _label_key(win, qtbot, Qt.Key.Key_2)
+    # the run stays on screen, and its row stays listed and selected (in italics) while it is shown
+    assert win.state.run_id == "toy-002" and win.run_table.selected_run() == "toy-002"
+    assert "toy-002" in win.run_table.visible_runs()
     assert win.molecule.trajectory is win.state.tset["toy-002"]
+    win.state.set_run("toy-003")
+    assert "toy-002" not in win.run_table.visible_runs()  # once left, the filter hides it
 
 
 def test_dropping_a_folder_opens_it_and_layout_is_saved(qtbot, tmp_path, toy_root):

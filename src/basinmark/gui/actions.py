@@ -3,6 +3,11 @@
 :func:`build_actions` turns the table into QActions bound to slots; the
 main window puts the same QActions into menus, the toolbar and the
 shortcut help, so a shortcut is defined in exactly one place.
+
+Keys without Ctrl/Alt (letters, arrows, Space, …) are *viewer* keys: they act only while the
+focus is in the molecule, the traces or the run table (the window attaches them there), never in
+a text field or another panel.  In the run table, letters find a run by its id instead (see
+``run_table.RunTableView``).  Keys with Ctrl, and F1, act anywhere in the window.
 """
 
 from __future__ import annotations
@@ -10,6 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Callable, Mapping
 
+from PySide6.QtCore import Qt
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import QWidget
 
@@ -25,6 +31,12 @@ class ActionSpec:
     tip: str = ""
     icon: str = ""
     checkable: bool = False
+
+    @property
+    def viewer(self) -> bool:
+        """Only in the viewer (molecule, traces, run table): every key of it is a bare key (no Ctrl/Alt, not F1)."""
+        return bool(self.shortcuts) and all(
+            not any(m in k for m in ("Ctrl+", "Alt+", "Meta+")) and k not in ("F1",) for k in self.shortcuts)
 
 
 ACTIONS: tuple[ActionSpec, ...] = (
@@ -59,11 +71,17 @@ ACTIONS: tuple[ActionSpec, ...] = (
     ActionSpec("next_flagged", "Next &Flagged Run", "Runs", ("F",), "The next run with a flag", "next-flagged"),
     ActionSpec("next_unlabeled", "Next &Unlabeled Run", "Runs", ("U",), "The next run without a hand label",
                "next-unlabeled"),
+    ActionSpec("goto_run", "&Go to Run…", "Runs", ("Ctrl+G",), "Find a run by its id (with completion)"),
     # labels
     ActionSpec("undo_label", "&Undo Label", "Labels", ("Ctrl+Z",),
                "Undo the last hand label of this run (recorded in the journal)", "undo"),
     ActionSpec("auto_advance", "&Advance After Labeling", "Labels", (),
                "After each label, go on to the next run of the current filter", checkable=True),
+    ActionSpec("ask_reason", "Ask for a &Reason", "Labels", (),
+               "A label key or button first asks for a reason: Enter saves label and reason together, Esc cancels. "
+               "Off: labels are saved at once (those that need a reason still ask)", checkable=True),
+    ActionSpec("change_labeler", "Change &Labeler…", "Labels", (),
+               "The name recorded with every label you set (shown in the status bar)"),
     # view
     ActionSpec("reset_view", "&Reset View", "View", ("R",), "Initial orientation, fitted", "reset-view"),
     ActionSpec("fit_view", "&Fit Molecule", "View", ("Shift+R",), "Zoom to fit, keep the orientation", "fit-view"),
@@ -83,7 +101,11 @@ SPECS: dict[str, ActionSpec] = {s.name: s for s in ACTIONS}
 
 
 def build_actions(parent: QWidget, slots: Mapping[str, Callable]) -> dict[str, QAction]:
-    """One QAction per spec, added to ``parent`` (so shortcuts work window-wide), triggered into ``slots``."""
+    """One QAction per spec, triggered into ``slots``.
+
+    Window-wide actions are added to ``parent``; viewer actions get a widget-with-children context and
+    are attached to the viewer widgets by the window (:func:`viewer_actions`).
+    """
     out: dict[str, QAction] = {}
     for spec in ACTIONS:
         act = QAction(spec.text, parent)
@@ -104,9 +126,17 @@ def build_actions(parent: QWidget, slots: Mapping[str, Callable]) -> dict[str, Q
                 act.toggled.connect(slot)
             else:
                 act.triggered.connect(lambda checked=False, f=slot: f())
-        parent.addAction(act)
+        if spec.viewer:
+            act.setShortcutContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
+        else:
+            parent.addAction(act)
         out[spec.name] = act
     return out
+
+
+def viewer_actions(actions: Mapping[str, QAction]) -> list[QAction]:
+    """The actions whose keys act only while the viewer (molecule, traces, run table) has the focus."""
+    return [act for name, act in actions.items() if name in SPECS and SPECS[name].viewer]
 
 
 def shortcut_rows(actions: Mapping[str, QAction]) -> list[tuple[str, str, str]]:

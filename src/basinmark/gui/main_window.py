@@ -6,7 +6,7 @@ from pathlib import Path
 
 from PySide6.QtCore import QByteArray, QSettings, Qt, Signal
 from PySide6.QtGui import QKeySequence
-from PySide6.QtWidgets import (QDockWidget, QFileDialog, QLabel, QMainWindow, QMenu, QMenuBar, QMessageBox,
+from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, QMainWindow, QMenu, QMenuBar, QMessageBox,
                                QProgressBar, QToolBar, QToolButton, QVBoxLayout, QWidget)
 
 from basinmark import __version__
@@ -15,8 +15,10 @@ from basinmark.core.journal import JournalError, JournalLockedError, LabelJourna
 from basinmark.core.labels import all_labels
 from basinmark.core.model import TrajectorySet
 from basinmark.core.sets import journal_path
-from basinmark.gui.actions import build_actions
+from basinmark.gui import labeler as labeler_dialog
+from basinmark.gui.actions import build_actions, viewer_actions
 from basinmark.gui.dialogs import FailuresDialog, ShortcutsDialog
+from basinmark.gui.goto_run import GotoRunDialog
 from basinmark.gui.icons import icon
 from basinmark.gui.label_panel import Banner, LabelPanel
 from basinmark.gui.loader import LoadJob, RulesWorker, SetLoader
@@ -65,14 +67,17 @@ class MainWindow(QMainWindow):
         self.molecule = MoleculeView(self)
         self.traces = TracesView(self)
         self.run_table = RunTable(self.state, self)
-        self.label_panel = LabelPanel(self.state, self.actions_["undo_label"], self)
+        self.label_panel = LabelPanel(self.state, self.actions_["undo_label"], self,
+                                      labeler_action=self.actions_["change_labeler"])
         self.playback_bar = PlaybackBar(self.state, self.playback, self.actions_, self)
         self.banner = Banner(self)
+        self.goto_dialog: GotoRunDialog | None = None
         self._build_layout()
         self._build_menus()
         self._build_status()
+        self._attach_viewer_keys()
         self._connect()
-        self.label_panel.set_labeler(str(self.settings.value("labeler", "") or default_labeler()))
+        self._init_labeler()
         self.restore_layout()
 
     # --- construction ---------------------------------------------------------------------
@@ -90,8 +95,11 @@ class MainWindow(QMainWindow):
             "next_flagged": lambda: self._nav(self.run_table.next_matching("flagged"), "No other flagged run."),
             "next_unlabeled": lambda: self._nav(self.run_table.next_matching("unlabeled"),
                                                 "Every other run has a hand label."),
+            "goto_run": self.goto_run,
             "undo_label": lambda: self.label_panel.undo(),
             "auto_advance": lambda on: self.settings.setValue("auto_advance", bool(on)),
+            "ask_reason": self._set_ask_reason,
+            "change_labeler": self.change_labeler,
             "reset_view": lambda: self.molecule.reset_view(), "fit_view": lambda: self.molecule.fit(),
             "atom_numbers": lambda on: self.molecule.set_show_numbers(on),
             "clear_monitors": lambda: self.state.clear_monitors(),
@@ -149,8 +157,8 @@ class MainWindow(QMainWindow):
                      "jump_start", "jump_end", "jump_ts", "jump_commit", None, "faster", "slower", "loop"):
             m.addSeparator() if name is None else m.addAction(a[name])
         m = bar.addMenu("&Runs")
-        for name in ("next_run", "previous_run", "next_flagged", "next_unlabeled"):
-            m.addAction(a[name])
+        for name in ("next_run", "previous_run", "next_flagged", "next_unlabeled", None, "goto_run"):
+            m.addSeparator() if name is None else m.addAction(a[name])
         self.labels_menu = bar.addMenu("&Labels")
         m = bar.addMenu("&View")
         for name in ("reset_view", "fit_view", "atom_numbers", None, "clear_picks", "clear_monitors", "energy_unit"):
@@ -177,7 +185,10 @@ class MainWindow(QMainWindow):
             self.labels_menu.addAction(act)
         self.labels_menu.addSeparator()
         self.labels_menu.addAction(self.actions_["undo_label"])
+        self.labels_menu.addAction(self.actions_["ask_reason"])
         self.labels_menu.addAction(self.actions_["auto_advance"])
+        self.labels_menu.addSeparator()
+        self.labels_menu.addAction(self.actions_["change_labeler"])
 
     def _build_status(self) -> None:
         sb = self.statusBar()
@@ -194,10 +205,28 @@ class MainWindow(QMainWindow):
         self.cancel_button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
         self.cancel_button.setVisible(False)
         self.cancel_button.clicked.connect(self.cancel_loading)
+        self.status_labeler = QToolButton(self)
+        self.status_labeler.setAutoRaise(True)
+        self.status_labeler.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.status_labeler.setToolTip("Labels are recorded under this name; click to change it")
+        self.status_labeler.clicked.connect(self.change_labeler)
         sb.addWidget(self.status_where, 1)
+        sb.addPermanentWidget(self.status_labeler)
         sb.addPermanentWidget(self.status_counts)
         sb.addPermanentWidget(self.progress)
         sb.addPermanentWidget(self.cancel_button)
+
+    def _attach_viewer_keys(self) -> None:
+        """Bare keys (letters, digits, arrows, Space) act only where the viewer has the focus."""
+        self.viewer_widgets = [self.molecule, self.traces, self.run_table.view]
+        self.traces.setFocusPolicy(Qt.FocusPolicy.ClickFocus)
+        acts = viewer_actions(self.actions_)
+        for w in self.viewer_widgets:
+            w.addActions(acts)
+        self.label_panel.set_key_widgets(self.viewer_widgets)
+        self.label_panel.guard = self._label_guard
+        self.label_panel.confirm_labeler = self._confirm_labeler
+        self.label_panel.acting.connect(self.run_table.view.end_find)
 
     def _connect(self) -> None:
         st = self.state
@@ -214,7 +243,7 @@ class MainWindow(QMainWindow):
         self.traces.threshold_moved.connect(self.move_threshold)
         self.label_panel.message.connect(lambda text: self.statusBar().showMessage(text, 6000))
         self.label_panel.labeled.connect(self._after_label)
-        self.label_panel.labeler_changed.connect(lambda name: self.settings.setValue("labeler", name))
+        self.label_panel.labeler_changed.connect(self._labeler_chosen)
 
     # --- settings -------------------------------------------------------------------------
     def restore_layout(self) -> None:
@@ -228,6 +257,8 @@ class MainWindow(QMainWindow):
         self.traces.set_energy_unit(str(self.settings.value("energy_unit", "kcal/mol")))
         self.actions_["energy_unit"].setChecked(self.traces.energy_unit == "kJ/mol")
         self.actions_["auto_advance"].setChecked(str(self.settings.value("auto_advance", "false")).lower() == "true")
+        self.actions_["ask_reason"].setChecked(str(self.settings.value("ask_reason", "true")).lower() == "true")
+        self.label_panel.ask_reason = self.actions_["ask_reason"].isChecked()
 
     def save_settings(self) -> None:
         self.settings.setValue("window/geometry", self.saveGeometry())
@@ -432,6 +463,9 @@ class MainWindow(QMainWindow):
         if tset is not None and tset.failures and not result.get("rules_only"):
             self.failure_dialog = FailuresDialog(tset.name, tset.failures, self, left_out=tset.left_out)
             self.failure_dialog.open()
+        focus = QApplication.focusWidget()
+        if not result.get("rules_only") and (focus is None or focus is self or not self.isAncestorOf(focus)):
+            self.run_table.view.setFocus(Qt.FocusReason.OtherFocusReason)
         (self.rules_applied if result.get("rules_only") else self.set_loaded).emit()
 
     def _open_journal(self, tset: TrajectorySet, rules) -> None:
@@ -536,6 +570,8 @@ class MainWindow(QMainWindow):
             parts.append(f"run {st.run_id}")
             parts.append(f"frame {st.frame + 1}/{traj.n_frames}")
             parts.append(f"t = {traj.times[st.frame]:+.1f} fs")
+        elif st.tset is not None and len(st.tset):
+            parts.append("no run selected")
         if st.picked:
             parts.append("picked " + "-".join(map(str, st.picked)))
         self.status_where.setText("   ·   ".join(parts))
@@ -557,6 +593,110 @@ class MainWindow(QMainWindow):
     def jump_commit(self) -> None:
         if not self.playback.jump_commit():
             self.statusBar().showMessage("This run has no product end (no product-side commit time).", 4000)
+
+    # --- labeling: one current run, who labels -------------------------------------------------
+    def _label_guard(self) -> str:
+        """A label may go on only while the table selects exactly the run on screen."""
+        if self.busy:
+            return "Still loading or classifying the set; the label was not saved. Label again once it has finished."
+        selected = self.run_table.selected_run()
+        if selected != self.state.run_id:
+            return (f"The run table selects {selected or 'no run'} but {self.state.run_id or 'no run'} is shown; "
+                    "the label was not saved. Click the run you mean.")
+        return ""
+
+    def _set_ask_reason(self, on: bool) -> None:
+        self.label_panel.ask_reason = bool(on)
+        if not on and self.label_panel.pending is not None:
+            self.label_panel.cancel_pending("The pending label was cancelled.")
+        self.settings.setValue("ask_reason", bool(on))
+
+    def _init_labeler(self) -> None:
+        """The name from the settings (an earlier session) or the login name; confirmed on the first label."""
+        stored = str(self.settings.value("labeler", "") or "").strip()
+        self.login_name = default_labeler()
+        self.labeler_source = "settings" if stored else "login"
+        self.labeler_confirmed = False
+        self.label_panel.set_labeler(stored or self.login_name, announce=False)
+        self._show_labeler()
+
+    def set_labeler(self, name: str) -> None:
+        """Label under ``name`` (chosen in this session: no question on the first label)."""
+        self.label_panel.set_labeler(name, announce=False)
+        self._labeler_chosen(self.label_panel.labeler_name)
+
+    def _labeler_chosen(self, name: str) -> None:
+        self.labeler_source = "session"
+        self.labeler_confirmed = True
+        self.settings.setValue("labeler", name)
+        self._show_labeler()
+
+    def _show_labeler(self) -> None:
+        name = self.label_panel.labeler_name
+        self.status_labeler.setText(f"Labeler: {name}")
+
+    def labeler_needs_confirming(self) -> bool:
+        """True until the name is settled this session: it came from an earlier session or is not the login name."""
+        if self.labeler_confirmed:
+            return False
+        return self.labeler_source == "settings" or self.label_panel.labeler_name != self.login_name
+
+    def _known_labelers(self) -> list[str]:
+        j = self.state.journal
+        try:
+            return [n for n in (j.labelers() if j is not None else []) if n]
+        except Exception:  # a completion list must never stop labeling
+            return []
+
+    def _confirm_labeler(self) -> bool:
+        """Asked once per session, before the first label, when the name is not settled (see above)."""
+        if not self.labeler_needs_confirming():
+            self.labeler_confirmed = True
+            return True
+        name = labeler_dialog.ask_labeler(self, self.label_panel.labeler_name, self.login_name,
+                                          first_label=True, known=self._known_labelers())
+        if not name or not name.strip():
+            return False
+        self.set_labeler(name.strip())
+        self.statusBar().showMessage(f"Labeling as {self.label_panel.labeler_name}.", 6000)
+        return True
+
+    def change_labeler(self) -> bool:
+        name = labeler_dialog.ask_labeler(self, self.label_panel.labeler_name, self.login_name,
+                                          first_label=False, known=self._known_labelers())
+        if not name or not name.strip():
+            return False
+        self.set_labeler(name.strip())
+        self.statusBar().showMessage(f"Labels are now recorded under {self.label_panel.labeler_name}.", 6000)
+        return True
+
+    def goto_run(self) -> GotoRunDialog | None:
+        """Go to Run… (Ctrl+G): a field completing the run ids of the open set."""
+        if self.state.tset is None or not len(self.state.tset):
+            self.statusBar().showMessage("Open a set first.", 4000)
+            return None
+        dlg = GotoRunDialog(self.state.run_ids, self.go_to_run, self)
+        dlg.open()
+        self.goto_dialog = dlg
+        return dlg
+
+    def go_to_run(self, run_id: str) -> bool:
+        hidden = run_id not in self.run_table.visible_runs()
+        if not self.run_table.go_to(run_id):
+            return False
+        if hidden:
+            self.statusBar().showMessage(f"{run_id} was hidden by the filter, which now shows all runs.", 6000)
+        self.run_table.view.setFocus(Qt.FocusReason.OtherFocusReason)
+        return True
+
+    def keyPressEvent(self, event) -> None:  # noqa: N802
+        """A number key that reached the window itself: focus is outside the viewer, so say where it works."""
+        if not (event.modifiers() & ~Qt.KeyboardModifier.KeypadModifier) and Qt.Key.Key_1 <= event.key() <= Qt.Key.Key_9:
+            self.statusBar().showMessage("Number keys label the run only while the run table, molecule or traces "
+                                         "have the focus: click one of them first.", 6000)
+            event.accept()
+            return
+        super().keyPressEvent(event)
 
     # --- help -------------------------------------------------------------------------------
     def all_actions(self) -> dict:

@@ -1,4 +1,11 @@
-"""The run table: one row per run with its labels, quick filters, and a count bar per outcome."""
+"""The run table: one row per run with its labels, quick filters (with counts), and a count bar per outcome.
+
+The table's selected row is always the window's current run (``AppState.run_id``): a click, a
+filter or a sort never leaves the molecule, traces and label panel on a run the table does not
+select.  A filter that hides the current run moves to its first visible run (or to no run when it
+is empty); a run whose new label no longer matches the filter stays listed (in italics) while it
+is on screen, so that a label never moves the view to another run by itself.
+"""
 
 from __future__ import annotations
 
@@ -6,9 +13,11 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from PySide6.QtCore import (QAbstractTableModel, QItemSelectionModel, QModelIndex, QRectF, QSignalBlocker,
-                            QSize, QSortFilterProxyModel, Qt)
-from PySide6.QtGui import QPainter, QPalette
+import time
+
+from PySide6.QtCore import (QAbstractTableModel, QEvent, QItemSelectionModel, QModelIndex, QRectF, QSignalBlocker,
+                            QSize, QSortFilterProxyModel, Qt, Signal)
+from PySide6.QtGui import QKeyEvent, QPainter, QPalette
 from PySide6.QtWidgets import (QAbstractItemView, QButtonGroup, QHBoxLayout, QHeaderView, QLabel, QSizePolicy,
                                QTableView, QToolButton, QVBoxLayout, QWidget)
 
@@ -36,15 +45,21 @@ COMMIT_TIP = ("Product-side commit, final entry: when the run entered the produc
 
 FILTERS: tuple[tuple[str, str, str], ...] = (
     ("all", "All", "Every run"),
+    ("look", "Needs a look", "Runs without a hand label that are flagged or not cleanly reactive "
+                             "(recrossing, unfinished or ambiguous)"),
     ("flagged", "Flagged", "Runs with at least one flag"),
     ("unlabeled", "Unlabeled", "Runs without a hand label"),
     ("disagree", "Disagree", "Runs whose hand label differs from the automatic outcome"),
     ("changed", "Changed", "Runs whose files changed since they were labeled"),
 )
+FILTER_NAMES: dict[str, str] = {k: text for k, text, _tip in FILTERS}
+
+#: automatic outcomes that are not a clean reaction into one product
+NOT_CLEAN: frozenset[str] = frozenset({"recrossing", "unfinished", "ambiguous"})
 
 
 def row_matches(row: dict, mode: str) -> bool:
-    """Whether a labels-table row passes a quick filter."""
+    """Whether a labels-table row passes a quick filter (the same rules as :func:`filter_counts`)."""
     if mode == "flagged":
         return bool(row.get("flags"))
     if mode == "unlabeled":
@@ -53,7 +68,27 @@ def row_matches(row: dict, mode: str) -> bool:
         return bool(row.get("hand_label")) and row.get("hand_label") != row.get("auto_label")
     if mode == "changed":
         return bool(row.get("data_changed"))
+    if mode == "look":
+        return not row.get("hand_label") and (bool(row.get("flags")) or row.get("auto_label") in NOT_CLEAN)
     return True
+
+
+def filter_counts(df: pd.DataFrame) -> dict[str, int]:
+    """How many rows of a labels table pass each quick filter (vectorised; the rules of row_matches)."""
+    if not len(df):
+        return {k: 0 for k, _t, _tip in FILTERS}
+    hand = df["hand_label"].fillna("").astype(str)
+    auto = df["auto_label"].fillna("").astype(str)
+    flagged = df["flags"].fillna("").astype(str) != ""
+    unlabeled = hand == ""
+    return {
+        "all": len(df),
+        "look": int((unlabeled & (flagged | auto.isin(NOT_CLEAN))).sum()),
+        "flagged": int(flagged.sum()),
+        "unlabeled": int(unlabeled.sum()),
+        "disagree": int(((hand != "") & (hand != auto)).sum()),
+        "changed": int(df["data_changed"].fillna(False).astype(bool).sum()),
+    }
 
 
 class RunTableModel(QAbstractTableModel):
@@ -132,26 +167,74 @@ class RunTableModel(QAbstractTableModel):
 
 
 class RunFilterProxy(QSortFilterProxyModel):
+    """Sorts by each column's sort key and keeps the rows of the quick filter, plus the pinned run."""
+
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.mode = "all"
         self.only: frozenset[str] | None = None  # a given list of runs (e.g. a summary warning's) instead
+        self.pinned = ""   # the run on screen: listed even when it no longer matches the filter
         self.setSortRole(Qt.ItemDataRole.UserRole)
 
-    def set_mode(self, mode: str, only: frozenset[str] | None = None) -> None:
+    def _refilter(self, change) -> None:
         if hasattr(self, "beginFilterChange"):  # Qt >= 6.9; invalidateFilter is deprecated there
             self.beginFilterChange()
-            self.mode, self.only = mode, only
+            change()
             self.endFilterChange()
         else:
-            self.mode, self.only = mode, only
+            change()
             self.invalidateFilter()
 
-    def filterAcceptsRow(self, source_row: int, source_parent: QModelIndex) -> bool:  # noqa: N802
-        model = self.sourceModel()
+    def set_mode(self, mode: str, only: frozenset[str] | None = None) -> None:
+        def change() -> None:
+            self.mode, self.only, self.pinned = mode, only, ""
+        self._refilter(change)
+
+    def matches(self, row: dict) -> bool:
+        """The row passes the quick filter (or is one of the given runs), pin aside."""
         if self.only is not None:
-            return model.row(source_row)["run"] in self.only
-        return row_matches(model.row(source_row), self.mode)
+            return row["run"] in self.only
+        return row_matches(row, self.mode)
+
+    def describe(self) -> str:
+        return "the given list of runs" if self.only is not None else f"the filter '{FILTER_NAMES.get(self.mode, self.mode)}'"
+
+    def set_pinned(self, run_id: str) -> None:
+        """Pin another run; the filter is run again only when the old pin was listed for its pin alone."""
+        old = self.pinned
+        if run_id == old:
+            return
+        model = self.sourceModel()
+        r = model.row_of(old) if old else None
+        extra = r is not None and not self.matches(model.row(r))
+
+        def change() -> None:
+            self.pinned = run_id
+        if extra:
+            self._refilter(change)
+        else:
+            self.pinned = run_id
+
+    def is_extra(self, source_row: int) -> bool:
+        """The row is listed only because it is pinned (it no longer matches the filter)."""
+        row = self.sourceModel().row(source_row)
+        return row["run"] == self.pinned and not self.matches(row)
+
+    def filterAcceptsRow(self, source_row: int, source_parent: QModelIndex) -> bool:  # noqa: N802
+        row = self.sourceModel().row(source_row)
+        return (bool(self.pinned) and row["run"] == self.pinned) or self.matches(row)
+
+    def data(self, index: QModelIndex, role=Qt.ItemDataRole.DisplayRole) -> Any:
+        if role in (Qt.ItemDataRole.FontRole, Qt.ItemDataRole.ToolTipRole) and index.isValid():
+            src = self.mapToSource(index)
+            if self.is_extra(src.row()):
+                if role == Qt.ItemDataRole.ToolTipRole:
+                    return f"Listed while it is on screen: it no longer matches {self.describe()}."
+                from PySide6.QtGui import QFont
+                f = QFont()
+                f.setItalic(True)
+                return f
+        return super().data(index, role)
 
 
 class CountBar(QWidget):
@@ -190,14 +273,109 @@ class CountBar(QWidget):
         p.end()
 
 
+_MODIFIER_KEYS = frozenset({Qt.Key.Key_Shift, Qt.Key.Key_Control, Qt.Key.Key_Alt, Qt.Key.Key_Meta,
+                            Qt.Key.Key_AltGr, Qt.Key.Key_CapsLock})
+
+
+class RunTableView(QTableView):
+    """The table of runs.  Typing a run id finds it; it never triggers single-letter commands.
+
+    A letter (or ``-``, ``_``, ``.``) starts finding a run by its id; while finding (until a pause of
+    ``FIND_TIMEOUT_S``, Escape, Enter, a click or leaving the table) digits go on into the text
+    instead of labeling.  A digit typed when not finding is a label key (the label actions are
+    attached to this view by the window).
+    """
+
+    find_typed = Signal(str)      # the whole text typed so far
+    find_ended = Signal()
+
+    FIND_TIMEOUT_S = 1.5
+    _STARTERS = frozenset("-_.")
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.find_text = ""
+        self._find_at = 0.0
+
+    @property
+    def finding(self) -> bool:
+        if self.find_text and time.monotonic() - self._find_at > self.FIND_TIMEOUT_S:
+            self.end_find()
+        return bool(self.find_text)
+
+    def end_find(self) -> None:
+        if self.find_text:
+            self.find_text = ""
+            self.find_ended.emit()
+
+    def _find_char(self, event: QKeyEvent) -> str:
+        """The character this key adds to the find text, or "" when it is not part of finding."""
+        if event.modifiers() & (Qt.KeyboardModifier.ControlModifier | Qt.KeyboardModifier.AltModifier
+                                | Qt.KeyboardModifier.MetaModifier):
+            return ""
+        text = event.text()
+        if len(text) != 1 or not text.isprintable() or text.isspace():
+            return ""
+        if text.isalpha() or text in self._STARTERS:
+            return text
+        return text if self.finding else ""
+
+    def event(self, event) -> bool:  # noqa: D401
+        if event.type() == QEvent.Type.ShortcutOverride:
+            if self._find_char(event) or (self.finding and event.key() in (
+                    Qt.Key.Key_Escape, Qt.Key.Key_Backspace, Qt.Key.Key_Return, Qt.Key.Key_Enter)):
+                event.accept()  # the key is typed into the find text, not taken as a shortcut
+                return True
+            if self.find_text and event.key() not in _MODIFIER_KEYS:
+                self.end_find()  # any other key (a shortcut) ends finding
+        return super().event(event)
+
+    def keyPressEvent(self, event: QKeyEvent) -> None:  # noqa: N802
+        ch = self._find_char(event)
+        if ch:
+            self.find_text += ch
+            self._find_at = time.monotonic()
+            self.find_typed.emit(self.find_text)
+            event.accept()
+            return
+        if self.finding and event.key() == Qt.Key.Key_Backspace:
+            self.find_text = self.find_text[:-1]
+            self._find_at = time.monotonic()
+            if self.find_text:
+                self.find_typed.emit(self.find_text)
+            else:
+                self.find_ended.emit()
+            event.accept()
+            return
+        if self.find_text:
+            self.end_find()
+            if event.key() in (Qt.Key.Key_Escape, Qt.Key.Key_Return, Qt.Key.Key_Enter):
+                event.accept()
+                return
+        super().keyPressEvent(event)
+
+    def keyboardSearch(self, search: str) -> None:  # noqa: N802
+        """Qt's own search by the first letters of any column is replaced by finding run ids (above)."""
+
+    def mousePressEvent(self, event) -> None:  # noqa: N802
+        self.end_find()
+        super().mousePressEvent(event)
+
+    def focusOutEvent(self, event) -> None:  # noqa: N802
+        self.end_find()
+        super().focusOutEvent(event)
+
+
 class RunTable(QWidget):
-    """Quick-filter buttons, the sortable table, and the counts of the final labels."""
+    """Quick-filter buttons (with counts), the sortable table, and the counts of the final labels."""
 
     def __init__(self, state: AppState, parent=None) -> None:
         super().__init__(parent)
         self.state = state
         self._sized: tuple = ()
         self._syncing = False
+        self._finding_run = False
+        self._last_run = ""    # the run shown before a filter left no run to show
         self.model = RunTableModel(self)
         self.proxy = RunFilterProxy(self)
         self.proxy.setSourceModel(self.model)
@@ -236,7 +414,7 @@ class RunTable(QWidget):
         self.only_caption.setVisible(False)
         self.only_clear.setVisible(False)
         lay.addLayout(only)
-        self.view = QTableView(self)
+        self.view = RunTableView(self)
         self.view.setModel(self.proxy)
         self.view.setSortingEnabled(True)
         self.view.sortByColumn(0, Qt.SortOrder.AscendingOrder)
@@ -250,6 +428,13 @@ class RunTable(QWidget):
         self.view.horizontalHeader().setStretchLastSection(True)
         self.view.horizontalHeader().setResizeContentsPrecision(200)
         lay.addWidget(self.view, 1)
+        self.find_label = QLabel(self)
+        self.find_label.setVisible(False)
+        lay.addWidget(self.find_label)
+        self.empty_label = QLabel(self)
+        self.empty_label.setWordWrap(True)
+        self.empty_label.setVisible(False)
+        lay.addWidget(self.empty_label)
         self.count_bar = CountBar(self)
         lay.addWidget(self.count_bar)
         self.count_label = QLabel(self)
@@ -259,9 +444,14 @@ class RunTable(QWidget):
         self.warning_label.setWordWrap(True)
         self.warning_label.setVisible(False)
         lay.addWidget(self.warning_label)
-        self.view.selectionModel().currentRowChanged.connect(self._on_current)
+        sel = self.view.selectionModel()
+        sel.selectionChanged.connect(self._on_selection)
+        sel.currentRowChanged.connect(self._on_current)
+        self.view.horizontalHeader().sortIndicatorChanged.connect(self._on_sorted)
+        self.view.find_typed.connect(self.find_run)
+        self.view.find_ended.connect(lambda: self.find_label.setVisible(False))
         state.labels_changed.connect(self._on_labels)
-        state.run_changed.connect(self._select_run)
+        state.run_changed.connect(self._on_run_changed)
 
     # --- data ------------------------------------------------------------------------------
     def _on_labels(self) -> None:
@@ -270,6 +460,7 @@ class RunTable(QWidget):
             self.model.set_table(self.state.labels, list(getattr(self.state.rules, "products", []) or []))
         finally:
             self._syncing = False
+        self.view.end_find()
         self._select_run(self.state.run_id)
         self._update_counts()
         products = tuple(getattr(self.state.rules, "products", []) or [])
@@ -286,6 +477,9 @@ class RunTable(QWidget):
                                                               and k not in FIXED_LABELS)
         return {k: int(counts.get(k, 0)) for k in order if counts.get(k, 0) or k in products}
 
+    def filter_counts(self) -> dict[str, int]:
+        return filter_counts(self.state.labels)
+
     def _update_counts(self) -> None:
         counts = self.outcome_counts()
         products = list(getattr(self.state.rules, "products", []) or [])
@@ -300,18 +494,25 @@ class RunTable(QWidget):
         self.warning_label.setText(f"⚠ {warnings[0]}{more}" if warnings else "")
         self.warning_label.setToolTip("\n".join(warnings))
         self.warning_label.setVisible(bool(warnings))
+        fcounts = self.filter_counts()
+        for key, text, _tip in FILTERS:
+            self.filter_buttons[key].setText(f"{text} {fcounts.get(key, 0)}")
+        self._update_empty()
+
+    def _update_empty(self) -> None:
+        empty = len(self.state.labels) > 0 and self.proxy.rowCount() == 0
+        if empty:
+            self.empty_label.setText(f"No run matches {self.proxy.describe()}: no run is selected. "
+                                     "Click 'All' to see every run.")
+        self.empty_label.setVisible(empty)
 
     # --- filters and selection ---------------------------------------------------------------
     def set_filter(self, mode: str) -> None:
+        """Show the runs of one quick filter; the current run moves into it when the filter hides it."""
         self.filter_group.setExclusive(True)
         self.filter_buttons[mode].setChecked(True)
         self._show_only_caption("")
-        self._syncing = True
-        try:
-            self.proxy.set_mode(mode)
-        finally:
-            self._syncing = False
-        self._select_run(self.state.run_id)
+        self._apply_filter(mode, None)
 
     def show_only_runs(self, run_ids, caption: str) -> None:
         """Show exactly ``run_ids`` (e.g. the runs a summary warning names) under a caption saying why."""
@@ -320,12 +521,37 @@ class RunTable(QWidget):
         for b in self.filter_buttons.values():
             b.setChecked(False)
         self._show_only_caption(f"Showing only {len(only)} run{'s' if len(only) != 1 else ''}: {caption}")
+        self._apply_filter("all", only)
+
+    def _apply_filter(self, mode: str, only: frozenset[str] | None) -> None:
+        """Filter the rows, then keep one current run: the one shown if still listed, else the one shown
+        before an empty filter, else the first listed run, else none (never a run the table hides)."""
+        self.view.end_find()
+        current = self.state.run_id or self._last_run
         self._syncing = True
         try:
-            self.proxy.set_mode("all", only)
+            self.proxy.set_mode(mode, only)
         finally:
             self._syncing = False
-        self._select_run(self.state.run_id)
+        visible = self.visible_runs()
+        if current in visible:
+            target = current
+        elif self._last_run in visible:
+            target = self._last_run
+        else:
+            target = visible[0] if visible else ""
+        self.proxy.set_pinned(target)  # it matches the filter: pinning it only keeps it listed after a label
+        if target:
+            self._last_run = ""
+            if target != self.state.run_id:
+                self.state.set_run(target)
+            else:
+                self._select_run(target)
+        else:
+            if self.state.run_id:
+                self._last_run = self.state.run_id
+            self.state.clear_run()
+        self._update_empty()
 
     def clear_only_runs(self) -> None:
         self.set_filter("all")
@@ -343,26 +569,96 @@ class RunTable(QWidget):
     def visible_runs(self) -> list[str]:
         return [self.proxy.index(r, 0).data() for r in range(self.proxy.rowCount())]
 
+    def selected_run(self) -> str:
+        """The run of the selected row ("" when no row is selected)."""
+        rows = self.view.selectionModel().selectedRows()
+        return rows[0].data() if rows else ""
+
+    def _run_at(self, index: QModelIndex) -> str:
+        src = self.proxy.mapToSource(index)
+        return self.model.row(src.row())["run"] if src.isValid() else ""
+
+    def _on_selection(self, _selected, _deselected) -> None:
+        """A row chosen by a click or a key becomes the current run (also when Qt's current row did not move)."""
+        if self._syncing:
+            return
+        run = self.selected_run()
+        if run and run != self.state.run_id:
+            self.state.set_run(run)
+        elif not run and self.state.run_id:
+            self._select_run(self.state.run_id)  # a row cannot be deselected: the shown run stays selected
+
     def _on_current(self, current: QModelIndex, _previous: QModelIndex) -> None:
         if current.isValid() and not self._syncing:
-            src = self.proxy.mapToSource(current)
-            self.state.set_run(self.model.row(src.row())["run"])
+            run = self._run_at(current)
+            if run and run != self.state.run_id:
+                self.state.set_run(run)
+
+    def _on_sorted(self, *_args) -> None:
+        self.view.end_find()
+        self._select_run(self.state.run_id)
+
+    def _on_run_changed(self, run_id: str) -> None:
+        if run_id:
+            self._last_run = ""
+        if not self._finding_run:
+            self.view.end_find()
+        self._syncing = True
+        try:
+            self.proxy.set_pinned(run_id)
+        finally:
+            self._syncing = False
+        self._select_run(run_id)
 
     def _select_run(self, run_id: str) -> None:
         r = self.model.row_of(run_id) if run_id else None
         sel = self.view.selectionModel()
-        with QSignalBlocker(sel):
-            if r is None:
-                sel.clearSelection()
-                return
-            idx = self.proxy.mapFromSource(self.model.index(r, 0))
+        self._syncing = True
+        try:
+            idx = self.proxy.mapFromSource(self.model.index(r, 0)) if r is not None else QModelIndex()
             if not idx.isValid():
                 sel.clearSelection()
+                sel.setCurrentIndex(QModelIndex(), QItemSelectionModel.SelectionFlag.NoUpdate)
                 return
-            sel.setCurrentIndex(idx, QItemSelectionModel.SelectionFlag.ClearAndSelect
+            column = max(0, sel.currentIndex().column()) if sel.currentIndex().isValid() else 0
+            cur = self.proxy.index(idx.row(), column)
+            sel.setCurrentIndex(cur, QItemSelectionModel.SelectionFlag.ClearAndSelect
                                 | QItemSelectionModel.SelectionFlag.Rows)
+        finally:
+            self._syncing = False
         self.view.scrollTo(idx)
         self.view.viewport().update()
+
+    # --- finding a run by typing its id ------------------------------------------------------
+    def find_run(self, text: str) -> str:
+        """Select the first visible run whose id starts with ``text`` (else contains it); returns it or ""."""
+        needle = text.lower()
+        visible = self.visible_runs()
+        hit = next((r for r in visible if r.lower().startswith(needle)), "") or \
+            next((r for r in visible if needle in r.lower()), "")
+        if hit:
+            self.find_label.setText(f"Find: {text}  →  {hit}   (Esc stops; Ctrl+G goes to any run)")
+            self._finding_run = True
+            try:
+                self.state.set_run(hit)
+            finally:
+                self._finding_run = False
+        else:
+            hidden = next((r for r in self.state.run_ids if needle in r.lower()), "")
+            where = f"{hidden} is hidden by {self.proxy.describe()}" if hidden else "no run id contains it"
+            self.find_label.setText(f"Find: {text}  —  {where}   (Ctrl+G goes to any run)")
+        self.find_label.setVisible(True)
+        return hit
+
+    def go_to(self, run_id: str) -> bool:
+        """Show ``run_id``; the filter returns to All when it hides that run.  False for an unknown id."""
+        if run_id not in self.state.run_ids:
+            return False
+        if run_id not in self.visible_runs():
+            self.state.set_run(run_id)   # first, so that set_filter keeps it
+            self.set_filter("all")
+        self.state.set_run(run_id)
+        return True
 
     # --- navigation -------------------------------------------------------------------------
     def _order_from_current(self) -> tuple[list[str], int]:

@@ -93,6 +93,16 @@ class AppState(QObject):
         self.run_changed.emit(run_id)
         self.frame_changed.emit(self.frame)
 
+    def clear_run(self) -> None:
+        """Show no run (e.g. a quick filter that matches none): nothing can be labeled until one is chosen."""
+        if not self.run_id:
+            return
+        self.run_id = ""
+        self.frame = 0
+        self.set_picks([])
+        self.run_changed.emit("")
+        self.frame_changed.emit(0)
+
     def set_frame(self, frame: int) -> None:
         traj = self.traj
         if traj is None:
