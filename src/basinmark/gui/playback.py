@@ -137,6 +137,8 @@ class PlaybackBar(QWidget):
         self.slider.setMinimum(0)
         self.slider.setMaximum(0)
         self.slider.setToolTip("Frame (drag to scrub)")
+        # dragging the slider leaves the focus in the viewer, where the number keys label the run shown
+        self.slider.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         outer.addWidget(self.slider)
         lay = QHBoxLayout()
         outer.addLayout(lay)
