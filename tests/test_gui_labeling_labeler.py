@@ -112,3 +112,16 @@ def test_change_labeler_is_a_menu_action(qtbot, tmp_path, root, monkeypatch):
     assert len(prompt.calls) == 1
     assert [e["labeler"] for e in journal_events(root)] == ["tomas"]
     win.close()
+
+
+def test_labels_menu_keeps_other_entries_when_the_rules_change(qtbot, tmp_path, root):
+    win = open_window(qtbot, tmp_path, root)
+    extra = win.labels_menu.addAction("Entry another panel added")
+    win.state.rules_changed.emit()      # the label buttons and keys are built again
+    texts = [a.text() for a in win.labels_menu.actions()]
+    assert "Entry another panel added" in texts
+    assert win.actions_["change_labeler"] in win.labels_menu.actions()
+    label_entries = [t for t in texts if t.startswith("Label '")]
+    assert label_entries == [a.text() for a in win.label_panel.label_actions.values()]
+    assert extra in win.labels_menu.actions()
+    win.close()

@@ -180,15 +180,21 @@ class MainWindow(QMainWindow):
         self._fill_recent_menu()
 
     def _fill_labels_menu(self) -> None:
-        self.labels_menu.clear()
-        for act in self.label_panel.label_actions.values():
-            self.labels_menu.addAction(act)
-        self.labels_menu.addSeparator()
-        self.labels_menu.addAction(self.actions_["undo_label"])
-        self.labels_menu.addAction(self.actions_["ask_reason"])
-        self.labels_menu.addAction(self.actions_["auto_advance"])
-        self.labels_menu.addSeparator()
-        self.labels_menu.addAction(self.actions_["change_labeler"])
+        """The label actions at the top of the Labels menu (again after the rules changed); the rest of the
+        menu, including entries other panels added, stays."""
+        menu = self.labels_menu
+        old = getattr(self, "_label_menu_actions", None)
+        if old is None:
+            menu.addSeparator()
+            for name in ("undo_label", "ask_reason", "auto_advance", None, "change_labeler"):
+                menu.addSeparator() if name is None else menu.addAction(self.actions_[name])
+            old = []
+        for act in old:
+            menu.removeAction(act)
+        acts = list(self.label_panel.label_actions.values())
+        first = menu.actions()[0] if menu.actions() else None
+        menu.insertActions(first, acts) if first is not None else menu.addActions(acts)
+        self._label_menu_actions = acts
 
     def _build_status(self) -> None:
         sb = self.statusBar()
@@ -622,7 +628,7 @@ class MainWindow(QMainWindow):
 
     def set_labeler(self, name: str) -> None:
         """Label under ``name`` (chosen in this session: no question on the first label)."""
-        self.label_panel.set_labeler(name, announce=False)
+        self.label_panel.set_labeler(name)  # tells those listening (e.g. blind labeling) when the name changed
         self._labeler_chosen(self.label_panel.labeler_name)
 
     def _labeler_chosen(self, name: str) -> None:
