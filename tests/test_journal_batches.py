@@ -180,3 +180,32 @@ def test_verify_while_a_writer_labels_reports_nothing(tmp_path):
         os.kill(pid, signal.SIGKILL)
         os.waitpid(pid, 0)
         _read_all(fd)
+
+
+def test_head_that_cannot_be_updated_is_retried_and_never_repaired_silently(tmp_path, monkeypatch):
+    """The events are saved but the head cannot be replaced (a full disk, say): the writer says so, tries
+    again at the next write and on closing; if it still cannot, it leaves the lock as a crash would, so the
+    next writer accepts the one write past the head only once this program has ended."""
+    import basinmark.core.journal as jmod
+    from basinmark.core.journal_format import read_head
+    from basinmark.core.journal_lock import lock_path
+
+    path = tmp_path / "basinmark-labels.jsonl"
+    j = LabelJournal.open(path, labeler="mira")
+    j.record("r0", "alpha", content_hash=H)
+    real = jmod.write_head
+
+    def full(*a, **k):
+        raise OSError(28, "No space left on device")
+    monkeypatch.setattr(jmod, "write_head", full)
+    j.record("r1", "alpha", content_hash=H)
+    assert any("head file" in w and "No space" in w for w in j.warnings)
+    monkeypatch.setattr(jmod, "write_head", real)
+    j.record("r2", "alpha", content_hash=H)  # retried with the next write
+    assert read_head(path)[0] == j.last_seq
+    monkeypatch.setattr(jmod, "write_head", full)
+    j.record("r3", "alpha", content_hash=H)
+    j.close()
+    assert lock_path(path).exists()  # kept: the files look like a crash's leftovers until this process ends
+    with LabelJournal.open(path, readonly=True) as r:  # a reader sees a writer at work, not damage
+        assert r.problems == [] and r.final_label("r3") == "alpha"

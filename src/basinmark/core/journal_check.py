@@ -59,7 +59,9 @@ class Problem:
     message: str
 
     def __str__(self) -> str:
-        where = f"line {self.line}" if self.line is not None else "journal"
+        if self.line is None:
+            return self.message if self.event is None else f"event {self.event}: {self.message}"
+        where = f"line {self.line}"
         if self.event is not None:
             where += f" (event {self.event})"
         return f"{where}: {self.message}"
@@ -169,7 +171,10 @@ def check(lines: list[bytes], tail: bytes = b"", *, head: tuple[int, str] | None
             add(Problem(n, seq, "header", "the journal does not start with a header event"))
         elif i > 0 and kind == HEADER_KIND:
             add(Problem(n, seq, "header", "a second header in the middle of the journal"))
-        hashes = tuple(h for h in (stored, computed) if isinstance(h, str) and h)
+        if computed == stored and isinstance(stored, str):
+            hashes: tuple[str, ...] = (stored,)
+        else:
+            hashes = tuple(h for h in (stored, computed) if isinstance(h, str) and h)
         prev = ev.get("prev")
         followed, pred = True, last
         if last is not None:
@@ -197,7 +202,8 @@ def check(lines: list[bytes], tail: bytes = b"", *, head: tuple[int, str] | None
         if seq is not None:
             line_of.setdefault(seq, i)
             res.last_seq, res.last_hash = seq, stored if isinstance(stored, str) else ""
-        batch = _check_batch(ev, kind, n, seq, batch, add)
+        if batch is not None or kind != "label" or "batch" in ev:  # (skipped for plain labels: speed)
+            batch = _check_batch(ev, kind, n, seq, batch, add)
     if not lines and not tail:
         add(Problem(None, None, "header", "the journal is empty (no header)"))
     bad = [p.line for p in problems if p.line is not None]
