@@ -22,6 +22,9 @@ names the file, the line and the key (:func:`_validate`).  A manifest may overri
     [time]
     step_fs = 1.0                   # used only when the files carry no time key
     backward = "auto"               # auto | elapsed | signed: how backward halves write time
+    [comment]                       # comment lines that are prose: a template (or regex = '...(?P<time>...)')
+    template = "i = {step}, time = {time}, E = {potential}"
+    units = { time = "ps", potential = "hartree" }   # per field, when it differs from [units]
     [tst]                           # the study's own TST estimate, shown beside the observed ratio
     major = "alpha"                 # the pair it names (products of the rules) ...
     minor = "beta"
@@ -57,6 +60,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from basinmark.core.errors import SetError
+from basinmark.core.io.free_form import ROLES, CommentFormat, template_regex
 from basinmark.core.toml_text import TomlTextError, line_of
 from basinmark.core.toml_text import read as read_toml
 from basinmark.core.units import ENERGY_UNITS, LENGTH_UNITS, TIME_UNITS, energy_factor, length_factor, time_factor
@@ -83,9 +87,10 @@ DEFAULT: dict = {
     },
     "time": {"step_fs": None, "backward": "auto"},
     "tst": None,  # read on its own by _tst (its tables hold product names chosen by the study)
+    "comment": None,  # read on its own by _comment_format (free-form comment lines)
 }
 
-_TOP_KEYS = {"name", "files", "units", "keys", "time", "tst"}
+_TOP_KEYS = {"name", "files", "units", "keys", "time", "tst", "comment"}
 _UNIT_NAMES = {"time": list(TIME_UNITS), "energy": list(ENERGY_UNITS), "length": list(LENGTH_UNITS)}
 
 
@@ -121,6 +126,7 @@ class SetLayout:
     source: Path | None = None
     tst: dict | None = None  # [tst] as read: kind, stated values and "estimate" (see _tst)
     patterns_given: bool = False  # the manifest names file patterns; else runs are found by naming conventions
+    comment_format: CommentFormat | None = None  # [comment]: numbers taken out of free-form comment lines
 
     @property
     def nested(self) -> bool:
@@ -282,8 +288,8 @@ def _validate(raw: dict, path: Path, text: str) -> None:
         if key not in DEFAULT:
             known = ", ".join(sorted(DEFAULT))
             raise fail("", key, f"unknown key {key!r} (known: {known}; see docs/set-manifest.md)")
-        if key == "tst":
-            continue  # checked by _tst
+        if key in ("tst", "comment"):
+            continue  # checked by _tst and _comment_format
         if isinstance(DEFAULT[key], dict):
             if not isinstance(value, dict):
                 raise fail("", key, f"must be a table ([{key}] on a line of its own, then its keys)")
@@ -338,7 +344,13 @@ def load_layout(root: str | Path) -> SetLayout:
         except TomlTextError as exc:
             raise SetError(str(exc)) from None
     _validate(raw, path, text)
-    cfg = _merge(DEFAULT, {k: v for k, v in raw.items() if k != "tst"}, str(path))
+    cfg = _merge(DEFAULT, {k: v for k, v in raw.items() if k not in ("tst", "comment")}, str(path))
+    comment_format = _comment_format(raw.get("comment"), path, text, cfg["units"])
+    if comment_format is not None:
+        cfg["comment"] = raw["comment"]  # part of the fingerprint: another template reads other values
+        for field in comment_format.fields:  # the template's own fields come first
+            if field in cfg["keys"]:
+                cfg["keys"][field] = [field] + [k for k in _as_list(cfg["keys"][field]) if k != field]
     try:
         files = cfg["files"]
         layout = SetLayout(
@@ -358,6 +370,7 @@ def load_layout(root: str | Path) -> SetLayout:
             source=path if path.exists() else None,
             tst=_tst(raw.get("tst"), path, text),
             patterns_given=any(k in raw.get("files", {}) for k in ("backward", "forward", "joined")),
+            comment_format=comment_format,
         )
     except (ValueError, TypeError) as exc:
         raise SetError(f"{path}: {exc}") from None
@@ -366,3 +379,64 @@ def load_layout(root: str | Path) -> SetLayout:
     if layout.step_fs is not None and not layout.step_fs > 0:
         raise SetError(f"{path}: [time] step_fs must be a positive number of fs")
     return layout
+
+
+# --- free-form comment lines: [comment] -------------------------------------------------------
+# Keys: ``template`` or ``regex`` (one of them), and ``units``, a table giving a unit per field when it
+# differs from [units] (time: a time unit; potential/kinetic/total: an energy unit).
+
+_COMMENT_KEYS = ("template", "regex", "units")
+
+
+def _comment_format(raw: object, path: Path, text: str, units: dict) -> CommentFormat | None:
+    """``[comment]`` as a CommentFormat whose factors bring each field into the set's [units]."""
+    if raw is None:
+        return None
+
+    def fail(key: str | None, problem: str) -> SetError:
+        line = line_of(text, "comment", key) if key else line_of(text, "comment")
+        if line is None and key == "units":
+            line = line_of(text, "comment.units")
+        where = f"{path}, line {line}" if line is not None else str(path)
+        return SetError(f"{where}: [comment]{' ' + key if key else ''}: {problem}")
+
+    if not isinstance(raw, dict):
+        raise fail(None, "must be a table ([comment] on a line of its own, then template = \"...\" or "
+                         "regex = '...')")
+    for key in raw:
+        if key not in _COMMENT_KEYS:
+            raise fail(key, f"unknown key {key!r} in [comment] (known: {', '.join(_COMMENT_KEYS)})")
+    if ("template" in raw) == ("regex" in raw):
+        raise fail(None, "give either template = \"...\" or regex = '...' (one of the two)")
+    key = "template" if "template" in raw else "regex"
+    given = raw[key]
+    if not isinstance(given, str) or not given.strip():
+        raise fail(key, "must be a text in quotes")
+    try:
+        pattern = template_regex(given) if key == "template" else given
+        re.compile(pattern)
+    except (ValueError, re.error) as exc:
+        raise fail(key, f"{exc}") from None
+    field_units = raw.get("units", {})
+    if not isinstance(field_units, dict):
+        raise fail("units", "must be a table of field = \"unit\", e.g. units = { time = \"ps\" }")
+    factors = []
+    for field, unit in field_units.items():
+        if field not in ROLES:
+            raise fail("units", f"a unit can be given for {', '.join(ROLES)}, not {field!r}")
+        kind = "time" if field == "time" else "energy"
+        convert = time_factor if kind == "time" else energy_factor
+        if not isinstance(unit, str):
+            raise fail("units", f"{field}: must be a unit in quotes; use one of: {', '.join(_UNIT_NAMES[kind])}")
+        try:
+            factors.append((field, convert(unit) / convert(units[kind])))
+        except ValueError as exc:
+            raise fail("units", f"{field}: {exc}") from None
+    try:
+        made = CommentFormat(pattern, tuple(factors), f"the [comment] {key} of {path.name}")
+    except ValueError as exc:
+        raise fail(key, str(exc)) from None
+    missing = [f for f, _ in factors if f not in made.fields]
+    if missing:
+        raise fail("units", f"{', '.join(missing)} is not a field of the {key}")
+    return made

@@ -127,12 +127,14 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # partial reads are reported through block.warnings
-        block = read_frames(path, dtype=np.float32)
+        block = read_frames(path, dtype=np.float32, comment_format=layout.comment_format)
     positions = block.positions
     if layout.length_factor != 1.0:
         positions = positions * np.float32(layout.length_factor)
     time_key, times = _pick(block.info, layout.keys["time"])
     recipe: dict = {"time_key": time_key}
+    if layout.comment_format is not None:
+        recipe["comment_format"] = [layout.comment_format.pattern, list(layout.comment_format.factors)]
     if time_key is not None:
         recipe["time_factor"] = layout.time_factor
     if times is not None:
@@ -178,7 +180,7 @@ def _half_times(half: _Half, layout: SetLayout, path: Path, backward: bool) -> n
     if half.times is None:
         if layout.step_fs is None:
             half.problems.append(f"{path.name} has no time key; 1 fs per frame assumed "
-                                 "(state [time] step_fs in basinmark-set.toml)")
+                                 f"({_NO_TIME_ADVICE.format(', '.join(layout.keys['time']))})")
             step = 1.0
         else:
             step = layout.step_fs
@@ -216,7 +218,8 @@ def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
         if times is None:
             step = layout.step_fs or 1.0
             if layout.step_fs is None:
-                problems.append(f"{spec.joined.name} has no time key; 1 fs per frame from t = 0 assumed")
+                problems.append(f"{spec.joined.name} has no time key; 1 fs per frame from t = 0 assumed "
+                                f"({_NO_TIME_ADVICE.format(', '.join(layout.keys['time']))})")
             times = np.arange(half.positions.shape[0]) * step
             half.recipe["step_fs"] = step
         if half.positions.shape[0] > 1 and not np.all(np.diff(times) > 0):
@@ -487,13 +490,28 @@ def _energy_warning(runs: dict[str, Trajectory]) -> list[str]:
     return [f"none of the {len(runs)} runs carries energies, so no energy check is made: " + no_energy_note(keys)]
 
 
+_NO_TIME_ADVICE = ("looked for the keys {}; state [time] step_fs, name the time key under [keys], or describe "
+                   "free-form comment lines under [comment] in basinmark-set.toml")
+
+
+def _time_warning(runs: dict[str, Trajectory]) -> list[str]:
+    """One set-level sentence when runs carry no time and 1 fs per frame was assumed (times may all be off)."""
+    assumed = [t.run_id for t in runs.values() if any("has no time key; 1 fs per frame" in p for p in t.problems)]
+    if not assumed:
+        return []
+    return [f"{len(assumed)} of {len(runs)} runs carry no time in their files, so 1 fs per frame was assumed for "
+            f"them ({', '.join(assumed[:5])}{', ...' if len(assumed) > 5 else ''}); every time, dwell and commit "
+            "time of these runs is only as right as that guess — state [time] step_fs, or describe the comment "
+            "lines under [comment] in basinmark-set.toml (docs/set-manifest.md)"]
+
+
 def _finish(plan: SetPlan, runs: dict[str, Trajectory], failures: list[LoadFailure]) -> TrajectorySet:
     warnings_: list[str] = []
     runs, left = _sort_out(runs, warnings_)
     tset = TrajectorySet(plan.root, runs, failures, metadata=_metadata(plan))
     tset.left_out = list(plan.left_out) + left
     tset.notes = describe(plan.conventions, keep=set(runs)) if plan.conventions else list(plan.notes)
-    tset.warnings.extend(warnings_ + _energy_warning(runs))
+    tset.warnings.extend(warnings_ + _energy_warning(runs) + _time_warning(runs))
     return tset
 
 

@@ -99,6 +99,10 @@ class Comments:
     bad_count: dict[str, int] = field(default_factory=dict)  # token text -> how many lines
     dropped: dict[str, str] = field(default_factory=dict)  # what was not kept -> why
     flags: set[str] = field(default_factory=set)  # keys that were words without '='
+    free_missed: int = 0  # lines a free-form template did not match
+    free_first_miss: int | None = None  # the first of them (frame index)
+    free_bad: list[tuple[int, str]] = field(default_factory=list)  # first template fields that were not numbers
+    free_bad_count: int = 0
 
 
 class _Sparse:
@@ -411,14 +415,34 @@ def _regular(lines: list[bytes], out: Comments) -> bool:
     return True
 
 
-def parse_comments(lines: list[bytes]) -> Comments:
+def parse_comments(lines: list[bytes], free_form=None) -> Comments:
     """Per-frame columns of the comment lines of a block of frames.
 
     A line without any ``=`` is free text (kept under ``"comment"`` when it
     repeats enough to be worth keeping); a word without ``=`` in a key=value
     line is a flag ("T").  Lines that cannot be read in full give bad tokens
-    (``Comments.bad``) and keep every other key.
+    (``Comments.bad``) and keep every other key.  ``free_form`` (a
+    :class:`~basinmark.core.io.free_form.CommentFormat`) takes numbers out of
+    free-form lines; its fields replace keys of the same name, and the free
+    text itself is then not kept.
     """
+    out = _parse_comments(lines)
+    if free_form is not None:
+        values, missed, bad = free_form.extract(lines)
+        for name, arr in values.items():
+            out.text.pop(name, None)
+            out.vectors.pop(name, None)
+            out.info[name] = arr
+        out.text.pop("comment", None)
+        out.dropped.pop("comment", None)
+        out.free_missed = len(missed)
+        out.free_first_miss = missed[0] if missed else None
+        out.free_bad = bad[:5]
+        out.free_bad_count = len(bad)
+    return out
+
+
+def _parse_comments(lines: list[bytes]) -> Comments:
     out = Comments(len(lines))
     if not lines:
         return out
@@ -485,6 +509,12 @@ def merge(parts: list[Comments]) -> Comments:
                 out.bad.append((frame + at, bad))
         for text, count in p.bad_count.items():
             out.bad_count[text] = out.bad_count.get(text, 0) + count
+    for p, at in zip(parts, starts):
+        out.free_missed += p.free_missed
+        if p.free_first_miss is not None and out.free_first_miss is None:
+            out.free_first_miss = p.free_first_miss + at
+        out.free_bad += [(f + at, t) for f, t in p.free_bad][:max(0, 5 - len(out.free_bad))]
+        out.free_bad_count += p.free_bad_count
     flags = set().union(*(p.flags for p in parts))
     if "flags" in out.dropped or len(flags) > MAX_FLAGS:
         out.dropped.setdefault("flags", _FLAGS_NOTE.format(", ".join(repr(f) for f in sorted(flags)[:3])))

@@ -273,11 +273,17 @@ def reader_for(path: str | Path) -> Callable[..., FrameBlock]:
     return _resolve(READERS.get(suffix, FALLBACK))
 
 
-def read_frames(path: str | Path, *, dtype=np.float32) -> FrameBlock:
+def read_frames(path: str | Path, *, dtype=np.float32, comment_format=None) -> FrameBlock:
     """Read every frame of a trajectory file into a :class:`FrameBlock`.
+
+    ``comment_format`` (a :class:`~basinmark.core.io.free_form.CommentFormat`, from a set's manifest)
+    reads numbers out of free-form comment lines of XYZ files; other formats have no such lines.
 
     Raises :class:`~basinmark.core.errors.TrajectoryFileError` (file, line, plain
     sentence) when the file cannot be used; a truncated last frame is dropped
     with a :class:`~basinmark.core.errors.PartialReadWarning` instead.
     """
-    return reader_for(path)(Path(path), dtype=dtype)
+    reader = reader_for(path)
+    if comment_format is not None and split_suffix(path)[0] in (".xyz", ".extxyz"):
+        return reader(Path(path), dtype=dtype, comment_format=comment_format)
+    return reader(Path(path), dtype=dtype)

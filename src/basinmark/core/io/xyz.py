@@ -164,8 +164,19 @@ def _check_text(data: bytes, path: Path, base: int = 0) -> None:
                 base + data.count(b"\n", 0, exc.start) + 1) from None
 
 
-def _comment_warnings(meta: Comments, path: Path, line_of_frame, warnings: list[str]) -> None:
-    """One warning per distinct unreadable token (naming its first line), and one per thing not kept."""
+def _comment_warnings(meta: Comments, path: Path, line_of_frame, warnings: list[str], free_form=None) -> None:
+    """One warning per distinct unreadable token (naming its first line), one per thing not kept, and one
+    for lines a free-form template does not fit."""
+    if free_form is not None and meta.free_missed:
+        fields = ", ".join(free_form.fields)
+        _partial(path, f"{path.name}: {meta.free_missed} of {meta.n} comment lines do not match "
+                 f"{free_form.described or 'the free-form comment format'} (the first is line "
+                 f"{line_of_frame(meta.free_first_miss)}); their {fields} are missing", warnings)
+    if free_form is not None and meta.free_bad_count:
+        frame, text = meta.free_bad[0]
+        _partial(path, f"{path.name}, line {line_of_frame(frame)}: {text} matched "
+                 f"{free_form.described or 'the free-form comment format'} but is not a number"
+                 + (f" (and {meta.free_bad_count - 1} more)" if meta.free_bad_count > 1 else ""), warnings)
     for frame, bad in meta.bad:
         more = meta.bad_count.get(bad.text, 1) - 1
         _partial(path, f"{path.name}, line {line_of_frame(frame)}: could not read {bad.text!r} in the comment line ({bad.why}); "
@@ -206,8 +217,9 @@ class _Part:
 class _FrameReader:
     """Reads an XYZ text piece by piece: each piece holds whole frames and is parsed on its own."""
 
-    def __init__(self, path: Path, dtype, fixed_width: bool, chunk_bytes: int):
+    def __init__(self, path: Path, dtype, fixed_width: bool, chunk_bytes: int, comment_format=None):
         self.path = path
+        self.comment_format = comment_format
         self.dtype = dtype
         self.fixed_width = fixed_width
         self.chunk_bytes = chunk_bytes
@@ -361,7 +373,7 @@ class _FrameReader:
         block = b"\n".join([data[a:b] for a, b in zip(atoms_from, atoms_to)])
         del atoms_from, atoms_to
         n_lines = n_full * n
-        meta = parse_comments(comments)
+        meta = parse_comments(comments, self.comment_format)
         del comments
         props = meta.properties
         first_props = None
@@ -444,7 +456,7 @@ class _FrameReader:
         stride = self.n + 2
         frame_lines = np.concatenate([p.first_line + np.arange(p.n_frames, dtype=np.int64) * stride for p in parts])
         meta = merge_comments([p.meta for p in parts])
-        _comment_warnings(meta, path, lambda k: int(frame_lines[k]) + 1, warnings)
+        _comment_warnings(meta, path, lambda k: int(frame_lines[k]) + 1, warnings, self.comment_format)
         numbers = parts[0].numbers
         if len(parts) == 1:
             positions, arrays = parts[0].positions, parts[0].arrays
@@ -489,7 +501,7 @@ def _out_of_memory(path: Path, stored: int, text: int) -> TrajectoryFileError:
 
 def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float32,
               warnings: list[str] | None = None, fixed_width: bool = True,
-              chunk_bytes: int = CHUNK_BYTES) -> FrameBlock:
+              chunk_bytes: int = CHUNK_BYTES, comment_format=None) -> FrameBlock:
     """Parse the (decompressed) bytes of an XYZ / extended-XYZ file; see :func:`read_xyz`.
 
     ``fixed_width=False`` forces the general numeric path, and ``chunk_bytes`` sets how much text is
@@ -497,7 +509,7 @@ def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float
     """
     path = Path(path)
     try:
-        reader = _FrameReader(path, dtype, fixed_width, chunk_bytes)
+        reader = _FrameReader(path, dtype, fixed_width, chunk_bytes, comment_format)
         view = memoryview(data)
         reader.read(bytes(view[i:i + chunk_bytes]) for i in range(0, len(data), chunk_bytes))
         return reader.block(sha256, list(warnings or []))
@@ -505,8 +517,12 @@ def parse_xyz(data: bytes, path: str | Path, *, sha256: str = "", dtype=np.float
         raise _out_of_memory(path, len(data), len(data)) from None
 
 
-def read_xyz(path: str | Path, *, dtype=np.float32, chunk_bytes: int = CHUNK_BYTES) -> FrameBlock:
+def read_xyz(path: str | Path, *, dtype=np.float32, chunk_bytes: int = CHUNK_BYTES,
+             comment_format=None) -> FrameBlock:
     """Read an XYZ or extended-XYZ file (optionally gzip/bzip2/xz-compressed) into a FrameBlock.
+
+    ``comment_format`` (a :class:`~basinmark.core.io.free_form.CommentFormat`) reads numbers out of
+    free-form comment lines.
 
     The file is streamed: decompressed and parsed piece by piece, so that memory holds the results
     and one piece of text at a time, never the whole text.
@@ -514,7 +530,7 @@ def read_xyz(path: str | Path, *, dtype=np.float32, chunk_bytes: int = CHUNK_BYT
     path = Path(path)
     stream = ByteStream(path, min(RAW_PIECE, chunk_bytes))
     try:
-        reader = _FrameReader(path, dtype, True, chunk_bytes)
+        reader = _FrameReader(path, dtype, True, chunk_bytes, comment_format)
         reader.read(iter(stream))
         return reader.block(stream.sha256, stream.warnings)
     except MemoryError:
