@@ -88,7 +88,7 @@ def _sha256_file(path: Path) -> str:
     return h.hexdigest()
 
 
-def _pick(info: dict, candidates) -> tuple[str | None, np.ndarray | None]:
+def pick_key(info: dict, candidates) -> tuple[str | None, np.ndarray | None]:
     """The first of ``candidates`` the file carries, compared without case: ``(key as written, values)``."""
     by_lower = {k.lower(): k for k in info}
     for key in candidates:
@@ -131,7 +131,7 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
     positions = block.positions
     if layout.length_factor != 1.0:
         positions = positions * np.float32(layout.length_factor)
-    time_key, times = _pick(block.info, layout.keys["time"])
+    time_key, times = pick_key(block.info, layout.keys["time"])
     recipe: dict = {"time_key": time_key}
     if layout.comment_format is not None:
         recipe["comment_format"] = [layout.comment_format.pattern, list(layout.comment_format.factors)]
@@ -146,7 +146,7 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
         times = times * layout.time_factor
     energies = {}
     for role in ("potential", "kinetic", "total"):
-        key, values = _pick(block.info, layout.keys[role])
+        key, values = pick_key(block.info, layout.keys[role])
         if values is not None:
             energies[role] = values * layout.energy_factor
             recipe[f"{role}_key"] = key
@@ -487,7 +487,7 @@ def _energy_warning(runs: dict[str, Trajectory]) -> list[str]:
     if not runs or any(t.energies for t in runs.values()):
         return []
     keys = sorted({k for t in runs.values() for k in t.metadata.get("file_keys", [])})
-    return [f"none of the {len(runs)} runs carries energies, so no energy check is made: " + no_energy_note(keys)]
+    return [f"none of the {len(runs)} runs carries energies: " + no_energy_note(keys)]
 
 
 _NO_TIME_ADVICE = ("looked for the keys {}; state [time] step_fs, name the time key under [keys], or describe "

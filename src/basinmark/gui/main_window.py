@@ -14,7 +14,7 @@ from basinmark.core.errors import BasinmarkError
 from basinmark.core.journal import JournalError, JournalLockedError, LabelJournal, default_labeler
 from basinmark.core.labels import all_labels
 from basinmark.core.model import TrajectorySet
-from basinmark.core.sets import journal_path
+from basinmark.core.sets import journal_path, rules_path
 from basinmark.gui import labeler as labeler_dialog
 from basinmark.gui.actions import build_actions, viewer_actions
 from basinmark.gui.dialogs import FailuresDialog, ShortcutsDialog
@@ -57,6 +57,7 @@ class MainWindow(QMainWindow):
         self.state = AppState(self)
         self.job: LoadJob | None = None
         self.failure_dialog: FailuresDialog | None = None
+        self.init_offer = None  # the offer to propose rules, for a folder without any
         self._messages: dict[str, str] = {}
         self.setWindowTitle("basinmark")
         self.setAcceptDrops(True)
@@ -466,6 +467,11 @@ class MainWindow(QMainWindow):
             journal.allowed = all_labels(result["rules"])
         self._show_banner()
         self._update_status()
+        if (tset is not None and len(tset) and not result.get("rules_only") and result.get("rules") is None
+                and not rules_path(tset.root).exists()):
+            from basinmark.gui.init_offer import InitOffer
+
+            self.init_offer = InitOffer(self, tset)  # a folder without rules: offer to propose some
         if tset is not None and tset.failures and not result.get("rules_only"):
             self.failure_dialog = FailuresDialog(tset.name, tset.failures, self, left_out=tset.left_out)
             self.failure_dialog.open()
