@@ -105,7 +105,9 @@ def test_two_people_by_name_give_the_kappa_of_the_command_line_and_scikit_learn(
     win.close()
 
 
-def test_default_review_works_without_recording_automatic_labels(qtbot, tmp_path, toy):
+def test_default_review_works_without_recording_automatic_labels(qtbot, tmp_path, toy, capsys):
+    from basinmark.cli import main
+
     root, hashes = toy
     ann, _bo = _people_labels(11)
     with LabelJournal.open(journal_path(root), labeler="ann") as j:
@@ -123,6 +125,12 @@ def test_default_review_works_without_recording_automatic_labels(qtbot, tmp_path
     ref = cohen_kappa_score([auto[r] for r in ann], [ann[r] for r in ann])  # scikit-learn reference
     assert review.kappa == pytest.approx(ref, abs=1e-12)
     assert review.name_a == "automatic (current rules)" and review.name_b == "ann"
+    # the command line compares the same classification, also without recording it
+    capsys.readouterr()
+    assert main(["compare", str(root), "--labelers", "current", "ann", "--format", "json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["runs_compared"] == review.n and doc["kappa"] == pytest.approx(review.kappa, abs=1e-6)
+    assert not any(e.get("source") == "rule" for e in _events(journal_path(root)))
     # choosing the recorded automatic labels says plainly why there is nothing to compare
     panel.source_a.set_source("auto")
     assert panel.review.n == 0 and "no automatic labels are recorded" in panel.warning.text()

@@ -133,3 +133,23 @@ def test_review_from_journals_adjudicate_and_report(tmp_path):
                        source="hand")
     both = compare_journals(path, other)
     assert both.n == 60 and both.agreement == 1.0 and both.band == "almost perfect"
+
+
+def test_current_classification_as_a_label_source(tmp_path):
+    from basinmark.core.review import current_auto_labels
+
+    cls = pd.DataFrame({"run": ["r1", "r2", "r3", "r4"], "outcome": ["alpha", "beta", "alpha", "recrossing"],
+                        "flags": ["", "late_commit", "", ""]})
+    cur = current_auto_labels(cls)
+    assert list(cur.index) == ["r1", "r2", "r3", "r4"] and cur.at["r2", "reason"] == "flags: late_commit"
+    with LabelJournal.open(tmp_path / "j.jsonl", labeler="ann") as j:
+        for run, lab in (("r1", "alpha"), ("r2", "alpha"), ("r3", "alpha"), ("r4", "recrossing")):
+            j.record(run, lab, content_hash=H)
+        r = compare_labelers(j, "current", "ann", current=cur)
+        ref = cohen_kappa_score(["alpha", "beta", "alpha", "recrossing"], ["alpha", "alpha", "alpha", "recrossing"])
+        assert r.n == 4 and r.kappa == pytest.approx(ref, abs=1e-12)  # scikit-learn reference
+        with pytest.raises(ValueError, match="rules file"):
+            compare_labelers(j, "current", "ann")  # no classification given
+        j.record("r1", "beta", content_hash=H, labeler="current")
+        with pytest.raises(ValueError, match="ambiguous"):
+            compare_labelers(j, "current", "ann", current=cur)

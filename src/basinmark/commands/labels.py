@@ -90,11 +90,12 @@ def register(sub) -> None:
 
     p = sub.add_parser("compare", help="agreement between two labelers: matrix, kappa, disagreements",
                        description="Compare two labelers: two journals (files or set folders), or one set's "
-                                   "journal with --labelers A B (auto, hand, final, or labeler names).")
+                                   "journal with --labelers A B (auto, current, hand, final, or labeler names).")
     p.add_argument("a", metavar="A", help="a journal file or a set folder")
     p.add_argument("b", metavar="B", nargs="?", help="a second journal file or set folder")
     p.add_argument("--labelers", nargs=2, metavar=("X", "Y"),
-                   help="compare two labelers of A's journal: auto, hand, final or labeler names")
+                   help="compare two labelers of A's journal: auto (recorded), current (classified now with "
+                        "the set's rules, nothing recorded), hand, final or labeler names")
     p.add_argument("--use", choices=("final", "auto", "hand"), default="final",
                    help="with two journals, which label of each run to compare (default: final)")
     p.add_argument("--confidence", type=float, default=0.95, help="confidence level of the kappa interval")
@@ -348,9 +349,26 @@ def _journal_of(target: str) -> Path:
     return path
 
 
+def _current_classification(target: str):
+    """The set's runs classified now with its rules file (for ``--labelers current ...``); nothing is written."""
+    from basinmark.core.classify import classify_set
+    from basinmark.core.review import current_auto_labels
+    from basinmark.core.rules import load_rules
+    from basinmark.core.sets import open_set, rules_path
+
+    root = Path(target).expanduser()
+    if not root.is_dir():
+        raise BasinmarkError(f"{root}: 'current' classifies the runs of a set folder; give the set, not a journal")
+    if not rules_path(root).is_file():
+        raise BasinmarkError(f"{root}: no rules file {rules_path(root).name} to classify with ('current')")
+    tset = open_set(root)
+    rules = load_rules(rules_path(root), n_atoms=tset.n_atoms)
+    return current_auto_labels(classify_set(tset, rules))
+
+
 def cmd_compare(args) -> int:
     from basinmark.core.journal import LabelJournal
-    from basinmark.core.review import SE_METHOD, compare_journals, compare_labelers, render_markdown
+    from basinmark.core.review import CURRENT, SE_METHOD, compare_journals, compare_labelers, render_markdown
 
     if not 0 < args.confidence < 1:
         raise BasinmarkError("--confidence must be between 0 and 1")
@@ -359,10 +377,11 @@ def cmd_compare(args) -> int:
     if args.labelers:
         if args.b:
             raise BasinmarkError("give either two journals (A B) or one with --labelers X Y, not both")
+        current = _current_classification(args.a) if CURRENT in args.labelers else None
         with LabelJournal.open(_journal_of(args.a), readonly=True) as j:
             _warn(j.warnings)
             try:
-                review = compare_labelers(j, *args.labelers, confidence=args.confidence)
+                review = compare_labelers(j, *args.labelers, current=current, confidence=args.confidence)
             except ValueError as exc:
                 raise BasinmarkError(str(exc)) from None
     else:

@@ -190,15 +190,29 @@ def compare_journals(path_a: str | Path, path_b: str | Path, *, which: str = "fi
         return compare_labels(ja.labels(which), jb.labels(which), **kw)
 
 
-def compare_labelers(journal: LabelJournal, a: str, b: str, **kw) -> Review:
-    """Compare two labelers of one journal: ``auto``/``hand``/``final`` or labeler names."""
-    known = {"auto", "hand", "final", *journal.labelers()}
+CURRENT = "current"  # as a label source name: the classification made now with the current rules
+
+
+def compare_labelers(journal: LabelJournal, a: str, b: str, *, current: pd.DataFrame | None = None,
+                     **kw) -> Review:
+    """Compare two label sources of one journal: ``auto``/``hand``/``final``, labeler names, or ``current``
+    (the classification made now, passed as ``current`` from :func:`current_auto_labels`; nothing recorded)."""
+    names = set(journal.labelers())
+    known = {"auto", "hand", "final", *names} | ({CURRENT} if current is not None else set())
     for who in (a, b):
         if who not in known:
-            raise ValueError(f"no labeler {who!r} in {journal.path}; known: {', '.join(sorted(known))}")
+            hint = (" ('current' needs the set's rules file to classify with)" if who == CURRENT else "")
+            raise ValueError(f"no labeler {who!r} in {journal.path}{hint}; known: {', '.join(sorted(known))}")
+        if who == CURRENT and CURRENT in names:
+            raise ValueError(f"{journal.path} has a labeler called {CURRENT!r}, which is also the name of the "
+                             "current classification; the comparison would be ambiguous")
     kw.setdefault("name_a", a)
     kw.setdefault("name_b", b)
-    return compare_labels(journal.labels(a), journal.labels(b), **kw)
+
+    def side(who: str) -> pd.DataFrame:
+        return current if who == CURRENT else journal.labels(who)
+
+    return compare_labels(side(a), side(b), **kw)
 
 
 def _md_cell(value: object) -> str:
