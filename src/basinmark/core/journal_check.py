@@ -28,7 +28,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from basinmark.core.journal_format import (BATCH_KINDS, HEADER_KIND, KINDS, canonical, event_hash, line_hash,
+from basinmark.core.journal_format import (HEADER_KIND, KINDS, canonical, event_hash, line_hash,
                                            parse_line)
 from basinmark.core.labels import SOURCES
 
