@@ -163,3 +163,25 @@ def test_histogram_and_summary_default_to_the_product_side(rules):
     assert counts[("alpha", 0.0)] == 1 and counts[("alpha", 60.0)] == 1 and counts[("beta", 120.0)] == 1
     r = commit_time_histogram(table, bins=[0, 60, 120, 180], column="reactant_first_arrival_fs")
     assert r.attrs["definition"] == "reactant side, first arrival"
+
+
+def test_cli_classify_says_which_commit_time_it_shows(tmp_path, capsys):
+    import json
+
+    from basinmark.cli import main
+    from test_classify import write_set
+
+    keys = ("bwd_product", "late_product_bwd", "fwd_reentry", "fwd_product")
+    # plain run names: words such as "bwd" or "fwd" in a file name would be read as half names
+    root = write_set(tmp_path / "set", [make_run(f"run-{i}", CASES[k][0], dt=1.0) for i, k in enumerate(keys)])
+    assert main(["classify", str(root), "--dry-run", "-q"]) == 0
+    out = capsys.readouterr().out
+    # alpha: 81 (backward) and 100 (forward, re-entered; first arrival 40); beta: 171 (backward) and 40
+    assert "product side, final entry" in out and "|t| from the TS" in out
+    assert "alpha median 90.5 fs (2 runs)" in out and "beta median 105.5 fs (2 runs)" in out
+    assert "first arrival: alpha median 60.5 fs" in out
+    assert main(["classify", str(root), "--dry-run", "-q", "--format", "json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    by = {c["outcome"]: c for c in doc["commit_times"]["rows"]}
+    assert doc["commit_times"]["definition"] == "product side, final entry"
+    assert by["alpha"]["median_fs"] == 90.5 and by["beta"]["max_fs"] == 171.0

@@ -229,3 +229,13 @@ def test_allowed_overlap_names_a_real_frame_and_what_it_did():
     notes = " ".join(table.attrs["notes"])
     assert "'p' and 'q'" in notes and "run both" in notes and "1.0 fs" in notes  # first frame where both hold
     assert "10 frames" in notes and "1 run" in notes and "ambiguous" in notes
+
+
+def test_map_names_nearest_conditions_it_cannot_draw():
+    from basinmark.gui.map_data import basin_regions
+
+    text = RULES.replace("[monitors]\nd_donor = [1, 5]", "[monitors]\nd_donor = [1, 5]\nd_two = [1, 2]").replace(
+        "[basins.on_2]\n", "[basins.on_2]\nd_donor = { above = 2.0 }\n")
+    regions = basin_regions(parse_rules(text), "d_donor", "d_two")
+    (on_2,) = [r for r in regions if r.basin == "on_2"]
+    assert any("nearest" in e and "atom 2" in e for e in on_2.elsewhere)

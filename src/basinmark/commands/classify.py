@@ -117,6 +117,7 @@ def run_classify(args) -> int:
     flagged = table.loc[table["flags"] != "", ["run", "outcome", "flags", "product_end", "product_final_entry_fs",
                                                "reactant_final_entry_fs"]]
     gap_line = _gap_sentence(table, rules, warnings)
+    commit_line, commit_doc = _commit_sentence(table, rules)
     if args.dry_run:
         done = f"dry run: nothing written ({n} runs classified with {rules.source}, sha256 {rules.sha256[:12]})"
     else:
@@ -129,7 +130,8 @@ def run_classify(args) -> int:
     if args.format == "json":
         doc = {"runs": n, "counts": json.loads(counts.to_json(orient="records")),
                "flagged": json.loads(flagged.to_json(orient="records")), "written": written,
-               "time_gap": gap_line, "dry_run": bool(args.dry_run), "rules": str(rules.source),
+               "time_gap": gap_line, "commit_times": commit_doc,
+               "dry_run": bool(args.dry_run), "rules": str(rules.source),
                "rules_sha256": rules.sha256,
                "warnings": warnings, "notes": notes}
         json.dump(doc, out, indent=2)
@@ -143,6 +145,8 @@ def run_classify(args) -> int:
             out.write(f"\n{len(flagged)} flagged run(s):\n" + table_text(flagged, floatfmt=".1f") + "\n")
         else:
             out.write("\nno flagged runs\n")
+        if commit_line:
+            out.write(f"\n{commit_line}\n")
         if gap_line:
             out.write(f"\n{gap_line}\n")
     stream = sys.stderr if args.format in ("csv", "json") else out
@@ -153,6 +157,27 @@ def run_classify(args) -> int:
             print(f"note: {line}", file=stream)
     print(done, file=sys.stderr if args.format in ("csv", "json") else out)
     return 0
+
+
+def _commit_sentence(table, rules) -> tuple[str, dict]:
+    """Product-side commit times of the reactive runs per product, saying which definition they are."""
+    from basinmark.core.timing import COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, commit_time_summary
+
+    reactive = table[table["outcome"].isin(rules.products)]
+    final = commit_time_summary(reactive)
+    first = commit_time_summary(reactive, column="product_first_arrival_fs").set_index("outcome")
+    rows = [r for r in final.to_dict("records") if r["n"] > 0]
+    definition = COMMIT_DEFINITIONS[DEFAULT_COMMIT_COLUMN]
+    doc = {"definition": definition, "column": DEFAULT_COMMIT_COLUMN, "rows": rows,
+           "first_arrival_rows": [r for r in first.reset_index().to_dict("records") if r["n"] > 0]}
+    if not rows:
+        return "", doc
+    parts = ", ".join(f"{r['outcome']} median {r['median_fs']:.1f} fs ({r['n']} run{'s' if r['n'] != 1 else ''})"
+                      for r in rows)
+    arrival = ", ".join(f"{o} median {first.loc[o, 'median_fs']:.1f} fs" for o in (r["outcome"] for r in rows)
+                        if o in first.index and first.loc[o, "n"] > 0)
+    return (f"commit times ({definition}, |t| from the TS, whichever end holds the product): {parts}; "
+            f"first arrival: {arrival} (docs/commit-times.md)"), doc
 
 
 def _gap_sentence(table, rules, warnings: list[str]) -> str:

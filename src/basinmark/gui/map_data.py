@@ -231,6 +231,7 @@ def basin_regions(rules: Any, x_key: str, y_key: str) -> list[BasinRegion]:
             continue
         everywhere = [(-math.inf, 0, math.inf, 0)]
         other = tuple(c.describe() for c in basin.conditions if c.monitor not in (x_key, y_key))
+        other += tuple(n.describe() for n in getattr(basin, "nearest", ()))  # nearest-atom: not on this plane
         # a dihedral range across ±180° is two intervals, so its basin is two rectangles on the map
         for x0, _, x1, _ in (cx.intervals() if cx is not None else everywhere):
             for y0, _, y1, _ in (cy.intervals() if cy is not None else everywhere):
