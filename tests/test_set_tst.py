@@ -88,6 +88,11 @@ def test_window_keeps_the_named_pair_when_the_ratio_is_turned_round(qtbot, tmp_p
     panel.refresh(force=True)
     assert panel.summary.tst_ratio == pytest.approx(1 / stats.tst_ratio(0.5), rel=1e-12)  # 0.43, not 2.33
     assert "predicts 0.43" in panel.lines.text()
+    # the same product on both sides of the ΔΔG‡: the comparison is left out with the reason, the rest stays
+    panel.set_tst(0.5, "kcal/mol", 298.15, "alpha", "alpha")
+    panel.refresh(force=True)
+    assert panel.summary is not None and panel.summary.tst_ratio is None
+    assert "TST comparison left out" in panel.warnings.text() and "two different products" in panel.warnings.text()
     # an old manifest without names: no comparison, and the panel says how to name the pair
     (root / "basinmark-set.toml").write_text('[tst]\nddg = 0.5\n')
     with qtbot.waitSignal(w.set_loaded, timeout=30000):

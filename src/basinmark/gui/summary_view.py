@@ -434,8 +434,16 @@ class SummaryPanel(QWidget):
             combo.blockSignals(False)
 
     def settings(self) -> dict:
-        """The keyword arguments of build_summary (the TST estimate is checked here: TSTError if absurd)."""
-        return {"a": self.a_combo.currentData(), "b": self.b_combo.currentData(), "tst": self.tst_estimate(),
+        """The keyword arguments of build_summary; a TST estimate the controls cannot make is left out
+        (``self.tst_problem`` says why, and the summary shows it as a warning)."""
+        from basinmark.core.tst import TSTError
+
+        self.tst_problem = ""
+        try:
+            tst = self.tst_estimate()
+        except TSTError as exc:
+            self.tst_problem, tst = str(exc), None
+        return {"a": self.a_combo.currentData(), "b": self.b_combo.currentData(), "tst": tst,
                 "unit": self.unit.currentText(), "temperature": self.temperature.value(),
                 "half_width": self.half_width.value(), "experiment": self._measured}
 
@@ -501,8 +509,21 @@ class SummaryPanel(QWidget):
                              "are hidden")
             try:
                 extra = [self._tst_warning] if self._tst_warning else []
-                self.summary = build_summary(labels, self.products(), notes=notes, extra_warnings=extra,
-                                             **self.settings())
+                kw = self.settings()
+                if self.tst_problem:
+                    extra.append(f"TST comparison left out: {self.tst_problem}")
+                try:  # a TST estimate the rules cannot take drops the comparison, not the whole summary
+                    if kw["tst"] is not None:
+                        kw["tst"].check_products(self.products())
+                except BasinmarkError as exc:
+                    extra.append(f"TST comparison left out: {exc}")
+                    kw["tst"] = None
+                measured = kw["experiment"]
+                if measured is not None and not {measured.a, measured.b} <= set(self.products()):
+                    extra.append(f"The measured ratio ({measured.text()}) names a product the rules do not have; "
+                                 f"it is left out.")
+                    kw["experiment"] = None
+                self.summary = build_summary(labels, self.products(), notes=notes, extra_warnings=extra, **kw)
             except BasinmarkError as exc:
                 self.error = str(exc)
             self._timings(labels)
