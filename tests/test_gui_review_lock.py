@@ -142,3 +142,29 @@ def test_a_live_holder_is_named_and_never_broken(qtbot, tmp_path, locked_set, mo
     finally:
         child.kill()
         child.wait()
+
+
+def test_holder_situations():
+    here = socket.gethostname()
+    assert lock_dialog.holder_situation(None) == "none"
+    assert lock_dialog.holder_situation({}) == "unknown"  # a lock file that cannot be read
+    assert lock_dialog.holder_situation({"host": here, "pid": os.getpid()}) == "ours"
+    assert lock_dialog.holder_situation({"host": here, "pid": _dead_pid()}) == "gone"
+    assert lock_dialog.holder_situation({"host": "far-away-host", "pid": os.getpid()}) == "elsewhere"
+    assert lock_dialog.holder_situation({"host": here, "pid": "x"}) == "unknown"
+
+
+def test_an_unreadable_lock_is_read_again_before_anything_is_offered(tmp_path, monkeypatch):
+    journal = tmp_path / "j.jsonl"
+    lock_path(journal).write_text("")  # as if another program had just created it
+    reads = []
+    real = lock_dialog.read_lock
+
+    def slow_writer(path):
+        reads.append(path)
+        if len(reads) == 2:  # the other program finishes writing its lock
+            _write_lock(journal, host="far-away-host", pid=7)
+        return real(path)
+
+    monkeypatch.setattr(lock_dialog, "read_lock", slow_writer)
+    assert lock_dialog._settled_holder(journal, pause_s=0.0)["host"] == "far-away-host"

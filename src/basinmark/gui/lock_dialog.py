@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import os
 import socket
+import time
 from html import escape
 from pathlib import Path
 from typing import Callable
@@ -132,10 +133,25 @@ def open_or_offer_break(window, path: Path, opener: Callable[[], LabelJournal]) 
     it and open again.  Raises the lock error when the person declines (the window then opens read-only)."""
     try:
         return opener()
-    except JournalLockedError as exc:
-        if holder_situation(exc.holder) in ("gone", "elsewhere", "unknown") and offer_break(window, path, exc.holder):
+    except JournalLockedError:
+        holder = _settled_holder(path)
+        if holder is None:  # released meanwhile
+            return opener()
+        if holder_situation(holder) in ("gone", "elsewhere", "unknown") and offer_break(window, path, holder):
             return opener()
         raise
+
+
+def _settled_holder(path: Path, tries: int = 3, pause_s: float = 0.1) -> dict | None:
+    """The lock's contents; an unreadable lock is read again a few times, since another program may be
+    writing it at this very moment (never offer to break a lock that is only being created)."""
+    holder = read_lock(path)
+    for _ in range(tries):
+        if holder is None or holder:
+            break
+        time.sleep(pause_s)
+        holder = read_lock(path)
+    return holder
 
 
 def unlock_from_menu(window) -> bool:
