@@ -179,3 +179,19 @@ def test_out_of_memory_is_a_sentence_naming_the_file_and_its_size(tmp_path, monk
     with pytest.raises(TrajectoryFileError) as err:
         parse_xyz(path.read_bytes(), path)
     assert "not enough memory" in str(err.value)
+
+
+def test_out_of_memory_while_joining_a_run_names_its_files(tmp_path, monkeypatch):
+    import basinmark.core.sets as sets
+
+    for half in ("fwd", "bwd"):
+        (tmp_path / f"run001.{half}.xyz").write_bytes(changing_word_file(5))
+
+    def no_memory(*args, **kwargs):
+        raise MemoryError()
+
+    monkeypatch.setattr(sets, "_join", no_memory)
+    tset = sets.open_set(tmp_path, use_cache=False)
+    assert len(tset) == 0 and len(tset.failures) == 1
+    text = tset.failures[0].reason
+    assert "not enough memory" in text and "run001.bwd.xyz" in text and "MB on disk" in text

@@ -364,6 +364,11 @@ def _failure(spec: RunSpec, exc: Exception) -> LoadFailure:
     path = spec.files[0] if spec.files else Path(spec.run_id)
     if isinstance(exc, BasinmarkError):
         return LoadFailure(path, f"{path}: {exc}")
+    if isinstance(exc, MemoryError):  # e.g. while joining the halves: name the files and their sizes
+        sizes = ", ".join(f"{p.name} {p.stat().st_size / 1e6:.1f} MB" for p in spec.files if p.exists())
+        return LoadFailure(path, f"{path}: there is not enough memory to load run {spec.run_id} ({sizes} on "
+                                 "disk); close other programs, open the set on a machine with more memory, or "
+                                 "split the run into shorter files")
     return LoadFailure(path, f"{path}: could not be read ({type(exc).__name__}: {exc})")
 
 
