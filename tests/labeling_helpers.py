@@ -46,6 +46,29 @@ def journal_events(root: Path, kinds=("label", "undo")) -> list[dict]:
     return [e for e in out if e.get("kind") in kinds and e.get("source") == "hand"]
 
 
+class JournalTail:
+    """The journal's hand events, read on from where the last call stopped (fast over thousands of calls)."""
+
+    def __init__(self, root: Path) -> None:
+        self.path = journal_path(root)
+        self.offset = 0
+        self.events: list[dict] = []
+
+    def __call__(self) -> list[dict]:
+        if self.path.is_file():
+            with open(self.path, "rb") as fh:
+                fh.seek(self.offset)
+                data = fh.read()
+            end = data.rfind(b"\n") + 1
+            self.offset += end
+            for line in data[:end].splitlines():
+                if line.strip():
+                    e = json.loads(line)
+                    if e.get("kind") in ("label", "undo") and e.get("source") == "hand":
+                        self.events.append(e)
+        return list(self.events)
+
+
 def click_filter(win: MainWindow, key: str) -> None:
     QTest.mouseClick(win.run_table.filter_buttons[key], Qt.MouseButton.LeftButton)
 

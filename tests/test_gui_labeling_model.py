@@ -13,7 +13,7 @@ import pytest
 from PySide6.QtCore import Qt
 from PySide6.QtTest import QTest
 
-from labeling_helpers import click_filter, click_header, click_row, journal_events, make_root, open_window
+from labeling_helpers import JournalTail, click_filter, click_header, click_row, make_root, open_window
 
 pytestmark = pytest.mark.gui
 
@@ -93,6 +93,7 @@ def test_two_thousand_random_actions_label_only_the_run_shown(qtbot, tmp_path, r
     wrong_run = model_mismatch = state_mismatch = 0
     counts: dict[str, int] = {}
     seen_events = 0
+    journal_events = JournalTail(root)
     notes: list[str] = []
     on_screen: list[str] = []
     win.state.run_changed.connect(on_screen.append)
@@ -181,7 +182,7 @@ def test_two_thousand_random_actions_label_only_the_run_shown(qtbot, tmp_path, r
             model.finding = False
         for run in on_screen + [panel.shown_run]:
             model.seen(run)
-        events = journal_events(root)
+        events = journal_events()
         new = events[seen_events:]
         seen_events = len(events)
         for ev in new:
@@ -209,7 +210,7 @@ def test_two_thousand_random_actions_label_only_the_run_shown(qtbot, tmp_path, r
                          f"(model {model.reason!r})")
             model.pending, model.reason = panel.pending, panel.reason.text()
     elapsed = time.perf_counter() - t0
-    events = journal_events(root)
+    events = journal_events()
     with capsys.disabled():
         print(f"\nmodel-based labeling test: {N_ACTIONS} actions in {elapsed:.1f} s, {len(events)} journal events "
               f"({sum(e['kind'] == 'undo' for e in events)} undo); events naming another run than the panel showed: "

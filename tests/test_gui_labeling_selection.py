@@ -9,7 +9,7 @@ import pytest
 from PySide6.QtCore import Qt
 from PySide6.QtTest import QTest
 
-from labeling_helpers import click_filter, click_header, click_row, journal_events, make_root, open_window
+from labeling_helpers import JournalTail, click_filter, click_header, click_row, journal_events, make_root, open_window
 
 pytestmark = pytest.mark.gui
 
@@ -41,7 +41,9 @@ def shown_everywhere(win) -> set[str]:
     selected = rows[0].data() if rows else ""
     traj = win.molecule.trajectory
     panel = getattr(win.label_panel, "shown_run", None) or win.label_panel.current.text()
-    names = {win.state.run_id, traj.run_id if traj is not None else "", selected}
+    traced = win.traces._traj
+    names = {win.state.run_id, traj.run_id if traj is not None else "", selected,
+             traced.run_id if traced is not None else ""}
     assert win.state.run_id in panel, (panel, win.state.run_id)
     assert f"run {win.state.run_id}" in win.status_where.text()
     return names
@@ -60,6 +62,9 @@ def test_flagged_filter_then_click_labels_the_clicked_run(win, root):
 
 def test_random_sort_filter_click_sequences_keep_one_current_run(win, root):
     rng = random.Random(20261202)
+    # drawing the traces is slow and not under test; the run they were given is checked below
+    win.traces.redraw = lambda keep_view=False: None
+    journal_events = JournalTail(root)
     filters = list(win.run_table.filter_buttons)
     labels = 0
     for step in range(300):
@@ -73,10 +78,10 @@ def test_random_sort_filter_click_sequences_keep_one_current_run(win, root):
             if n:
                 click_row(win, rng.randrange(n), rng.randrange(3))
         else:
-            before = len(journal_events(root))
+            before = len(journal_events())
             shown = win.state.run_id
             press_label_key(win, rng.choice([Qt.Key.Key_1, Qt.Key.Key_2]))
-            new = journal_events(root)[before:]
+            new = journal_events()[before:]
             if shown:
                 assert [e["run"] for e in new] == [shown], f"step {step}"
                 labels += 1

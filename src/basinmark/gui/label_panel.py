@@ -276,6 +276,16 @@ class LabelPanel(QWidget):
         j = self.state.journal
         if j is None:
             return ""
+        # kept per run until the journal or the blind setting changes: the panel refreshes on every run change
+        # and label, and replaying a run's history each time was the panel's largest cost (cProfile)
+        key = (id(j), getattr(j, "last_seq", None), self.state.blind_labeler)
+        if getattr(self, "_tips_key", None) != key:
+            self._tips, self._tips_key = {}, key
+        if run_id not in self._tips:
+            self._tips[run_id] = self._history_uncached(j, run_id)
+        return self._tips[run_id]
+
+    def _history_uncached(self, j, run_id: str) -> str:
         try:
             hist = j.history(run_id)
         except Exception:  # a tooltip must never break the panel
@@ -344,7 +354,8 @@ class LabelPanel(QWidget):
 
     def _show_pending(self) -> None:
         if self.pending is None:
-            self.pending_note.setVisible(False)
+            if not self.pending_note.isHidden():
+                self.pending_note.setVisible(False)
             return
         run, label = self.pending
         need = " (a reason is required)" if label in REASON_REQUIRED else " (optional)"

@@ -17,7 +17,7 @@ import time
 
 from PySide6.QtCore import (QAbstractTableModel, QEvent, QItemSelectionModel, QModelIndex, QRectF, QSignalBlocker,
                             QSize, QSortFilterProxyModel, Qt, Signal)
-from PySide6.QtGui import QKeyEvent, QPainter, QPalette
+from PySide6.QtGui import QFont, QKeyEvent, QPainter, QPalette
 from PySide6.QtWidgets import (QAbstractItemView, QButtonGroup, QHBoxLayout, QHeaderView, QLabel, QSizePolicy,
                                QTableView, QToolButton, QVBoxLayout, QWidget)
 
@@ -99,6 +99,8 @@ class RunTableModel(QAbstractTableModel):
         self._rows: list[dict] = []
         self._index: dict[str, int] = {}
         self.products: list[str] = []
+        #: says why a row is listed although the filter would hide it ("" when it matches); set by the proxy
+        self.extra_note = lambda row: ""
 
     def set_table(self, df: pd.DataFrame, products: list[str] | None = None) -> None:
         if products is not None:
@@ -150,6 +152,9 @@ class RunTableModel(QAbstractTableModel):
                 return index.row()  # the set's natural order
             return str(value or "")
         if role == Qt.ItemDataRole.ToolTipRole:
+            note = self.extra_note(row)
+            if note:
+                return note
             if key == "product_final_entry_fs":
                 return COMMIT_TIP
             if key == "hand_label" and row.get("reason"):
@@ -158,11 +163,14 @@ class RunTableModel(QAbstractTableModel):
                 return "The run's files changed after this label was set; look at it again."
         if role == Qt.ItemDataRole.DecorationRole and key in ("final_label", "auto_label") and value:
             return outcome_colour(str(value), self.products)
-        if role == Qt.ItemDataRole.FontRole and key == "final_label" and row.get("hand_label"):
-            from PySide6.QtGui import QFont
-            f = QFont()
-            f.setBold(True)
-            return f
+        if role == Qt.ItemDataRole.FontRole:
+            extra = bool(self.extra_note(row))
+            bold = key == "final_label" and bool(row.get("hand_label"))
+            if extra or bold:
+                f = QFont()
+                f.setItalic(extra)   # listed only while on screen: it no longer matches the filter
+                f.setBold(bold)
+                return f
         return None
 
 
@@ -217,24 +225,20 @@ class RunFilterProxy(QSortFilterProxyModel):
 
     def is_extra(self, source_row: int) -> bool:
         """The row is listed only because it is pinned (it no longer matches the filter)."""
-        row = self.sourceModel().row(source_row)
-        return row["run"] == self.pinned and not self.matches(row)
+        return bool(self.extra_note(self.sourceModel().row(source_row)))
+
+    def extra_note(self, row: dict) -> str:
+        if not self.pinned or row["run"] != self.pinned or self.matches(row):
+            return ""
+        return f"Listed while it is on screen: it no longer matches {self.describe()}."
+
+    def setSourceModel(self, model) -> None:  # noqa: N802
+        super().setSourceModel(model)
+        model.extra_note = self.extra_note
 
     def filterAcceptsRow(self, source_row: int, source_parent: QModelIndex) -> bool:  # noqa: N802
         row = self.sourceModel().row(source_row)
         return (bool(self.pinned) and row["run"] == self.pinned) or self.matches(row)
-
-    def data(self, index: QModelIndex, role=Qt.ItemDataRole.DisplayRole) -> Any:
-        if role in (Qt.ItemDataRole.FontRole, Qt.ItemDataRole.ToolTipRole) and index.isValid():
-            src = self.mapToSource(index)
-            if self.is_extra(src.row()):
-                if role == Qt.ItemDataRole.ToolTipRole:
-                    return f"Listed while it is on screen: it no longer matches {self.describe()}."
-                from PySide6.QtGui import QFont
-                f = QFont()
-                f.setItalic(True)
-                return f
-        return super().data(index, role)
 
 
 class CountBar(QWidget):
@@ -271,6 +275,12 @@ class CountBar(QWidget):
         p.setPen(self.palette().color(QPalette.ColorRole.Mid))
         p.drawRect(rect)
         p.end()
+
+
+def _show(widget: QWidget, on: bool) -> None:
+    """Show or hide only on a change: each setVisible call re-runs the layout (measured: ~1 ms each)."""
+    if widget.isHidden() == on:
+        widget.setVisible(on)
 
 
 _MODIFIER_KEYS = frozenset({Qt.Key.Key_Shift, Qt.Key.Key_Control, Qt.Key.Key_Alt, Qt.Key.Key_Meta,
@@ -449,7 +459,7 @@ class RunTable(QWidget):
         sel.currentRowChanged.connect(self._on_current)
         self.view.horizontalHeader().sortIndicatorChanged.connect(self._on_sorted)
         self.view.find_typed.connect(self.find_run)
-        self.view.find_ended.connect(lambda: self.find_label.setVisible(False))
+        self.view.find_ended.connect(lambda: _show(self.find_label, False))
         state.labels_changed.connect(self._on_labels)
         state.run_changed.connect(self._on_run_changed)
 
@@ -470,6 +480,14 @@ class RunTable(QWidget):
 
     def outcome_counts(self) -> dict[str, int]:
         """Counts of the final labels, products first, then the fixed labels, then anything else."""
+        key = (id(self.state.labels), tuple(getattr(self.state.rules, "products", []) or []))
+        if getattr(self, "_counts_key", None) != key or getattr(self, "_counts_of", None) is not self.state.labels:
+            # kept per label table: the status bar asks on every frame while a run plays
+            self._counts = self._outcome_counts()
+            self._counts_key, self._counts_of = key, self.state.labels
+        return dict(self._counts)
+
+    def _outcome_counts(self) -> dict[str, int]:
         df = self.state.labels
         products = list(getattr(self.state.rules, "products", []) or [])
         counts = df["final_label"].replace("", "unclassified").value_counts().to_dict() if len(df) else {}
@@ -504,7 +522,7 @@ class RunTable(QWidget):
         if empty:
             self.empty_label.setText(f"No run matches {self.proxy.describe()}: no run is selected. "
                                      "Click 'All' to see every run.")
-        self.empty_label.setVisible(empty)
+        _show(self.empty_label, empty)
 
     # --- filters and selection ---------------------------------------------------------------
     def set_filter(self, mode: str) -> None:
@@ -647,7 +665,7 @@ class RunTable(QWidget):
             hidden = next((r for r in self.state.run_ids if needle in r.lower()), "")
             where = f"{hidden} is hidden by {self.proxy.describe()}" if hidden else "no run id contains it"
             self.find_label.setText(f"Find: {text}  —  {where}   (Ctrl+G goes to any run)")
-        self.find_label.setVisible(True)
+        _show(self.find_label, True)
         return hit
 
     def go_to(self, run_id: str) -> bool:
