@@ -174,3 +174,12 @@ def test_go_to_run_completes_ids_and_shows_a_hidden_run(win, qtbot):
     assert win.state.run_id == "toy-003" and win.run_table.selected_run() == "toy-003"
     assert win.run_table.filter_mode == "all"
     assert win.label_panel.title.text() == "toy-003"
+
+
+def test_shortcut_help_says_where_keys_act(win):
+    dlg = win.show_shortcuts()
+    note = dlg.findChild(type(win.status_where), "keyScopeNote")
+    assert note is not None and "never in a text field" in note.text() and "Ctrl+G" in note.text()
+    keys = {dlg.table.item(r, 1).text(): dlg.table.item(r, 2).text() for r in range(dlg.table.rowCount())}
+    assert keys["Go to Run…"] == "Ctrl+G"
+    dlg.close()

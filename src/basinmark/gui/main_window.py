@@ -739,6 +739,14 @@ class MainWindow(QMainWindow):
 
     def show_shortcuts(self) -> ShortcutsDialog:
         dlg = ShortcutsDialog(self.menu_shortcut_rows(), self)
+        where = QLabel("Keys without Ctrl (letters, number keys, arrows, Space) act only while the run table, "
+                       "the molecule or the traces have the focus, never in a text field. In the run table, "
+                       "letters find a run by its id instead (Esc stops); Ctrl+G goes to any run. A number key "
+                       "labels the run named in the label panel: Enter saves it with the reason typed, Esc "
+                       "cancels.", dlg)
+        where.setWordWrap(True)
+        where.setObjectName("keyScopeNote")
+        dlg.layout().insertWidget(0, where)
         dlg.open()
         self.shortcuts_dialog = dlg
         return dlg
