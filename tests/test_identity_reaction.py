@@ -131,6 +131,8 @@ def test_one_product_warnings_have_no_ratio_wording():
     assert any("unfinished" in w and "reactive fraction and transmission coefficient are biased" in w
                for w in s.warnings)
     assert any("ambiguous" in w and "left out of the transmission coefficient" in w for w in s.warnings)
+    # the running transmission coefficient ends at the overall one: 3 reactive, 2 recrossing
+    assert s.convergence.iloc[-1]["fraction_a"] == pytest.approx(3 / 5)
     none = build_summary(labels.assign(final_label=["recrossing"] * 12), ["swapped"])
     assert any("No run reached the product" in w for w in none.warnings)
     assert none.reactive["transmission_coefficient"]["value"] == 0.0
@@ -154,4 +156,8 @@ def test_window_summary_shows_the_transmission_coefficient(qtbot, hop, tmp_path)
     text = panel.lines.text()
     assert "Transmission coefficient = 0.667" in text and "Reactive fraction = 0.615" in text
     assert "ratio" not in text.lower() and "ratio" not in panel.warnings.text().lower()
+    # the convergence plot follows the transmission coefficient run by run, ending at 8 / 12
+    assert "transmission coefficient" in panel.p_conv.titleLabel.text
+    x, y = panel.conv_curve.getData()
+    assert x[-1] == len(RUNS) and y[-1] == pytest.approx(8 / 12)
     w.close()

@@ -90,7 +90,7 @@ class Summary:
     n_excluded: int
     n_unlabelled: int
     runs_needed: int | None  # total runs for the share of a among a+b to reach ± half_width
-    convergence: pd.DataFrame
+    convergence: pd.DataFrame  # running a : b; with one product, running reactive / (reactive + recrossing)
     settings: dict
     notes: list[str] = field(default_factory=list)  # where the labels came from, etc.
     tst: TSTEstimate | None = None  # the TST estimate with the products it names
@@ -604,7 +604,8 @@ def build_summary(
         k_a = counts.get(a, 0) if a else 0
         k_b = 0
         ratio = eff = (math.nan, math.nan, math.nan)
-        conv = pd.DataFrame()
+        # one product: the running transmission coefficient, reactive / (reactive + recrossing), in set order
+        conv = stats.convergence(final, a, "recrossing", confidence, method) if a else pd.DataFrame()
     tst_r = tst.ratio(a, b) if tst is not None and a and b else None
     if experiment is None and tst is not None:
         experiment = tst.experiment

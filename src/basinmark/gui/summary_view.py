@@ -643,6 +643,9 @@ class SummaryPanel(QWidget):
     def _draw_convergence(self, s: Summary) -> None:
         conv = s.convergence
         p = self.p_conv
+        if conv is not None and not conv.empty and s.a and not s.b:
+            self._draw_kappa_convergence(s)
+            return
         if conv is None or conv.empty or not (s.a and s.b):
             self._title(p, "Convergence (needs two products)")
             return
@@ -680,6 +683,29 @@ class SummaryPanel(QWidget):
         p.setXRange(0, max(n[-1], 1), padding=0.02)
         if ymax:
             p.setYRange(0, ymax * 1.1, padding=0)  # the earliest, widest part of the band would flatten the rest
+
+    def _draw_kappa_convergence(self, s: Summary) -> None:
+        """One product: the transmission coefficient as runs accumulate, with its band."""
+        conv, p = s.convergence, self.p_conv
+        self._title(p, "Convergence of the transmission coefficient")
+        p.setLabel("left", "reactive / (reactive + recrossing)")
+        n = conv["n"].to_numpy(float)
+        kappa, lo, hi = (conv[c].to_numpy(float) for c in ("fraction_a", "lo", "hi"))
+        colour = QColor(self._colour(s.a))
+        band = QColor(colour)
+        band.setAlpha(60)
+        ok = np.isfinite(lo) & np.isfinite(hi)
+        if ok.sum() >= 2:
+            c_lo = pg.PlotDataItem(n[ok], lo[ok], pen=pg.mkPen(band))
+            c_hi = pg.PlotDataItem(n[ok], hi[ok], pen=pg.mkPen(band))
+            p.addItem(c_lo)
+            p.addItem(c_hi)
+            p.addItem(pg.FillBetweenItem(c_lo, c_hi, brush=pg.mkBrush(band)))
+        self.conv_curve = pg.PlotDataItem(n, kappa, pen=pg.mkPen(colour, width=2), connect="finite",
+                                          name=f"observed ({s.confidence_text} band)")
+        p.addItem(self.conv_curve)
+        p.setXRange(0, max(n[-1], 1), padding=0.02)
+        p.setYRange(0, 1.02, padding=0)
 
     def _draw_hist(self, p, hist: pd.DataFrame, what: str) -> None:
         if hist is None or hist.empty:
