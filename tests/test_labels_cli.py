@@ -138,8 +138,8 @@ def test_export_and_import(small_set, tmp_path, capsys):
     code, out, err = run(["export-labels", small_set, "-o", out_csv, "--no-cache"], capsys)
     assert code == 0, err
     table = pd.read_csv(out_csv)
-    assert list(table.columns) == ["run", "auto_label", "hand_label", "final_label", "labeler", "time", "reason",
-                                   "events", "data_changed"]
+    assert list(table.columns) == ["run", "label", "auto_label", "hand_label", "final_label", "labeler", "time",
+                                   "reason", "events", "data_changed"]
     assert list(table["final_label"]) == PLAN and not table["data_changed"].any()
     code, out, err = run(["export-labels", small_set, "-o", tmp_path / "labels.parquet", "--no-data"], capsys)
     try:

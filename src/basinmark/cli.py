@@ -54,11 +54,21 @@ def main(argv: list[str] | None = None) -> int:
         print(f"basinmark: error: {exc}", file=sys.stderr)
         take_damage_reports()  # the error says enough
         return 2
+    except BrokenPipeError:
+        return 0
+    except OSError as exc:
+        # a safety net: the places that write files say which file and what to do themselves; anything
+        # that still gets here is said in one sentence rather than as a traceback
+        from basinmark.core.fs_errors import reason_and_advice
+
+        reason, hint = reason_and_advice(exc)
+        where = " and ".join(str(f) for f in (exc.filename, exc.filename2) if f) or "a file"
+        print(f"basinmark: error: {where}: {reason}; {hint}", file=sys.stderr)
+        take_damage_reports()
+        return 2
     except KeyboardInterrupt:
         print("basinmark: interrupted", file=sys.stderr)
         return 130
-    except BrokenPipeError:
-        return 0
     # a command that read a damaged label journal says so last, loudly, and does not exit 0
     for text in take_damage_reports().values():
         print(f"\nbasinmark: DAMAGED LABEL JOURNAL: {text}", file=sys.stderr)

@@ -43,7 +43,9 @@ def table_text(df: pd.DataFrame, floatfmt: str = ".3f", max_width: int = 60) -> 
 def emit(df: pd.DataFrame, fmt: str = "table", stream: TextIO | None = None, floatfmt: str = ".3f") -> None:
     stream = stream or sys.stdout
     if fmt == "csv":
-        df.to_csv(stream, index=False)
+        from basinmark.core.csv_safe import csv_text
+
+        stream.write(csv_text(df))  # text cells a spreadsheet would run get a leading quote
     elif fmt == "json":
         records = json.loads(df.to_json(orient="records"))
         json.dump(records, stream, indent=2)

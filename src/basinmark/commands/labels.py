@@ -230,7 +230,9 @@ def cmd_label(args) -> int:
     content_hash = _run_hash(args, args.run)
     with _open_writer(args, _journal(args), allowed) as j:
         _warn(j.warnings)
+        seen = len(j.warnings)
         ev = j.record(args.run, args.label, content_hash=content_hash, reason=args.reason)
+        _warn(j.warnings[seen:])  # e.g. the head file could not be updated after the label was saved
     emit(_event_row(ev), args.format)
     return 0
 
@@ -238,7 +240,9 @@ def cmd_label(args) -> int:
 def cmd_undo(args) -> int:
     with _open_writer(args, _existing_journal(args)) as j:
         _warn(j.warnings)
+        seen = len(j.warnings)
         ev = j.undo(args.run, reason=args.reason)
+        _warn(j.warnings[seen:])
     emit(_event_row(ev), args.format)
     if args.format == "table":
         now = ev.get("label") or "no label in the journal (the automatic outcome applies once classified)"
@@ -390,7 +394,9 @@ def cmd_compare(args) -> int:
         review = compare_journals(_journal_of(args.a), _journal_of(args.b), which=args.use,
                                   confidence=args.confidence)
     if args.output:
-        Path(args.output).write_text(render_markdown(review), encoding="utf-8")
+        from basinmark.core.atomic_write import write_text_atomic
+
+        write_text_atomic(args.output, render_markdown(review), what="the review report")
     if args.format == "json":
         import json
 
@@ -422,7 +428,7 @@ def cmd_compare(args) -> int:
 
 def cmd_export(args) -> int:
     from basinmark.core.journal import LabelJournal
-    from basinmark.core.journal_io import export_labels
+    from basinmark.core.journal_io import export_labels, export_table
 
     hashes, notes = (None, []) if args.no_data else _hashes(args)
     with LabelJournal.open(_existing_journal(args), readonly=True) as j:
@@ -431,7 +437,7 @@ def cmd_export(args) -> int:
             path = export_labels(j, args.output, hashes)
             print(f"{len(j.state())} runs' labels written to {path}")
         else:
-            state = j.state(hashes)
+            state = export_table(j, hashes)
             emit(_plain(state) if args.format == "table" else state, args.format)
     return 0
 
@@ -445,8 +451,13 @@ def cmd_import(args) -> int:
     _warn(notes)
     with _open_writer(args, _journal(args), allowed) as j:
         _warn(j.warnings)
-        events = import_labels(j, args.file, runs=hashes, allowed=allowed, labeler=args.labeler)
+        seen = len(j.warnings)
+        skipped: list[str] = []
+        events = import_labels(j, args.file, runs=hashes, allowed=allowed, labeler=args.labeler, notes=skipped)
+        _warn(j.warnings[seen:])
     print(f"{len(events)} labels imported from {args.file} (events {events[0]['seq']} to {events[-1]['seq']})")
+    for note in skipped:
+        print(f"note: {note}")
     return 0
 
 

@@ -118,11 +118,17 @@ def write_head(journal: str | Path, seq: int, digest: str) -> None:
     data = canonical({"seq": seq, "hash": digest}) + "\n"
     fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | BINARY, 0o644)
     try:
-        os.write(fd, data.encode("ascii"))
-        os.fsync(fd)
-    finally:
-        os.close(fd)
-    os.replace(tmp, path)
+        try:
+            view = memoryview(data.encode("ascii"))
+            while view:
+                view = view[os.write(fd, view):]
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+        os.replace(tmp, path)
+    except OSError:
+        tmp.unlink(missing_ok=True)  # a half-written temporary head is no use to anyone (e.g. a full disk)
+        raise
 
 
 def read_head(journal: str | Path) -> tuple[int, str] | None:

@@ -3,6 +3,13 @@
 An import is all or nothing: every row is checked first (known run, allowed label, reason for
 ``excluded``, each run once), and if anything is wrong nothing is written and
 :class:`LabelImportError` lists every bad row with its file and line.
+
+The export imports as it is: its ``label`` column holds the label a person set (hand, import or
+review), empty where a run has only an automatic label; such rows are skipped on import (automatic
+labels come from ``basinmark classify``), so exporting a set and importing the file into a fresh,
+classified copy gives the same final labels, hand labels, labelers and reasons.  Text cells that a
+spreadsheet would run as formulas are written with a leading quote (:mod:`basinmark.core.csv_safe`)
+and the quote is taken off again on import.
 """
 
 from __future__ import annotations
@@ -14,7 +21,10 @@ from typing import Mapping, Sequence
 
 import pandas as pd
 
+from basinmark.core.atomic_write import write_text_atomic, write_with
+from basinmark.core.csv_safe import csv_text, restore_cell
 from basinmark.core.errors import BasinmarkError
+from basinmark.core.fs_errors import file_error
 from basinmark.core.journal import LabelJournal
 from basinmark.core.labels import LabelError, validate_label
 
@@ -33,19 +43,29 @@ class LabelImportError(BasinmarkError):
         super().__init__(f"{self.path}: nothing was imported, {len(problems)} problem(s):\n  {shown}{more}")
 
 
+def export_table(journal: LabelJournal, current_hashes: Mapping[str, str] | None = None) -> pd.DataFrame:
+    """The current labels (``journal.state``) with, second, the ``label`` column that an import records:
+    the person's label, empty (missing) where the run has only an automatic label."""
+    table = journal.state(current_hashes)
+    table.insert(1, "label", table["hand_label"])
+    return table
+
+
 def export_labels(journal: LabelJournal, path: str | Path,
                   current_hashes: Mapping[str, str] | None = None) -> Path:
-    """Write the current labels (``journal.state``) to ``path``: ``.parquet`` needs pyarrow, else CSV."""
-    path = Path(path)
-    table = journal.state(current_hashes)
+    """Write :func:`export_table` to ``path``: ``.parquet`` needs pyarrow, else CSV (text cells neutralised).
+
+    The file is written whole or not at all; a folder that is missing or cannot be written gives an
+    error naming the file and what to do.
+    """
+    path = Path(path).expanduser()
+    table = export_table(journal, current_hashes)
     if path.suffix.lower() == ".parquet":
         if importlib.util.find_spec("pyarrow") is None:
             raise BasinmarkError(f"{path}: writing Parquet needs the pyarrow package, which is not installed; "
                                  "use a .csv file name")
-        table.to_parquet(path, index=False)
-    else:
-        table.to_csv(path, index=False)
-    return path
+        return write_with(path, lambda tmp: table.to_parquet(tmp, index=False), what="the label table")
+    return write_text_atomic(path, csv_text(table), what="the label table")
 
 
 def read_label_rows(path: str | Path) -> tuple[list[tuple[int, dict]], list[str]]:
@@ -54,7 +74,7 @@ def read_label_rows(path: str | Path) -> tuple[list[tuple[int, dict]], list[str]
     try:
         fh = open(path, newline="", encoding="utf-8-sig")
     except OSError as exc:
-        raise BasinmarkError(f"{path}: cannot read the file ({exc.strerror or exc})") from None
+        raise file_error(exc, path, "read the label file") from None
     with fh:
         reader = csv.DictReader(fh)
         try:
@@ -66,23 +86,29 @@ def read_label_rows(path: str | Path) -> tuple[list[tuple[int, dict]], list[str]
                             f"(needed: run, label; optional: labeler, reason)"]
             rows = []
             for row in reader:
-                rows.append((reader.line_num, row))
+                # undo the spreadsheet safety quote of our own exports (csv_safe), exactly
+                rows.append((reader.line_num, {k: restore_cell(v) if isinstance(v, str) else v
+                                               for k, v in row.items()}))
         except (csv.Error, UnicodeDecodeError) as exc:
             raise BasinmarkError(f"{path}: not a readable CSV file ({exc})") from None
     return rows, []
 
 
 def import_labels(journal: LabelJournal, path: str | Path, *, runs: Mapping[str, str],
-                  allowed: Sequence[str], labeler: str | None = None) -> list[dict]:
+                  allowed: Sequence[str], labeler: str | None = None,
+                  notes: list[str] | None = None) -> list[dict]:
     """Import labels from a CSV as events with source ``import`` (one batch); returns the events.
 
     ``runs`` maps every known run id to its current content hash; ``allowed`` is the label
-    vocabulary.  A row's own ``labeler`` column, when filled, names who labeled it.
+    vocabulary.  A row's own ``labeler`` column, when filled, names who labeled it.  Rows of an
+    export that carry only an automatic label (empty ``label``, filled ``auto_label``) are skipped,
+    and ``notes`` (if given) gets a sentence saying how many.
     """
     path = Path(path)
     rows, problems = read_label_rows(path)
     seen: dict[str, int] = {}
     entries = []
+    automatic_only = 0
     for line, row in rows:
         where = f"{path}, line {line}"
         if None in row:
@@ -94,6 +120,9 @@ def import_labels(journal: LabelJournal, path: str | Path, *, runs: Mapping[str,
         who = (row.get("labeler") or "").strip() or None
         if not run and not label:
             continue  # a blank line
+        if run and not label and (row.get("auto_label") or "").strip():
+            automatic_only += 1  # an exported row without a person's label: classify records these
+            continue
         if not run:
             problems.append(f"{where}: no run id")
             continue
@@ -108,11 +137,16 @@ def import_labels(journal: LabelJournal, path: str | Path, *, runs: Mapping[str,
         seen.setdefault(run, line)
         entries.append({"run_id": run, "label": label, "content_hash": runs.get(run, ""), "reason": reason,
                         "labeler": who or labeler})
+    skipped = (f"{automatic_only} row(s) of {path} carry only an automatic label and were not imported "
+               "(automatic labels are recorded by 'basinmark classify')") if automatic_only else ""
     if not entries and not problems:
-        problems.append(f"{path}: no labels in the file")
+        problems.append(f"{path}: no labels in the file" + (f"; {skipped}" if skipped else ""))
     if problems:
         raise LabelImportError(path, problems)
-    return journal.record_batch(entries, source="import", labeler=labeler)
+    events = journal.record_batch(entries, source="import", labeler=labeler)
+    if skipped and notes is not None:
+        notes.append(skipped)
+    return events
 
 
 def labels_frame(journal: LabelJournal, which: str = "final") -> pd.DataFrame:

@@ -28,7 +28,11 @@ class JournalFileError(JournalError):
         self.path = Path(path) if path is not None else self.journal
         self.errno = exc.errno
         self.strerror = exc.strerror or str(exc)
-        super().__init__(f"cannot {what} {self.path} ({self.strerror}); {outcome}")
+        from basinmark.core.fs_errors import JOURNAL_ELSEWHERE, is_unwritable, reason_and_advice
+
+        reason, hint = reason_and_advice(exc)  # the error in words, and what to do about it
+        advice = JOURNAL_ELSEWHERE if is_unwritable(exc) else hint
+        super().__init__(f"cannot {what} {self.path} ({reason}); {outcome}; {advice}")
 
 
 class JournalLockedError(JournalError):

@@ -14,7 +14,10 @@ import numpy as np
 import pandas as pd
 from ase import Atoms
 
+from basinmark.core.atomic_write import check_target, write_text_atomic, write_with
+from basinmark.core.csv_safe import csv_text
 from basinmark.core.errors import BasinmarkError
+from basinmark.core.fs_errors import FileSystemError
 
 #: columns of the exported label table, in order (those present in the label table are written)
 #: the commit columns are the product end's (docs/commit-times.md): which end, and |t| from the TS of the
@@ -29,6 +32,10 @@ class ExportError(BasinmarkError):
     """An export cannot be written as asked (bad file name, frame out of range, unwritable place)."""
 
 
+class ExportFileError(ExportError, FileSystemError):
+    """An export's file cannot be written (missing or read-only folder, full disk); says which and what to do."""
+
+
 def label_export_table(labels: pd.DataFrame) -> pd.DataFrame:
     """The label table as exported: the known columns in a fixed order, then any others."""
     if "run" not in labels:
@@ -38,26 +45,18 @@ def label_export_table(labels: pd.DataFrame) -> pd.DataFrame:
 
 
 def _writable(path: str | Path) -> Path:
-    path = Path(path).expanduser()
-    if path.is_dir():
-        raise ExportError(f"{path}: is a folder; give a file name")
-    if not path.parent.exists():
-        raise ExportError(f"{path}: the folder {path.parent} does not exist")
-    return path
+    return check_target(path, ExportFileError)
 
 
 def _write_text(path: Path, text: str) -> Path:
-    try:
-        path.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise ExportError(f"{path}: cannot write the file ({exc.strerror or exc})") from None
-    return path
+    """Whole or not at all (a temporary file renamed into place); an error names the file and what to do."""
+    return write_text_atomic(path, text, cls=ExportFileError)
 
 
 def write_label_table(labels: pd.DataFrame, path: str | Path) -> Path:
-    """Write the label table (one row per run) as CSV; returns the path."""
+    """Write the label table (one row per run) as CSV, text cells neutralised for spreadsheets; returns the path."""
     path = _writable(path)
-    return _write_text(path, label_export_table(labels).to_csv(index=False))
+    return _write_text(path, csv_text(label_export_table(labels)))
 
 
 def summary_text(summary, fmt: str) -> str:
@@ -65,7 +64,7 @@ def summary_text(summary, fmt: str) -> str:
     if fmt == "markdown":
         return summary.to_markdown()
     if fmt == "csv":
-        return summary.to_frame().to_csv(index=False)
+        return csv_text(summary.to_frame())
     if fmt == "text":
         return summary.to_text()
     if fmt == "json":
@@ -109,8 +108,4 @@ def write_run_xyz(traj, path: str | Path, frame: int | None = None) -> Path:
 
     path = _writable(path)
     frames = [frame_atoms(traj, frame)] if frame is not None else [frame_atoms(traj, i) for i in range(traj.n_frames)]
-    try:
-        write(path, frames, format="extxyz")
-    except OSError as exc:
-        raise ExportError(f"{path}: cannot write the file ({exc.strerror or exc})") from None
-    return path
+    return write_with(path, lambda tmp: write(tmp, frames, format="extxyz"), what="the run", cls=ExportFileError)

@@ -43,24 +43,61 @@ def _rerooted(path: str, old_root: str, root: Path) -> Path:
     return root / p if not p.is_absolute() else Path(path.replace(old_root, str(root), 1))
 
 
-def load_snapshot(folder: Path, key: str, root: Path | None = None) -> tuple[dict[str, Trajectory], list[LoadFailure]] | None:
-    """The entry ``key``, with file paths re-rooted at ``root`` (a set may have been moved or copied since)."""
+#: what a damaged entry can raise while it is read (anything else is a bug of ours and should show)
+_DAMAGE = (OSError, ValueError, KeyError, TypeError, IndexError, AttributeError, EOFError)
+
+
+class _Damaged(ValueError):
+    """The entry's index does not describe its arrays."""
+
+
+def load_snapshot(folder: Path, key: str, root: Path | None = None,
+                  notes: list[str] | None = None) -> tuple[dict[str, Trajectory], list[LoadFailure]] | None:
+    """The entry ``key``, with file paths re-rooted at ``root`` (a set may have been moved or copied since).
+
+    None when there is no such entry.  A damaged entry (unreadable index, arrays that do not match it)
+    is removed so that it is rebuilt, and ``notes`` (if given) gets a sentence saying so; it never makes
+    opening the set fail.
+    """
     entry = folder / f"set-{key}"
+    if not entry.is_dir():
+        return None
     try:
-        index = json.loads((entry / "index.json").read_text(encoding="utf-8"))
-        positions = np.load(entry / "positions.npy", mmap_mode="r")
-        times = np.load(entry / "times.npy")
-        energies = {k: np.load(entry / f"energy_{k}.npy") for k in index["energy_keys"]}
-    except (OSError, ValueError, KeyError):
-        return None  # missing or damaged: simply rebuilt
+        return _read_snapshot(entry, root)
+    except _DAMAGE as exc:
+        shutil.rmtree(entry, ignore_errors=True)
+        if notes is not None:
+            why = (f"{exc.args[0]!r} is missing" if isinstance(exc, KeyError) and exc.args
+                   else str(exc).splitlines()[0][:120] if str(exc) else type(exc).__name__)
+            notes.append(f"the cache entry {entry} was damaged ({why}); it was ignored and removed, and the "
+                         "set was read from its files (the cache is rebuilt; it is always safe to delete)")
+        return None
+
+
+def _read_snapshot(entry: Path, root: Path | None) -> tuple[dict[str, Trajectory], list[LoadFailure]]:
+    index = json.loads((entry / "index.json").read_text(encoding="utf-8"))
+    if not isinstance(index, dict) or index.get("version") != SNAPSHOT_VERSION:
+        raise _Damaged("the index is not one of this version")
+    positions = np.load(entry / "positions.npy", mmap_mode="r")
+    times = np.load(entry / "times.npy")
+    energies = {k: np.load(entry / f"energy_{k}.npy") for k in index["energy_keys"]}
+    total = positions.shape[0]
+    if positions.ndim != 3 or positions.shape[2] != 3 or times.shape != (total,) or any(
+            e.shape != (total,) for e in energies.values()):
+        raise _Damaged("the arrays do not match each other")
     old_root = index.get("root", "")
     root = Path(root) if root is not None else Path(old_root or ".")
     runs: dict[str, Trajectory] = {}
     for r in index["runs"]:
         a, b = r["start"], r["stop"]
+        if not (isinstance(a, int) and isinstance(b, int) and 0 <= a < b <= total):
+            raise _Damaged(f"run {r.get('run_id')!r} points outside the arrays")
+        numbers = np.asarray(r["numbers"])
+        if numbers.shape != (positions.shape[1],):
+            raise _Damaged(f"run {r.get('run_id')!r} has a wrong number of atoms")
         ens = {k: energies[k][a:b] for k in r["energies"]}
         sources = tuple(SourceFile(_rerooted(p, old_root, root), sha, role) for p, sha, role in r["sources"])
-        runs[r["run_id"]] = Trajectory(r["run_id"], np.asarray(r["numbers"]), positions[a:b], times[a:b], ens,
+        runs[r["run_id"]] = Trajectory(r["run_id"], numbers, positions[a:b], times[a:b], ens,
                                        sources=sources, problems=list(r["problems"]),
                                        metadata={"file_keys": list(r.get("file_keys", []))},
                                        reading=str(r.get("reading", "")))

@@ -334,9 +334,13 @@ class RunCache:
                       "reading": np.array(traj.reading)}
             arrays.update({f"energy_{k}": v for k, v in traj.energies.items()})
             fd, tmp = tempfile.mkstemp(dir=self.folder, suffix=".tmp")
-            with os.fdopen(fd, "wb") as fh:
-                np.savez(fh, **arrays)
-            os.replace(tmp, self.folder / f"{self.key(spec, stored)}.npz")
+            try:
+                with os.fdopen(fd, "wb") as fh:
+                    np.savez(fh, **arrays)
+                os.replace(tmp, self.folder / f"{self.key(spec, stored)}.npz")
+            except BaseException:
+                Path(tmp).unlink(missing_ok=True)  # e.g. a full disk: no half-written entry left behind
+                raise
         except OSError:
             pass  # no cache is no failure
 
@@ -541,11 +545,12 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
     if progress:
         progress(0, total, None)
     hashes = key = cache_folder = None
+    cache_notes: list[str] = []
     if use_cache and total:
         hashes = hash_files(plan, workers)
         cache_folder = RunCache(plan.root, plan.layout).folder
         key = snapshot_key(plan.layout.fingerprint, plan.runs, hashes, plan.failures)
-        hit = load_snapshot(cache_folder, key, plan.root.resolve())
+        hit = load_snapshot(cache_folder, key, plan.root.resolve(), notes=cache_notes)
         if hit is not None:
             runs, failed = hit
             for traj in runs.values():
@@ -572,6 +577,7 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
     if key is not None and done == total:
         store_snapshot(cache_folder, key, runs, failures[len(plan.failures):], plan.root.resolve())
     tset = _finish(plan, runs, failures)
+    tset.warnings.extend(cache_notes)
     if done < total:
         tset.warnings.append(f"loading was cancelled after {done} of {total} runs")
     if total == 0:
