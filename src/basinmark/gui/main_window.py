@@ -17,6 +17,7 @@ from basinmark.core.model import TrajectorySet
 from basinmark.core.sets import journal_path, rules_path
 from basinmark.gui import labeler as labeler_dialog
 from basinmark.gui.actions import build_actions, viewer_actions
+from basinmark.gui import journal_elsewhere
 from basinmark.gui.dialogs import FailuresDialog, ShortcutsDialog
 from basinmark.gui.goto_run import GotoRunDialog
 from basinmark.gui.icons import icon
@@ -189,6 +190,7 @@ class MainWindow(QMainWindow):
             menu.addSeparator()
             for name in ("undo_label", "ask_reason", "auto_advance", None, "change_labeler"):
                 menu.addSeparator() if name is None else menu.addAction(self.actions_[name])
+            menu.addAction(journal_elsewhere.action(self))
             old = []
         for act in old:
             menu.removeAction(act)
@@ -481,7 +483,8 @@ class MainWindow(QMainWindow):
         (self.rules_applied if result.get("rules_only") else self.set_loaded).emit()
 
     def _open_journal(self, tset: TrajectorySet, rules) -> None:
-        path = journal_path(tset.root)
+        elsewhere = journal_elsewhere.remembered(self.settings, tset.root)  # Save Labels Elsewhere…
+        path = elsewhere or journal_path(tset.root)
         allowed = all_labels(rules) if rules is not None else None
         name = self.label_panel.labeler_name or None
         try:
@@ -517,6 +520,8 @@ class MainWindow(QMainWindow):
         if journal is not None:
             for w in journal.warnings:
                 self._messages.setdefault("journal_warn", w)
+        if elsewhere and not msg:
+            self._messages["journal"] = journal_elsewhere.notice(path)
         self.state.set_journal(journal, msg)
 
     def set_notice(self, key: str, text: str | None) -> None:
