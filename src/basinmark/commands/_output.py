@@ -9,6 +9,8 @@ from typing import TextIO
 import numpy as np
 import pandas as pd
 
+from basinmark.core.text import printable
+
 FORMATS = ("table", "csv", "json")
 
 
@@ -21,12 +23,12 @@ def _fmt(value, floatfmt: str) -> str:
         return ""
     if isinstance(value, (float, np.floating)):
         return format(float(value), floatfmt)
-    return str(value)
+    return printable(value)  # a newline or escape from an older file must not fake rows or colours
 
 
 def table_text(df: pd.DataFrame, floatfmt: str = ".3f", max_width: int = 60) -> str:
     """A plain-text table with aligned columns (numbers right, text left)."""
-    cols = [str(c) for c in df.columns]
+    cols = [printable(c) for c in df.columns]
     cells = [[_fmt(v, floatfmt)[:max_width] for v in row] for row in df.itertuples(index=False)]
     widths = [max([len(c)] + [len(r[i]) for r in cells]) for i, c in enumerate(cols)]
     numeric = [pd.api.types.is_numeric_dtype(df[c]) and not pd.api.types.is_bool_dtype(df[c]) for c in df.columns]

@@ -15,6 +15,7 @@ import pandas as pd
 
 from basinmark.commands._output import add_format_option, emit, table_text
 from basinmark.core.errors import BasinmarkError
+from basinmark.core.text import printable
 
 
 def _common(p, *, journal: bool = True, labeler: bool = False, load: bool = False) -> None:
@@ -222,9 +223,19 @@ def _event_row(ev: dict) -> pd.DataFrame:
 
 
 # --- commands -----------------------------------------------------------------------------------
+def _check_text(args) -> None:
+    """Reason and labeler name as typed: one line of plain text, no automatic source's name (before any work)."""
+    from basinmark.core.labels import check_labeler_name, check_reason
+
+    check_reason(getattr(args, "reason", ""))
+    if getattr(args, "labeler", None):
+        check_labeler_name(args.labeler)
+
+
 def cmd_label(args) -> int:
     from basinmark.core.labels import validate_label
 
+    _check_text(args)
     allowed = _allowed(_root(args))
     validate_label(args.label, allowed, reason=args.reason)  # before reading any run
     content_hash = _run_hash(args, args.run)
@@ -238,6 +249,7 @@ def cmd_label(args) -> int:
 
 
 def cmd_undo(args) -> int:
+    _check_text(args)
     with _open_writer(args, _existing_journal(args)) as j:
         _warn(j.warnings)
         seen = len(j.warnings)
@@ -408,7 +420,7 @@ def cmd_compare(args) -> int:
         print(json.dumps(out, indent=2))
         return 0
     r = review
-    print(f"rows: {r.name_a}, columns: {r.name_b}")
+    print(f"rows: {printable(r.name_a)}, columns: {printable(r.name_b)}")
     if r.n:
         print(table_text(r.confusion.reset_index().rename(columns={r.confusion.index.name: ""})))
     kap = "undefined" if not math.isfinite(r.kappa) else f"{r.kappa:.3f}"
@@ -445,6 +457,7 @@ def cmd_export(args) -> int:
 def cmd_import(args) -> int:
     from basinmark.core.journal_io import import_labels
 
+    _check_text(args)
     root = _root(args)
     allowed = _allowed(root)
     hashes, notes = _hashes(args)

@@ -55,7 +55,8 @@ from basinmark.core.journal_lock import (JournalFileError, JournalLockedError, a
                                          lock_path, read_lock, release)
 from basinmark.core.journal_replay import Replay
 from basinmark.core.journal_verify import Snapshot, integrity_of, read_snapshot, verify_journal
-from basinmark.core.labels import HAND_SOURCES, SOURCES, LabelError, validate_label
+from basinmark.core.labels import (HAND_SOURCES, SOURCES, LabelError, check_labeler_name, check_reason,
+                                   validate_label)
 
 __all__ = ["LabelJournal", "JournalError", "JournalLockedError", "JournalDamagedError", "JournalFileError",
            "JournalWriteError", "verify_journal", "Problem", "default_labeler"]
@@ -441,11 +442,12 @@ class LabelJournal:
             raise JournalError("a run id must be non-empty text")
         if not isinstance(content_hash, str):
             raise JournalError(f"run {run_id}: the content hash must be text")
-        reason = "" if reason is None else str(reason)
+        reason = check_reason(reason)
         label = validate_label(label, self.allowed, reason=reason)
+        who = check_labeler_name(labeler or self.labeler, person=source != "rule")
         replaces = (pending[run_id] if pending is not None and run_id in pending
                     else self._replay.track_label(run_id, source))
-        return {"kind": "label", "source": source, "labeler": labeler or self.labeler, "run": run_id,
+        return {"kind": "label", "source": source, "labeler": who, "run": run_id,
                 "content_hash": content_hash, "label": label, "replaces": replaces, "reason": reason}
 
     def record(self, run_id: str, label: str, *, content_hash: str, reason: str = "", source: str = "hand",
@@ -492,6 +494,8 @@ class LabelJournal:
     def undo(self, run_id: str, *, reason: str = "", labeler: str | None = None) -> dict:
         """Append an undo event that takes back the run's latest label set by a person (hand, import or
         review), or its latest automatic label when no person has labelled it, and restores what was below."""
+        reason = check_reason(reason)
+        labeler = check_labeler_name(labeler or self.labeler)
         stack = self._replay.stacks.get(run_id) or []
         if not stack:
             raise JournalError(f"run {run_id} has no label to undo")
@@ -514,12 +518,14 @@ class LabelJournal:
         """Record a reviewer's decision between two labelers' labels (source ``review``)."""
         ev = self._label_event(run_id, label, content_hash, reason, "review", reviewer)
         ev["label_a"], ev["label_b"] = label_a, label_b
-        ev["reviewer"] = reviewer or self.labeler
+        ev["reviewer"] = ev["labeler"]
         return self._write([ev])[0]
 
     def review_complete(self, *, reviewer: str | None = None, reason: str = "",
                         summary: Mapping | None = None) -> dict:
         """Record that a review was finished (with an optional summary of plain values)."""
+        reviewer = check_labeler_name(reviewer or self.labeler)
+        reason = check_reason(reason)
         return self._write([{"kind": "review_complete", "source": "review", "labeler": reviewer or self.labeler,
                              "reviewer": reviewer or self.labeler, "reason": reason or "",
                              "summary": dict(summary or {})}])[0]
@@ -534,6 +540,9 @@ class LabelJournal:
         another host, is only broken with ``force=True``.
         """
         path = Path(path)
+        reason = check_reason(reason)
+        if by is not None:
+            by = check_labeler_name(by)
         holder = read_lock(path)
         if holder is None:
             raise JournalError(f"the label journal {path} is not locked")
@@ -565,6 +574,8 @@ class LabelJournal:
         the lines and bytes set aside (with their SHA-256), the old head and witness, who and why.  The
         head and witness then record the new end.  None when the journal is intact (nothing to do).
         """
+        reason = check_reason(reason)
+        by = check_labeler_name(by) if by is not None else None
         j = cls()
         j.path, j.readonly, j.labeler = Path(path), False, by or default_labeler()
         if not j.path.is_file():

@@ -26,7 +26,7 @@ from basinmark.core.csv_safe import csv_text, restore_cell
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.fs_errors import file_error
 from basinmark.core.journal import LabelJournal
-from basinmark.core.labels import LabelError, validate_label
+from basinmark.core.labels import LabelError, check_labeler_name, check_reason, validate_label
 
 IMPORT_COLUMNS = ("run", "label")
 OPTIONAL_COLUMNS = ("labeler", "reason")
@@ -132,6 +132,11 @@ def import_labels(journal: LabelJournal, path: str | Path, *, runs: Mapping[str,
             label = validate_label(label, allowed, reason=reason)
         except LabelError as exc:
             problems.append(f"{where}: {exc}")
+        for check in (lambda: check_reason(reason), lambda: who is not None and check_labeler_name(who)):
+            try:
+                check()
+            except LabelError as exc:
+                problems.append(f"{where}: {exc}")
         if run in seen:
             problems.append(f"{where}: run {run!r} appears again (first on line {seen[run]})")
         seen.setdefault(run, line)

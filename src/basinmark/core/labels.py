@@ -10,11 +10,10 @@ A label is what a run did (or why it is left out of the counts):
 
 from __future__ import annotations
 
-import unicodedata
-
 from typing import Iterable, Sequence
 
 from basinmark.core.errors import BasinmarkError
+from basinmark.core.text import TextError, check_labeler, check_plain_text, is_hidden
 
 FIXED_LABELS: tuple[str, ...] = ("recrossing", "unfinished", "ambiguous", "excluded")
 
@@ -53,10 +52,26 @@ def check_label_text(label: object) -> str:
         raise LabelError("a label cannot be empty")
     if len(text) > _MAX_LABEL_LENGTH:
         raise LabelError(f"the label {text[:20]!r}... is longer than {_MAX_LABEL_LENGTH} characters")
-    # control characters (C0 and C1) and Unicode line/paragraph separators would break lines in tables
-    if any(unicodedata.category(c) in ("Cc", "Zl", "Zp") for c in text):
+    # control characters (C0 and C1), line/paragraph separators and direction overrides would lie in tables
+    if any(is_hidden(c) for c in text):
         raise LabelError(f"the label {text!r} contains control characters or line breaks")
     return text
+
+
+def check_reason(reason: object, what: str = "reason") -> str:
+    """A reason (or note) as typed: one line of plain text (see :mod:`basinmark.core.text`), None → ""."""
+    try:
+        return check_plain_text(reason, what)
+    except TextError as exc:
+        raise LabelError(str(exc)) from None
+
+
+def check_labeler_name(name: object, *, person: bool = True) -> str:
+    """A labeler's name, stripped; names of automatic sources (auto, rule:…) are refused for people."""
+    try:
+        return check_labeler(name, person=person)
+    except TextError as exc:
+        raise LabelError(str(exc)) from None
 
 
 def validate_label(label: object, allowed: Sequence[str] | None = None, *, reason: str = "") -> str:

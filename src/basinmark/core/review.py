@@ -216,7 +216,9 @@ def compare_labelers(journal: LabelJournal, a: str, b: str, *, current: pd.DataF
 
 
 def _md_cell(value: object) -> str:
-    return str(value).replace("|", "\\|").replace("\n", " ")
+    from basinmark.core.text import printable
+
+    return printable(value).replace("|", "\\|")  # line breaks and escapes of older files shown escaped
 
 
 def _md_table(df: pd.DataFrame, index: bool = False) -> list[str]:

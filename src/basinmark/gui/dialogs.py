@@ -8,6 +8,8 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (QAbstractItemView, QDialog, QDialogButtonBox, QHeaderView, QLabel, QTableWidget,
                                QTableWidgetItem, QVBoxLayout, QWidget)
 
+from basinmark.core.text import printable
+
 
 def _table(parent: QWidget, headers: Sequence[str], rows: Sequence[Sequence[str]]) -> QTableWidget:
     t = QTableWidget(len(rows), len(headers), parent)
@@ -18,8 +20,8 @@ def _table(parent: QWidget, headers: Sequence[str], rows: Sequence[Sequence[str]
     t.setWordWrap(True)
     for r, row in enumerate(rows):
         for c, text in enumerate(row):
-            item = QTableWidgetItem(str(text))
-            item.setToolTip(str(text))
+            item = QTableWidgetItem(printable(text))
+            item.setToolTip(printable(text))
             t.setItem(r, c, item)
     t.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
     t.horizontalHeader().setStretchLastSection(True)

@@ -24,6 +24,7 @@ from PySide6.QtWidgets import (QApplication, QFormLayout, QGridLayout, QHBoxLayo
 
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.labels import FIXED_LABELS, REASON_REQUIRED
+from basinmark.core.text import printable
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.state import AppState
 
@@ -297,8 +298,8 @@ class LabelPanel(QWidget):
         lines = []
         for ev in hist.tail(12).itertuples():
             what = f"undo → {ev.label or 'no label'}" if ev.kind == "undo" else f"{ev.label} ({ev.source})"
-            reason = f": {ev.reason}" if ev.reason else ""
-            lines.append(f"{ev.time}  {ev.labeler}  {what}{reason}")
+            reason = f": {printable(ev.reason)}" if ev.reason else ""
+            lines.append(f"{ev.time}  {printable(ev.labeler)}  {what}{reason}")
         return "Label history (journal):\n" + "\n".join(lines)
 
     # --- labeling ---------------------------------------------------------------------------

@@ -12,6 +12,8 @@ from typing import Sequence
 
 import pandas as pd
 
+from basinmark.core.text import printable
+
 LABEL_COLUMNS = ["run", "auto_label", "hand_label", "final_label", "product_end", "product_final_entry_fs",
                  "product_first_arrival_fs", "flags", "labeler", "reason", "data_changed"]
 
@@ -53,8 +55,9 @@ def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | Non
             "product_final_entry_fs": _num(c.get("product_final_entry_fs")),
             "product_first_arrival_fs": _num(c.get("product_first_arrival_fs")),
             "flags": _text(c.get("flags")),
-            "labeler": _text(j.get("labeler")) if hand else "",
-            "reason": _text(j.get("reason")) if hand else "",
+            # free text from the journal, shown as it is (an older file's line breaks or overrides escaped)
+            "labeler": printable(_text(j.get("labeler"))) if hand else "",
+            "reason": printable(_text(j.get("reason"))) if hand else "",
             "data_changed": _flag(j.get("data_changed")),
         })
     return pd.DataFrame(rows, columns=LABEL_COLUMNS)

@@ -12,6 +12,10 @@ from typing import Sequence
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (QCompleter, QDialog, QDialogButtonBox, QLabel, QLineEdit, QVBoxLayout, QWidget)
 
+from basinmark.core.errors import BasinmarkError
+from basinmark.core.labels import check_labeler_name
+from basinmark.core.text import printable
+
 
 class LabelerDialog(QDialog):
     """Name field (completing names already in the journal) with Use / Cancel."""
@@ -51,6 +55,11 @@ class LabelerDialog(QDialog):
     def _accept(self) -> None:
         if not self.name.text().strip():
             self.hint.setText("Type a name; labels cannot be recorded without one.")
+            return
+        try:  # one line of plain text, and not the name of an automatic source (auto, rule:…)
+            check_labeler_name(self.name.text())
+        except BasinmarkError as exc:
+            self.hint.setText(printable(str(exc)))
             return
         self.accept()
 

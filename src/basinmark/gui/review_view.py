@@ -23,6 +23,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFileD
 
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.review import SE_METHOD, Review, compare_labels, current_auto_labels, people, render_markdown
+from basinmark.core.text import printable
 from basinmark.gui.label_panel import panel_labels
 from basinmark.gui.review_sources import SourcePicker, source_labels
 from basinmark.gui.movie import find_menu
@@ -372,7 +373,7 @@ class ReviewPanel(QWidget):
         self.queue_view.setRowCount(len(q))
         for i, rec in enumerate(q.itertuples(index=False)):
             for k, value in enumerate(rec):
-                item = QTableWidgetItem("" if value is None else str(value))
+                item = QTableWidgetItem("" if value is None else printable(value))
                 if k == 0 and self.state.tset is not None and rec.run not in self.state.tset:
                     item.setToolTip("this run is not in the open set")
                 self.queue_view.setItem(i, k, item)
