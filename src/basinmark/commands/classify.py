@@ -7,6 +7,7 @@ import json
 import sys
 from pathlib import Path
 
+from basinmark.commands._bounds import MAX_SWEEP_STEPS, number, whole
 from basinmark.commands._output import FORMATS, emit, progress_printer, table_text
 from basinmark.core.errors import SetError
 
@@ -34,9 +35,10 @@ def register(sub) -> None:
     s.add_argument("--monitor", required=True, metavar="NAME", help="the monitor of that condition")
     s.add_argument("--bound", required=True, choices=("below", "above"),
                    help="which bound moves (on a 'between' condition: below = its upper end, above = its lower end)")
-    s.add_argument("--from", dest="start", required=True, type=float, metavar="A", help="first value")
-    s.add_argument("--to", dest="stop", required=True, type=float, metavar="B", help="last value")
-    s.add_argument("--steps", type=int, default=11, metavar="N", help="number of values (default 11)")
+    s.add_argument("--from", dest="start", required=True, type=number(), metavar="A", help="first value")
+    s.add_argument("--to", dest="stop", required=True, type=number(), metavar="B", help="last value")
+    s.add_argument("--steps", type=whole(1, MAX_SWEEP_STEPS), default=11, metavar="N",
+                   help=f"number of values, 1 to {MAX_SWEEP_STEPS} (default 11)")
     s.add_argument("--ratio", nargs=2, metavar=("A", "B"), help="the two outcomes compared (default: the first two "
                    "products)")
     s.add_argument("--confidence", type=float, default=0.95, help="confidence level of the ratio interval")

@@ -6,6 +6,7 @@ import sys
 
 import pandas as pd
 
+from basinmark.commands._bounds import MAX_DEMO_RUNS, MAX_DEMO_TIME_FS, number, whole
 from basinmark.commands._output import add_format_option, emit
 
 
@@ -17,11 +18,13 @@ def register(subparsers) -> None:
                     "invented model surface, written as gzipped extended XYZ halves, with basins.toml and README.md.",
     )
     p.add_argument("out", metavar="OUT", help="folder to write (created if missing)")
-    p.add_argument("--runs", type=int, default=200, help="number of runs (default: 200)")
+    p.add_argument("--runs", type=whole(1, MAX_DEMO_RUNS), default=200,
+                   help=f"number of runs, 1 to {MAX_DEMO_RUNS} (default: 200)")
     p.add_argument("--seed", type=int, default=None, help="random seed (default: the bundled set's seed)")
-    p.add_argument("--temperature", type=float, default=298.15, help="temperature in K (default: 298.15)")
-    p.add_argument("--max-time", type=float, default=None, metavar="FS",
-                   help="longest half in fs (default: 400)")
+    p.add_argument("--temperature", type=number(0.0, 5000.0, above=True), default=298.15,
+                   help="temperature in K (default: 298.15)")
+    p.add_argument("--max-time", type=number(0.0, MAX_DEMO_TIME_FS, above=True), default=None, metavar="FS",
+                   help=f"longest half in fs, at most {MAX_DEMO_TIME_FS:g} (default: 400)")
     p.add_argument("--force", action="store_true",
                    help="write into a folder that already holds runs (its old run files are removed first)")
     add_format_option(p)

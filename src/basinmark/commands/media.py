@@ -12,6 +12,7 @@ import sys
 from dataclasses import replace
 from pathlib import Path
 
+from basinmark.commands._bounds import MAX_MOVIE_FRAMES, number
 from basinmark.core.errors import BasinmarkError
 
 
@@ -23,7 +24,8 @@ def register(sub) -> None:
     p.add_argument("set", metavar="SET", help="the set folder")
     p.add_argument("run", metavar="RUN", help="run id")
     p.add_argument("-o", "--output", metavar="FILE", required=True, help="the movie file (.gif, or .mp4)")
-    p.add_argument("--fps", type=float, default=20.0, help="frames per second (default: 20)")
+    p.add_argument("--fps", type=number(0.0, 100.0, above=True), default=20.0,
+                   help="frames per second, at most 100 (default: 20)")
     p.add_argument("--size", default="640x480", metavar="WxH", help="width x height in pixels (default: 640x480)")
     p.add_argument("--frames", metavar="A:B", default=None,
                    help="only frames A to B, numbered from 1, both included (default: all)")
@@ -99,6 +101,10 @@ def cmd_movie(args) -> int:
     size = parse_size(args.size)
     traj = load_one_run(root, args.run, use_cache=not args.no_cache)
     frames = parse_frames(args.frames, traj.n_frames)
+    if len(frames) > MAX_MOVIE_FRAMES:
+        raise BasinmarkError(f"a movie has at most {MAX_MOVIE_FRAMES} frames; run {args.run} has {len(frames)} "
+                             f"in the frames asked for: choose a part with --frames A:B (e.g. --frames 1:"
+                             f"{MAX_MOVIE_FRAMES})")
     rules_file = Path(args.rules) if args.rules else rules_path(root)
     rules = result = None
     if rules_file.is_file():
