@@ -221,3 +221,18 @@ def test_a_read_only_set_is_labeled_in_a_journal_elsewhere(tset, tmp_path, monke
         assert {ev["run"]: ev["content_hash"] for ev in own.events if ev.get("kind") == "label"} == bound
     code, out, err = run(["verify", tset, "--journal", elsewhere], capsys)
     assert code == 0 and "intact" in out, out + err
+
+
+def test_saving_rules_into_a_read_only_folder_names_the_file(tset, tmp_path, monkeypatch):
+    from basinmark.core.fs_errors import FileSystemError
+    from basinmark.core.rules import load_rules
+
+    rules = load_rules(tset / "basins.toml")
+    target = tmp_path / "shared" / "basins.toml"
+    target.parent.mkdir()
+    with inject(monkeypatch, Faults(str(target.parent / "*"), code=errno.EROFS, ops=("open",))):
+        with pytest.raises(FileSystemError) as err:
+            rules.save(target)
+    assert f"cannot write the rules file {target} (the file system is read-only)" in str(err.value)
+    assert list(target.parent.iterdir()) == []
+    assert rules.save(target).products == rules.products  # with the folder writable again it is saved

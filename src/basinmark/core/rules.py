@@ -465,8 +465,10 @@ class Rules:
 
     def save(self, path: str | Path) -> "Rules":
         """Write :meth:`to_toml` to ``path``; returns the rules as loaded from it (with path and hash)."""
+        from basinmark.core.atomic_write import write_text_atomic
+
         p = Path(path)
-        p.write_text(self.to_toml(), encoding="utf-8")
+        write_text_atomic(p, self.to_toml(), what="the rules file")  # whole or not at all; errors name the file
         return load_rules(p)
 
 
