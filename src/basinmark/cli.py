@@ -41,7 +41,10 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as stop:  # a bad argument (argparse printed why: usage and the allowed range), --help
+        return stop.code if isinstance(stop.code, int) else 2
     if not getattr(args, "func", None):
         parser.print_help()
         return 2
