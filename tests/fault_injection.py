@@ -3,8 +3,9 @@
 Tests run as root, where ``chmod`` does not stop a write, so faults are injected at the Python level:
 ``os.open`` is wrapped to remember which path each descriptor belongs to, and ``os.open``, ``os.write``,
 ``os.fsync``, ``os.replace`` and ``os.ftruncate`` raise the chosen ``OSError`` for paths that match.
-A full disk stays full once hit (every later write to a matching path fails too), and the write that
-hits it may first write part of its bytes, as a real file system does.
+A full disk stays full once hit (every later write to a matching path fails too) until a file is cut
+shorter (``ftruncate``), which frees space as on a real file system; the write that hits it may first
+write part of its bytes, as a real file system does.
 """
 
 from __future__ import annotations
@@ -26,6 +27,7 @@ class Faults:
         self.pattern, self.code, self.at, self.ops, self.partial = pattern, code, at, set(ops), partial
         self.count = 0
         self.hit = False
+        self.freed = False
         self.paths: dict[int, str] = {}
 
     def matches(self, path) -> bool:
@@ -34,7 +36,7 @@ class Faults:
 
     def _tick(self, path) -> bool:
         """True when this operation on ``path`` must fail."""
-        if not self.matches(path):
+        if self.freed or not self.matches(path):
             return False
         self.count += 1
         if self.hit or self.count >= self.at:
@@ -79,6 +81,11 @@ def inject(monkeypatch, faults: Faults):
             raise faults.error(dst)
         return real_replace(src, dst, **kw)
 
+    def fake_ftruncate(fd, length):
+        real_ftruncate(fd, length)
+        if faults.hit and faults.code == _errno.ENOSPC:
+            faults.freed = True  # cutting a file back frees space: the disk is no longer full
+
     def fake_close(fd):
         faults.paths.pop(fd, None)
         return real_close(fd)
@@ -88,6 +95,7 @@ def inject(monkeypatch, faults: Faults):
     monkeypatch.setattr(os, "fsync", fake_fsync)
     monkeypatch.setattr(os, "replace", fake_replace)
     monkeypatch.setattr(os, "close", fake_close)
+    monkeypatch.setattr(os, "ftruncate", fake_ftruncate)
     try:
         yield faults
     finally:

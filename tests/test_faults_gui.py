@@ -35,7 +35,7 @@ def test_save_labels_elsewhere_for_a_read_only_set(qtbot, tmp_path, monkeypatch)
         win = _window(qtbot, settings, root)
         assert win.state.readonly
         text = win.banner.text()
-        assert str(journal_path(root)) in text and "read-only" in text and "Save Labels Elsewhere" in text
+        assert str(journal_path(root)) in text and "read-only" in text.lower() and "Save Labels Elsewhere" in text
         assert journal_elsewhere.action(win) in win.labels_menu.actions()
         assert journal_elsewhere.save_labels_elsewhere(win, mine)
         assert not win.state.readonly and str(mine) in win.banner.text()

@@ -35,6 +35,7 @@ hashes, where no witness or receipt exists, cannot be caught from the files alon
 
 from __future__ import annotations
 
+import contextlib
 import getpass
 import glob
 import hashlib
@@ -84,7 +85,9 @@ class JournalWriteError(JournalError):
         self.path = Path(path)
         self.errno = exc.errno
         self.strerror = exc.strerror or str(exc)
-        super().__init__(message)
+        from basinmark.core.fs_errors import reason_and_advice
+
+        super().__init__(f"{message}; {reason_and_advice(exc)[1]}")  # and what to do about it
 
 
 def default_labeler() -> str:
@@ -256,10 +259,15 @@ class LabelJournal:
             try:
                 fd = os.open(side, os.O_WRONLY | os.O_CREAT | os.O_EXCL | BINARY, 0o644)
                 try:
-                    os.write(fd, aside)
+                    view = memoryview(aside)
+                    while view:  # a short write (a disk filling up) must not pass for a whole copy
+                        view = view[os.write(fd, view):]
                     os.fsync(fd)
-                finally:
+                except OSError:
                     os.close(fd)
+                    side.unlink(missing_ok=True)  # a half copy is no copy; the journal is left as it was
+                    raise
+                os.close(fd)
                 _fsync_dir(self.path.parent)
                 os.truncate(self.path, keep)
                 assert self._fd is not None
@@ -287,10 +295,15 @@ class LabelJournal:
         try:
             fd = os.open(side, os.O_WRONLY | os.O_CREAT | os.O_EXCL | BINARY, 0o644)
             try:
-                os.write(fd, tail)
+                view = memoryview(tail)
+                while view:  # a short write (a disk filling up) must not pass for a whole copy
+                    view = view[os.write(fd, view):]
                 os.fsync(fd)
-            finally:
+            except OSError:
                 os.close(fd)
+                side.unlink(missing_ok=True)  # a half copy is no copy; the journal is left as it was
+                raise
+            os.close(fd)
             _fsync_dir(self.path.parent)
             os.truncate(self.path, keep)
             assert self._fd is not None
@@ -404,6 +417,11 @@ class LabelJournal:
             undone = False
         os.close(self._fd)
         self._fd = None
+        if undone and self._size == 0 and self.header is None:
+            # the journal was new and nothing of it was confirmed (its header could not be written): remove
+            # the empty file, which readers would otherwise take for a damaged journal
+            with contextlib.suppress(OSError):
+                self.path.unlink()
         if undone:
             raise JournalWriteError(self.path, exc, f"the label(s) could not be saved to {self.path} ({why}); "
                                     "nothing of this change was recorded; reopen the journal to go on") from None

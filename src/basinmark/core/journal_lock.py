@@ -30,9 +30,8 @@ class JournalFileError(JournalError):
         self.strerror = exc.strerror or str(exc)
         from basinmark.core.fs_errors import JOURNAL_ELSEWHERE, is_unwritable, reason_and_advice
 
-        reason, hint = reason_and_advice(exc)  # the error in words, and what to do about it
-        advice = JOURNAL_ELSEWHERE if is_unwritable(exc) else hint
-        super().__init__(f"cannot {what} {self.path} ({reason}); {outcome}; {advice}")
+        advice = JOURNAL_ELSEWHERE if is_unwritable(exc) else reason_and_advice(exc)[1]  # what to do about it
+        super().__init__(f"cannot {what} {self.path} ({self.strerror}); {outcome}; {advice}")
 
 
 class JournalLockedError(JournalError):

@@ -82,10 +82,16 @@ def write(journal: str | Path, jid: str, seq: int, digest: str) -> None:
                       "hash": digest, "time": utc_now()}) + "\n"
     fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC | BINARY, 0o644)
     try:
-        os.write(fd, data.encode("utf-8"))
-    finally:
-        os.close(fd)
-    os.replace(tmp, path)
+        try:
+            view = memoryview(data.encode("utf-8"))
+            while view:  # a short write (a disk filling up) must not leave a cut witness
+                view = view[os.write(fd, view):]
+        finally:
+            os.close(fd)
+        os.replace(tmp, path)
+    except OSError:
+        tmp.unlink(missing_ok=True)
+        raise
 
 
 # --- receipts ------------------------------------------------------------------------------------
