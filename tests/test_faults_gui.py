@@ -59,3 +59,18 @@ def test_save_labels_elsewhere_for_a_read_only_set(qtbot, tmp_path, monkeypatch)
     assert win2.state.journal.path == journal_path(root) and str(mine) not in win2.banner.text()
     assert journal_elsewhere.remembered(settings, root) is None
     win2.close()
+
+
+def test_the_labeler_dialog_refuses_reserved_names_and_control_characters(qtbot):
+    from basinmark.gui.labeler import LabelerDialog
+
+    dlg = LabelerDialog("ines", "ines", first_label=False)
+    qtbot.addWidget(dlg)
+    for bad, words in (("Rule:1a2b", "reserved"), ("auto", "reserved"), ("eve\x1b[8m", "U+001B")):
+        dlg.name.setText(bad)
+        dlg._accept()
+        assert dlg.result() != dlg.DialogCode.Accepted and words in dlg.hint.text()
+        assert "\x1b" not in dlg.hint.text()
+    dlg.name.setText("ana")
+    dlg._accept()
+    assert dlg.result() == dlg.DialogCode.Accepted and dlg.chosen() == "ana"
