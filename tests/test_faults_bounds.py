@@ -61,3 +61,12 @@ def test_movie_frame_count_is_bounded(tset, tmp_path, capsys, monkeypatch):
     assert code == 2 and "at most 10 frames" in err and "--frames A:B" in err, err
     assert not (tmp_path / "m.gif").exists()
     assert MAX_MOVIE_FRAMES >= 1000
+
+
+def test_map_size_is_bounded(tset, tmp_path, capsys):
+    from basinmark.gui.figures import MAX_FIGURE_SIDE
+
+    code = main(["map", str(tset), "-o", str(tmp_path / "m.png"), "--size", "20000x20000"])
+    err = capsys.readouterr().err
+    assert code == 2 and f"out of range (16 to {MAX_FIGURE_SIDE} each)" in err and "Traceback" not in err
+    assert not (tmp_path / "m.png").exists()

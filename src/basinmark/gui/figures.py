@@ -36,6 +36,9 @@ def ensure_app():
     return QApplication([sys.argv[0] if sys.argv else "basinmark"])
 
 
+MAX_FIGURE_SIDE = 8000
+
+
 def _check(path: str | Path, size: tuple[int, int] | None) -> tuple[Path, str]:
     path = Path(path).expanduser()
     suffix = path.suffix.lower()
@@ -43,8 +46,10 @@ def _check(path: str | Path, size: tuple[int, int] | None) -> tuple[Path, str]:
         raise FigureError(f"{path}: a figure is written as .png or .svg, not {path.suffix or 'no suffix'}")
     if not path.parent.exists():
         raise FigureError(f"{path}: the folder {path.parent} does not exist")
-    if size is not None and not (16 <= size[0] <= 20000 and 16 <= size[1] <= 20000):
-        raise FigureError(f"a figure size of {size[0]}x{size[1]} pixels is out of range (16 to 20000 each)")
+    # 8000 px a side is 256 MB of pixels drawn in memory; more is a slip of the finger (our own limit)
+    if size is not None and not (16 <= size[0] <= MAX_FIGURE_SIDE and 16 <= size[1] <= MAX_FIGURE_SIDE):
+        raise FigureError(f"a figure size of {size[0]}x{size[1]} pixels is out of range (16 to {MAX_FIGURE_SIDE} "
+                          "each)")
     return path, suffix
 
 
