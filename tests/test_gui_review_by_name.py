@@ -206,7 +206,11 @@ def test_blind_labeling_hides_other_peoples_hand_labels_in_table_and_panel(qtbot
     assert not lp.undo() or journal_path(root).read_bytes() == before
     # the review does not open other people's labels while blind
     assert win.review_panel.compare() is None and "Blind" in win.review_panel.summary.text()
+    # another person takes over the window: blind now as that person
+    lp.set_labeler("dora")
+    assert st.blind_labeler == "dora" and shown("toy-001")["hand_label"] == ""
     win.blind_action.setChecked(False)
+    assert st.blind_labeler == ""
     assert shown("toy-002")["hand_label"] == "left" and shown("toy-002")["labeler"] == "ann"
     win.close()
 
