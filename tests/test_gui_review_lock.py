@@ -138,6 +138,16 @@ def test_a_live_holder_is_named_and_never_broken(qtbot, tmp_path, locked_set, mo
         win.unlock_action.trigger()
         assert win.state.readonly and told and str(child.pid) in told[-1] and "still running" in told[-1]
         assert json.loads(lock_path(journal_path(root)).read_text())["pid"] == child.pid
+        # that program then stops without closing the journal: the menu offers to break its lock
+        child.kill()
+        child.wait()
+        asked = []
+        monkeypatch.setattr(lock_dialog, "ask", lambda _p, title, text, accept: asked.append((text, accept)) or True)
+        win.unlock_action.trigger()
+        assert len(asked) == 1 and "no longer running" in asked[0][0] and asked[0][1] == "Break Lock and Label"
+        assert not win.state.readonly
+        broken = [e for e in _events(journal_path(root)) if e.get("kind") == "lock_broken"]
+        assert len(broken) == 1 and broken[0]["old_lock"]["pid"] == child.pid and broken[0]["stale"] is True
         win.close()
     finally:
         child.kill()
