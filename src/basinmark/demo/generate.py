@@ -37,7 +37,7 @@ BOND_BELOW = 1.95
 SPECTATOR_ABOVE = 2.25
 REGION_NAMES = ("reactant", "alpha", "beta")
 
-DEFAULT_SEED = 20261202
+DEFAULT_SEED = 20261204
 
 
 @dataclass(frozen=True)
@@ -49,6 +49,10 @@ class DemoSettings:
     max_time_fs: float = 400.0  # per half
     save_every_fs: float = 4.0
     stop_dwell_fs: float = 120.0  # a half stops after this long in one region
+    #: runs (0-based) integrated with a coarse time step, as a careless setting would: the set then
+    #: holds a couple of runs whose total energy drifts, which the energy check should catch
+    coarse_runs: tuple[int, ...] = (57, 143)
+    coarse_dt_fs: float = 1.0
 
 
 @dataclass
@@ -208,6 +212,16 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
         halves[name] = velocity_verlet(surface, start.positions, sign * start.velocities, dt=settings.dt_fs,
                                        max_time=settings.max_time_fs, save_every=save_every,
                                        stop=_stop_test(runs, dwell_steps))
+        coarse = [k for k in settings.coarse_runs if k < runs]
+        if coarse:
+            redo = velocity_verlet(surface, start.positions[coarse], sign * start.velocities[coarse],
+                                   dt=settings.coarse_dt_fs, max_time=settings.max_time_fs,
+                                   save_every=max(1, int(round(settings.save_every_fs / settings.coarse_dt_fs))),
+                                   stop=_stop_test(len(coarse), int(round(settings.stop_dwell_fs
+                                                                          / settings.coarse_dt_fs))))
+            for j, k in enumerate(coarse):
+                for part in ("positions", "times", "potential", "kinetic"):
+                    getattr(halves[name], part)[k] = getattr(redo, part)[j]
         if progress is not None:
             progress(done + 1, total_steps + 1)
 

@@ -11,9 +11,10 @@ inflection) and splits.
 Every term is a function of interatomic distances only, so energy and forces are exact and cheap
 and vectorise over many geometries at once (:func:`energy_forces`):
 
-* framework: harmonic bonds and 1-3 "angle" springs, soft 1-4 springs for the torsions, all with
-  rest lengths taken from a reference geometry built here, and a weak exponential repulsion
-  between all other pairs;
+* framework: Morse bonds (depths of typical bond energies), harmonic 1-3 "angle" springs, soft 1-4
+  springs and angle-weighted dihedral terms for the torsions (the chain-end hydrogens and the
+  oxygen), all with rest values taken from a reference geometry built here, and a weak
+  exponential repulsion between all other pairs;
 * reactive part ``V(r_a, r_b, r_c)``: a ring-closure profile in ``r_a`` and a three-centre term in
   ``r_b, r_c`` (bond orders ``n = exp(-(r - r0)/w)``) that a switch ``s(r_a)`` turns on as the ring
   closes; its localisation penalty ``gamma * n_b * n_c`` makes the symmetric (bridged) line a ridge.
@@ -40,16 +41,20 @@ PAIR_C = (3, 8)
 # framework bonds (0-based) and their force constants (eV/Å^2)
 _BONDS = [
     ((0, 1), 28.0), ((1, 2), 28.0), ((2, 3), 28.0), ((3, 5), 28.0),  # chain C-C
-    ((3, 4), 60.0),  # C=O
+    ((3, 4), 75.0),  # C=O (about 12 mdyn/Å, a typical carbonyl stretch constant, from memory)
     ((2, 8), 26.0),  # C3-C9
     ((0, 6), 30.0), ((5, 7), 30.0),  # chain-end C-H
     ((8, 9), 30.0), ((8, 10), 30.0), ((8, 11), 30.0),  # C9-H
 ]
+#: Morse well depth (eV) of each framework bond by element pair: typical bond dissociation energies
+#: (C-C about 83, C=O about 178, C-H about 110 kcal/mol; from memory).  With k fixed, the range
+#: parameter follows as a = sqrt(k / 2D): stiffer than harmonic when compressed, softer when stretched.
+_BOND_DEPTH = {frozenset("C"): 3.6, frozenset("CO"): 7.7, frozenset("CH"): 4.8}
 # 1-3 pairs ("angles"), eV/Å^2; the pairs 2-9 and 4-9 are reactive and handled elsewhere
 _ANGLES = [
     ((0, 2), 5.0), ((1, 3), 5.0), ((2, 5), 5.0),  # chain
     ((2, 4), 6.0), ((4, 5), 6.0),  # around C4 (O)
-    ((1, 6), 3.0), ((3, 7), 3.0),  # chain-end H
+    ((1, 6), 14.0), ((3, 7), 14.0),  # chain-end H: a stiff H-C-C bend (a weak one let the H swing through its carbon)
     ((2, 9), 3.5), ((2, 10), 3.5), ((2, 11), 3.5),  # H on C9 to C3
     ((9, 10), 2.5), ((9, 11), 2.5), ((10, 11), 2.5),  # H-H on C9
 ]
@@ -66,6 +71,17 @@ _TORSIONS = [
 _DIFFERENCES = [
     (((9, x), (10, x)), 1.2) for x in (1, 3)] + [(((10, x), (11, x)), 1.2) for x in (1, 3)] + [
     (((11, x), (9, x)), 1.2) for x in (1, 3)]
+#: torsions of the chain-end hydrogens and the oxygen, k (1 - cos(phi - phi_ref)) in eV: without them
+#: those atoms could swing about their C-C axis held only by 1-4 distance springs, which give no
+#: first-order restoring force near a trans or cis arrangement.  Such floppy modes came out at
+#: 80-160 cm^-1, and a quasiclassical start (displacing atoms along straight normal-mode vectors)
+#: then stretched C-H bonds to 1.5-1.9 A at t = 0 and fed several eV into the run.
+#: Quadruples i-j-k-l (0-based), torsion about the j-k bond.
+_DIHEDRALS = [
+    ((6, 0, 1, 2), 2.0),  # H7-C1-C2-C3
+    ((7, 5, 3, 2), 2.0),  # H8-C6-C4-C3
+    ((4, 3, 2, 1), 3.0),  # O5-C4-C3-C2 (keeps the oxygen's wag stiff)
+]
 
 
 def reference_geometry() -> np.ndarray:
@@ -90,7 +106,7 @@ def reference_geometry() -> np.ndarray:
         return v / np.linalg.norm(v)
 
     pos[8] = attach(2, [0.0, 0.55, 1.0], 1.53)  # C9 above C3
-    pos[4] = attach(3, radial(3) + [0.0, 0.0, -0.9], 1.23)  # O5 on C4, out of plane
+    pos[4] = attach(3, radial(3) + [0.0, 0.0, -0.9], 1.26)  # O5 on C4, out of plane
     pos[6] = attach(0, radial(0) + [0.0, 0.0, 0.7], 1.09)  # H7 on C1
     pos[7] = attach(5, radial(5) + [0.0, 0.0, 0.7], 1.09)  # H8 on C6
     up = pos[8] - pos[2]
@@ -110,13 +126,13 @@ class ReactiveParams:
     """Parameters of the reactive part (Å, eV)."""
 
     # ring closure along r_a: Morse well of the new bond, a barrier bump, a soft spring holding the open chain
-    d_a: float = 0.9
+    d_a: float = 0.8
     alpha_a: float = 1.9
     r0_a: float = 1.54
-    bump: float = 0.9
+    bump: float = 0.8
     bump_at: float = 2.65
-    bump_width: float = 0.9
-    k_open: float = 1.3
+    bump_width: float = 1.1
+    k_open: float = 1.8
     open_at: float = 3.2
     # switch s(r_a) turning the three-centre term on as the ring closes
     switch_at: float = 2.05
@@ -141,6 +157,46 @@ def _pair_arrays(pairs):
     return idx, k
 
 
+def dihedral_angles(x: np.ndarray, quads: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Dihedral angles (rad) of atom quadruples and their gradients.
+
+    ``x`` is ``(..., N, 3)``, ``quads`` ``(Q, 4)``; returns ``phi (..., Q)`` in (-pi, pi] and
+    ``dphi/dx (..., Q, 4, 3)`` for the four atoms of each quadruple (the usual analytic formula:
+    Blondel and Karplus, J. Comput. Chem. 17 (1996) 1132, from memory; checked in the tests
+    against central differences and against ``ase.Atoms.get_dihedral``).
+    """
+    b1 = x[..., quads[:, 1], :] - x[..., quads[:, 0], :]
+    b2 = x[..., quads[:, 2], :] - x[..., quads[:, 1], :]
+    b3 = x[..., quads[:, 3], :] - x[..., quads[:, 2], :]
+    n1 = np.cross(b1, b2)
+    n2 = np.cross(b2, b3)
+    nb2 = np.sqrt(np.einsum("...i,...i->...", b2, b2))
+    phi = np.arctan2(nb2 * np.einsum("...i,...i->...", b1, n2), np.einsum("...i,...i->...", n1, n2))
+    n1sq = np.einsum("...i,...i->...", n1, n1)
+    n2sq = np.einsum("...i,...i->...", n2, n2)
+    gi = (-nb2 / n1sq)[..., None] * n1
+    gl = (nb2 / n2sq)[..., None] * n2
+    f1 = (np.einsum("...i,...i->...", b1, b2) / nb2**2)[..., None]
+    f3 = (np.einsum("...i,...i->...", b3, b2) / nb2**2)[..., None]
+    gj = f3 * gl - (1 + f1) * gi
+    gk = f1 * gi - (1 + f3) * gl
+    return phi, np.stack([gi, gj, gk, gl], axis=-2)
+
+
+def _sin2_angle(x: np.ndarray, i: np.ndarray, j: np.ndarray, k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """sin^2 of the angle i-j-k (..., Q) and its gradient (..., Q, 3, 3) for atoms i, j, k."""
+    u = x[..., i, :] - x[..., j, :]
+    v = x[..., k, :] - x[..., j, :]
+    nu = np.sqrt(np.einsum("...i,...i->...", u, u))[..., None]
+    nv = np.sqrt(np.einsum("...i,...i->...", v, v))[..., None]
+    c = np.einsum("...i,...i->...", u, v)[..., None] / (nu * nv)
+    dcdu = (v / nv - c * u / nu) / nu
+    dcdv = (u / nu - c * v / nv) / nv
+    g = -2 * c
+    gi, gk = g * dcdu, g * dcdv
+    return (1 - c**2)[..., 0], np.stack([gi, -(gi + gk), gk], axis=-2)
+
+
 @dataclass
 class Surface:
     """The model surface: evaluate energy and forces for one or many geometries."""
@@ -150,10 +206,15 @@ class Surface:
     def __post_init__(self) -> None:
         ref = reference_geometry()
         self.reference = ref
-        springs = _BONDS + _ANGLES + _TORSIONS
+        springs = _ANGLES + _TORSIONS
         self._spr_idx, self._spr_k = _pair_arrays(springs)
         d = ref[self._spr_idx[:, 0]] - ref[self._spr_idx[:, 1]]
         self._spr_r0 = np.linalg.norm(d, axis=1)
+        self._bond_idx, bond_k = _pair_arrays(_BONDS)
+        self._bond_r0 = np.linalg.norm(ref[self._bond_idx[:, 0]] - ref[self._bond_idx[:, 1]], axis=1)
+        self._bond_d = np.array([_BOND_DEPTH[frozenset((SYMBOLS[i], SYMBOLS[j]))] for i, j in self._bond_idx])
+        self._bond_a = np.sqrt(bond_k / (2 * self._bond_d))
+        springs = _BONDS + springs
         taken = {tuple(sorted(p)) for p, _ in springs}
         taken |= {tuple(sorted(p)) for p in (PAIR_A, PAIR_B, PAIR_C)}
         rep = [(i, j) for i in range(N_ATOMS) for j in range(i + 1, N_ATOMS) if (i, j) not in taken]
@@ -164,6 +225,9 @@ class Surface:
         self._dif_k = np.array([k for _, k in _DIFFERENCES])
         dist = lambda idx: np.linalg.norm(ref[idx[:, 0]] - ref[idx[:, 1]], axis=1)  # noqa: E731
         self._dif_rest = dist(self._dif_p) - dist(self._dif_q)
+        self._dih_idx = np.array([q for q, _ in _DIHEDRALS], dtype=np.intp)
+        self._dih_k = np.array([k for _, k in _DIHEDRALS])
+        self._dih_ref = dihedral_angles(ref, self._dih_idx)[0]
 
     # --- reactive part as a function of (a, b, c) ------------------------------------------
     def reactive(self, a, b, c):
@@ -225,6 +289,13 @@ class Surface:
                     forces[..., atom, :] -= f[..., minus, :].sum(axis=-2)
             return e.sum(axis=-1)
 
+        dm, am, rm = self._bond_d, self._bond_a, self._bond_r0
+
+        def morse(r):
+            e = np.exp(-am * (r - rm))
+            return dm * (1 - e) ** 2, 2 * dm * am * e * (1 - e)
+
+        energy += add_pairs(self._bond_idx, morse)
         k, r0 = self._spr_k, self._spr_r0
         energy += add_pairs(self._spr_idx, lambda r: (0.5 * k * (r - r0) ** 2, k * (r - r0)))
         pa, rho = self.params.rep_a, self.params.rep_rho
@@ -245,6 +316,8 @@ class Surface:
                 forces[..., i, :] += f[..., n, :]
                 forces[..., j, :] -= f[..., n, :]
 
+        energy += self._torsions(x, forces)
+
         idx = np.array([PAIR_A, PAIR_B, PAIR_C], dtype=np.intp)
         d = x[..., idx[:, 0], :] - x[..., idx[:, 1], :]
         r = np.sqrt(np.einsum("...i,...i->...", d, d))
@@ -255,6 +328,31 @@ class Surface:
             forces[..., idx[n, 0], :] += f
             forces[..., idx[n, 1], :] -= f
         return energy, forces
+
+    def _torsions(self, x: np.ndarray, forces: np.ndarray) -> np.ndarray:
+        """k (1 - cos(phi - phi_ref)) sin^2(theta1) sin^2(theta2) for each dihedral; adds its forces.
+
+        The sin^2 weights of the two bond angles make the term vanish smoothly where a dihedral is
+        undefined (three atoms in a line), so a hot run passing near such a geometry meets no
+        singular force (the plain 1 - cos form has gradients growing as 1 / sin(theta) there).
+        """
+        q = self._dih_idx
+        phi, grads = dihedral_angles(x, q)
+        dphi = phi - self._dih_ref
+        k = self._dih_k
+        base = k * (1 - np.cos(dphi))
+        w1, g1 = _sin2_angle(x, q[:, 0], q[:, 1], q[:, 2])
+        w2, g2 = _sin2_angle(x, q[:, 1], q[:, 2], q[:, 3])
+        dedphi = (k * np.sin(dphi) * w1 * w2)[..., None]
+        a1 = (base * w2)[..., None]
+        a2 = (base * w1)[..., None]
+        for n, quad in enumerate(q):  # a loop: an atom may sit in several quadruples
+            for m in range(4):
+                forces[..., quad[m], :] -= dedphi[..., n, :] * grads[..., n, m, :]
+            for m in range(3):
+                forces[..., quad[m], :] -= a1[..., n, :] * g1[..., n, m, :]
+                forces[..., quad[m + 1], :] -= a2[..., n, :] * g2[..., n, m, :]
+        return (base * w1 * w2).sum(axis=-1)
 
     def energy(self, positions: np.ndarray) -> np.ndarray:
         return self.energy_forces(positions)[0]
