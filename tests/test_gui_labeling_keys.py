@@ -183,3 +183,10 @@ def test_shortcut_help_says_where_keys_act(win):
     keys = {dlg.table.item(r, 1).text(): dlg.table.item(r, 2).text() for r in range(dlg.table.rowCount())}
     assert keys["Go to Run…"] == "Ctrl+G"
     dlg.close()
+
+
+def test_a_number_key_without_a_label_says_so(win, root):
+    win.molecule.setFocus()
+    QTest.keyClick(win.molecule, Qt.Key.Key_8)     # the toy rules give six labels
+    assert journal_events(root) == [] and win.label_panel.pending is None
+    assert "No label on key 8" in win.statusBar().currentMessage()

@@ -709,8 +709,15 @@ class MainWindow(QMainWindow):
     def keyPressEvent(self, event) -> None:  # noqa: N802
         """A number key that reached the window itself: focus is outside the viewer, so say where it works."""
         if not (event.modifiers() & ~Qt.KeyboardModifier.KeypadModifier) and Qt.Key.Key_1 <= event.key() <= Qt.Key.Key_9:
-            self.statusBar().showMessage("Number keys label the run only while the run table, molecule or traces "
-                                         "have the focus: click one of them first.", 6000)
+            focus = QApplication.focusWidget()
+            n = len(self.label_panel.label_actions)
+            if focus is not None and any(w is focus or w.isAncestorOf(focus) for w in self.viewer_widgets):
+                k = int(event.key()) - int(Qt.Key.Key_0)
+                text = f"No label on key {k}: the rules give {n} labels (keys 1–{min(n, 9)})."
+            else:
+                text = ("Number keys label the run only while the run table, molecule or traces have the focus: "
+                        "click one of them first.")
+            self.statusBar().showMessage(text, 6000)
             event.accept()
             return
         super().keyPressEvent(event)
