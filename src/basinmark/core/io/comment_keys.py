@@ -74,9 +74,17 @@ class TextColumn(Sequence):
 
 
 def as_text(value) -> str:
-    """A parsed value as the text kept for it: booleans T/F, lists space-separated (rows by '; ')."""
+    """A parsed value as the text kept for it: booleans T/F, lists space-separated (rows by '; ').
+
+    A number is written as its float (``0`` -> ``0.0``) whether it was read as a whole number or
+    not: a key that mixes numbers and text is stored as text, and a file read in pieces sees a
+    piece of numbers alone (stored as floats) before the text turns up, so only the float form gives
+    the same text both ways.
+    """
     if isinstance(value, (bool, np.bool_)):
         return "T" if value else "F"
+    if isinstance(value, (int, np.integer)):
+        return repr(float(value))
     if isinstance(value, float):
         return repr(value)
     if isinstance(value, np.ndarray):

@@ -226,6 +226,7 @@ class _FrameReader:
         self.warnings: list[str] = []
         self.line = 0  # file lines before the text not yet parsed
         self.n: int | None = None
+        self.count_line = b""
         self.cols: list[_Column] | None = None
         self.parts: list[_Part] = []
         self.at_start = True
@@ -268,6 +269,7 @@ class _FrameReader:
             first = buf if eol < 0 else buf[:eol]
             _check_text(first, self.path, self.line)
             self.n = _atom_count(first, self.path, self.line + 1)
+            self.count_line = first
         if final:
             if buf.strip() or not self.parts:
                 self._parse(buf, final=True)
@@ -312,7 +314,9 @@ class _FrameReader:
             return data.split(b"\n")[:end]
 
         n = self.n
-        first = line(0)
+        # every frame's count line is compared with the file's first one, not with this piece's first
+        # line: a piece may start at a damaged count line, which must not become the yardstick
+        first = self.count_line
         where = _Where(path, base, n + 2, n)
         stride = n + 2
         n_full, rem = divmod(n_total, stride)
