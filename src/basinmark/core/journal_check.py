@@ -186,7 +186,8 @@ def check(lines: list[bytes], tail: bytes = b"", *, head: tuple[int, str] | None
                 if i and raw == lines[i - 1]:
                     add(Problem(n, seq, "repeated", "this line repeats the one before it (a duplicated event)"))
                 elif (last_followed and before is not None and before[0] == i - 2 and before[1] is not None
-                      and seq == before[1] + 1 and prev in before[2] and not _next_follows(lines, i, last)):
+                      and seq == before[1] + 1 and prev in before[2] and not _next_follows(lines, i, last)
+                      and not _is_head(events[i - 1], head, i + 1 == len(lines))):
                     # the event two lines up is followed by this one: the line between is the intruder
                     add(Problem(n - 1, _int(events[i - 1].get("seq")) if events[i - 1] else None, "inserted",
                                 "this event was inserted: the events before and after it follow each other "
@@ -215,6 +216,12 @@ def check(lines: list[bytes], tail: bytes = b"", *, head: tuple[int, str] | None
     res.good_lines = max(0, min(res.good_lines, len(lines)))
     problems.sort(key=lambda p: len(lines) + 2 if p.line is None else p.line)
     return res
+
+
+def _is_head(ev: dict | None, head: tuple[int, str] | None, at_end: bool) -> bool:
+    """Whether ``ev``, the second-last line, is the event the head file records while the last line competes
+    with it for the same place: then the last line, not ``ev``, is the one added (nothing follows to decide)."""
+    return at_end and head is not None and ev is not None and ev.get("hash") == head[1]
 
 
 def _next_follows(lines: list[bytes], i: int, last: tuple) -> bool:
