@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtCore import QByteArray, QSettings, Qt, Signal
-from PySide6.QtGui import QKeySequence
+from PySide6.QtCore import QByteArray, QSettings, QSize, Qt, Signal
+from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, QMainWindow, QMenu, QMenuBar, QMessageBox,
                                QProgressBar, QToolBar, QToolButton, QVBoxLayout, QWidget)
 
@@ -60,9 +60,10 @@ class MainWindow(QMainWindow):
         self.failure_dialog: FailuresDialog | None = None
         self.init_offer = None  # the offer to propose rules, for a folder without any
         self._messages: dict[str, str] = {}
+        self._default_state: QByteArray | None = None
         self.setWindowTitle("basinmark")
         self.setAcceptDrops(True)
-        self.resize(1400, 900)
+        self.resize(self._fitted_size())
 
         self.playback = PlaybackController(self.state, self)
         self.actions_ = build_actions(self, self._slots())
@@ -132,6 +133,10 @@ class MainWindow(QMainWindow):
             self.addDockWidget(area, dock)
             self.docks[name] = dock
         self.splitDockWidget(self.docks["runs"], self.docks["label"], Qt.Orientation.Vertical)
+        self._first_dock_sizes()
+
+    def _first_dock_sizes(self) -> None:
+        """Run table over label panel about 2:1; table and traces about equal."""
         self.resizeDocks([self.docks["runs"], self.docks["traces"]], [480, 520], Qt.Orientation.Horizontal)
         self.resizeDocks([self.docks["runs"], self.docks["label"]], [560, 260], Qt.Orientation.Vertical)
 
@@ -168,6 +173,12 @@ class MainWindow(QMainWindow):
         m.addSeparator()
         for dock in self.docks.values():
             m.addAction(dock.toggleViewAction())
+        reset = QAction("Reset &Layout", self)
+        reset.setObjectName("action_reset_layout")
+        reset.setToolTip("Put every panel back in its first place and close the analysis tabs")
+        reset.triggered.connect(self.reset_layout)
+        self.actions_["reset_layout"] = reset
+        m.addAction(reset)
         m = bar.addMenu("&Help")
         m.addAction(a["shortcuts"])
         m.addAction(a["about"])
@@ -254,9 +265,41 @@ class MainWindow(QMainWindow):
         self.label_panel.labeled.connect(self._after_label)
         self.label_panel.labeler_changed.connect(self._labeler_chosen)
 
+    # --- layout ---------------------------------------------------------------------------
+    def _fitted_size(self) -> QSize:
+        """1400×900, or less where the screen (less its task bars) is smaller.
+
+        Offscreen (tests, batch exports) there is no real screen to fit, only a nominal 800×600 one: the
+        window keeps 1400×900 there so that exports and tests see the usual layout."""
+        screen = self.screen() or QApplication.primaryScreen()
+        if screen is None or QApplication.platformName() == "offscreen":
+            return QSize(1400, 900)
+        avail = screen.availableGeometry()
+        return QSize(min(1400, avail.width()), min(900, avail.height()))
+
+    def reset_layout(self) -> None:
+        """Every dock back where it started (docked, core panels shown, analysis tabs closed), traces in front,
+        and the window fitted to its screen."""
+        for dock in self.docks.values():
+            dock.setFloating(False)
+        if self._default_state is not None:
+            self.restoreState(self._default_state)
+        for name, dock in self.docks.items():
+            dock.setVisible(name in ("runs", "traces", "label", "map"))
+        if "traces" in self.docks:
+            self.docks["traces"].raise_()
+        if not self.isMaximized() and not self.isFullScreen():
+            self.resize(self._fitted_size())
+        self._first_dock_sizes()
+        self.statusBar().showMessage("Layout reset.", 4000)
+
     # --- settings -------------------------------------------------------------------------
     def restore_layout(self) -> None:
-        """Window geometry, dock layout and energy unit from the settings (again after adding docks)."""
+        """Window geometry, dock layout and energy unit from the settings (again after adding docks).
+
+        The layout before restoring (every dock added so far, in its first place) is what Reset Layout
+        returns to."""
+        self._default_state = self.saveState()
         geo = self.settings.value("window/geometry")
         if isinstance(geo, QByteArray) and not geo.isEmpty():
             self.restoreGeometry(geo)

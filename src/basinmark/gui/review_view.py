@@ -524,14 +524,9 @@ def install_review_dock(window) -> QDockWidget:
     """Add the Review dock (tabbed with the traces, hidden at first) and its menu actions."""
     reviewer = getattr(getattr(window, "label_panel", None), "labeler_name", "") or ""
     panel = ReviewPanel(window.state, window, reviewer=reviewer)
-    dock = QDockWidget("Review", window)
-    dock.setObjectName("dock_review")
-    dock.setWidget(panel)
-    window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock)
-    traces = getattr(window, "docks", {}).get("traces")
-    if traces is not None:
-        window.tabifyDockWidget(traces, dock)
-    dock.hide()
+    from basinmark.gui.analysis_area import add_analysis_dock
+
+    dock = add_analysis_dock(window, "review", "Review", panel)
     panel.message.connect(lambda text: window.statusBar().showMessage(text, 6000))
     def on_labels() -> None:
         # people who label in this session appear as sources at once (while the dock shows; else on show)

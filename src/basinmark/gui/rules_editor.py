@@ -698,14 +698,9 @@ def install_rules_editor(window) -> QDockWidget:
     """Add the Rules dock, File ▸ Save Rules, Analysis ▸ Edit Rules, Labels ▸ Record Automatic Labels, and
     route dragged threshold lines through the editor (debounced, cancellable background re-classification)."""
     editor = RulesEditor(window.state, window)
-    dock = QDockWidget("Rules", window)
-    dock.setObjectName("dock_rules")
-    dock.setWidget(editor)
-    window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock)
-    traces = getattr(window, "docks", {}).get("traces")
-    if traces is not None:
-        window.tabifyDockWidget(traces, dock)
-    dock.hide()
+    from basinmark.gui.analysis_area import add_analysis_dock
+
+    dock = add_analysis_dock(window, "rules", "Rules", editor)
     editor.message.connect(lambda text: window.statusBar().showMessage(text, 8000))
 
     traces_view = getattr(window, "traces", None)

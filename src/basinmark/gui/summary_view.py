@@ -751,18 +751,13 @@ class SummaryPanel(QWidget):
 
 
 def install_summary_dock(window: QMainWindow) -> QDockWidget:
-    """Add the summary as a dock (bottom, hidden until asked for) with its toggle in the View menu."""
+    """Add the summary as a tab of the analysis area (hidden until asked for) with its toggle in the View menu."""
+    from basinmark.gui.analysis_area import add_analysis_dock
     from basinmark.gui.map_view import _menu
 
     panel = SummaryPanel(window.state, window)
-    dock = QDockWidget("Summary", window)
-    dock.setObjectName("dock_summary")
-    dock.setWidget(panel)
-    window.addDockWidget(Qt.DockWidgetArea.BottomDockWidgetArea, dock)
-    dock.hide()
+    dock = add_analysis_dock(window, "summary", "Summary", panel)
     docks = getattr(window, "docks", None)
-    if isinstance(docks, dict):
-        docks["summary"] = dock
     window.summary_panel = panel
 
     def show_runs(run_ids: tuple, caption: str) -> None:
@@ -778,6 +773,7 @@ def install_summary_dock(window: QMainWindow) -> QDockWidget:
 
     panel.show_runs.connect(show_runs)
     act = dock.toggleViewAction()
+    act.triggered.connect(lambda checked: dock.raise_() if checked else None)
     act.setText("S&ummary")
     act.setShortcut("Ctrl+Shift+M")
     act.setToolTip("Counts, product ratio with its interval, TST comparison, convergence and timings "

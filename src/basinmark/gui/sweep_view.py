@@ -319,14 +319,9 @@ class SweepView(QWidget):
 def install_sweep_dock(window) -> QDockWidget:
     """Add the Sensitivity dock (tabbed with the traces, hidden at first) and Analysis ▸ Threshold Sensitivity."""
     view = SweepView(window.state, window)
-    dock = QDockWidget("Sensitivity", window)
-    dock.setObjectName("dock_sensitivity")
-    dock.setWidget(view)
-    window.addDockWidget(Qt.DockWidgetArea.RightDockWidgetArea, dock)
-    traces = getattr(window, "docks", {}).get("traces")
-    if traces is not None:
-        window.tabifyDockWidget(traces, dock)
-    dock.hide()
+    from basinmark.gui.analysis_area import add_analysis_dock
+
+    dock = add_analysis_dock(window, "sensitivity", "Sensitivity", view)
     show = dock.toggleViewAction()
     show.setText("Threshold &Sensitivity")
     show.setShortcut(QKeySequence("Ctrl+Shift+Y"))
