@@ -194,9 +194,12 @@ def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame
     """Labels ordered as the set's runs (unlabelled runs added with no label), plus notes."""
     notes = []
     labels = labels.drop_duplicates("run", keep="last").set_index("run", drop=False)
-    known = [r for r in run_ids if r in labels.index]
-    missing = [r for r in run_ids if r not in labels.index]
-    gone = [r for r in labels.index if r not in set(run_ids)]
+    # one hashed membership test per side (linear in runs + labels; sets of 10^5 runs are ordinary)
+    ids = pd.Index(list(run_ids))
+    has_label = ids.isin(labels.index)
+    known = list(ids[has_label])
+    missing = list(ids[~has_label])
+    gone = list(labels.index[~labels.index.isin(ids)])
     parts = [labels.loc[known]]
     if missing:
         parts.append(pd.DataFrame({"run": missing, "final_label": [None] * len(missing)}))
