@@ -13,10 +13,9 @@ import hashlib
 import os
 import re
 import tempfile
-import threading
 import warnings
 from collections import Counter
-from concurrent.futures import ThreadPoolExecutor, as_completed
+from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor, as_completed
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Iterator
@@ -120,6 +119,7 @@ class _Half:
     problems: list
     keys: list = field(default_factory=list)  # numeric comment keys the file carries
     recipe: dict = field(default_factory=dict)  # which key gave which value (part of the run's reading hash)
+    content_sha256: str = ""  # of the decompressed file, from the reader's own pass ("" when it gave none)
 
 
 def _read_half(path: Path, layout: SetLayout) -> _Half:
@@ -156,7 +156,8 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
         if kinetic is not None:
             energies["kinetic"] = kinetic
             recipe["kinetic_key"] = "(momenta)"
-    return _Half(block.numbers, positions, times, energies, list(block.warnings), sorted(block.info), recipe)
+    return _Half(block.numbers, positions, times, energies, list(block.warnings), sorted(block.info), recipe,
+                 getattr(block, "content_sha256", ""))
 
 
 def no_energy_note(keys) -> str:
@@ -232,7 +233,7 @@ def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
         elif times.size > 1 and float(np.min(np.abs(times))) > 0.5 * float(np.max(np.diff(times))):
             problems.append(f"{spec.joined.name}: t = 0 is not among the times; the frame nearest to it is "
                             "taken as the transition state")
-        sources = (SourceFile(spec.joined, sha(spec.joined), "joined"),)
+        sources = (SourceFile(spec.joined, half.content_sha256 or sha(spec.joined), "joined"),)
         if not half.energies:
             problems.append(no_energy_note(half.keys))
         return Trajectory(spec.run_id, half.numbers, half.positions, times, half.energies,
@@ -274,8 +275,9 @@ def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
                         f"carries no {key} energy and its energy check is incomplete")
     for key in set(bwd.energies) & set(fwd.energies):
         energies[key] = np.concatenate([bwd.energies[key][:0:-1], fwd.energies[key]])
-    sources = (SourceFile(spec.backward, sha(spec.backward), "backward"),
-               SourceFile(spec.forward, sha(spec.forward), "forward"))
+    # the reader hashed the decompressed content as it read it: no second decompression just to hash
+    sources = (SourceFile(spec.backward, bwd.content_sha256 or sha(spec.backward), "backward"),
+               SourceFile(spec.forward, fwd.content_sha256 or sha(spec.forward), "forward"))
     keys = sorted(set(bwd.keys) | set(fwd.keys))
     if not bwd.energies and not fwd.energies:
         problems.append(no_energy_note(keys))
@@ -362,6 +364,16 @@ def _load_one(spec: RunSpec, layout: SetLayout, cache: RunCache | None,
     return traj
 
 
+def _load_or_fail(spec: RunSpec, layout: SetLayout, cache: RunCache | None,
+                  hashes: dict[Path, str] | None) -> Trajectory | LoadFailure:
+    """:func:`_load_one` with its error made a :class:`LoadFailure` where it happens (in a worker process
+    too: our errors' own arguments do not survive the trip back through pickle, a LoadFailure does)."""
+    try:
+        return _load_one(spec, layout, cache, hashes)
+    except Exception as exc:  # collected, never fatal for the set
+        return _failure(spec, exc)
+
+
 def _failure(spec: RunSpec, exc: Exception) -> LoadFailure:
     if isinstance(exc, TrajectoryFileError):
         return LoadFailure(exc.path, str(exc), exc.line)
@@ -381,6 +393,19 @@ def _failure(spec: RunSpec, exc: Exception) -> LoadFailure:
 #: decompression and large array work release the GIL (32 files of 1.5 MB: 0.48 s on one, 0.32 s on two)
 PARALLEL_FROM_BYTES = 256 * 1024
 
+#: from this much stored data on, runs are parsed in a pool of processes, one per core (parsing is mostly
+#: Python and numpy calls that hold the GIL, so threads gain little; processes scale with the cores).
+#: Below it, starting the processes costs more than they save; see bench/bench_scale.py for the crossover.
+PROCESSES_FROM_BYTES = 24 * 1024 * 1024
+
+
+def cores() -> int:
+    """The cores this process may run on (the affinity mask where the system has one)."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return os.cpu_count() or 1
+
 
 def _workers(workers: int | None, plan: SetPlan | None = None) -> int:
     if workers:
@@ -390,6 +415,43 @@ def _workers(workers: int | None, plan: SetPlan | None = None) -> int:
         if sizes and sum(sizes) / len(sizes) < PARALLEL_FROM_BYTES:
             return 1
     return min(4, os.cpu_count() or 2)
+
+
+def _stored_bytes(plan: SetPlan, sample: int = 50) -> float:
+    """The set's stored size, estimated from its first ``sample`` runs (a stat per file of those only)."""
+    if not plan.runs:
+        return 0.0
+    head = plan.runs[:sample]
+    size = 0
+    for spec in head:
+        for p in spec.files:
+            try:
+                size += p.stat().st_size
+            except OSError:
+                pass
+    return size * len(plan.runs) / len(head)
+
+
+def use_processes(plan: SetPlan, workers: int | None = None, processes: bool | None = None) -> bool:
+    """Whether :func:`iter_runs` parses in a process pool: asked for, or (by default) a set large enough
+    to pay for starting one process per core on a machine with more than one core."""
+    if processes is not None:
+        return processes
+    if workers == 1 or cores() < 2 or len(plan.runs) < 2:
+        return False
+    return _stored_bytes(plan) >= PROCESSES_FROM_BYTES
+
+
+def _process_context():
+    """Workers forked from a small server process that has imported the readers once (not from the caller,
+    which may be a window with threads of its own, where forking is unsafe); spawned where there is none."""
+    import multiprocessing as mp
+
+    if "forkserver" in mp.get_all_start_methods():
+        ctx = mp.get_context("forkserver")
+        ctx.set_forkserver_preload(["basinmark.core.sets", "basinmark.core.io"])
+        return ctx
+    return mp.get_context("spawn")
 
 
 def hash_files(plan: SetPlan, workers: int | None = None) -> dict[Path, str]:
@@ -411,25 +473,34 @@ def _safe_sha256(path: Path) -> str | None:
 
 def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = None,
               cancel: Callable[[], bool] | None = None, hashes: dict[Path, str] | None = None,
-              ) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure]]:
-    """Load the runs of a plan in parallel, yielding each as soon as it is ready (any order)."""
+              processes: bool | None = None) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure]]:
+    """Load the runs of a plan in parallel, yielding each as soon as it is ready (any order).
+
+    Large sets are parsed in a pool of processes (one per core, or ``workers``), small ones in threads;
+    ``processes`` forces either (see :func:`use_processes`).  Cancelling drops the runs not yet started
+    and waits only for those under way; the pool never outlives the iteration.
+    """
     cache = RunCache(plan.root, plan.layout) if use_cache else None
-    stop = threading.Event()
-    with ThreadPoolExecutor(max_workers=_workers(workers, plan), thread_name_prefix="basinmark-load") as pool:
-        futures = {pool.submit(_load_one, spec, plan.layout, cache, hashes): spec for spec in plan.runs}
+    if use_processes(plan, workers, processes):
+        pool = ProcessPoolExecutor(max_workers=workers or cores(), mp_context=_process_context())
+    else:
+        pool = ThreadPoolExecutor(max_workers=_workers(workers, plan), thread_name_prefix="basinmark-load")
+    with pool:
+        # each task carries only its own files' hashes (a whole set's table would be pickled per run)
+        futures = {pool.submit(_load_or_fail, spec, plan.layout, cache,
+                               {p: hashes[p] for p in spec.files if p in hashes} if hashes else None): spec
+                   for spec in plan.runs}
         try:
             for fut in as_completed(futures):
                 spec = futures[fut]
                 try:
                     yield spec, fut.result()
-                except Exception as exc:  # collected, never fatal for the set
+                except Exception as exc:  # e.g. a worker process killed (out of memory): that run fails
                     yield spec, _failure(spec, exc)
                 if cancel is not None and cancel():
-                    stop.set()
                     break
         finally:
-            for fut in futures:
-                fut.cancel()
+            pool.shutdown(wait=True, cancel_futures=True)
 
 
 def _single_frame(traj: Trajectory) -> LoadFailure | None:
@@ -533,12 +604,13 @@ def _metadata(plan: SetPlan) -> dict:
 
 def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: bool = True,
              workers: int | None = None, cancel: Callable[[], bool] | None = None,
-             on_run: Callable[[Trajectory], None] | None = None) -> TrajectorySet:
+             on_run: Callable[[Trajectory], None] | None = None, processes: bool | None = None) -> TrajectorySet:
     """Open a set folder: every run that loads, plus a list of what failed and why.
 
     ``progress(done, total, run_id)`` is called after each run; ``cancel()`` returning True
     stops loading (the set then holds what was loaded, and says so in ``warnings``);
-    ``on_run(traj)`` sees each run as soon as it is ready.
+    ``on_run(traj)`` sees each run as soon as it is ready.  Large sets are parsed on every core in a
+    process pool; ``processes`` forces it on or off (see :func:`use_processes`).
     """
     plan = discover(path)
     total = len(plan.runs)
@@ -562,7 +634,8 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
     loaded: dict[str, Trajectory] = {}
     failures = list(plan.failures)
     done = 0
-    for spec, result in iter_runs(plan, use_cache=use_cache, workers=workers, cancel=cancel, hashes=hashes):
+    for spec, result in iter_runs(plan, use_cache=use_cache, workers=workers, cancel=cancel, hashes=hashes,
+                                  processes=processes):
         done += 1
         if isinstance(result, LoadFailure):
             failures.append(result)

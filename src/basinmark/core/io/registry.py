@@ -50,6 +50,7 @@ class FrameBlock:
     frame_lines: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))  # 1-based start line per frame
     sha256: str = ""  # SHA-256 of the file's bytes as stored on disk
     warnings: list[str] = field(default_factory=list)
+    content_sha256: str = ""  # SHA-256 of the decompressed content, when the reader streamed it ("" if not)
 
     @property
     def n_frames(self) -> int:
@@ -168,7 +169,9 @@ def _decoder(kind: str):
 class ByteStream:
     """A file's (decompressed) bytes in pieces of at most ``piece`` bytes, so that a reader never holds it whole.
 
-    Iterate once; afterwards ``sha256`` is the SHA-256 of the stored bytes, ``warnings`` holds what
+    Iterate once; afterwards ``sha256`` is the SHA-256 of the stored bytes, ``content_sha256`` that of the
+    decompressed bytes handed out (as :func:`basinmark.core.content_hash.content_sha256` computes it, so a
+    set's loader need not decompress the file a second time to hash it), ``warnings`` holds what
     :func:`load_bytes` would warn (misnamed compression, data cut short) and ``size``/``produced`` the
     stored and decompressed sizes.  Opening errors and damaged data raise :class:`TrajectoryFileError`.
     """
@@ -177,6 +180,7 @@ class ByteStream:
         self.path = Path(path)
         self.piece = piece or RAW_PIECE
         self.sha256 = ""
+        self.content_sha256 = ""
         self.warnings: list[str] = []
         self.produced = 0
         try:
@@ -202,11 +206,15 @@ class ByteStream:
         return chunk
 
     def __iter__(self):
+        content = hashlib.sha256()
         try:
-            yield from self._pieces()
+            for piece in self._pieces():
+                content.update(piece)
+                yield piece
             while self._read():  # hash whatever was not decompressed (trailing bytes)
                 pass
             self.sha256 = self._hash.hexdigest()
+            self.content_sha256 = content.hexdigest()
         finally:
             self._fh.close()
 

@@ -536,6 +536,8 @@ def read_xyz(path: str | Path, *, dtype=np.float32, chunk_bytes: int = CHUNK_BYT
     try:
         reader = _FrameReader(path, dtype, True, chunk_bytes, comment_format)
         reader.read(iter(stream))
-        return reader.block(stream.sha256, stream.warnings)
+        block = reader.block(stream.sha256, stream.warnings)
+        block.content_sha256 = stream.content_sha256
+        return block
     except MemoryError:
         raise _out_of_memory(path, stream.size, stream.produced) from None
