@@ -395,7 +395,10 @@ PARALLEL_FROM_BYTES = 256 * 1024
 
 #: from this much stored data on, runs are parsed in a pool of processes, one per core (parsing is mostly
 #: Python and numpy calls that hold the GIL, so threads gain little; processes scale with the cores).
-#: Below it, starting the processes costs more than they save; see bench/bench_scale.py for the crossover.
+#: Below it, starting the processes costs more than they save.  Measured on 2 cores at load average 12 (runs
+#: of 12 atoms x 2 x 400 frames, 135 kB gzipped per run, no cache): 5.4 MB: threads 1.3 s, processes 5.3 s;
+#: 16 MB: 4.1 s against 5.3 s; 41 MB: 10.5 s against 6.8 s; the pool's start (a forkserver importing the
+#: readers, then the workers) is most of its cost on a small set.  bench/bench_scale.py times a large set.
 PROCESSES_FROM_BYTES = 24 * 1024 * 1024
 
 
