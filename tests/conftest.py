@@ -14,3 +14,7 @@ from hypothesis import HealthCheck, settings  # noqa: E402
 
 settings.register_profile("ci", deadline=None, suppress_health_check=[HealthCheck.too_slow], max_examples=60)
 settings.load_profile("ci")
+
+# the window asks before losing unsaved rule edits (quit, open another set); tests answer "discard" unless they
+# test the question itself (tests/test_rules_roundtrip_gui.py removes this and patches the message box)
+os.environ.setdefault("BASINMARK_UNSAVED_RULES", "discard")

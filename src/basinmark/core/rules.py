@@ -463,13 +463,25 @@ class Rules:
                       f"form_below = {_num(g.form_below)}", f"concerted_fs = {_num(g.concerted_fs)}"]
         return "\n".join(lines) + "\n"
 
-    def save(self, path: str | Path) -> "Rules":
-        """Write :meth:`to_toml` to ``path``; returns the rules as loaded from it (with path and hash)."""
+    def save(self, path: str | Path, template: str | Path | None = None) -> "Rules":
+        """Write the rules to ``path``; returns the rules as loaded from it (with path and hash).
+
+        The text of ``template`` (default: the file at ``path``, when there is one) is kept: its comments,
+        order and layout, with only the changed values rewritten (:func:`basinmark.core.rules_keep.keep_text`).
+        Without one, or when the rules no longer fit it, :meth:`to_toml` is written; the returned rules then
+        carry a warning saying so.
+        """
         from basinmark.core.atomic_write import write_text_atomic
+        from basinmark.core.rules_keep import keep_text
 
         p = Path(path)
-        write_text_atomic(p, self.to_toml(), what="the rules file")  # whole or not at all; errors name the file
-        return load_rules(p)
+        src = Path(template) if template is not None else p
+        text, why = self.to_toml(), ""
+        if src.is_file():
+            text, why = keep_text(src.read_text(encoding="utf-8-sig"), self)
+        write_text_atomic(p, text, what="the rules file")  # whole or not at all; errors name the file
+        out = load_rules(p)
+        return replace(out, warnings=out.warnings + (f"{p}: {why}",)) if why else out
 
 
 # --- TOML writing helpers ------------------------------------------------------------------------

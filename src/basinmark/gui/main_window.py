@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 from PySide6.QtCore import QByteArray, QSettings, QSize, Qt, Signal
@@ -14,6 +15,7 @@ from basinmark.core.errors import BasinmarkError
 from basinmark.core.journal import JournalError, JournalLockedError, LabelJournal, default_labeler
 from basinmark.core.labels import all_labels
 from basinmark.core.model import TrajectorySet
+from basinmark.core.rules_keep import round_as_shown
 from basinmark.core.sets import journal_path, rules_path
 from basinmark.gui import labeler as labeler_dialog
 from basinmark.gui.actions import build_actions, viewer_actions
@@ -339,7 +341,50 @@ class MainWindow(QMainWindow):
             act.triggered.connect(lambda _c=False, path=p: self.open_set(path))
         self.recent_menu.setEnabled(bool(recent))
 
+    # --- unsaved rule edits ----------------------------------------------------------------
+    def rules_unsaved(self) -> bool:
+        """True when the rules in force were edited here (a dragged threshold, the editor) and not saved."""
+        rules = self.state.rules
+        return rules is not None and getattr(rules, "path", None) is None and self.state.tset is not None
+
+    def _rules_home(self) -> Path | None:
+        editor = getattr(self, "rules_editor", None)
+        if editor is not None and editor.file_path is not None:
+            return Path(editor.file_path)
+        return rules_path(self.state.tset.root) if self.state.tset is not None else None
+
+    def keep_or_drop_rules(self, doing: str) -> bool:
+        """Before ``doing`` (quitting, opening another set or rules file) with unsaved rule edits, ask: Save
+        (then go on if the save worked), Discard (go on) or Cancel (stay).  True means go on.
+
+        BASINMARK_UNSAVED_RULES=discard|save answers without asking (scripted sessions and the test suite)."""
+        if not self.rules_unsaved():
+            return True
+        answer = os.environ.get("BASINMARK_UNSAVED_RULES", "").strip().lower()
+        if answer not in ("save", "discard"):
+            home = self._rules_home()
+            where = f" to {home.name}" if home is not None else ""
+            button = QMessageBox.question(
+                self, "Unsaved rule changes",
+                f"The rules were changed here and not saved. Save them{where} before {doing}?",
+                QMessageBox.StandardButton.Save | QMessageBox.StandardButton.Discard
+                | QMessageBox.StandardButton.Cancel, QMessageBox.StandardButton.Save)
+            answer = {QMessageBox.StandardButton.Save: "save",
+                      QMessageBox.StandardButton.Discard: "discard"}.get(button, "cancel")
+        if answer == "discard":
+            return True
+        if answer == "save":
+            editor = getattr(self, "rules_editor", None)
+            if editor is not None:
+                return editor.save()
+            home = self._rules_home()
+            return self.save_rules_as(home) if home is not None else self.save_rules_as()
+        return False
+
     def closeEvent(self, event) -> None:  # noqa: N802
+        if not self.keep_or_drop_rules("quitting"):
+            event.ignore()
+            return
         self.playback.pause()
         if self.job is not None:
             self.job.wait(5000)
@@ -360,11 +405,16 @@ class MainWindow(QMainWindow):
             return
         path, _ = QFileDialog.getOpenFileName(self, "Open a rules file", str(self.state.tset.root),
                                               "Rules (*.toml);;All files (*)")
-        if path:
+        if path and self.keep_or_drop_rules("opening another rules file"):
             self.apply_rules(path)
 
     def open_set(self, path: str | Path, rules_file: str | Path | None = None, *, use_cache: bool = True) -> None:
-        """Start loading a set in the background; the first run shows as soon as it is read."""
+        """Start loading a set in the background; the first run shows as soon as it is read.
+
+        With unsaved rule edits the user is asked first (:meth:`keep_or_drop_rules`); Cancel opens nothing."""
+        if not self.keep_or_drop_rules("opening another set"):
+            self.statusBar().showMessage("Not opened: the rule changes are still unsaved.", 6000)
+            return
         if self.job is not None:
             self.job.cancel()
             self.job.wait(5000)
@@ -398,6 +448,8 @@ class MainWindow(QMainWindow):
             self._on_run(self.state.run_id, keep_view=True)  # put the line back
             return False
         try:
+            if targets and targets[0][1] in rules.monitors:
+                value = round_as_shown(value, rules.monitors[targets[0][1]].kind)
             for basin, monitor, bound in targets:
                 rules = rules.with_threshold(basin, monitor, bound, value)
         except BasinmarkError as exc:
@@ -419,8 +471,9 @@ class MainWindow(QMainWindow):
                                                   "Rules (*.toml)")
             if not path:
                 return False
-        try:
-            saved = rules.save(path)
+        home = self._rules_home()
+        try:  # the chemist's own text (comments, order) is kept: the file the rules came from is the template
+            saved = rules.save(path, template=home if home is not None and home.is_file() else None)
         except (BasinmarkError, OSError) as exc:
             self.statusBar().showMessage(f"Rules not saved: {exc}", 8000)
             return False

@@ -26,6 +26,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QDoubl
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.rules import (MONITOR_KINDS, MONITOR_UNITS, Basin, Condition, FlagLimits, Monitor, Rules,
                                   RulesError, parse_rules)
+from basinmark.core.rules_keep import round_as_shown
 from basinmark.core.units import ENERGY_UNITS
 from basinmark.gui.movie import find_menu
 
@@ -597,6 +598,8 @@ class RulesEditor(QWidget):
         if rules is None:
             return False
         try:
+            if targets and targets[0][1] in rules.monitors:  # a drag's value to the precision shown
+                value = round_as_shown(value, rules.monitors[targets[0][1]].kind)
             for basin, monitor, bound in targets:
                 rules = rules.with_threshold(basin, monitor, bound, value)
         except BasinmarkError as exc:
@@ -648,8 +651,9 @@ class RulesEditor(QWidget):
         target = Path(path) if path is not None else self.file_path
         if target is None:
             return self.save_as()
-        try:
-            saved = rules.save(target)
+        template = self.file_path if self.file_path is not None and Path(self.file_path).is_file() else None
+        try:  # the file the rules came from is the template: its comments, order and layout are kept
+            saved = rules.save(target, template=template)
         except (BasinmarkError, OSError) as exc:
             self._set_error(f"rules not saved: {exc}")
             return False
@@ -660,7 +664,12 @@ class RulesEditor(QWidget):
         self.rules = saved
         self._show_counts()
         self._update_buttons()
-        self.message.emit(f"Rules saved to {target}")
+        lost = [w.split(": ", 1)[-1] for w in saved.warnings if "afresh" in w]
+        if lost:  # said plainly: the chemist's comments did not survive this save
+            self.saved_note.setText(f"Saved, but {lost[0]}.")
+            self.message.emit(f"Rules saved to {target}, but {lost[0]}")
+        else:
+            self.message.emit(f"Rules saved to {target}")
         self.saved.emit(str(target))
         return True
 
