@@ -9,11 +9,12 @@ why, so a save never writes rules other than the ones in force.
 
 from __future__ import annotations
 
-import tomllib
 from typing import Any
 
 import tomlkit
 from tomlkit.exceptions import TOMLKitError
+
+from basinmark.core import toml_text
 
 #: keys the reader fills in when absent, with the value it fills in; absent keys whose value is still the
 #: default stay absent (a save does not add lines the chemist never wrote)
@@ -71,14 +72,14 @@ def keep_text(original: str, rules) -> tuple[str, str]:
     canonical = rules.to_toml()
     try:
         doc = tomlkit.parse(original.lstrip("\ufeff"))
-        tomllib.loads(original.lstrip("\ufeff"))  # tomlkit alone accepts a few texts tomllib rejects
-    except (TOMLKitError, tomllib.TOMLDecodeError, ValueError) as exc:
+        toml_text.loads(original)  # tomlkit alone accepts a few texts the standard reader rejects
+    except (TOMLKitError, toml_text.TomlTextError, ValueError) as exc:
         return canonical, f"the original text could not be read ({exc}); the rules were written afresh"
     defaults = {k: dict(v) for k, v in _DEFAULTS.items()}
     defaults[()]["dwell_fs"] = DEFAULT_DWELL_FS
     defaults[("flags",)]["max_energy_drift"] = DEFAULT_MAX_DRIFT
     defaults[("time_gap",)]["concerted_fs"] = DEFAULT_CONCERTED_FS
-    target = tomllib.loads(canonical)
+    target = toml_text.loads(canonical)
     _sync(doc, target, (), defaults)
     text = tomlkit.dumps(doc)
     try:
