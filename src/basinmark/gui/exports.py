@@ -82,6 +82,20 @@ def export_run(state, path: str | Path) -> Path:
     return report.write_run_xyz(traj, path)
 
 
+def export_run_data(state, path: str | Path, energy_unit: str = "kcal/mol") -> Path:
+    """The current run's time, monitors (the rules' and the added ones), basin of each frame and energies as CSV
+    (:func:`basinmark.core.run_data.run_data_table`)."""
+    from basinmark.core.run_data import run_data_table, write_run_data
+    from basinmark.gui.traces import monitor_name
+
+    traj = state.traj
+    if traj is None:
+        raise NothingToExport("No run is shown: choose a run first.")
+    extra = {monitor_name(m): [a - 1 for a in m] for m in state.user_monitors}
+    table = run_data_table(traj, state.run_result(), state.rules, extra, energy_unit)
+    return write_run_data(table, path)
+
+
 # --- the menu --------------------------------------------------------------------------------
 
 def _ask(window: QMainWindow, title: str, default: str, filters: str) -> str:
@@ -156,6 +170,10 @@ def install_export_menu(window: QMainWindow) -> QMenu:
     add("&Traces Figure…", "The traces of the current run as PNG or SVG",
         lambda: _run(window, "Export the traces", f"{st.run_id or 'run'}-traces.png", FIGURE_FILTER,
                      lambda p: export_figure(_widget(window, "traces", "glw"), p)))
+    add("Run &Data (CSV)…", "The current run's time, monitors, basin of each frame and energies as a CSV table",
+        lambda: _run(window, "Export the run's data", f"{st.run_id or 'run'}-data.csv", "CSV table (*.csv)",
+                     lambda p: export_run_data(st, p, getattr(getattr(window, "traces", None), "energy_unit",
+                                                              "kcal/mol"))))
     menu.addSeparator()
     add("Current F&rame (XYZ)…", "The geometry shown now, as extended XYZ",
         lambda: _run(window, "Export the current frame", f"{st.run_id or 'run'}-frame{st.frame + 1}.xyz",

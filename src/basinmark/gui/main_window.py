@@ -70,7 +70,7 @@ class MainWindow(QMainWindow):
         self.playback = PlaybackController(self.state, self)
         self.actions_ = build_actions(self, self._slots())
         self.molecule = MoleculeView(self)
-        self.traces = TracesView(self)
+        self.traces = TracesView(self, readout=True)
         self.run_table = RunTable(self.state, self)
         self.label_panel = LabelPanel(self.state, self.actions_["undo_label"], self,
                                       labeler_action=self.actions_["change_labeler"])
@@ -660,6 +660,7 @@ class MainWindow(QMainWindow):
 
     def _on_monitors(self) -> None:
         self.molecule.set_highlight_pairs(self._highlight_pairs())
+        self.molecule.set_measures(self.state.user_monitors)  # each added measure's value on the molecule
         self.traces.set_user_monitors(self.state.user_monitors)
 
     def _on_frame(self, frame: int) -> None:

@@ -19,7 +19,7 @@ from PySide6.QtCore import QLineF, QPointF, QRectF, QSize, Qt, Signal
 from PySide6.QtGui import QColor, QFont, QImage, QPainter, QPalette, QPen
 from PySide6.QtWidgets import QSizePolicy, QWidget
 
-from basinmark.core.geometry import bonds_in_frame
+from basinmark.core.geometry import bonds_in_frame, measure
 from basinmark.core.model import Trajectory
 from basinmark.gui.palette import ball_radius, element_colour
 from basinmark.gui.sprites import SpriteCache
@@ -68,6 +68,7 @@ class MoleculeView(QWidget):
         self._picked: list[int] = []          # 0-based
         self._highlight: set[tuple[int, int]] = set()
         self._measure: set[tuple[int, int]] = set()
+        self._values_of: list[tuple[int, ...]] = []  # 0-based atoms of measures whose value is written on the view
         self._bond_cache: dict[int, np.ndarray] = {}
         self._press: QPointF | None = None
         self._last: QPointF | None = None
@@ -127,6 +128,33 @@ class MoleculeView(QWidget):
         self._highlight = {tuple(sorted((int(a), int(b)))) for a, b in pairs}
         self._measure = set(self._highlight)
         self.update()
+
+    def set_measures(self, groups: Iterable[Sequence[int]]) -> None:
+        """Measures (1-based atoms, 2 to 4 each) whose value at the shown frame is written on the molecule."""
+        self._values_of = [tuple(int(a) - 1 for a in g) for g in groups if 2 <= len(g) <= 4]
+        self.update()
+
+    def measure_labels(self, w: float | None = None, h: float | None = None) -> list[tuple[str, float, QPointF]]:
+        """``(text, value, anchor)`` of every measure written on the view at the shown frame: the added
+        monitors, then the picked atoms (two or more).  Values come from core.geometry (Å, degrees)."""
+        traj = self._traj
+        if traj is None:
+            return []
+        xy, _depth = self.project(w, h)
+        n = traj.n_atoms
+        groups = list(self._values_of)
+        if len(self._picked) >= 2 and tuple(self._picked) not in groups:
+            groups.append(tuple(self._picked))
+        out = []
+        for g in groups:
+            if max(g) >= n:
+                continue
+            value = float(measure(traj.positions[self._frame][None], list(g))[0])
+            text = f"{value:.2f} Å" if len(g) == 2 else f"{value:.1f}°"
+            # the middle of the measured bond, the vertex of an angle, the middle of a dihedral's axis
+            at = xy[g[1]] if len(g) == 3 else 0.5 * (xy[g[0]] + xy[g[1]]) if len(g) == 2 else 0.5 * (xy[g[1]] + xy[g[2]])
+            out.append((text, value, QPointF(float(at[0]), float(at[1]))))
+        return out
 
     def set_show_numbers(self, on: bool) -> None:
         self._show_numbers = bool(on)
@@ -315,6 +343,7 @@ class MoleculeView(QWidget):
             for i in order[atom_slab[order] == s].tolist():
                 p.drawPixmap(QPointF(*corners[i]), pixes[i])
         self._paint_picks(p, xy, diam, highlight)
+        self._paint_measure_values(p, xy, w, h, highlight)
         if self._show_numbers:
             self._paint_numbers(p, xy, diam, n)
         self._paint_caption(p, w, h)
@@ -386,6 +415,34 @@ class MoleculeView(QWidget):
             if i < len(xy):
                 r = diam[i] / 2 + 4
                 p.drawEllipse(QPointF(*xy[i]), r, r)
+
+    def _paint_measure_values(self, p: QPainter, xy: np.ndarray, w: int, h: int, highlight: QColor) -> None:
+        labels = self.measure_labels(w, h)
+        if not labels:
+            return
+        # the picked chain as a thin dashed path (added distances already have their dashed line)
+        if len(self._picked) >= 2:
+            pts = [xy[i] for i in self._picked if i < len(xy)]
+            p.setPen(QPen(highlight, 1.2, Qt.PenStyle.DashLine))
+            p.drawLines([QLineF(*a, *b) for a, b in zip(pts[:-1], pts[1:])])
+        pal = self.palette()
+        font = QFont(self.font())
+        font.setBold(True)
+        p.setFont(font)
+        fm = p.fontMetrics()
+        fg, bg = pal.color(QPalette.ColorRole.Text), QColor(pal.color(QPalette.ColorRole.Base))
+        bg.setAlpha(215)
+        taken: list[QRectF] = []
+        for text, _v, at in labels:
+            rect = QRectF(at.x() + 6, at.y() - fm.height() - 4, fm.horizontalAdvance(text) + 8, fm.height() + 2)
+            while any(rect.intersects(r) for r in taken):  # two values never print over each other
+                rect.translate(0, fm.height() + 3)
+            taken.append(rect)
+            p.fillRect(rect, bg)
+            p.setPen(QPen(highlight, 1))
+            p.drawRect(rect)
+            p.setPen(fg)
+            p.drawText(rect, Qt.AlignmentFlag.AlignCenter, text)
 
     def _paint_numbers(self, p: QPainter, xy: np.ndarray, diam: np.ndarray, n: int) -> None:
         pal = self.palette()

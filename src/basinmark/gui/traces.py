@@ -11,13 +11,14 @@ values come from the classification, added monitors from core.geometry.
 
 from __future__ import annotations
 
+import html
 from typing import Any, Sequence
 
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor, QPalette
-from PySide6.QtWidgets import QLabel, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
 from basinmark.core.classify import signed_commit_time
 from basinmark.core.geometry import measure
@@ -26,6 +27,10 @@ from basinmark.core.units import energy_factor
 from basinmark.gui.colours import basin_colour, trace_colour
 
 _KIND = {2: "distance", 3: "angle", 4: "dihedral"}
+
+
+#: the drift panel's curve: total energy minus its value at t = 0, on its own axis
+DRIFT = "ΔE_total drift"
 
 
 def monitor_name(atoms: Sequence[int]) -> str:
@@ -40,7 +45,8 @@ class TracesView(QWidget):
     time_scrubbed = Signal(float)
     threshold_moved = Signal(list, float)   # [(basin, monitor, "below" | "above")], new value
 
-    def __init__(self, parent: QWidget | None = None) -> None:
+    def __init__(self, parent: QWidget | None = None, *, readout: bool = False) -> None:
+        """``readout``: show every trace's value at the cursor beside the plots (the window's traces do)."""
         super().__init__(parent)
         self.energy_unit = "kcal/mol"
         self.curves: dict[str, pg.PlotDataItem] = {}
@@ -55,6 +61,9 @@ class TracesView(QWidget):
         self._updating = False
         self._time = 0.0
         self.thresholds_editable = True
+        self.hidden: set[str] = set()   # traces switched off from the legend (kept across runs)
+        self.units: dict[str, str] = {}  # unit of each trace, for the readout
+        self.drift_curve: pg.PlotDataItem | None = None  # E_total - E_total(t=0) on the drift panel
 
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
@@ -70,17 +79,38 @@ class TracesView(QWidget):
         self.legend.setTextFormat(Qt.TextFormat.RichText)
         self.legend.setWordWrap(True)
         self.legend.setContentsMargins(8, 2, 8, 2)
+        self.legend.setToolTip("Click a name to hide or show its trace")
+        self.legend.linkActivated.connect(self._legend_clicked)
         lay.addWidget(self.legend)
+        row = QHBoxLayout()
+        row.setContentsMargins(0, 0, 0, 0)
+        row.setSpacing(0)
+        lay.addLayout(row, 1)
         self.glw = pg.GraphicsLayoutWidget(self)
-        lay.addWidget(self.glw, 1)
+        row.addWidget(self.glw, 1)
+        # every trace's value at the cursor, with units, beside the plots
+        self.readout = QLabel(self)
+        self.readout.setObjectName("traceReadout")
+        self.readout.setTextFormat(Qt.TextFormat.RichText)
+        self.readout.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
+        self.readout.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        self.readout.setContentsMargins(6, 6, 6, 6)
+        self.readout.setWordWrap(True)
+        self.readout.setFixedWidth(150)  # narrow: the plots keep the width on a laptop screen
+        row.addWidget(self.readout)
+        self.readout.setVisible(readout)
         self.p_dist = self.glw.addPlot(row=0, col=0)
         self.p_angle = self.glw.addPlot(row=1, col=0)
         self.p_band = self.glw.addPlot(row=2, col=0)
         self.p_energy = self.glw.addPlot(row=3, col=0)
-        self.plots = (self.p_dist, self.p_angle, self.p_band, self.p_energy)
+        # the total energy's deviation from t = 0 on its own axis: a drift of a few kcal/mol stays visible
+        # beside kinetic and potential swings of hundreds
+        self.p_drift = self.glw.addPlot(row=4, col=0)
+        self.plots = (self.p_dist, self.p_angle, self.p_band, self.p_energy, self.p_drift)
         self.p_dist.setLabel("left", "distance", units="Å")
         self.p_angle.setLabel("left", "angle", units="°")
-        self.p_energy.setLabel("bottom", "time", units="fs")
+        self.p_drift.setLabel("bottom", "time", units="fs")
+        self.p_drift.setMaximumHeight(110)
         self.p_band.setMaximumHeight(38)
         self.p_band.hideAxis("left")
         self.p_band.setMouseEnabled(x=True, y=False)
@@ -91,7 +121,7 @@ class TracesView(QWidget):
             p.getAxis("left").setWidth(58)
             if p is not self.p_dist:
                 p.setXLink(self.p_dist)
-            if p is not self.p_energy:
+            if p is not self.p_drift:
                 p.getAxis("bottom").setStyle(showValues=False)
         self.p_band.getAxis("left").setWidth(58)
         self.p_band.showAxis("left")
@@ -149,7 +179,7 @@ class TracesView(QWidget):
 
     def redraw(self, keep_view: bool = False) -> None:
         """Rebuild every item; ``keep_view`` keeps the zoom (else the whole run is shown)."""
-        for p in (self.p_dist, self.p_angle, self.p_band, self.p_energy):
+        for p in self.plots:
             for item in list(p.listDataItems()):
                 p.removeItem(item)
         for line in self.threshold_lines + list(self.marks.values()):
@@ -160,6 +190,7 @@ class TracesView(QWidget):
             self.p_band.removeItem(bar)
         self.curves.clear()
         self.values.clear()
+        self.drift_curve = None
         self.threshold_lines = []
         self.marks = {}
         self.band_items = []
@@ -167,6 +198,8 @@ class TracesView(QWidget):
         if traj is None:
             self.note.setVisible(False)
             self.legend.setText("")
+            self.units.clear()
+            self.readout.setText("")
             return
         self._draw_monitors()
         self._draw_thresholds()
@@ -182,14 +215,69 @@ class TracesView(QWidget):
         self._update_legend()
 
     def _update_legend(self) -> None:
+        """One entry per trace; clicking an entry hides or shows its trace (a hidden one is struck through)."""
+        text = self.palette().color(QPalette.ColorRole.Text).name()
         parts = []
         for name, item in self.curves.items():
             pen = item.opts["pen"]
             colour = pen.color().name() if hasattr(pen, "color") else "#888888"
             dash = hasattr(pen, "style") and pen.style() != Qt.PenStyle.SolidLine
             mark = "╌╌" if dash else "━━"
-            parts.append(f'<span style="color:{colour}"><b>{mark}</b></span>&nbsp;{name}')
+            off = name in self.hidden
+            label = f"<s>{html.escape(name)}</s>" if off else html.escape(name)
+            parts.append(f'<a href="toggle:{html.escape(name)}" style="color:{text}; text-decoration:none">'
+                         f'<span style="color:{colour}"><b>{mark}</b></span>&nbsp;{label}</a>')
         self.legend.setText("&nbsp;&nbsp; ".join(parts))
+
+    def _legend_clicked(self, link: str) -> None:
+        if link.startswith("toggle:"):
+            name = html.unescape(link[len("toggle:"):])
+            self.set_trace_visible(name, name in self.hidden)
+
+    def set_trace_visible(self, name: str, on: bool) -> None:
+        """Show or hide one trace (by its legend name); the choice holds for the next runs too."""
+        (self.hidden.discard if on else self.hidden.add)(name)
+        item = self.curves.get(name)
+        if item is not None:
+            item.setVisible(on)
+        if name == "E_total" and self.drift_curve is not None:  # the drift panel follows the total energy
+            self.drift_curve.setVisible(on)
+        self._update_legend()
+        self._update_readout()
+
+    # --- readout ------------------------------------------------------------------------------
+    def frame_index(self) -> int | None:
+        """The frame under the cursor (nearest time), or None without a run."""
+        traj = self._traj
+        if traj is None or not traj.n_frames:
+            return None
+        return int(np.argmin(np.abs(np.asarray(traj.times) - self._time)))
+
+    def readout_values(self) -> dict[str, tuple[float, str]]:
+        """``{trace name: (value at the cursor's frame, unit)}`` of every trace shown."""
+        i = self.frame_index()
+        if i is None:
+            return {}
+        return {name: (float(vals[i]), self.units.get(name, "")) for name, vals in self.values.items()
+                if i < len(vals) and name not in self.hidden}
+
+    def _update_readout(self) -> None:
+        i = self.frame_index()
+        if i is None:
+            self.readout.setText("")
+            return
+        t = float(self._traj.times[i])
+        rows = [f"<b>t = {t:+.1f} fs</b><br>frame {i + 1}"]
+        energies = False
+        for name, (v, unit) in self.readout_values().items():
+            digits = 3 if unit == "Å" else 1 if unit == "°" else 2
+            value = "—" if not np.isfinite(v) else f"{v:+.{digits}f}" if unit not in ("Å", "°") else f"{v:.{digits}f}"
+            energies |= name.startswith("E_")
+            shown = "Δ" + name if name.startswith("E_") else name  # energies are relative to t = 0, as plotted
+            rows.append(f"{html.escape(shown)} = {value}&nbsp;{html.escape(unit)}")
+        if energies:
+            rows.append("<small>ΔE: E − E(t=0)</small>")
+        self.readout.setText("<br>".join(rows))
 
     def _draw_monitors(self) -> None:
         traj, rules, result = self._traj, self._rules, self._result
@@ -213,7 +301,9 @@ class TracesView(QWidget):
             has_angles |= n > 2
             pen = pg.mkPen(trace_colour(i), width=2, style=Qt.PenStyle.DashDotLine if user else Qt.PenStyle.SolidLine)
             self.curves[name] = plot.plot(traj.times, vals, pen=pen, name=name)
+            self.curves[name].setVisible(name not in self.hidden)
             self.values[name] = vals
+            self.units[name] = "Å" if n == 2 else "°"
         self.p_angle.setVisible(has_angles)
 
     def _draw_thresholds(self) -> None:
@@ -314,7 +404,7 @@ class TracesView(QWidget):
             line = pg.InfiniteLine(t, angle=90, movable=False, pen=pg.mkPen(colour, width=1, style=style))
             p.addItem(line, ignoreBounds=True)
             self.threshold_lines.append(line)
-        top = self.threshold_lines[-4]
+        top = self.threshold_lines[-len(self.plots)]
         label = pg.InfLineLabel(top, text=text, position=position, color=colour, anchor=anchor)
         self.marks[key] = top
         top.label = label
@@ -349,10 +439,15 @@ class TracesView(QWidget):
         traj = self._traj
         for name in ("E_pot", "E_kin", "E_total"):
             item = self.curves.pop(name, None)
+            self.values.pop(name, None)
             if item is not None:
                 self.p_energy.removeItem(item)
+        if self.drift_curve is not None:
+            self.p_drift.removeItem(self.drift_curve)
+            self.drift_curve = None
         self.p_energy.setLabel("left", "ΔE", units=None)
         self.p_energy.getAxis("left").setLabel(f"ΔE / {self.energy_unit}")
+        self.p_drift.getAxis("left").setLabel(f"E_total − E_total(t=0) / {self.energy_unit}")
         if traj is None:
             return
         scale = 1.0 / energy_factor(self.energy_unit)
@@ -365,9 +460,17 @@ class TracesView(QWidget):
             rel = (e - e[i0]) * scale
             width = 2.4 if key == "total" else 1.4
             self.curves[name] = self.p_energy.plot(traj.times, rel, pen=pg.mkPen(colours[key], width=width), name=name)
+            self.curves[name].setVisible(name not in self.hidden)
             self.values[name] = rel
+            self.units[name] = self.energy_unit
+            if key == "total":  # the same numbers on their own scale (the drift panel)
+                self.drift_curve = self.p_drift.plot(traj.times, rel, pen=pg.mkPen(colours[key], width=1.6),
+                                                     name=DRIFT)
+                self.drift_curve.setVisible(name not in self.hidden)
+        self.p_drift.setVisible(self.drift_curve is not None)
         self._update_note()
         self._update_legend()
+        self._update_readout()
 
     def _update_note(self) -> None:
         traj, result, rules = self._traj, self._result, self._rules
@@ -402,6 +505,7 @@ class TracesView(QWidget):
                 c.setValue(self._time)
         finally:
             self._updating = False
+        self._update_readout()
 
     def _cursor_moved(self, line: pg.InfiniteLine) -> None:
         if self._updating:
@@ -415,4 +519,5 @@ class TracesView(QWidget):
         finally:
             self._updating = False
         self._time = t
+        self._update_readout()
         self.time_scrubbed.emit(t)
