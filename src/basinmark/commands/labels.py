@@ -39,6 +39,16 @@ def register(sub) -> None:
     add_format_option(p)
     p.set_defaults(func=cmd_label)
 
+    p = sub.add_parser("note", help="write a note on one run (kept beside its labels, never changing them)",
+                       description="Record free text as the run's note in the label journal; an empty text "
+                                   "clears the note. `history` lists every note with the labels.")
+    p.add_argument("set", metavar="SET", help="the set folder")
+    p.add_argument("run", metavar="RUN", help="run id")
+    p.add_argument("text", metavar="TEXT", help="the note (one line of plain text; \"\" clears it)")
+    _common(p, labeler=True, load=True)
+    add_format_option(p)
+    p.set_defaults(func=cmd_note)
+
     p = sub.add_parser("undo", help="take back the latest label of one run (recorded as a new event)",
                        description="Add an undo event that restores the run's previous label.")
     p.add_argument("set", metavar="SET")
@@ -48,8 +58,9 @@ def register(sub) -> None:
     add_format_option(p)
     p.set_defaults(func=cmd_undo)
 
-    p = sub.add_parser("history", help="every label event of one run",
-                       description="Print the label and undo events of one run, oldest first.")
+    p = sub.add_parser("history", help="every label event and note of one run",
+                       description="Print the label, undo and note events of one run, oldest first (a note's "
+                                   "text is in the reason column).")
     p.add_argument("set", metavar="SET")
     p.add_argument("run", metavar="RUN")
     _common(p)
@@ -248,6 +259,20 @@ def cmd_label(args) -> int:
     return 0
 
 
+def cmd_note(args) -> int:
+    from basinmark.core.labels import check_reason
+
+    _check_text(args)
+    check_reason(args.text, "note")  # before reading any run
+    _run_hash(args, args.run)        # the run must be one of the set's (its id typed right)
+    with _open_writer(args, _journal(args)) as j:
+        _warn(j.warnings)
+        ev = j.note(args.run, args.text)
+    emit(pd.DataFrame([{"run": ev["run"], "note": ev["note"], "labeler": ev["labeler"], "event": ev["seq"],
+                        "time": ev["time"]}]), args.format)
+    return 0
+
+
 def cmd_undo(args) -> int:
     _check_text(args)
     with _open_writer(args, _existing_journal(args)) as j:
@@ -269,7 +294,7 @@ def cmd_history(args) -> int:
         _warn(j.warnings)
         hist = j.history(args.run)
     if hist.empty:
-        print(f"basinmark: error: run {args.run} has no label events in {_journal(args)} "
+        print(f"basinmark: error: run {args.run} has no label events or notes in {_journal(args)} "
               "(is the run id right? `basinmark info SET` lists them)", file=sys.stderr)
         return 2
     emit(_plain(hist.drop(columns=["content_hash"])) if args.format == "table" else hist, args.format)

@@ -539,6 +539,24 @@ class LabelJournal:
         ev["reviewer"] = ev["labeler"]
         return self._write([ev])[0]
 
+    def note(self, run_id: str, text: str, *, labeler: str | None = None) -> dict:
+        """Record ``text`` as the run's note (free text beside the labels, which it never changes); an empty
+        text clears the note.  Audited like a label: hash-chained and fsynced when this returns."""
+        if not isinstance(run_id, str) or not run_id.strip():
+            raise JournalError("a run id must be non-empty text")
+        text = check_reason(text, "note")
+        who = check_labeler_name(labeler or self.labeler)
+        return self._write([{"kind": "note", "source": "hand", "labeler": who, "run": run_id, "note": text}])[0]
+
+    def notes(self) -> pd.DataFrame:
+        """The current note of every run that has one (index: run; columns run, note, labeler, time)."""
+        return self._replay.note_table()
+
+    def run_note(self, run_id: str) -> str:
+        """The run's current note ("" when none)."""
+        ev = self._replay.notes.get(run_id)
+        return ev["note"] if ev is not None else ""
+
     def review_complete(self, *, reviewer: str | None = None, reason: str = "",
                         summary: Mapping | None = None) -> dict:
         """Record that a review was finished (with an optional summary of plain values)."""
@@ -607,7 +625,7 @@ class LabelJournal:
         return self._replay.state(current_hashes)
 
     def history(self, run_id: str) -> pd.DataFrame:
-        """Every label and undo event of one run, oldest first."""
+        """Every label, undo and note event of one run, oldest first (a note's text is in ``reason``)."""
         return self._replay.history(run_id)
 
     def labels(self, which: str = "final") -> pd.DataFrame:

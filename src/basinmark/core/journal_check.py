@@ -45,6 +45,7 @@ _REQUIRED = {
     "batch_commit": ("seq", "prev", "hash", "time", "batch", "count"),
     "batch_abandoned": ("seq", "prev", "hash", "time", "batch"),
     "recovered": ("seq", "prev", "hash", "time", "labeler"),
+    "note": ("seq", "prev", "hash", "time", "labeler", "run", "note"),
 }
 
 
@@ -167,6 +168,8 @@ def check(lines: list[bytes], tail: bytes = b"", *, head: tuple[int, str] | None
         if kind == "label" and (ev.get("source") not in SOURCES or not isinstance(ev.get("label"), str)
                                 or not isinstance(ev.get("run"), str)):
             add(Problem(n, seq, "bad_field", "the label event's source, label or run is not valid"))
+        if kind == "note" and (not isinstance(ev.get("run"), str) or not isinstance(ev.get("note"), str)):
+            add(Problem(n, seq, "bad_field", "the note event's run or text is not valid"))
         if i == 0 and kind != HEADER_KIND:
             add(Problem(n, seq, "header", "the journal does not start with a header event"))
         elif i > 0 and kind == HEADER_KIND:

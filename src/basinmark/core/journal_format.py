@@ -26,7 +26,9 @@ HEADER_KIND = "header"
 #: begin's seq in ``batch``) and batch_commit; only a committed batch counts.  batch_abandoned sets an
 #: unfinished one aside; recovered records what ``basinmark recover`` set aside and why.
 BATCH_KINDS = ("batch_begin", "batch_commit", "batch_abandoned")
-KINDS = ("header", "label", "undo", "lock_broken", "review_complete", *BATCH_KINDS, "recovered")
+#: ``note``: free text per run, kept beside the labels and never changing one (the latest note of a run is its note;
+#: an empty note clears it)
+KINDS = ("header", "label", "undo", "lock_broken", "review_complete", *BATCH_KINDS, "recovered", "note")
 
 
 class JournalError(BasinmarkError):

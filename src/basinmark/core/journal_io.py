@@ -45,9 +45,19 @@ class LabelImportError(BasinmarkError):
 
 def export_table(journal: LabelJournal, current_hashes: Mapping[str, str] | None = None) -> pd.DataFrame:
     """The current labels (``journal.state``) with, second, the ``label`` column that an import records:
-    the person's label, empty (missing) where the run has only an automatic label."""
+    the person's label, empty (missing) where the run has only an automatic label.  When some run has a note, a
+    last column ``note`` holds each run's note (empty when none); a run with a note and no label has a row of its
+    own."""
     table = journal.state(current_hashes)
     table.insert(1, "label", table["hand_label"])
+    notes = journal.notes()
+    extra = [r for r in notes.index if r not in set(table["run"])]
+    if extra:
+        rows = pd.DataFrame({"run": extra}).reindex(columns=table.columns)
+        table = pd.concat([table.astype({"events": "Int64"}), rows.astype({"events": "Int64"})], ignore_index=True)
+        table["events"] = table["events"].fillna(0).astype("int64")  # no label events in a note-only row
+    if len(notes):  # the column is there when some run has a note (exports without notes keep their columns)
+        table["note"] = [notes.at[r, "note"] if r in notes.index else "" for r in table["run"]]
     return table
 
 
@@ -120,6 +130,8 @@ def import_labels(journal: LabelJournal, path: str | Path, *, runs: Mapping[str,
         who = (row.get("labeler") or "").strip() or None
         if not run and not label:
             continue  # a blank line
+        if run and not label and not (row.get("auto_label") or "").strip() and (row.get("note") or "").strip():
+            continue  # an exported row carrying only a note: notes are not labels
         if run and not label and (row.get("auto_label") or "").strip():
             automatic_only += 1  # an exported row without a person's label: classify records these
             continue

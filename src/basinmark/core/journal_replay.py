@@ -23,6 +23,7 @@ STATE_COLUMNS = ["run", "auto_label", "hand_label", "final_label", "labeler", "t
 HISTORY_COLUMNS = ["seq", "time", "kind", "source", "labeler", "label", "replaces", "reason", "content_hash",
                    "undoes"]
 SIDE_COLUMNS = ["run", "label", "labeler", "reason", "time", "content_hash"]
+NOTE_COLUMNS = ["run", "note", "labeler", "time"]
 
 
 class Replay:
@@ -34,6 +35,7 @@ class Replay:
         self.events: list[dict] = []
         self.pending: list[dict] | None = None  # members of a batch under way (not counted yet)
         self.pending_begin: int | None = None
+        self.notes: dict[str, dict] = {}  # run -> its latest note event (kept apart: notes never change labels)
 
     # --- applying events -----------------------------------------------------------------
     def apply(self, event: dict) -> None:
@@ -53,6 +55,14 @@ class Replay:
     def _apply(self, event: dict) -> None:
         self.events.append(event)
         kind = event.get("kind")
+        if kind == "note":
+            run = event.get("run")
+            if isinstance(run, str) and isinstance(event.get("note"), str):
+                if event["note"]:
+                    self.notes[run] = event
+                else:
+                    self.notes.pop(run, None)  # an empty note clears the run's note
+            return
         if kind != "label" and kind != "undo":
             return
         run = event.get("run")
@@ -122,8 +132,9 @@ class Replay:
         return df
 
     def history(self, run: str) -> pd.DataFrame:
-        rows = [[ev.get(c) for c in HISTORY_COLUMNS] for ev in self.events
-                if ev.get("run") == run and ev.get("kind") in ("label", "undo")]
+        # notes are listed too, their text in the reason column (kind "note", no label)
+        rows = [[ev.get("note") if c == "reason" and ev.get("kind") == "note" else ev.get(c) for c in HISTORY_COLUMNS]
+                for ev in self.events if ev.get("run") == run and ev.get("kind") in ("label", "undo", "note")]
         df = pd.DataFrame(rows, columns=HISTORY_COLUMNS)
         df["seq"] = df["seq"].astype("int64")
         df["undoes"] = df["undoes"].astype("Int64")
@@ -145,6 +156,11 @@ class Replay:
                 rows.append([run, ev["label"], ev.get("labeler"), ev.get("reason", ""), ev.get("time"),
                              ev.get("content_hash")])
         return pd.DataFrame(rows, columns=SIDE_COLUMNS).set_index("run", drop=False)
+
+    def note_table(self) -> pd.DataFrame:
+        """The current note of every run that has one (columns: run, note, labeler, time)."""
+        rows = [[run, ev["note"], ev.get("labeler"), ev.get("time")] for run, ev in self.notes.items()]
+        return pd.DataFrame(rows, columns=NOTE_COLUMNS).set_index("run", drop=False)
 
     def labelers(self) -> list[str]:
         seen: dict[str, None] = {}
