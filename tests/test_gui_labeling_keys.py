@@ -149,7 +149,7 @@ def test_number_keys_keep_their_meaning_while_loading(win, root):
 def test_label_buttons_and_labeler_are_out_of_the_tab_order(win):
     panel = win.label_panel
     fields = [w for w in panel.findChildren(QLineEdit) if w.isVisible()]
-    assert fields == [panel.reason]                      # the labeler's name is not a field any more
+    assert fields == [panel.reason, panel.note]          # the labeler's name is not a field any more
     assert panel.labeler_button.focusPolicy() == Qt.FocusPolicy.NoFocus
     assert all(b.focusPolicy() == Qt.FocusPolicy.NoFocus for b in panel.buttons.values())
     assert "kim" in win.status_labeler.text()

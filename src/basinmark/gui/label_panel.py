@@ -148,6 +148,15 @@ class LabelPanel(QWidget):
         self.reason.submitted.connect(self.save_pending)
         self.reason.cancelled.connect(self._escape)
         form.addRow("Reason", self.reason)
+        # the run's note: free text kept in the journal beside the labels, never changing one
+        self.note = QLineEdit(self)
+        self.note.setObjectName("runNote")
+        self.note.setPlaceholderText("a note on this run (not a label); Enter saves")
+        self.note.setClearButtonEnabled(True)
+        self.note.setToolTip("Free text about this run, recorded in the journal (audited) and exported with the "
+                             "labels; it never changes a label. Enter saves; an empty note clears it.")
+        self.note.returnPressed.connect(self.save_note)
+        form.addRow("Note", self.note)
         who = QHBoxLayout()
         self.labeler = QLabel(self)
         self.labeler.setToolTip("Recorded with every label you set")
@@ -252,6 +261,9 @@ class LabelPanel(QWidget):
         # the number keys stay enabled: while nothing can be saved they say why instead of doing nothing
         self.shown_run = st.run_id if st.traj is not None else ""
         self.title.setText(self.shown_run or "No run")
+        if not self.note.hasFocus():  # never overwrite what is being typed
+            self.note.setText(self.shown_note(self.shown_run))
+        self.note.setEnabled(bool(self.shown_run) and not st.readonly)
         row = st.label_row() if self.shown_run else None
         if st.traj is None or row is None:
             self.current.setText("No run selected: choose one in the run table." if st.tset is not None and len(st.tset)
@@ -271,6 +283,37 @@ class LabelPanel(QWidget):
                              f"hand: <b>{escape(hand)}</b>{who}{why}{extra}")
         self.current.setToolTip(self._history_text(st.run_id))
         self._show_pending()
+
+    def shown_note(self, run_id: str) -> str:
+        """The run's note as this panel may show it (in blind labeling, only the labeler's own)."""
+        j = self.state.journal
+        if j is None or not hasattr(j, "notes") or not run_id:
+            return ""
+        notes = j.notes()
+        if run_id not in notes.index:
+            return ""
+        if self.state.blind_labeler and notes.at[run_id, "labeler"] != self.state.blind_labeler:
+            return ""
+        return str(notes.at[run_id, "note"])
+
+    def save_note(self) -> bool:
+        """Record the Note field as the shown run's note (an empty field clears it)."""
+        st, run = self.state, self.shown_run
+        text = self.note.text().strip()
+        if not run or st.journal is None or st.readonly:
+            self._say("The note was not saved: " + ("the label journal is read-only here." if st.readonly
+                                                    else "no run is shown."))
+            return False
+        if text == self.shown_note(run):
+            return True
+        try:
+            st.journal.note(run, text, labeler=self.labeler_name or None)
+        except Exception as exc:  # noqa: BLE001 - a refused note is said, never lost silently
+            self._say(f"The note was not saved: {exc}")
+            return False
+        self._say(f"Note saved for {run}." if text else f"Note cleared for {run}.")
+        st.refresh_labels()
+        return True
 
     def _history_text(self, run_id: str) -> str:
         """The run's label events from the journal, newest last (shown as a tooltip)."""
@@ -297,6 +340,9 @@ class LabelPanel(QWidget):
             return "No label events for this run in the journal."
         lines = []
         for ev in hist.tail(12).itertuples():
+            if ev.kind == "note":  # a note's text is in the reason column
+                lines.append(f"{ev.time}  {printable(ev.labeler)}  note: {printable(ev.reason) or '(cleared)'}")
+                continue
             what = f"undo → {ev.label or 'no label'}" if ev.kind == "undo" else f"{ev.label} ({ev.source})"
             reason = f": {printable(ev.reason)}" if ev.reason else ""
             lines.append(f"{ev.time}  {printable(ev.labeler)}  {what}{reason}")
