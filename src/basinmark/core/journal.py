@@ -256,25 +256,7 @@ class LabelJournal:
         side = None
         if aside:
             side = Path(f"{self.path}.set-aside-{utc_stamp()}")
-            try:
-                fd = os.open(side, os.O_WRONLY | os.O_CREAT | os.O_EXCL | BINARY, 0o644)
-                try:
-                    view = memoryview(aside)
-                    while view:  # a short write (a disk filling up) must not pass for a whole copy
-                        view = view[os.write(fd, view):]
-                    os.fsync(fd)
-                except OSError:
-                    os.close(fd)
-                    side.unlink(missing_ok=True)  # a half copy is no copy; the journal is left as it was
-                    raise
-                os.close(fd)
-                _fsync_dir(self.path.parent)
-                os.truncate(self.path, keep)
-                assert self._fd is not None
-                os.fsync(self._fd)
-            except OSError as exc:
-                raise JournalFileError(self.path, "set aside the damaged part of", exc,
-                                       outcome="the journal was not changed") from None
+            self._move_end_to(side, aside, keep, "set aside the damaged part of")
         n_aside = len(lines) - res.good_lines
         self.warnings.append(
             (f"{n_aside} line(s) from line {res.good_lines + 1} on ({len(aside)} bytes) were moved to {side.name}"
@@ -290,12 +272,13 @@ class LabelJournal:
                  "head_was": list(head) if head is not None else head_state,
                  "witness_was": witness}]
 
-    def _set_aside(self, tail: bytes, keep: int) -> None:
-        side = Path(f"{self.path}.torn-{utc_stamp()}")
+    def _move_end_to(self, side: Path, data: bytes, keep: int, doing: str) -> None:
+        """Copy ``data`` (the journal's end from byte ``keep``) whole into the new file ``side``, then cut
+        the journal at ``keep``; on any failure the journal is left as it was and no half copy remains."""
         try:
             fd = os.open(side, os.O_WRONLY | os.O_CREAT | os.O_EXCL | BINARY, 0o644)
             try:
-                view = memoryview(tail)
+                view = memoryview(data)
                 while view:  # a short write (a disk filling up) must not pass for a whole copy
                     view = view[os.write(fd, view):]
                 os.fsync(fd)
@@ -309,8 +292,11 @@ class LabelJournal:
             assert self._fd is not None
             os.fsync(self._fd)
         except OSError as exc:
-            raise JournalFileError(self.path, "set aside the incomplete last line of", exc,
-                                   outcome="the journal was not changed") from None
+            raise JournalFileError(self.path, doing, exc, outcome="the journal was not changed") from None
+
+    def _set_aside(self, tail: bytes, keep: int) -> None:
+        side = Path(f"{self.path}.torn-{utc_stamp()}")
+        self._move_end_to(side, tail, keep, "set aside the incomplete last line of")
         self.warnings.append(f"the last line of {self.path} was incomplete ({len(tail)} bytes, probably a crash "
                              f"while writing); it was moved to {side.name} and left out")
 
