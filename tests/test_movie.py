@@ -78,7 +78,9 @@ def test_cancel_writes_nothing(tmp_path, toy):
 def test_cursor_is_drawn_where_the_time_is(toy):
     traj, rules, res = toy
     r = MovieRenderer(traj, result=res, rules=rules, size=(400, 300))
-    hl = r.traces.palette().color(QPalette.ColorRole.Highlight)
+    from basinmark.gui.colours import cursor_colour
+
+    hl = cursor_colour()  # the cursor has a colour of its own
     try:
         xs = []
         for frame in (0, traj.ts_index, traj.n_frames - 1):

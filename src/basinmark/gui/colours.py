@@ -1,12 +1,24 @@
-"""Categorical colours for basins, outcomes and traces (our own choice).
+"""Categorical colours for outcomes, traces, thresholds and the time cursor (one place for all of them).
 
-Mid-tone, fairly saturated colours that read on both light and dark
-backgrounds; everything else (backgrounds, text, grid) comes from the
-Qt palette so dark mode keeps working.
+Outcome colours are reserved for outcomes: every outcome colour (run table, outcome band, map, basin
+bands, summary) comes from :func:`outcome_colour`; :func:`basin_colour` only adds the reactant's colour.
+Nothing else (trace lines, thresholds, cursor, other plots) may use them.
 
-Every outcome colour (run table, outcome band, map, traces' basin bands, summary) comes from
-:func:`outcome_colour`; :func:`basin_colour` only adds the reactant's grey-blue.  Changing the
-palette (e.g. for colour-blind safety) means changing :data:`_PRODUCT` alone.
+* Products 1–7 take the seven chromatic colours of the Okabe–Ito palette (M. Okabe and K. Ito, "Color
+  Universal Design (CUD): How to make figures and presentations that are friendly to colorblind people",
+  2008), published as safe for the common colour-vision deficiencies.
+* The labels that are not products (reactant, recrossing, unfinished, ambiguous, excluded) take low-chroma
+  colours of different lightness, chosen (our own search) to sit between the seven products.
+* Trace lines take a separate set of darker colours (CIE L* 28–48) that no outcome colour comes near.
+* Thresholds are drawn neutral (a grey dash, labelled with their monitor), the cursor in its own blue.
+
+tests/test_palette.py checks, under normal vision and under simulated deuteranopia and protanopia (Machado,
+Oliveira and Fernandes 2009, severity 100, as implemented by colorspacious), that every pair of outcome
+colours (seven products and the fixed labels) differs by at least :data:`MIN_OUTCOME_DE00` CIEDE2000 units
+and every outcome/trace pair and the cursor by at least :data:`MIN_TRACE_DE00`.
+
+Products 8–12 take further colours that are far apart for normal colour vision only; past twelve, hues step
+by the golden angle.  Changing the palette means changing the tables below alone.
 """
 
 from __future__ import annotations
@@ -16,15 +28,26 @@ from typing import Sequence
 
 from PySide6.QtGui import QColor
 
-#: product colours in rules-file order: twelve, all pairwise apart by more than 20 CIE 1976 ΔE units and
-#: apart from the fixed labels' greys (checked in tests/test_colours.py), so rules with up to twelve
-#: products never share a colour
-_PRODUCT = ("#2f7fd0", "#e0762a", "#2aa876", "#c8459a", "#8a6fd8", "#c9a227", "#3fb0c8", "#b85450",
-            "#5c6f1e", "#1d4f91", "#e8839e", "#8c5a2b")
-_TRACE = ("#3b82c4", "#d9622b", "#37a169", "#b5479b", "#7d6bd0", "#c79a1e", "#2ea3b8", "#a8553f")
-_FIXED = {"recrossing": "#8c8c8c", "unfinished": "#b0a080", "ambiguous": "#9a7fb8", "excluded": "#707070"}
-REACTANT_COLOUR = "#9aa4ae"
+#: products in rules-file order: Okabe–Ito's seven chromatic colours (blue, orange, bluish green, reddish
+#: purple, sky blue, vermillion, yellow), then five more apart for normal vision only
+_PRODUCT = ("#0072b2", "#e69f00", "#009e73", "#cc79a7", "#56b4e9", "#d55e00", "#f0e442",
+            "#00e10f", "#873c5a", "#87960f", "#ff1e4b", "#c31eff")
+#: products 1..CVD_SAFE_PRODUCTS keep apart under simulated deuteranopia and protanopia (tested)
+CVD_SAFE_PRODUCTS = 7
+#: the labels that are not products: neutral-looking, told apart by lightness and a faint tint
+_FIXED = {"recrossing": "#3c3c3c", "unfinished": "#c3a5a5", "ambiguous": "#5a6969", "excluded": "#f0d2d2"}
+REACTANT_COLOUR = "#a5c3d2"
+#: trace lines (monitors, energies, other curves): dark, so lines never read as an outcome's fill
+_TRACE = ("#961e00", "#004b69", "#3c00d2", "#694b2d", "#0f3c96", "#5a694b")
+#: the time cursor (playback position) in every plot
+CURSOR_COLOUR = "#3c87ff"
+#: threshold lines: a neutral grey (drawn dashed and labelled with their monitor)
+THRESHOLD_COLOUR = "#808080"
 MAX_DISTINCT_PRODUCTS = len(_PRODUCT)
+#: CIEDE2000 distances the palette keeps (tests/test_palette.py); about 10 reads as "clearly another colour"
+#: at a glance (common practice, no source)
+MIN_OUTCOME_DE00 = 10.0
+MIN_TRACE_DE00 = 12.0
 
 
 def product_colour(index: int) -> QColor:
@@ -42,7 +65,7 @@ def product_colour(index: int) -> QColor:
 
 
 def outcome_colour(label: str, products: Sequence[str]) -> QColor:
-    """Colour of an outcome/label: each product its own (rules-file order), fixed labels their own greys.
+    """Colour of an outcome/label: each product its own (rules-file order), fixed labels their own.
 
     A label that is neither (e.g. a product of older rules) takes the first colour after the products.
     """
@@ -53,11 +76,20 @@ def outcome_colour(label: str, products: Sequence[str]) -> QColor:
 
 
 def basin_colour(name: str, basin_names: Sequence[str], reactant: str | None = None) -> QColor:
-    """Colour of a basin: the reactant grey-blue, each product the colour of its outcome."""
+    """Colour of a basin: the reactant's own, each product the colour of its outcome."""
     if name == reactant:
         return QColor(REACTANT_COLOUR)
     return outcome_colour(name, [b for b in basin_names if b != reactant])
 
 
 def trace_colour(i: int) -> QColor:
+    """Colour of the ``i``-th trace line (cycles); never an outcome colour."""
     return QColor(_TRACE[i % len(_TRACE)])
+
+
+def cursor_colour() -> QColor:
+    return QColor(CURSOR_COLOUR)
+
+
+def threshold_colour() -> QColor:
+    return QColor(THRESHOLD_COLOUR)

@@ -18,6 +18,7 @@ from PySide6.QtCore import QPointF, QRectF, Qt
 from PySide6.QtGui import QImage, QPainter, QPalette, QPen
 
 from basinmark.core.errors import BasinmarkError
+from basinmark.gui.colours import cursor_colour
 
 MAX_SIDE = 4096          # pixels; larger movies are refused (memory), our own limit
 MAX_FPS = 100.0          # GIF frame delays are whole hundredths of a second
@@ -197,7 +198,7 @@ class MovieRenderer:
         t = float(traj.times[frame])
         x = self.mol_w + self.cursor_x(t)
         _x0, _k, top, bottom = self._x_of_time
-        p.setPen(QPen(pal.color(QPalette.ColorRole.Highlight), 2))
+        p.setPen(QPen(cursor_colour(), 2))
         p.drawLine(QPointF(x, top), QPointF(x, bottom))
         p.setPen(QPen(pal.color(QPalette.ColorRole.Mid), 1))
         p.drawLine(QPointF(self.mol_w - 0.5, 0), QPointF(self.mol_w - 0.5, h))

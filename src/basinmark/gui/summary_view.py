@@ -725,7 +725,7 @@ class SummaryPanel(QWidget):
     def _gap_colour(self, mode: str) -> QColor:
         from basinmark.gui.colours import trace_colour
 
-        return trace_colour(6 if mode == "concerted" else 5)  # not the products' colours
+        return trace_colour(0 if mode == "concerted" else 1)  # not the products' nor the energies' colours
 
     def _draw_gap(self) -> None:
         p = self.p_gap

@@ -24,7 +24,7 @@ from basinmark.core.classify import signed_commit_time
 from basinmark.core.geometry import measure
 from basinmark.core.model import Trajectory
 from basinmark.core.units import energy_factor
-from basinmark.gui.colours import basin_colour, trace_colour
+from basinmark.gui.colours import basin_colour, cursor_colour, threshold_colour, trace_colour
 
 _KIND = {2: "distance", 3: "angle", 4: "dihedral"}
 
@@ -142,7 +142,6 @@ class TracesView(QWidget):
         """Background, axes and cursor from the Qt palette (light or dark)."""
         pal = self.palette()
         base, text = pal.color(QPalette.ColorRole.Base), pal.color(QPalette.ColorRole.Text)
-        hl = pal.color(QPalette.ColorRole.Highlight)
         self.glw.setBackground(base)
         for p in self.plots:
             for name in ("left", "bottom"):
@@ -150,8 +149,8 @@ class TracesView(QWidget):
                 ax.setPen(pg.mkPen(text))
                 ax.setTextPen(pg.mkPen(text))
         for c in self.cursors:
-            c.setPen(pg.mkPen(hl, width=2))
-            c.setHoverPen(pg.mkPen(hl, width=4))
+            c.setPen(pg.mkPen(cursor_colour(), width=2))
+            c.setHoverPen(pg.mkPen(cursor_colour(), width=4))
         warn = QColor("#b3261e") if base.lightness() > 128 else QColor("#ffb4a9")
         self.note.setStyleSheet(f"QLabel#traceNote {{ color: {warn.name()}; font-weight: bold; padding: 3px 6px; }}")
 
@@ -349,7 +348,11 @@ class TracesView(QWidget):
                 slots[key] = (0.02 + 0.34 * (max(k - 1, 0) % 3), below)
         for (which, value), entries in groups.items():
             plot = self.p_dist if which == 0 else self.p_angle
-            colour = basin_colour(entries[0][0], names, rules.reactant)
+            # tied to its trace: the trace's own colour when one monitor owns the line, else neutral grey
+            # (never a basin's colour: outcome colours are for outcomes)
+            mons = {m for _b, _d, m, _k in entries}
+            colour = (self.curves[next(iter(mons))].opts["pen"].color() if len(mons) == 1
+                      else threshold_colour())
             by_basin: dict[str, list[str]] = {}
             for b, d, _m, _k in entries:
                 by_basin.setdefault(b, []).append(d)
@@ -452,7 +455,7 @@ class TracesView(QWidget):
             return
         scale = 1.0 / energy_factor(self.energy_unit)
         i0 = traj.ts_index
-        colours = {"potential": trace_colour(4), "kinetic": trace_colour(5), "total": trace_colour(6)}
+        colours = {"potential": trace_colour(3), "kinetic": trace_colour(4), "total": trace_colour(5)}
         for key, name in (("potential", "E_pot"), ("kinetic", "E_kin"), ("total", "E_total")):
             e = traj.energies.get(key)
             if e is None:
