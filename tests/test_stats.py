@@ -264,7 +264,7 @@ def test_warnings_for_missing_product_unknown_labels_and_nothing():
     text = " ".join(stats.reliability_warnings({"alpha": 50, "gamma": 3}, ["alpha", "beta"],
                                                ratio=stats.ratio_interval(50, 0), pair=("alpha", "beta")))
     assert "No run gave beta" in text and "gamma (3)" in text
-    assert stats.reliability_warnings({}, ["alpha", "beta"])[0].startswith("No labelled runs")
+    assert stats.reliability_warnings({}, ["alpha", "beta"])[0].startswith("No labeled runs")
 
 
 def test_no_warnings_for_ample_data():

@@ -49,7 +49,7 @@ def test_every_warning_is_a_string_that_names_its_runs():
     assert _by_text(s.warnings, "no label yet").run_ids == ("r26",)
     assert _by_text(s.warnings, "changed since").run_ids == ("r27", "r28")
     # count warnings name the runs of the labels they are about
-    assert _by_text(s.warnings, "labelled ambiguous").run_ids == ("r24",)
+    assert _by_text(s.warnings, "labeled ambiguous").run_ids == ("r24",)
     assert _by_text(s.warnings, "excluded by hand").run_ids == ("r25",)
     assert _by_text(s.warnings, "gave right").run_ids == tuple(r for r, f in final.items() if f == "right")
     reached = _by_text(s.warnings, "reached a product")

@@ -104,7 +104,7 @@ def run_classify(args) -> int:
     changed = _data_changed(jpath, tset)
     if changed:
         table = add_flag(table, changed, "data_changed")
-        notes.append(f"{len(changed)} run(s) changed on disk since they were labelled (flag data_changed); "
+        notes.append(f"{len(changed)} run(s) changed on disk since they were labeled (flag data_changed); "
                      f"their earlier labels describe other data")
     written = 0
     if not args.dry_run:

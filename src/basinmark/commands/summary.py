@@ -191,7 +191,7 @@ def stale_auto_labels(labels: pd.DataFrame, classified: pd.DataFrame) -> list[st
 
 
 def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame, list[str]]:
-    """Labels ordered as the set's runs (unlabelled runs added with no label), plus notes."""
+    """Labels ordered as the set's runs (unlabeled runs added with no label), plus notes."""
     notes = []
     labels = labels.drop_duplicates("run", keep="last").set_index("run", drop=False)
     # one hashed membership test per side (linear in runs + labels; sets of 10^5 runs are ordinary)
@@ -205,7 +205,7 @@ def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame
         parts.append(pd.DataFrame({"run": missing, "final_label": [None] * len(missing)}))
     if gone:
         parts.append(labels.loc[gone])
-        notes.append(f"{len(gone)} labelled run{'s are' if len(gone) != 1 else ' is'} not in the set folder "
+        notes.append(f"{len(gone)} labeled run{'s are' if len(gone) != 1 else ' is'} not in the set folder "
                      f"(or failed to load) and {'are' if len(gone) != 1 else 'is'} still counted: "
                      + ", ".join(gone[:5]) + (" ..." if len(gone) > 5 else ""))
     out = pd.concat(parts, ignore_index=True) if parts else labels.reset_index(drop=True)

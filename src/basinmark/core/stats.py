@@ -477,9 +477,9 @@ def reliability_warnings(
     excluded = counts.get("excluded", 0)
     counted = sum(v for k, v in counts.items() if k != "excluded")
     if counted == 0:
-        warnings.append("No labelled runs to count: every number in this summary is undefined.")
+        warnings.append("No labeled runs to count: every number in this summary is undefined.")
         if excluded:
-            warnings.append(f"All {excluded} labelled runs are excluded.")
+            warnings.append(f"All {excluded} labeled runs are excluded.")
         return warnings
     reactive = sum(counts.get(p, 0) for p in products)
     # with one product there is no ratio: speak of the reactive fraction and transmission coefficient
@@ -512,9 +512,9 @@ def reliability_warnings(
             f"{'are' if single else 'is'} biased; run them longer.")
     ambiguous = counts.get("ambiguous", 0)
     if ambiguous:
-        warnings.append(f"{ambiguous} run{'s are' if ambiguous != 1 else ' is'} labelled ambiguous and left out "
+        warnings.append(f"{ambiguous} run{'s are' if ambiguous != 1 else ' is'} labeled ambiguous and left out "
                         f"of the product ratio." if not single else
-                        f"{ambiguous} run{'s are' if ambiguous != 1 else ' is'} labelled ambiguous: counted in the "
+                        f"{ambiguous} run{'s are' if ambiguous != 1 else ' is'} labeled ambiguous: counted in the "
                         f"reactive fraction's denominator but not as reactive, and left out of the transmission "
                         f"coefficient.")
     if excluded:

@@ -10,7 +10,7 @@ Nothing else (trace lines, thresholds, cursor, other plots) may use them.
 * The labels that are not products (reactant, recrossing, unfinished, ambiguous, excluded) take low-chroma
   colours of different lightness, chosen (our own search) to sit between the seven products.
 * Trace lines take a separate set of darker colours (CIE L* 28–48) that no outcome colour comes near.
-* Thresholds are drawn neutral (a grey dash, labelled with their monitor), the cursor in its own blue.
+* Thresholds are drawn neutral (a grey dash, labeled with their monitor), the cursor in its own blue.
 
 tests/test_palette.py checks, under normal vision and under simulated deuteranopia and protanopia (Machado,
 Oliveira and Fernandes 2009, severity 100, as implemented by colorspacious), that every pair of outcome
@@ -41,7 +41,7 @@ REACTANT_COLOUR = "#a5c3d2"
 _TRACE = ("#961e00", "#004b69", "#3c00d2", "#694b2d", "#0f3c96", "#5a694b")
 #: the time cursor (playback position) in every plot
 CURSOR_COLOUR = "#3c87ff"
-#: threshold lines: a neutral grey (drawn dashed and labelled with their monitor)
+#: threshold lines: a neutral grey (drawn dashed and labeled with their monitor)
 THRESHOLD_COLOUR = "#808080"
 MAX_DISTINCT_PRODUCTS = len(_PRODUCT)
 #: CIEDE2000 distances the palette keeps (tests/test_palette.py); about 10 reads as "clearly another colour"

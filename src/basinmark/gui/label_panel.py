@@ -278,7 +278,9 @@ class LabelPanel(QWidget):
         if row.get("data_changed"):
             extra = "<br><b>The run's files changed since it was labeled.</b>"
         if row.get("flags"):
-            extra += f"<br>flags: {escape(row['flags'].replace(';', ', '))}"
+            from basinmark.gui.run_table import flag_words
+
+            extra += f"<br>flags: {escape(flag_words(row['flags']))}"
         self.current.setText(f"automatic: {escape(row['auto_label'] or '—')}; "
                              f"hand: <b>{escape(hand)}</b>{who}{why}{extra}")
         self.current.setToolTip(self._history_text(st.run_id))

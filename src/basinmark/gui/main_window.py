@@ -422,6 +422,7 @@ class MainWindow(QMainWindow):
         self.playback.pause()
         self.state.set_journal(None)
         self._messages.clear()
+        self.statusBar().clearMessage()  # a passing message ("Undone …") belongs to the set it was about
         self._show_banner()
         path = Path(path).expanduser()
         self.state.set_set(TrajectorySet(path, {}, metadata={"name": path.name}))

@@ -21,7 +21,7 @@ from typing import Any, Mapping, Sequence
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QRectF, Qt, Signal
-from PySide6.QtGui import QColor, QPalette
+from PySide6.QtGui import QAction, QColor, QKeySequence, QPalette
 from PySide6.QtWidgets import (QComboBox, QDockWidget, QGraphicsRectItem, QHBoxLayout, QLabel, QMainWindow,
                                QVBoxLayout, QWidget)
 
@@ -439,7 +439,20 @@ def install_map_dock(window: QMainWindow) -> QDockWidget:
     window.map_panel = panel
     act = dock.toggleViewAction()
     act.setText("&Map of Runs")
-    act.setShortcut("Ctrl+M")
-    act.setToolTip("Show every run as a path on two monitors, coloured by outcome (Ctrl+M)")
+    act.setToolTip("Show or close the map: every run as a path on two monitors, coloured by outcome")
     _menu(window, "&View").addAction(act)
+    # Ctrl+M always brings the map to the front (a toggle would hide a map tabbed behind the traces)
+    front = QAction("Show &Map in Front", window)
+    front.setObjectName("action_show_map")
+    front.setShortcut(QKeySequence("Ctrl+M"))
+    front.setToolTip("Show the map of runs and bring it to the front (Ctrl+M)")
+
+    def show_map() -> None:
+        dock.show()
+        dock.raise_()
+        panel.setFocus()
+
+    front.triggered.connect(show_map)
+    _menu(window, "&View").addAction(front)
+    window.addAction(front)
     return dock

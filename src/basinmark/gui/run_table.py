@@ -91,6 +91,11 @@ def filter_counts(df: pd.DataFrame) -> dict[str, int]:
     }
 
 
+def flag_words(flags: str | None) -> str:
+    """``late_commit;several_visits`` as people read it: ``late commit, several visits``."""
+    return ", ".join(f.strip().replace("_", " ") for f in (flags or "").split(";") if f.strip())
+
+
 class RunTableModel(QAbstractTableModel):
     """A read-only Qt model over the labels DataFrame (rows kept as plain lists for speed)."""
 
@@ -143,7 +148,7 @@ class RunTableModel(QAbstractTableModel):
             if key == "data_changed":
                 return "changed" if value else ""
             if key == "flags":
-                return (value or "").replace(";", ", ")
+                return flag_words(value)
             return "" if value is None else str(value)
         if role == Qt.ItemDataRole.UserRole:  # sort key
             if key == "product_final_entry_fs":  # by distance from the TS, whichever end
