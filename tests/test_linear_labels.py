@@ -81,7 +81,7 @@ def test_in_set_order_touches_each_run_id_a_few_times():
     assert list(out["run"][N - 100: N]) == [f"new{i}" for i in range(100)]  # then the unlabelled runs
     assert out["final_label"][N - 100: N].isna().all()
     assert list(out["run"][N:]) == list(labels["run"][N - 100:])  # then labelled runs missing from the set
-    assert any("100 labelled runs are not in the set folder" in n for n in notes)
+    assert any("100 labeled runs are not in the set folder" in n for n in notes)
     assert ids.touched <= 10 * N
 
 
