@@ -117,3 +117,19 @@ def test_export_imports_as_it_is_into_a_fresh_copy(labelled, tmp_path, capsys, h
     assert again["t00"]["reason"] == FORMULAS[0] and again["t05"]["reason"] == FORMULAS[4]
     with LabelJournal.open(copy / JOURNAL, readonly=True) as j:
         assert {ev["source"] for ev in j.events[1:]} == {"rule", "import"}
+
+
+def test_csv_floats_round_trip_whatever_numpy_print_options_say():
+    """A library that sets numpy's legacy print mode must not cut the floats we write (it did: 12 digits)."""
+    import numpy as np
+    import pandas as pd
+
+    from basinmark.core.csv_safe import csv_text
+
+    saved = np.get_printoptions()
+    try:
+        np.set_printoptions(legacy="1.13")
+        text = csv_text(pd.DataFrame({"t": [1.6576757817642004e-102, 100.72813570917981, -0.5]}))
+    finally:
+        np.set_printoptions(**saved)
+    assert text.splitlines()[1:] == ["1.6576757817642004e-102", "100.72813570917981", "-0.5"]

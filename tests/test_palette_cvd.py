@@ -14,7 +14,11 @@ import numpy as np
 import pytest
 
 colorspacious = pytest.importorskip("colorspacious")
+# importing colour-science switches numpy's print options to its 1.13 legacy mode for the whole
+# process (floats then print, and pandas writes CSV floats, with 12 significant digits): put them back
+_print_options = np.get_printoptions()
 colour = pytest.importorskip("colour")
+np.set_printoptions(**_print_options)
 
 from basinmark.core.labels import FIXED_LABELS  # noqa: E402
 from basinmark.gui import colours  # noqa: E402

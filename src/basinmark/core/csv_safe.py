@@ -53,7 +53,17 @@ def neutralise_frame(df: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
+def _shortest(x: float) -> str:
+    return repr(float(x))
+
+
 def csv_text(df: pd.DataFrame, **kwargs) -> str:
-    """``df`` as CSV text (no index) with its text cells neutralised."""
+    """``df`` as CSV text (no index) with its text cells neutralised.
+
+    Floats are written as Python's shortest round-trip text unless ``float_format`` is given: pandas'
+    own default goes through numpy's print options, which another library in the same process can set
+    to a 12-digit legacy mode (one did, in the test suite), and then values would be cut silently.
+    """
     kwargs.setdefault("index", False)
+    kwargs.setdefault("float_format", _shortest)
     return neutralise_frame(df).to_csv(**kwargs)
