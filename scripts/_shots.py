@@ -3,7 +3,12 @@
 from __future__ import annotations
 
 import argparse
+import os
 import sys
+
+# a screenshot script closes windows whose rules it changed: answer the unsaved-rules question with
+# Discard instead of waiting for a person
+os.environ.setdefault("BASINMARK_UNSAVED_RULES", "discard")
 from pathlib import Path
 
 REPO = Path(__file__).resolve().parents[1]
