@@ -315,15 +315,7 @@ def _first_arrivals(bounds: np.ndarray, last: np.ndarray, track: np.ndarray, t: 
 
     ``bounds``/``last``: first and last frame of every unbroken stay of the track, in order."""
     r = prep.starts.size
-    run = np.searchsorted(prep.starts, bounds, side="right") - 1
-    ts = prep.ts[run]
-    if forward:
-        keep = last >= ts
-        first, lst = np.maximum(bounds, ts)[keep], last[keep]
-    else:
-        keep = bounds <= ts
-        first, lst = bounds[keep], np.minimum(last, ts)[keep]
-    run = run[keep]
+    first, lst, run = _in_half(bounds, last, prep, forward)
     basin = track[first].astype(np.intp)
     committed = end_basin[run]
     elsewhere = (basin >= 0) & (basin != committed) & (t[lst] - t[first] >= dwell_fs - _TOL_FS)
@@ -345,11 +337,9 @@ def _first_arrivals(bounds: np.ndarray, last: np.ndarray, track: np.ndarray, t: 
     return out
 
 
-def _visits(first: np.ndarray, last: np.ndarray, track: np.ndarray, t: np.ndarray, prep: Prepared,
-            dwell_fs: float, forward: bool) -> np.ndarray:
-    """Visits per run in one half: unbroken stays in a basin lasting at least ``dwell_fs`` within the half,
-    where two stays in the same basin less than ``dwell_fs`` apart count as one (threshold jitter is
-    not a visit).  ``first``/``last``: first and last frame of every in-basin stay, in order."""
+def _in_half(first: np.ndarray, last: np.ndarray, prep: Prepared, forward: bool):
+    """Stays (first and last frame) clipped to one half of their run, the TS frame included; returns
+    the clipped first and last frames and each kept stay's run index."""
     run = np.searchsorted(prep.starts, first, side="right") - 1
     ts = prep.ts[run]
     if forward:
@@ -358,7 +348,15 @@ def _visits(first: np.ndarray, last: np.ndarray, track: np.ndarray, t: np.ndarra
     else:
         keep = first <= ts
         first, last = first[keep], np.minimum(last, ts)[keep]
-    run = run[keep]
+    return first, last, run[keep]
+
+
+def _visits(first: np.ndarray, last: np.ndarray, track: np.ndarray, t: np.ndarray, prep: Prepared,
+            dwell_fs: float, forward: bool) -> np.ndarray:
+    """Visits per run in one half: unbroken stays in a basin lasting at least ``dwell_fs`` within the half,
+    where two stays in the same basin less than ``dwell_fs`` apart count as one (threshold jitter is
+    not a visit).  ``first``/``last``: first and last frame of every in-basin stay, in order."""
+    first, last, run = _in_half(first, last, prep, forward)
     ok = t[last] - t[first] >= dwell_fs - _TOL_FS
     first, last, run = first[ok], last[ok], run[ok]
     basin = track[first]

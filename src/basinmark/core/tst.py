@@ -153,11 +153,12 @@ class TSTEstimate:
         return [self.major, self.minor] if self.is_pair else list(self.barriers)  # type: ignore[list-item]
 
     def _rt(self) -> float:
-        from basinmark.core.stats import GAS_CONSTANT_SI
-        return GAS_CONSTANT_SI * self.temperature  # J/mol
+        from basinmark.core.stats import _rt_joules_per_mole
+        return _rt_joules_per_mole(self.temperature)
 
     def _joules(self, value: float) -> float:
-        return float(convert_energy(value, self.unit, "kJ/mol")) * 1000.0
+        from basinmark.core.stats import _to_joules_per_mole
+        return _to_joules_per_mole(value, self.unit)
 
     def ddg_for(self, a: str, b: str) -> float | None:
         """ΔΔG‡ = G‡(b) − G‡(a) in ``unit`` for the ratio a : b, or None when the estimate does not cover it."""

@@ -659,15 +659,7 @@ class SummaryPanel(QWidget):
 
         r, lo, hi = finite("ratio"), finite("ratio_lo"), finite("ratio_hi")
         colour = QColor(self._colour(s.a))
-        band = QColor(colour)
-        band.setAlpha(60)
-        ok = np.isfinite(lo) & np.isfinite(hi)
-        if ok.sum() >= 2:
-            c_lo = pg.PlotDataItem(n[ok], lo[ok], pen=pg.mkPen(band))
-            c_hi = pg.PlotDataItem(n[ok], hi[ok], pen=pg.mkPen(band))
-            p.addItem(c_lo)
-            p.addItem(c_hi)
-            p.addItem(pg.FillBetweenItem(c_lo, c_hi, brush=pg.mkBrush(band)))
+        ok = self._band(p, n, lo, hi, colour)
         self.conv_curve = pg.PlotDataItem(n, r, pen=pg.mkPen(colour, width=2), connect="finite",
                                           name=f"observed ({s.confidence_text} band)")
         p.addItem(self.conv_curve)
@@ -684,14 +676,9 @@ class SummaryPanel(QWidget):
         if ymax:
             p.setYRange(0, ymax * 1.1, padding=0)  # the earliest, widest part of the band would flatten the rest
 
-    def _draw_kappa_convergence(self, s: Summary) -> None:
-        """One product: the transmission coefficient as runs accumulate, with its band."""
-        conv, p = s.convergence, self.p_conv
-        self._title(p, "Convergence of the transmission coefficient")
-        p.setLabel("left", "reactive / (reactive + recrossing)")
-        n = conv["n"].to_numpy(float)
-        kappa, lo, hi = (conv[c].to_numpy(float) for c in ("fraction_a", "lo", "hi"))
-        colour = QColor(self._colour(s.a))
+    @staticmethod
+    def _band(p, n: np.ndarray, lo: np.ndarray, hi: np.ndarray, colour: QColor) -> np.ndarray:
+        """The interval band of a convergence plot, where both ends are known; returns that mask."""
         band = QColor(colour)
         band.setAlpha(60)
         ok = np.isfinite(lo) & np.isfinite(hi)
@@ -701,6 +688,17 @@ class SummaryPanel(QWidget):
             p.addItem(c_lo)
             p.addItem(c_hi)
             p.addItem(pg.FillBetweenItem(c_lo, c_hi, brush=pg.mkBrush(band)))
+        return ok
+
+    def _draw_kappa_convergence(self, s: Summary) -> None:
+        """One product: the transmission coefficient as runs accumulate, with its band."""
+        conv, p = s.convergence, self.p_conv
+        self._title(p, "Convergence of the transmission coefficient")
+        p.setLabel("left", "reactive / (reactive + recrossing)")
+        n = conv["n"].to_numpy(float)
+        kappa, lo, hi = (conv[c].to_numpy(float) for c in ("fraction_a", "lo", "hi"))
+        colour = QColor(self._colour(s.a))
+        ok = self._band(p, n, lo, hi, colour)
         self.conv_curve = pg.PlotDataItem(n, kappa, pen=pg.mkPen(colour, width=2), connect="finite",
                                           name=f"observed ({s.confidence_text} band)")
         p.addItem(self.conv_curve)
