@@ -26,6 +26,9 @@ def make_app(argv: list[str] | None = None):
     import pyqtgraph as pg
 
     pg.setConfigOptions(antialias=True)
+    from basinmark.gui.gc_guard import install_gc_guard
+
+    install_gc_guard()
     return app
 
 
