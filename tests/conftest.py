@@ -37,5 +37,6 @@ def _no_automatic_gc():
 
 @pytest.fixture(autouse=True)
 def _collect_between_tests():
+    gc.disable()  # again: a library switching it back on must not reopen the hang
     yield
     gc.collect()
