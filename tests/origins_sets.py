@@ -1,0 +1,111 @@
+"""Small made-up sets whose outcome is a known function of one starting coordinate (for the origins tests).
+
+Four atoms A-B-C-D.  Each run starts at t = 0 near the same geometry (random displacement, ``spread`` Å) with
+random atom velocities; for |t| ≤ 4 fs the atoms move in straight lines (so a difference over the frames next
+to t = 0 gives the exact velocity), then each run glides to the reactant end (backward) and to product
+``alpha`` or ``beta`` (forward).  Which product is decided by ``decide(x0, v0)``; by default the sign of the
+rate of change of the B–C distance at t = 0.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from basinmark.core.model import Trajectory, TrajectorySet
+
+SYMBOLS = ["C", "C", "C", "H"]
+BASE = np.array([[0.0, 0.0, 0.0], [1.5, 0.0, 0.0], [3.0, 0.0, 0.0], [3.0, 2.2, 0.0]])
+REACTANT_END = np.array([[0.0, 0.0, 0.0], [1.5, 0.0, 0.0], [3.0, 0.0, 0.0], [3.0, 3.5, 0.0]])
+ALPHA_END = np.array([[0.2, 0.0, 0.0], [1.5, 0.0, 0.0], [3.0, 0.0, 0.0], [3.0, 1.5, 0.0]])
+BETA_END = np.array([[-1.0, 0.0, 0.0], [1.5, 0.0, 0.0], [3.0, 0.0, 0.0], [3.0, 1.5, 0.0]])
+MONITORS = {"r_ab": (0, 1), "r_bc": (1, 2), "r_cd": (2, 3)}  # 0-based
+
+RULES = """name = "toy"
+reactant = "reactant"
+dwell_fs = 10.0
+
+[monitors]
+r_ab = [1, 2]
+r_bc = [2, 3]
+r_cd = [3, 4]
+
+[basins.reactant]
+r_cd = { above = 2.6 }
+
+[basins.alpha]
+r_cd = { below = 1.8 }
+r_ab = { below = 1.6 }
+
+[basins.beta]
+r_cd = { below = 1.8 }
+r_ab = { above = 2.2 }
+"""
+
+
+def rate_bc(x0: np.ndarray, v0: np.ndarray) -> float:
+    """d|x_C - x_B|/dt at t = 0 (analytic)."""
+    d = x0[2] - x0[1]
+    return float(np.dot(d, v0[2] - v0[1]) / np.linalg.norm(d))
+
+
+def by_rate_bc(x0, v0) -> str:
+    return "alpha" if rate_bc(x0, v0) > 0 else "beta"
+
+
+def toy_runs(n: int = 80, seed: int = 1, decide=by_rate_bc, spread: float = 0.03, speed: float = 0.01,
+             step_fs: float = 2.0, span_fs: float = 60.0):
+    """``[(run_id, times, positions (F, 4, 3), v0 (4, 3), outcome)]``."""
+    rng = np.random.default_rng(seed)
+    times = np.arange(-span_fs, span_fs + step_fs / 2, step_fs)
+    out = []
+    for k in range(n):
+        x0 = BASE + rng.normal(0, spread, BASE.shape)
+        v0 = rng.normal(0, speed, BASE.shape)
+        outcome = decide(x0, v0)
+        end_f = ALPHA_END if outcome == "alpha" else BETA_END
+        pos = np.empty((times.size, 4, 3))
+        for i, t in enumerate(times):
+            if abs(t) <= 4.0:
+                pos[i] = x0 + v0 * t
+            else:
+                start = x0 + v0 * 4.0 * np.sign(t)
+                end = end_f if t > 0 else REACTANT_END
+                f = min(1.0, (abs(t) - 4.0) / 20.0)
+                pos[i] = (1 - f) * start + f * end
+        out.append((f"run-{k + 1:03d}", times, pos, v0, outcome))
+    return out
+
+
+def toy_set(n: int = 80, seed: int = 1, decide=by_rate_bc, **kw) -> tuple[TrajectorySet, dict[str, str]]:
+    """An in-memory set (no files, so velocities are estimated) and its true outcomes."""
+    runs = {}
+    outcome = {}
+    for rid, times, pos, _v0, o in toy_runs(n, seed, decide, **kw):
+        runs[rid] = Trajectory(rid, Trajectory.numbers_from_symbols(SYMBOLS), pos, times)
+        outcome[rid] = o
+    return TrajectorySet(root=Path("/nonexistent-toy"), runs=runs), outcome
+
+
+def write_toy_set(folder: Path, n: int = 40, seed: int = 1, decide=by_rate_bc, velocities: str | None = "vel",
+                  **kw) -> dict[str, str]:
+    """Joined run files (``runs/<run>.xyz``) with the rules; ``velocities`` names the per-atom velocity column
+    written with every frame (None: no column).  Returns the true outcomes."""
+    folder = Path(folder)
+    (folder / "runs").mkdir(parents=True, exist_ok=True)
+    (folder / "basins.toml").write_text(RULES, encoding="utf-8")
+    outcome = {}
+    for rid, times, pos, v0, o in toy_runs(n, seed, decide, **kw):
+        outcome[rid] = o
+        lines = []
+        for i, t in enumerate(times):
+            vel = v0 if abs(t) <= 4.0 else np.zeros_like(v0)  # only the t = 0 frame's values matter here
+            props = "species:S:1:pos:R:3" + (f":{velocities}:R:3" if velocities else "")
+            lines.append("4")
+            lines.append(f"Properties={props} time={t:.3f}")
+            for s, p, v in zip(SYMBOLS, pos[i], vel):
+                extra = f" {v[0]:.8f} {v[1]:.8f} {v[2]:.8f}" if velocities else ""
+                lines.append(f"{s} {p[0]:.6f} {p[1]:.6f} {p[2]:.6f}{extra}")
+        (folder / "runs" / f"{rid}.xyz").write_text("\n".join(lines) + "\n", encoding="ascii")
+    return outcome
