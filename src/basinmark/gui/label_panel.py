@@ -119,6 +119,16 @@ class LabelPanel(QWidget):
         self._return_focus: QWidget | None = None
         self.buttons: dict[str, QPushButton] = {}
         self.label_actions: dict[str, QAction] = {}
+        #: a set is loading: its rules (which decide what each number key means) are not read yet, so the keys
+        #: mean no label at all (neither the fixed labels nor the previous set's) and only say why
+        self.waiting = False
+        self.wait_actions: list[QAction] = []
+        for k in range(1, 10):
+            act = QAction(f"Key {k} (waiting for the set to load)", self)
+            act.setShortcut(QKeySequence(str(k)))
+            act.setShortcutContext(Qt.ShortcutContext.WidgetWithChildrenShortcut)
+            act.triggered.connect(self._key_while_waiting)
+            self.wait_actions.append(act)
         lay = QVBoxLayout(self)
         lay.setContentsMargins(6, 4, 6, 4)
         self.title = QLabel("No run", self)
@@ -136,6 +146,12 @@ class LabelPanel(QWidget):
         self.grid = QGridLayout()
         self.grid.setSpacing(4)
         lay.addLayout(self.grid)
+        self.wait_note = QLabel("Label buttons and keys 1–9 appear when the set has loaded: its rules decide "
+                                "what each key means.", self)
+        self.wait_note.setWordWrap(True)
+        self.wait_note.setObjectName("labelsWaiting")
+        self.wait_note.setVisible(False)
+        lay.addWidget(self.wait_note)
         self.pending_note = QLabel(self)
         self.pending_note.setWordWrap(True)
         self.pending_note.setTextFormat(Qt.TextFormat.RichText)
@@ -182,6 +198,7 @@ class LabelPanel(QWidget):
         lay.addLayout(row)
         lay.addStretch(1)
         state.rules_changed.connect(self.rebuild)
+        state.set_changed.connect(self._on_set)
         state.run_changed.connect(self._on_run)
         state.labels_changed.connect(self.refresh)
         state.journal_changed.connect(self.refresh)
@@ -203,11 +220,26 @@ class LabelPanel(QWidget):
     def set_key_widgets(self, widgets: list[QWidget]) -> None:
         """The widgets where the number keys act (molecule, traces, run table): focus elsewhere never labels."""
         for w in self.key_widgets:
-            for a in self.label_actions.values():
+            for a in list(self.label_actions.values()) + self.wait_actions:
                 w.removeAction(a)
         self.key_widgets = list(widgets)
         for w in self.key_widgets:
-            w.addActions(list(self.label_actions.values()))
+            w.addActions(self.wait_actions if self.waiting else list(self.label_actions.values()))
+
+    def set_loading(self, on: bool) -> None:
+        """A set starts (True) or ends (False) loading: while it loads no key or button means a label."""
+        if bool(on) != self.waiting:
+            self.waiting = bool(on)
+            self.rebuild()
+
+    def _key_while_waiting(self) -> None:
+        self.acting.emit()
+        self._say(self.refusal() or "Still loading the set; the label was not saved. "
+                                    "Label again once loading has finished.")
+
+    def _on_set(self) -> None:
+        """Another set: what the panel said about the previous one ("Undone …", "Saved …") no longer holds."""
+        self.feedback.clear()
 
     def rebuild(self) -> None:
         """One button and one number key per label of the current rules."""
@@ -220,6 +252,15 @@ class LabelPanel(QWidget):
                 w.removeAction(a)
             a.deleteLater()
         self.buttons, self.label_actions = {}, {}
+        for w in self.key_widgets:
+            for a in self.wait_actions:
+                w.removeAction(a)
+        self.wait_note.setVisible(self.waiting)
+        if self.waiting:
+            for w in self.key_widgets:
+                w.addActions(self.wait_actions)
+            self.refresh()
+            return
         labels = panel_labels(self.state.rules)
         products = list(getattr(self.state.rules, "products", []) or [])
         for i, label in enumerate(labels):

@@ -508,6 +508,9 @@ class MainWindow(QMainWindow):
 
     def _busy(self, on: bool, phase: str = "") -> None:
         self.state.loading = on
+        if phase == "Loading" or not on:  # no key means a label until the set's rules are read
+            self.label_panel.set_loading(on)
+            self._fill_labels_menu()
         self.progress.setVisible(on)
         self.cancel_button.setVisible(on)
         if on:
