@@ -26,6 +26,7 @@ from PySide6.QtWidgets import (QComboBox, QDockWidget, QGraphicsRectItem, QHBoxL
                                QVBoxLayout, QWidget)
 
 from basinmark.gui.colours import basin_colour, outcome_colour
+from basinmark.gui.label_table import UNCLASSIFIED, final_label_counts
 
 from basinmark.gui.map_data import (NO_LABEL, _finite, MAX_DRAW_POINTS, PICK_RADIUS_PX, MapAxis, added_monitor_name, map_axes, MapData, decimated_indices, grouped_paths, nearest_on_paths, basin_regions)  # noqa: F401  (some re-exported)
 
@@ -189,6 +190,8 @@ class MapCanvas(pg.PlotWidget):
         if self.data is None:
             return
         groups = grouped_paths(self.data, self.labels, self.max_points)
+        # the legend counts runs as the run table does (one function); paths not drawn are said
+        totals = final_label_counts(("" if v == NO_LABEL else v for v in self.labels.values()), self.products)
         for z, label in enumerate(self._legend_order(list(groups))):
             x, y, n = groups[label]
             colour = QColor(self.label_colour(label))
@@ -203,7 +206,9 @@ class MapCanvas(pg.PlotWidget):
             self.counts[label] = n
             shown = QColor(colour)
             shown.setAlpha(255)
-            self.legend.addItem(pg.PlotDataItem(pen=pg.mkPen(shown, width=3)), f"{label} ({n})")
+            total = totals.get(UNCLASSIFIED if label == NO_LABEL else label, n)
+            self.legend.addItem(pg.PlotDataItem(pen=pg.mkPen(shown, width=3)),
+                                f"{label} ({total})" if n == total else f"{label} ({n} of {total} drawn)")
 
     def set_current(self, run_id: str, frame: int = 0) -> None:
         self.current_run = run_id or ""

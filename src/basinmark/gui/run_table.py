@@ -17,14 +17,17 @@ import time
 
 from PySide6.QtCore import (QAbstractTableModel, QEvent, QItemSelectionModel, QModelIndex, QRectF, QSignalBlocker,
                             QSize, QSortFilterProxyModel, Qt, Signal)
-from PySide6.QtGui import QFont, QKeyEvent, QPainter, QPalette
-from PySide6.QtWidgets import (QAbstractItemView, QButtonGroup, QHBoxLayout, QHeaderView, QLabel, QSizePolicy,
-                               QTableView, QToolButton, QVBoxLayout, QWidget)
+from PySide6.QtCore import QPointF
+from PySide6.QtGui import (QColor, QFont, QFontMetrics, QIcon, QKeyEvent, QPainter, QPalette, QPen, QPixmap,
+                           QPolygonF)
+from PySide6.QtWidgets import (QAbstractItemView, QButtonGroup, QFrame, QHBoxLayout, QHeaderView, QLabel, QLineEdit,
+                               QSizePolicy, QStyle, QTableView, QToolButton, QVBoxLayout, QWidget)
 
 from basinmark.core import stats
 from basinmark.core.classify import signed_commit_time
 from basinmark.core.labels import FIXED_LABELS
 from basinmark.gui.colours import outcome_colour
+from basinmark.gui.label_table import final_label_counts
 from basinmark.gui.state import AppState
 
 #: (column in the labels table, header shown)
@@ -96,6 +99,59 @@ def flag_words(flags: str | None) -> str:
     return ", ".join(f.strip().replace("_", " ") for f in (flags or "").split(";") if f.strip())
 
 
+_NOTE_ROLES = (Qt.ItemDataRole.DecorationRole, Qt.ItemDataRole.ToolTipRole)
+_NOTE_ICON: list[QIcon] = []
+
+
+def note_icon() -> QIcon:
+    """The mark of a run with a note: a small page with a folded corner, drawn once."""
+    if not _NOTE_ICON:
+        pix = QPixmap(14, 14)
+        pix.fill(Qt.GlobalColor.transparent)
+        p = QPainter(pix)
+        p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
+        ink = QColor("#5b5b5b")
+        p.setPen(QPen(ink, 1.2))
+        p.setBrush(QColor("#fff6c8"))
+        p.drawPolygon(QPolygonF([QPointF(2.5, 1.5), QPointF(9, 1.5), QPointF(12, 4.5), QPointF(12, 12.5),
+                                 QPointF(2.5, 12.5)]))
+        for y in (6.0, 8.5, 11.0):
+            p.drawLine(QPointF(4.5, y - 1), QPointF(10, y - 1))
+        p.end()
+        _NOTE_ICON.append(QIcon(pix))
+    return _NOTE_ICON[0]
+
+
+def note_cell(row: dict, role, extra_note=lambda row: "") -> Any:
+    """The Run cell's note mark (decoration) and note text (tooltip) of a labels-table row; None without a note
+    (and for the tooltip of a row listed only while on screen, which says that instead)."""
+    note = row.get("note") or ""
+    if not note:
+        return None
+    if role == Qt.ItemDataRole.DecorationRole:
+        return note_icon()
+    return None if extra_note(row) else f"note: {note}"
+
+
+def search_runs(df: pd.DataFrame, text: str) -> list[str]:
+    """Runs whose id, labels, flags (as words), labeler, reason or note contain ``text`` (any case), in order."""
+    needle = text.strip().lower()
+    if not needle or not len(df):
+        return list(df["run"]) if len(df) else []
+    hit = np.zeros(len(df), dtype=bool)
+    for col in SEARCHED:
+        if col in df:
+            cells = df[col].fillna("").astype(str)
+            if col == "flags":
+                cells = cells.str.replace("_", " ", regex=False).str.replace(";", ", ", regex=False)
+            hit |= cells.str.lower().str.contains(needle, regex=False).to_numpy()
+    return [str(r) for r in df["run"][hit]]
+
+
+#: the columns the search field looks in
+SEARCHED = ("run", "auto_label", "hand_label", "final_label", "flags", "labeler", "reason", "note")
+
+
 class RunTableModel(QAbstractTableModel):
     """A read-only Qt model over the labels DataFrame (rows kept as plain lists for speed)."""
 
@@ -138,6 +194,10 @@ class RunTableModel(QAbstractTableModel):
     def data(self, index: QModelIndex, role=Qt.ItemDataRole.DisplayRole) -> Any:
         if not index.isValid():
             return None
+        if index.column() == 0 and role in _NOTE_ROLES:  # the run's note: a mark beside its id, the text on hover
+            shown = note_cell(self.row(index.row()), role, self.extra_note)
+            if shown is not None:
+                return shown
         row = self._rows[index.row()]
         key = COLUMNS[index.column()][0]
         value = row.get(key)
@@ -282,6 +342,52 @@ class CountBar(QWidget):
         p.end()
 
 
+def _widest(texts, metrics: QFontMetrics) -> int:
+    return max((metrics.horizontalAdvance(t) for t in texts if t), default=0)
+
+
+def column_widths(view: QTableView, df: pd.DataFrame, products: list[str]) -> list[int]:
+    """Pixels each column needs to show its widest text whole, with the cell's margins and colour mark.
+
+    Measured on the distinct texts, not on a sample of rows: a label set later (or a long labeler name)
+    must not come out as "ambigu…".  The label columns fit every label of the rules, set or not.
+    """
+    style = view.style()
+    pad = 2 * (style.pixelMetric(QStyle.PixelMetric.PM_FocusFrameHMargin, None, view) + 1) + 6  # + italic slack
+    icon = view.iconSize().width() if view.iconSize().isValid() else -1
+    icon = (icon if icon > 0 else style.pixelMetric(QStyle.PixelMetric.PM_SmallIconSize, None, view)) + pad
+    fm = QFontMetrics(view.font())
+    bold = QFont(view.font())
+    bold.setBold(True)
+    fmb = QFontMetrics(bold)
+    vocabulary = list(products) + list(FIXED_LABELS)
+
+    def texts(col: str) -> list[str]:
+        return [str(x) for x in pd.unique(df[col].fillna("").astype(str))] if col in df else []
+
+    out = []
+    for key, _title in COLUMNS:
+        if key == "run":
+            ids = sorted(texts("run"), key=len)[-40:]  # the longest ids (widths follow lengths closely)
+            w = _widest(ids, fm) + pad + (icon if "note" in df and (df["note"].fillna("") != "").any() else 0)
+        elif key in ("auto_label", "final_label"):
+            w = _widest(vocabulary + texts(key), fmb if key == "final_label" else fm) + pad + icon
+        elif key == "hand_label":
+            w = _widest(vocabulary + texts(key), fm) + pad
+        elif key == "product_final_entry_fs":
+            v = pd.to_numeric(df[key], errors="coerce").to_numpy(float)
+            ok = np.isfinite(v)
+            w = _widest([f"{-x:.1f}" for x in (v[ok].min(), v[ok].max())] if ok.any() else [], fm) + pad
+        elif key == "flags":
+            w = _widest([flag_words(t) for t in texts(key)], fm) + pad
+        elif key == "data_changed":
+            w = _widest(["changed"], fm) + pad
+        else:
+            w = _widest(texts(key), fm) + pad
+        out.append(int(w))
+    return out
+
+
 def _show(widget: QWidget, on: bool) -> None:
     """Show or hide only on a change: each setVisible call re-runs the layout (measured: ~1 ms each)."""
     if widget.isHidden() == on:
@@ -290,6 +396,39 @@ def _show(widget: QWidget, on: bool) -> None:
 
 _MODIFIER_KEYS = frozenset({Qt.Key.Key_Shift, Qt.Key.Key_Control, Qt.Key.Key_Alt, Qt.Key.Key_Meta,
                             Qt.Key.Key_AltGr, Qt.Key.Key_CapsLock})
+
+
+class FrozenRunColumn(QTableView):
+    """The Run column drawn again over the table's left edge, so the run id stays in view when the table
+    scrolls right.  It shares the table's model and selection; it never takes the keyboard focus (clicks in
+    it give the focus to the table, where number keys and finding a run by its id act)."""
+
+    def __init__(self, table: "RunTableView") -> None:
+        super().__init__(table)
+        self.table = table
+        self.setObjectName("frozenRunColumn")
+        self.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.verticalHeader().setVisible(False)
+        self.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Fixed)
+        self.horizontalHeader().setSortIndicatorShown(True)
+        self.horizontalHeader().setSectionsClickable(True)
+        self.horizontalHeader().sectionClicked.connect(lambda c: self.table._frozen_sort(c))
+        self.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.setVerticalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        self.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
+        self.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        self.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
+        self.setAlternatingRowColors(True)
+        self.setFrameShape(QFrame.Shape.NoFrame)
+        self.setTextElideMode(Qt.TextElideMode.ElideMiddle)  # if ever narrowed by hand: both ends of an id stay
+
+    def mousePressEvent(self, event) -> None:  # noqa: N802
+        self.table.end_find()
+        self.table.setFocus(Qt.FocusReason.MouseFocusReason)
+        super().mousePressEvent(event)
+
+    def wheelEvent(self, event) -> None:  # noqa: N802
+        self.table.wheelEvent(event)
 
 
 class RunTableView(QTableView):
@@ -311,6 +450,56 @@ class RunTableView(QTableView):
         super().__init__(parent)
         self.find_text = ""
         self._find_at = 0.0
+        self.frozen = FrozenRunColumn(self)
+        self.horizontalHeader().sectionResized.connect(self._column_resized)
+        self.horizontalHeader().sortIndicatorChanged.connect(
+            lambda section, order: self.frozen.horizontalHeader().setSortIndicator(section, order))
+        self.verticalScrollBar().valueChanged.connect(self.frozen.verticalScrollBar().setValue)
+        self.frozen.verticalScrollBar().valueChanged.connect(self.verticalScrollBar().setValue)
+
+    # --- the Run column kept in view (FrozenRunColumn) -----------------------------------------
+    def setModel(self, model) -> None:  # noqa: N802
+        super().setModel(model)
+        self.frozen.setModel(model)
+        self.frozen.setSelectionModel(self.selectionModel())  # one selection: the current run
+        model.modelReset.connect(self._frozen_columns)
+        model.layoutChanged.connect(self._frozen_columns)
+        self._frozen_columns()
+
+    def _frozen_columns(self) -> None:
+        model = self.model()
+        for c in range(1, model.columnCount() if model is not None else 0):
+            self.frozen.setColumnHidden(c, True)
+        self._place_frozen()
+
+    def _column_resized(self, column: int, _old: int, _new: int) -> None:
+        if column == 0:
+            self._place_frozen()
+
+    def _place_frozen(self) -> None:
+        """Lay the Run column over the table's left edge, as wide and high as the table's own."""
+        f = self.frozen
+        f.setColumnWidth(0, self.columnWidth(0))
+        f.verticalHeader().setDefaultSectionSize(self.verticalHeader().defaultSectionSize())
+        f.horizontalHeader().setFixedHeight(self.horizontalHeader().height())
+        left = self.frameWidth() + (self.verticalHeader().width() if self.verticalHeader().isVisible() else 0)
+        f.setGeometry(left, self.frameWidth(), self.columnWidth(0),
+                      self.viewport().height() + self.horizontalHeader().height())
+        f.verticalScrollBar().setValue(self.verticalScrollBar().value())
+
+    def resizeEvent(self, event) -> None:  # noqa: N802
+        super().resizeEvent(event)
+        self._place_frozen()
+
+    def updateGeometries(self) -> None:  # noqa: N802
+        super().updateGeometries()
+        self._place_frozen()
+
+    def _frozen_sort(self, section: int) -> None:
+        """A click on the Run header over the table sorts as a click on the table's own header would."""
+        h = self.horizontalHeader()
+        up = h.sortIndicatorSection() == section and h.sortIndicatorOrder() == Qt.SortOrder.AscendingOrder
+        h.setSortIndicator(section, Qt.SortOrder.DescendingOrder if up else Qt.SortOrder.AscendingOrder)
 
     @property
     def finding(self) -> bool:
@@ -387,7 +576,6 @@ class RunTable(QWidget):
     def __init__(self, state: AppState, parent=None) -> None:
         super().__init__(parent)
         self.state = state
-        self._sized: tuple = ()
         self._syncing = False
         self._finding_run = False
         self._last_run = ""    # the run shown before a filter left no run to show
@@ -415,6 +603,17 @@ class RunTable(QWidget):
         bar.addStretch(1)
         self.filter_buttons["all"].setChecked(True)
         lay.addLayout(bar)
+        # search: runs whose id, labels, flags, labeler, reason or note contain the text (search_runs)
+        self.search = QLineEdit(self)
+        self.search.setObjectName("runSearch")
+        self.search.setPlaceholderText("Search ids, labels, reasons, notes…")
+        self.search.setClearButtonEnabled(True)
+        self.search.setToolTip("List only the runs whose id, labels, flags, labeler, reason or note contain this "
+                               "text (any case). Enter goes to the table; clearing it shows the filter again.")
+        self.search.textChanged.connect(self._search_changed)
+        self.search.returnPressed.connect(lambda: self.view.setFocus(Qt.FocusReason.OtherFocusReason))
+        self._mode_before_search = ""    # the quick filter to go back to when the search is cleared
+        lay.addWidget(self.search)
         # "showing only these runs" (show_only_runs): a caption naming why, and a way back to every run
         only = QHBoxLayout()
         self.only_caption = QLabel(self)
@@ -442,6 +641,7 @@ class RunTable(QWidget):
         self.view.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         self.view.horizontalHeader().setStretchLastSection(True)
         self.view.horizontalHeader().setResizeContentsPrecision(200)
+        self.view.setHorizontalScrollMode(QAbstractItemView.ScrollMode.ScrollPerPixel)  # the Run column stays put
         lay.addWidget(self.view, 1)
         self.find_label = QLabel(self)
         self.find_label.setVisible(False)
@@ -478,10 +678,25 @@ class RunTable(QWidget):
         self.view.end_find()
         self._select_run(self.state.run_id)
         self._update_counts()
-        products = tuple(getattr(self.state.rules, "products", []) or [])
-        if len(self.state.labels) and self._sized != (len(self.state.labels), products):
-            self.view.resizeColumnsToContents()  # sampled: see setResizeContentsPrecision
-            self._sized = (len(self.state.labels), products)
+        self.fit_columns()
+
+    def fit_columns(self) -> None:
+        """Widen every column whose header or widest text would be cut (never narrows one a person widened)."""
+        df = self.state.labels
+        if not len(df):
+            return
+        need = column_widths(self.view, df, list(getattr(self.state.rules, "products", []) or []))
+        header = self.view.horizontalHeader()
+        last = len(COLUMNS) - 1
+        for c, w in enumerate(need):
+            w = max(w, header.sectionSizeHint(c))
+            if c != last and self.view.columnWidth(c) < w:
+                self.view.setColumnWidth(c, w)
+        if header.stretchLastSection():
+            header.setMinimumSectionSize(min(header.minimumSectionSize(), 40))
+            self._last_width = max(need[last], header.sectionSizeHint(last))
+            if self.view.columnWidth(last) < self._last_width:
+                self.view.setColumnWidth(last, self._last_width)
 
     def outcome_counts(self) -> dict[str, int]:
         """Counts of the final labels, products first, then the fixed labels, then anything else."""
@@ -495,10 +710,7 @@ class RunTable(QWidget):
     def _outcome_counts(self) -> dict[str, int]:
         df = self.state.labels
         products = list(getattr(self.state.rules, "products", []) or [])
-        counts = df["final_label"].replace("", "unclassified").value_counts().to_dict() if len(df) else {}
-        order = products + [x for x in FIXED_LABELS] + sorted(k for k in counts if k not in products
-                                                              and k not in FIXED_LABELS)
-        return {k: int(counts.get(k, 0)) for k in order if counts.get(k, 0) or k in products}
+        return final_label_counts(df["final_label"] if len(df) else [], products)
 
     def filter_counts(self) -> dict[str, int]:
         return filter_counts(self.state.labels)
@@ -532,13 +744,16 @@ class RunTable(QWidget):
     # --- filters and selection ---------------------------------------------------------------
     def set_filter(self, mode: str) -> None:
         """Show the runs of one quick filter; the current run moves into it when the filter hides it."""
+        self._end_search()
         self.filter_group.setExclusive(True)
         self.filter_buttons[mode].setChecked(True)
         self._show_only_caption("")
         self._apply_filter(mode, None)
 
-    def show_only_runs(self, run_ids, caption: str) -> None:
+    def show_only_runs(self, run_ids, caption: str, *, searching: bool = False) -> None:
         """Show exactly ``run_ids`` (e.g. the runs a summary warning names) under a caption saying why."""
+        if not searching:
+            self._end_search()
         only = frozenset(str(r) for r in run_ids)
         self.filter_group.setExclusive(False)  # no quick filter is in force now
         for b in self.filter_buttons.values():
@@ -578,6 +793,25 @@ class RunTable(QWidget):
 
     def clear_only_runs(self) -> None:
         self.set_filter("all")
+
+    # --- search -------------------------------------------------------------------------------
+    def _end_search(self) -> None:
+        """Empty the search field without going back to the filter before it (a filter is being chosen)."""
+        self._mode_before_search = ""
+        if self.search.text():
+            with QSignalBlocker(self.search):
+                self.search.clear()
+
+    def _search_changed(self, text: str) -> None:
+        if not text.strip():
+            if self._mode_before_search:
+                self.set_filter(self._mode_before_search)
+            return
+        mode = self._mode_before_search or (self.proxy.mode if self.proxy.only is None else "all")
+        runs = search_runs(self.state.labels, text)
+        self.show_only_runs(runs, f"the search for “{text.strip()}” (ids, labels, flags, reasons, notes)",
+                            searching=True)
+        self._mode_before_search = mode
 
     def _show_only_caption(self, text: str) -> None:
         self.only_caption.setText(text)

@@ -15,7 +15,7 @@ import pandas as pd
 from PySide6.QtCore import QObject, Signal
 
 from basinmark.core.model import Trajectory, TrajectorySet
-from basinmark.gui.label_table import LABEL_COLUMNS, build_label_table
+from basinmark.gui.label_table import LABEL_COLUMNS, build_label_table, journal_notes
 
 
 class AppState(QObject):
@@ -199,7 +199,8 @@ class AppState(QObject):
                 jstate = blind_state(self.journal, self.blind_labeler, dict(self.tset.content_hashes()))
             else:
                 jstate = self.journal.state(current_hashes=dict(self.tset.content_hashes()))
-        self.labels = build_label_table(self.run_ids, self.classification, jstate)
+        notes = journal_notes(self.journal, self.blind_labeler) if self.tset is not None else {}
+        self.labels = build_label_table(self.run_ids, self.classification, jstate, notes)
         self.labels_changed.emit()
 
     def label_row(self, run_id: str | None = None) -> dict | None:

@@ -27,6 +27,7 @@ from basinmark.core.timing import (COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, co
 from basinmark.core.tst import MAX_DDG_KCAL
 from basinmark.core.units import convert_energy
 from basinmark.gui.colours import outcome_colour
+from basinmark.gui.label_table import final_label_counts
 
 UNITS = ("kcal/mol", "kJ/mol")
 HIST_BINS = 20
@@ -535,6 +536,8 @@ class SummaryPanel(QWidget):
         table = pd.DataFrame({"outcome": counted["final_label"].astype(str),
                               DEFAULT_COMMIT_COLUMN: pd.to_numeric(counted[DEFAULT_COMMIT_COLUMN], errors="coerce")})
         self.commit_hist = commit_time_histogram(table, bins=HIST_BINS)  # product side, final entry
+        # runs per outcome as the run table counts them: a legend says "2 of 7" when only 2 have a commit time
+        self.outcome_totals = final_label_counts(labels["final_label"], self.products())
         rules, cls = self.state.rules, self.state.classification
         if rules is None or rules.time_gap is None or cls is None or "time_gap_fs" not in cls:
             return
@@ -717,8 +720,13 @@ class SummaryPanel(QWidget):
             colour = QColor(self._colour(outcome)) if what == "commit_time" else QColor(self._gap_colour(outcome))
             fill = QColor(colour)
             fill.setAlpha(70)
+            k = int(counts.sum())
+            n = getattr(self, "outcome_totals", {}).get(outcome, k) if what == "commit_time" else k
             p.addItem(pg.PlotDataItem(edges, counts, stepMode="center", fillLevel=0, brush=pg.mkBrush(fill),
-                                      pen=pg.mkPen(colour, width=1.5), name=f"{outcome} ({int(counts.sum())})"))
+                                      pen=pg.mkPen(colour, width=1.5),
+                                      name=f"{outcome} ({k} of {n})" if k != n else f"{outcome} ({n})"))
+        if what == "commit_time":
+            p.setToolTip("Legend: runs of each outcome with a product commit time, of all runs with that outcome")
 
     def _gap_colour(self, mode: str) -> QColor:
         from basinmark.gui.colours import trace_colour
