@@ -16,7 +16,7 @@ from typing import Any, Sequence
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QPalette
 from PySide6.QtWidgets import QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
@@ -37,6 +37,30 @@ def monitor_name(atoms: Sequence[int]) -> str:
     """Display name of an added monitor from its 1-based atoms, e.g. ``d(1-2)``, ``∠(1-2-3)``."""
     prefix = {2: "d", 3: "∠", 4: "φ"}[len(atoms)]
     return f"{prefix}({'-'.join(map(str, atoms))})"
+
+
+#: shorter words for a time mark's label where the full one finds no room
+MARK_SHORT = {"product commit": ["prod. commit", "prod."], "reactant commit": ["reac. commit", "reac."],
+              "first arrival": ["1st arrival", "1st"], "commit →": ["→"], "← commit": ["←"]}
+
+
+def _fractions(start: float, stop: float, n: int) -> list[float]:
+    return list(np.linspace(start, stop, n))
+
+
+def threshold_label_texts(entries, which: int) -> list[str]:
+    """A threshold label's texts, longest first, as pyqtgraph label formats (``{value}`` follows a drag).
+
+    ``entries``: (basin, description, monitor, "above"|"below") of every condition on the line; ``which``: 0 for
+    a distance (Å, 0.01), 1 for an angle or dihedral (°, 0.1) -- the precision a dragged threshold is kept at.
+    """
+    def esc(x: str) -> str:
+        return str(x).replace("{", "{{").replace("}", "}}")
+
+    value = "{value:.2f} Å" if which == 0 else "{value:.1f}°"
+    mons = list(dict.fromkeys(m for _b, _d, m, _k in entries))
+    parts = [f"{esc(b)}: {esc(m)} {'>' if k == 'above' else '<'}" for b, _d, m, k in entries]
+    return [f"{value}  ({'; '.join(parts)})", f"{value} {esc(', '.join(mons))}", value]
 
 
 class TracesView(QWidget):
@@ -64,6 +88,13 @@ class TracesView(QWidget):
         self.hidden: set[str] = set()   # traces switched off from the legend (kept across runs)
         self.units: dict[str, str] = {}  # unit of each trace, for the readout
         self.drift_curve: pg.PlotDataItem | None = None  # E_total - E_total(t=0) on the drift panel
+        self._threshold_items: list[tuple[Any, pg.InfiniteLine]] = []   # (plot, line) of each threshold
+        self._mark_items: list[tuple[Any, Any, int]] = []               # (plot, label, side) of each time mark
+        self._label_texts: dict[int, list[str]] = {}                    # label id -> its texts, longest first
+        self._layout_timer = QTimer(self)
+        self._layout_timer.setSingleShot(True)
+        self._layout_timer.setInterval(25)
+        self._layout_timer.timeout.connect(self.layout_labels)
 
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
@@ -136,6 +167,9 @@ class TracesView(QWidget):
             self.cursors.append(line)
         self.apply_palette()
         self.p_angle.setVisible(False)
+        for p in (self.p_dist, self.p_angle):  # zoom, pan and resize move labels: lay them out again
+            p.getViewBox().sigRangeChanged.connect(self._schedule_layout)
+            p.getViewBox().sigResized.connect(self._schedule_layout)
 
     # --- look -----------------------------------------------------------------------------
     def apply_palette(self) -> None:
@@ -192,6 +226,7 @@ class TracesView(QWidget):
         self.drift_curve = None
         self.threshold_lines = []
         self.marks = {}
+        self._threshold_items, self._mark_items, self._label_texts = [], [], {}
         self.band_items = []
         traj = self._traj
         if traj is None:
@@ -212,6 +247,8 @@ class TracesView(QWidget):
             c.setBounds((t0, t1))
         self.set_time(float(np.clip(self._time, t0, t1)))
         self._update_legend()
+        self.layout_labels()
+        self._schedule_layout()  # again once the plots have their final geometry
 
     def _update_legend(self) -> None:
         """One entry per trace; clicking an entry hides or shows its trace (a hidden one is struck through)."""
@@ -324,53 +361,94 @@ class TracesView(QWidget):
         text_colour = self.palette().color(QPalette.ColorRole.Text)
         label_fill = QColor(self.palette().color(QPalette.ColorRole.Base))
         label_fill.setAlpha(190)
-        # labels of thresholds close in value would overprint: spread them along the line
-        spans = {}
-        for which in (0, 1):
-            vals = [v for (w, v) in groups if w == which]
-            data = [self.values[n] for n, c in self.curves.items() if (c.getViewBox() is (
-                self.p_dist if which == 0 else self.p_angle).getViewBox())]
-            lo = min([np.nanmin(d) for d in data] + vals, default=0.0)
-            hi = max([np.nanmax(d) for d in data] + vals, default=1.0)
-            spans[which] = max(hi - lo, 1e-9)
-        # clusters of close values: the lowest label goes under its line, the others above, spread out
-        slots: dict[tuple[int, float], tuple[float, bool]] = {}
-        clusters: list[list[tuple[int, float]]] = []
-        for key in sorted(groups):
-            c = clusters[-1] if clusters else None
-            if c and c[-1][0] == key[0] and abs(key[1] - c[-1][1]) < 0.07 * spans[key[0]]:
-                c.append(key)
-            else:
-                clusters.append([key])
-        for c in clusters:
-            for k, key in enumerate(c):
-                below = len(c) > 1 and k == 0
-                slots[key] = (0.02 + 0.34 * (max(k - 1, 0) % 3), below)
         for (which, value), entries in groups.items():
             plot = self.p_dist if which == 0 else self.p_angle
             # tied to its trace: the trace's own colour when one monitor owns the line, else neutral grey
             # (never a basin's colour: outcome colours are for outcomes)
-            mons = {m for _b, _d, m, _k in entries}
-            colour = (self.curves[next(iter(mons))].opts["pen"].color() if len(mons) == 1
-                      else threshold_colour())
+            mons = list(dict.fromkeys(m for _b, _d, m, _k in entries))
+            colour = (self.curves[mons[0]].opts["pen"].color() if len(mons) == 1 else threshold_colour())
             by_basin: dict[str, list[str]] = {}
             for b, d, _m, _k in entries:
                 by_basin.setdefault(b, []).append(d)
             text = "; ".join(f"{b}: {', '.join(ds)}" for b, ds in by_basin.items())
             line = pg.InfiniteLine(value, angle=0, movable=self.thresholds_editable,
-                                   pen=pg.mkPen(colour, width=1.3, style=Qt.PenStyle.DashLine),
-                                   label=text, labelOpts={"position": slots[(which, value)][0], "color": text_colour,
-                                                          "fill": pg.mkBrush(label_fill),
-                                                          "anchors": [(0, 0), (0, 0)] if slots[(which, value)][1]
-                                                          else [(0, 1), (0, 1)]})
+                                   pen=pg.mkPen(colour, width=1.3, style=Qt.PenStyle.DashLine))
+            # the label shows the value with its unit (following a drag); laid out by layout_labels
+            label = pg.InfLineLabel(line, text="", position=0.02, color=text_colour, fill=pg.mkBrush(label_fill),
+                                    anchors=[(0, 1), (0, 1)])
+            line.label = label
+            self._label_texts[id(label)] = threshold_label_texts(entries, which)
+            label.setFormat(self._label_texts[id(label)][0])
             line.setToolTip(text + ("\nDrag to move this threshold; the set is classified again."
                                     if self.thresholds_editable else ""))
             line.setHoverPen(pg.mkPen(colour, width=3, style=Qt.PenStyle.DashLine))
             targets = [(b, m, k) for b, _d, m, k in entries]
             line.sigPositionChangeFinished.connect(
                 lambda ln, tg=targets: self.threshold_moved.emit(list(tg), float(ln.value())))
+            line.sigPositionChanged.connect(self._schedule_layout)
             plot.addItem(line, ignoreBounds=True)
             self.threshold_lines.append(line)
+            self._threshold_items.append((plot, line))
+
+    # --- label layout --------------------------------------------------------------------------
+    def threshold_labels(self, plot) -> list:
+        """The labels of the threshold lines drawn in ``plot``."""
+        return [line.label for p, line in self._threshold_items if p is plot]
+
+    def mark_labels(self, plot) -> list:
+        """The labels of the time marks (TS, commits) drawn in ``plot``."""
+        return [label for p, label, _side in self._mark_items if p is plot]
+
+    def _schedule_layout(self, *_args) -> None:
+        self._layout_timer.start()
+
+    def layout_labels(self) -> None:
+        """Place every label so that none overlaps another and each lies inside its plot.
+
+        Thresholds first, from the top: each tries its full text, then shorter ones (value, unit and monitor;
+        value and unit), above then below its line, sliding along it; then the time marks (TS, commits), stepping
+        down their line on either side.  A label that fits nowhere is hidden (the line's tooltip still says
+        everything), as is the label of a line outside the plot's range.  Our own
+        placement: pyqtgraph places each label alone, so labels of close thresholds printed over each other.
+        """
+        for plot in (self.p_dist, self.p_angle):
+            if not plot.isVisible():
+                continue
+            box = plot.getViewBox().sceneBoundingRect().adjusted(0.5, 0.5, -0.5, -0.5)
+            if box.width() < 4 or box.height() < 4:
+                continue
+            placed: list = []
+            lo, hi = plot.getViewBox().viewRange()[1]
+            items = sorted((line for p, line in self._threshold_items if p is plot), key=lambda ln: -ln.value())
+            for line in items:
+                if not lo <= line.value() <= hi:  # off the plot: nothing to label
+                    line.label.setVisible(False)
+                    continue
+                texts = self._label_texts.get(id(line.label), [line.label.format])
+                self._place(line.label, texts, [(0, 1), (0, 0)], _fractions(0.01, 0.97, 25), box, placed)
+            for p, label, side in self._mark_items:
+                if p is plot:  # written on its side of the line (left of a negative time), else the other side
+                    sides = [(1, 0), (0, 0)] if side < 0 else [(0, 0), (1, 0)]
+                    texts = self._label_texts.get(id(label), [label.format])
+                    self._place(label, texts, sides, _fractions(0.98, 0.02, 40), box, placed)
+
+    @staticmethod
+    def _place(label, texts, anchors, fractions, box, placed) -> bool:
+        label.setVisible(True)
+        for text in texts:
+            if label.format != text:
+                label.setFormat(text)
+            for anchor in anchors:
+                label.anchors = [anchor, anchor]
+                for f in fractions:
+                    label.setPosition(f)
+                    r = label.sceneBoundingRect()
+                    if box.contains(r) and not any(r.intersects(q) for q in placed):
+                        placed.append(r.adjusted(-2, -1, 2, 1))
+                        return True
+        label.setFormat(texts[0])
+        label.setVisible(False)
+        return False
 
     def _draw_band(self) -> None:
         traj, result, rules = self._traj, self._result, self._rules
@@ -408,9 +486,12 @@ class TracesView(QWidget):
             p.addItem(line, ignoreBounds=True)
             self.threshold_lines.append(line)
         top = self.threshold_lines[-len(self.plots)]
-        label = pg.InfLineLabel(top, text=text, position=position, color=colour, anchor=anchor)
+        label = pg.InfLineLabel(top, text=text, position=position, color=colour, anchors=[anchor, anchor])
         self.marks[key] = top
         top.label = label
+        self._mark_items.append((self.plots[0], label, -1 if anchor[0] == 1 else 1))
+        self._label_texts[id(label)] = [text] + MARK_SHORT.get(text, [])
+        label.setToolTip(text)
 
     def _draw_marks(self) -> None:
         self._mark("ts", 0.0, "TS", Qt.PenStyle.SolidLine)
@@ -450,7 +531,12 @@ class TracesView(QWidget):
             self.drift_curve = None
         self.p_energy.setLabel("left", "ΔE", units=None)
         self.p_energy.getAxis("left").setLabel(f"ΔE / {self.energy_unit}")
-        self.p_drift.getAxis("left").setLabel(f"E_total − E_total(t=0) / {self.energy_unit}")
+        # short, on two lines and without an SI prefix: the drift panel is low (its title was cut at 1366×768)
+        drift_axis = self.p_drift.getAxis("left")
+        drift_axis.enableAutoSIPrefix(False)
+        drift_axis.setLabel(f"drift<br>{self.energy_unit}", **{"font-size": "8pt"})
+        drift_axis.setToolTip(f"E_total − E_total(t=0), in {self.energy_unit}: the total energy's drift on its own "
+                              "scale")
         if traj is None:
             return
         scale = 1.0 / energy_factor(self.energy_unit)
