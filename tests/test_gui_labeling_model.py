@@ -1,8 +1,10 @@
 """Model-based random test of labeling in the window: 2,000 random actions (filter changes, row clicks,
 sorts, key presses in the viewer, typing into the run table and the Reason field, label buttons, undo,
-Go to Run, option toggles) driven with real key and mouse events, against a small model of what the
-journal must then hold.  Every journal event must name the run the label panel showed when the action
-was taken, and the journal must hold exactly the events the model predicts."""
+Go to Run, option toggles, notes, the search field) driven with real key and mouse events, against a small
+model of what the journal must then hold.  Every journal event must name the run the label panel showed
+when the action was taken, and the journal must hold exactly the events the model predicts; after every
+action the counts the window shows (filter buttons, outcome counts under the table, status bar), the note
+marks in the table and the runs a search lists equal the model's."""
 
 from __future__ import annotations
 
@@ -12,6 +14,8 @@ import time
 import pytest
 from PySide6.QtCore import Qt
 from PySide6.QtTest import QTest
+
+from basinmark.gui.run_table import FILTERS, NOT_CLEAN
 
 from labeling_helpers import JournalTail, click_filter, click_header, click_row, make_root, open_window
 
@@ -66,6 +70,26 @@ class Model:
             self.hand[shown].pop()
             self.expected.append(("undo", shown, None, ""))
 
+    def final(self, auto: dict[str, str]) -> dict[str, str]:
+        return {r: (self.hand[r][-1] if self.hand.get(r) else a) for r, a in auto.items()}
+
+    def outcome_counts(self, auto: dict[str, str]) -> dict[str, int]:
+        out: dict[str, int] = {}
+        for label in self.final(auto).values():
+            out[label] = out.get(label, 0) + 1
+        return out
+
+    def filter_counts(self, auto: dict[str, str], flagged: set[str]) -> dict[str, int]:
+        hand = {r: (self.hand[r][-1] if self.hand.get(r) else "") for r in auto}
+        return {
+            "all": len(auto),
+            "look": sum(1 for r in auto if not hand[r] and (r in flagged or auto[r] in NOT_CLEAN)),
+            "flagged": len(flagged),
+            "unlabeled": sum(1 for r in auto if not hand[r]),
+            "disagree": sum(1 for r in auto if hand[r] and hand[r] != auto[r]),
+            "changed": 0,
+        }
+
     def seen(self, shown_after: str) -> None:
         """A pending label is dropped (with its reason) when another run comes on screen."""
         if self.pending is not None and self.pending[0] != shown_after:
@@ -97,6 +121,13 @@ def test_two_thousand_random_actions_label_only_the_run_shown(qtbot, tmp_path, r
     notes: list[str] = []
     on_screen: list[str] = []
     win.state.run_changed.connect(on_screen.append)
+    # what the classification says (labels never change it): the model's counts start from it
+    auto = dict(zip(win.state.labels["run"], win.state.labels["auto_label"]))
+    flagged = {r for r, f in zip(win.state.labels["run"], win.state.labels["flags"]) if f}
+    notes_model: dict[str, str] = {}
+    searching = ""
+    search_want: set[str] = set()
+    count_mismatch = search_mismatch = 0
     t0 = time.perf_counter()
     for step in range(N_ACTIONS):
         shown = panel.shown_run
@@ -104,8 +135,35 @@ def test_two_thousand_random_actions_label_only_the_run_shown(qtbot, tmp_path, r
         on_screen.clear()
         r = rng.random()
         typed_in_table = False
-        if r < 0.10:
+        extra = rng.random() < 0.08
+        if extra:
+            r2 = rng.random()
+            if r2 < 0.4:
+                kind = "note"
+                text = rng.choice(["", f"zq{rng.randrange(3)} look again", f"zq{rng.randrange(3)}"])
+                panel.note.setFocus()
+                panel.note.clear()
+                if text:
+                    QTest.keyClicks(panel.note, text)
+                if shown and panel.note.isEnabled():
+                    (notes_model.__setitem__(shown, text) if text else notes_model.pop(shown, None))
+                QTest.keyClick(panel.note, Qt.Key.Key_Return)
+            elif r2 < 0.8:
+                kind = "search"
+                searching = f"zq{rng.randrange(3)}"
+                table.search.setFocus()
+                table.search.clear()
+                QTest.keyClicks(table.search, searching)
+                # the runs found when the search was typed: the list stays as it was (as "show only these runs"
+                # does) while notes change, so that the view never moves by itself
+                search_want = {r for r, t in notes_model.items() if searching in t}
+            else:
+                kind = "clear search"
+                searching = ""
+                table.search.clear()
+        elif r < 0.10:
             kind = "filter"
+            searching = ""
             click_filter(win, rng.choice(filters))
         elif r < 0.24:
             kind = "row"
@@ -209,17 +267,45 @@ def test_two_thousand_random_actions_label_only_the_run_shown(qtbot, tmp_path, r
                          f"pending {panel.pending} (model {model.pending}) reason {panel.reason.text()!r} "
                          f"(model {model.reason!r})")
             model.pending, model.reason = panel.pending, panel.reason.text()
+        # the counts shown equal the model's: filter buttons, the counts under the table, the status bar
+        want_filters = model.filter_counts(auto, flagged)
+        got_filters = {k: table.filter_buttons[k].text() for k, _t, _tip in FILTERS}
+        want_outcomes = {k: v for k, v in model.outcome_counts(auto).items() if v}
+        shown_counts = table.outcome_counts()
+        if (got_filters != {k: f"{text} {want_filters[k]}" for k, text, _tip in FILTERS}
+                or {k: v for k, v in shown_counts.items() if v} != want_outcomes
+                or any(f"{k} {v}" not in table.count_label.text() for k, v in want_outcomes.items())
+                or any(f"{k}: {v}" not in win.status_counts.text() for k, v in want_outcomes.items())):
+            count_mismatch += 1
+            notes.append(f"step {step} {kind}: filters {got_filters} (model {want_filters}); outcomes "
+                         f"{shown_counts} (model {want_outcomes})")
+        # note marks in the table, and what a search lists
+        src = table.model
+        marked = {src.row(i)["run"] for i in range(src.rowCount())
+                  if src.index(i, 0).data(Qt.ItemDataRole.DecorationRole) is not None}
+        if marked != {r for r, t in notes_model.items() if t}:
+            search_mismatch += 1
+            notes.append(f"step {step} {kind}: note marks {sorted(marked)} (model {sorted(notes_model)})")
+        if searching and table.search.text() == searching:
+            if set(table.visible_runs()) != search_want:
+                search_mismatch += 1
+                notes.append(f"step {step} {kind}: search {searching!r} lists {table.visible_runs()} "
+                             f"(model {sorted(search_want)})")
     elapsed = time.perf_counter() - t0
     events = journal_events()
     with capsys.disabled():
         print(f"\nmodel-based labeling test: {N_ACTIONS} actions in {elapsed:.1f} s, {len(events)} journal events "
               f"({sum(e['kind'] == 'undo' for e in events)} undo); events naming another run than the panel showed: "
               f"{wrong_run}; journal differing from the model: {model_mismatch}; window state differing: "
-              f"{state_mismatch}; actions: {counts}")
+              f"{state_mismatch}; counts differing: {count_mismatch}; notes or search differing: {search_mismatch}; "
+              f"actions: {counts}")
         for line in notes[:12]:
             print("  ", line)
     win.close()
     assert wrong_run == 0
     assert model_mismatch == 0
     assert state_mismatch == 0
+    assert count_mismatch == 0
+    assert search_mismatch == 0
+    assert counts.get("note", 0) > 10 and counts.get("search", 0) > 10
     assert len(events) > 100
