@@ -93,7 +93,10 @@ def test_drift_axis_shows_total_minus_its_t0_value(win):
     x, y = tr.drift_curve.getData()
     np.testing.assert_allclose(x, traj.times)
     np.testing.assert_allclose(y, want, atol=1e-9)
-    assert tr.p_drift.isVisible() and "E_total − E_total(t=0)" in tr.p_drift.getAxis("left").labelText
+    # the low panel's title is short ("drift", unit); what it is says the axis' tooltip
+    axis = tr.p_drift.getAxis("left")
+    assert tr.p_drift.isVisible() and "drift" in axis.labelText and "kcal/mol" in axis.labelText
+    assert "E_total − E_total(t=0)" in axis.toolTip()
     # its own scale: the few kcal/mol of drift fill the panel, whatever the kinetic/potential swings
     lo, hi = tr.p_drift.viewRange()[1]
     assert hi - lo < 3 * (want.max() - want.min()) and want.max() - want.min() > 1.0

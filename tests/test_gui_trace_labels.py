@@ -85,6 +85,7 @@ def _check_layout(win, where: str) -> None:
             f"{where}: the drift axis title {title} is longer than its axis {along}"
         assert seen.adjusted(-0.5, -0.5, 0.5, 0.5).contains(title), f"{where}: the drift axis title is cut"
         assert "kcal/mol" in axis.label.toPlainText() and "x0." not in axis.label.toPlainText()
+        assert axis.autoSIPrefixScale == 1.0, "the drift's tick values are scaled"
 
 
 def _both_sizes(win, qtbot) -> None:

@@ -533,8 +533,10 @@ class TracesView(QWidget):
         self.p_energy.getAxis("left").setLabel(f"ΔE / {self.energy_unit}")
         # short, on two lines and without an SI prefix: the drift panel is low (its title was cut at 1366×768)
         drift_axis = self.p_drift.getAxis("left")
+        # (pyqtgraph still scales a unit-less axis spanning less than 1 when its prefix is switched off: no range
+        # may take a prefix at all)
+        drift_axis.setLabel(f"drift<br>{self.energy_unit}", siPrefixEnableRanges=(), **{"font-size": "8pt"})
         drift_axis.enableAutoSIPrefix(False)
-        drift_axis.setLabel(f"drift<br>{self.energy_unit}", **{"font-size": "8pt"})
         drift_axis.setToolTip(f"E_total − E_total(t=0), in {self.energy_unit}: the total energy's drift on its own "
                               "scale")
         if traj is None:
