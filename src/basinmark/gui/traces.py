@@ -44,6 +44,17 @@ MARK_SHORT = {"product commit": ["prod. commit", "prod."], "reactant commit": ["
               "first arrival": ["1st arrival", "1st"], "commit →": ["→"], "← commit": ["←"]}
 
 
+def _hide(label) -> None:
+    """Hidden by the label layout (which shows it again once there is room)."""
+    label.setVisible(False)
+    label.hidden_by_layout = True
+
+
+def _hidden_by_caller(label) -> bool:
+    """Hidden by someone else than the label layout (the layout leaves such a label alone)."""
+    return not label.isVisibleTo(label.parentItem()) and not getattr(label, "hidden_by_layout", False)
+
+
 def _fractions(start: float, stop: float, n: int) -> list[float]:
     return list(np.linspace(start, stop, n))
 
@@ -421,13 +432,15 @@ class TracesView(QWidget):
             lo, hi = plot.getViewBox().viewRange()[1]
             items = sorted((line for p, line in self._threshold_items if p is plot), key=lambda ln: -ln.value())
             for line in items:
+                if _hidden_by_caller(line.label):  # e.g. a movie panel drops threshold text: left as it is
+                    continue
                 if not lo <= line.value() <= hi:  # off the plot: nothing to label
-                    line.label.setVisible(False)
+                    _hide(line.label)
                     continue
                 texts = self._label_texts.get(id(line.label), [line.label.format])
                 self._place(line.label, texts, [(0, 1), (0, 0)], _fractions(0.01, 0.97, 25), box, placed)
             for p, label, side in self._mark_items:
-                if p is plot:  # written on its side of the line (left of a negative time), else the other side
+                if p is plot and not _hidden_by_caller(label):  # written on its side of the line (left of a negative time), else the other side
                     sides = [(1, 0), (0, 0)] if side < 0 else [(0, 0), (1, 0)]
                     texts = self._label_texts.get(id(label), [label.format])
                     self._place(label, texts, sides, _fractions(0.98, 0.02, 40), box, placed)
@@ -435,6 +448,7 @@ class TracesView(QWidget):
     @staticmethod
     def _place(label, texts, anchors, fractions, box, placed) -> bool:
         label.setVisible(True)
+        label.hidden_by_layout = False
         for text in texts:
             if label.format != text:
                 label.setFormat(text)
@@ -447,7 +461,7 @@ class TracesView(QWidget):
                         placed.append(r.adjusted(-2, -1, 2, 1))
                         return True
         label.setFormat(texts[0])
-        label.setVisible(False)
+        _hide(label)
         return False
 
     def _draw_band(self) -> None:
