@@ -8,6 +8,9 @@ import sys
 from pathlib import Path
 
 from basinmark.commands._bounds import MAX_SWEEP_STEPS, number, whole
+
+#: local Dask workers one command may start (our own limit, well past a workstation's cores)
+MAX_CLUSTER_WORKERS = 256
 from basinmark.commands._output import FORMATS, emit, progress_printer, table_text
 from basinmark.core.errors import SetError
 
@@ -24,6 +27,19 @@ def register(sub) -> None:
     p.add_argument("--all-runs", action="store_true", help="print one row per run instead of counts and flagged runs")
     p.add_argument("--format", choices=FORMATS, default="table",
                    help="table (default); json: counts, flagged runs and notes; csv: one row per run")
+    where = p.add_argument_group(
+        "on a Dask cluster", "read and classify the runs as tasks on Dask workers (needs the optional extra: "
+        "pip install 'basinmark[cluster]'); the set must be on a file system the workers share, at the same path; "
+        "the journal is still written here, once; no cache is used (docs/cluster.md)")
+    engine = where.add_mutually_exclusive_group()
+    engine.add_argument("--scheduler", metavar="ADDRESS",
+                        help="address of a running Dask scheduler, such as tcp://node17:8786")
+    engine.add_argument("--workers", type=whole(1, MAX_CLUSTER_WORKERS), metavar="N",
+                        help=f"start a local Dask cluster of N worker processes (1 to {MAX_CLUSTER_WORKERS})")
+    where.add_argument("--connect-timeout", type=number(0, 3600, above=True), default=10.0, metavar="SECONDS",
+                       help="give up on a scheduler that does not answer within this time (default 10)")
+    where.add_argument("--worker-wait", type=number(0, 86400, above=True), default=120.0, metavar="SECONDS",
+                       help="give up when no worker has joined the scheduler within this time (default 120)")
     p.set_defaults(func=run_classify)
 
     s = sub.add_parser(
@@ -53,10 +69,10 @@ def _common(p) -> None:
     p.add_argument("--quiet", "-q", action="store_true", help="no progress line on stderr")
 
 
-def _load(args):
-    """The set and its rules, or a clear error."""
+def _folder_and_rules(args):
+    """The set folder and its rules, or a clear error (syntax and schema first, before the slower loading)."""
     from basinmark.core.rules import load_rules
-    from basinmark.core.sets import open_set, rules_path
+    from basinmark.core.sets import rules_path
 
     root = Path(args.set)
     if not root.is_dir():
@@ -64,8 +80,20 @@ def _load(args):
     rfile = Path(args.rules) if args.rules else rules_path(root)
     if not rfile.is_file():
         raise SetError(f"{rfile}: no rules file; write one (see docs/rules-file.md) or pass --rules FILE")
-    rules = load_rules(rfile)  # syntax and schema first, before the (slower) loading
+    return root, load_rules(rfile)
+
+
+def _load(args):
+    """The set and its rules, or a clear error."""
+    from basinmark.core.sets import open_set
+
+    root, rules = _folder_and_rules(args)
     tset = open_set(root, progress=progress_printer(args.quiet, "loading"), use_cache=not args.no_cache)
+    return root, tset, rules, _checked(root, tset, rules)
+
+
+def _checked(root: Path, tset, rules) -> list[str]:
+    """The notes on a loaded set, or a clear error when nothing loaded or the rules name atoms the runs lack."""
     if len(tset) == 0:
         reasons = [str(f) for f in tset.failures[:3]] + tset.warnings[:2]
         raise SetError(f"{root}: no run could be loaded" + (": " + "; ".join(reasons) if reasons else ""))
@@ -74,7 +102,27 @@ def _load(args):
     if tset.failures:
         notes.append(f"{len(tset.failures)} file(s) of the set failed to load and are not classified; "
                      f"`basinmark info SET` lists them")
-    return root, tset, rules, notes
+    return notes
+
+
+def _classified(args):
+    """The set, its rules, the notes so far and the classification table: here, or on a Dask cluster."""
+    from basinmark.core.classify import classify_set
+
+    if not (args.scheduler or args.workers):
+        root, tset, rules, notes = _load(args)
+        return root, tset, rules, notes, classify_set(tset, rules, progress=progress_printer(args.quiet,
+                                                                                            "classifying"))
+    from basinmark.core.dask_classify import classify_on_cluster
+    from basinmark.core.run_task import assemble_table
+
+    root, rules = _folder_and_rules(args)
+    engine = f"on {args.scheduler}" if args.scheduler else f"on {args.workers} local Dask workers"
+    tset, parts = classify_on_cluster(root, rules, address=args.scheduler, workers=args.workers,
+                                      connect_timeout=args.connect_timeout, worker_wait=args.worker_wait,
+                                      progress=progress_printer(args.quiet, f"classifying {engine}"))
+    notes = _checked(root, tset, rules)
+    return root, tset, rules, notes, assemble_table(tset, parts, rules)
 
 
 def _data_changed(jpath: Path, tset) -> set[str]:
@@ -92,13 +140,12 @@ def _data_changed(jpath: Path, tset) -> set[str]:
 
 def run_classify(args) -> int:
     from basinmark.core import stats
-    from basinmark.core.classify import add_flag, classify_set, outcome_counts, write_automatic_labels
+    from basinmark.core.classify import add_flag, outcome_counts, write_automatic_labels
     from basinmark.core.journal import LabelJournal
     from basinmark.core.labels import all_labels
     from basinmark.core.sets import journal_path
 
-    root, tset, rules, notes = _load(args)
-    table = classify_set(tset, rules, progress=progress_printer(args.quiet, "classifying"))
+    root, tset, rules, notes, table = _classified(args)
     notes += table.attrs.get("notes", [])
     jpath = Path(args.journal) if args.journal else journal_path(root)
     changed = _data_changed(jpath, tset)
