@@ -88,12 +88,14 @@ def test_cli_on_a_scheduler_writes_the_same_journal_once(made, tcp_cluster, tmp_
     assert events == _journal(here / "basinmark-labels.jsonl")
     assert [e["kind"] for e in events].count("batch_begin") == 1  # one batch, written by the client
     assert "1 file(s) of the set failed to load" in remote.err
-    # the same rules on the same files again: nothing new, as locally
-    assert main(["classify", str(there), "-q", "--scheduler", tcp_cluster.scheduler_address]) == 0
+    # the same rules on the same files again, the scheduler named by its file: nothing new, as locally
+    sched = tmp_path / "scheduler.json"
+    sched.write_text(json.dumps({"address": tcp_cluster.scheduler_address}))
+    assert main(["classify", str(there), "-q", "--scheduler", str(sched)]) == 0
     assert "0 automatic labels written" in capsys.readouterr().out
 
 
-def test_unreachable_scheduler_is_a_plain_error_in_seconds(made, capsys):
+def test_unreachable_scheduler_is_a_plain_error_in_seconds(made, tmp_path, capsys):
     root, _ = made
     address = f"tcp://127.0.0.1:{_unused_port()}"
     start = time.monotonic()
@@ -105,6 +107,10 @@ def test_unreachable_scheduler_is_a_plain_error_in_seconds(made, capsys):
     assert not (root / "basinmark-labels.jsonl").exists()
     assert main(["classify", str(root), "-q", "--scheduler", "no address here"]) == 2
     assert "'no address here' is not a scheduler address" in capsys.readouterr().err
+    sched = tmp_path / "scheduler.json"
+    sched.write_text(json.dumps({"address": address}))
+    assert main(["classify", str(root), "-q", "--scheduler", str(sched), "--connect-timeout", "1"]) == 2
+    assert f"at {address} (from the scheduler file {sched}) within 1 s" in capsys.readouterr().err
 
 
 def test_a_worker_that_cannot_see_the_set_is_named(made, tcp_cluster, tmp_path):

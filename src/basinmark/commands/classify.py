@@ -33,7 +33,8 @@ def register(sub) -> None:
         "the journal is still written here, once; no cache is used (docs/cluster.md)")
     engine = where.add_mutually_exclusive_group()
     engine.add_argument("--scheduler", metavar="ADDRESS",
-                        help="address of a running Dask scheduler, such as tcp://node17:8786")
+                        help="a running Dask scheduler: its address (such as tcp://node17:8786) or the scheduler file it "
+                             "wrote")
     engine.add_argument("--workers", type=whole(1, MAX_CLUSTER_WORKERS), metavar="N",
                         help=f"start a local Dask cluster of N worker processes (1 to {MAX_CLUSTER_WORKERS})")
     where.add_argument("--connect-timeout", type=number(0, 3600, above=True), default=10.0, metavar="SECONDS",

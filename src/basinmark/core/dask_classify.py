@@ -14,6 +14,7 @@ same path as here.  Nothing is cached: each run is read from its files.
 
 from __future__ import annotations
 
+import json
 import logging
 import math
 from pathlib import Path
@@ -74,19 +75,27 @@ class _Connection:
     def __enter__(self):
         dist = _distributed()
         if self.address:
+            # a scheduler file (JSON written by a scheduler started with one, e.g. in a queued job) or an address
+            where = {"scheduler_file": self.address} if Path(self.address).is_file() else {"address": self.address}
             try:
-                self.client = dist.Client(self.address, timeout=self.timeout, set_as_default=False)
+                self.client = dist.Client(**where, timeout=self.timeout, set_as_default=False)
             except ValueError as exc:
                 raise ClusterError(f"{self.address!r} is not a scheduler address ({exc}); give it as "
                                    "tcp://HOST:PORT, as the scheduler printed it") from None
             except (OSError, TimeoutError) as exc:
-                raise ClusterError(f"cannot reach a Dask scheduler at {self.address} within {self.timeout:g} s "
+                raise ClusterError(f"cannot reach a Dask scheduler at {self._named()} within {self.timeout:g} s "
                                    f"({exc}); check the address and that the scheduler is running and reachable "
                                    "from this machine (docs/cluster.md)") from None
         else:
-            self.cluster = dist.LocalCluster(n_workers=self.workers, threads_per_worker=1, processes=self.processes,
-                                             dashboard_address=":0", silence_logs=logging.ERROR)
-            self.client = dist.Client(self.cluster, set_as_default=False)
+            try:
+                self.cluster = dist.LocalCluster(n_workers=self.workers, threads_per_worker=1,
+                                                 processes=self.processes, dashboard_address=":0",
+                                                 silence_logs=logging.ERROR)
+                self.client = dist.Client(self.cluster, set_as_default=False)
+            except Exception as exc:  # e.g. no new processes allowed, no free port
+                self.__exit__()
+                raise ClusterError(f"could not start a local Dask cluster of {self.workers} workers "
+                                   f"({type(exc).__name__}: {exc}); classify without --workers") from None
         return self.client
 
     def __exit__(self, *exc) -> None:
@@ -96,6 +105,16 @@ class _Connection:
                     part.close()
                 except Exception:  # closing a broken connection must not hide the error that broke it
                     pass
+
+    def _named(self) -> str:
+        """The address, and the one a scheduler file gives."""
+        if not Path(self.address).is_file():
+            return self.address
+        try:
+            inside = json.loads(Path(self.address).read_text(encoding="utf-8")).get("address", "no address")
+        except (OSError, ValueError, AttributeError):
+            inside = "unreadable"
+        return f"{inside} (from the scheduler file {self.address})"
 
     @property
     def where(self) -> str:
