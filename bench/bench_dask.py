@@ -7,11 +7,13 @@ bench_scale.py) and times:
 * Dask: ``classify_on_cluster`` on a running local cluster of W worker processes (one thread each), for each
   W asked for (default 1 and the machine's cores): listing the runs, checking the workers, reading, measuring
   and classifying every run on the workers, gathering the table.  The cluster's own start (once per W) is
-  printed apart: it is paid once per cluster, not per set.
+  printed apart: it is paid once per cluster, not per set; so are the workers' first imports.
 
 Printed per W: runs per second, runs per second per worker, and that per worker rate as a ratio against the
-reference's runs per second (1.0: a worker does as much as the single process; below: Dask's overhead).
-The tables are checked to be equal.  The machine's load average is printed with the numbers.
+reference's runs per second (1.0: a worker does as much as the single process; below: Dask's overhead), and
+the CPU time per run of workers and client together against the single process's, which a busy machine
+changes less than the wall-clock rates.  The tables are checked to be equal.  The machine's load average is
+printed with the numbers.
 
     .venv/bin/python bench/bench_dask.py [--runs N] [--frames F] [--workers 1,2] [--keep DIR]
 """
@@ -19,7 +21,6 @@ The tables are checked to be equal.  The machine's load average is printed with 
 from __future__ import annotations
 
 import argparse
-import logging
 import os
 import shutil
 import sys
@@ -53,6 +54,10 @@ max_energy_drift = 5.0
 """
 
 
+def _warm() -> None:
+    import basinmark.core.run_task  # noqa: F401
+
+
 def load() -> str:
     return "load average " + " ".join(f"{x:.1f}" for x in os.getloadavg())
 
@@ -66,14 +71,14 @@ def main() -> None:
     args = ap.parse_args()
 
     try:
-        import distributed
+        import distributed  # noqa: F401
     except ImportError:
         print("bench_dask: needs the optional extra 'cluster' (pip install 'basinmark[cluster]'); skipped")
         return
     import pandas as pd
 
     from basinmark.core.classify import classify_set
-    from basinmark.core.dask_classify import classify_on_cluster
+    from basinmark.core.dask_classify import _Connection, classify_on_cluster
     from basinmark.core.rules import parse_rules
     from basinmark.core.run_task import assemble_table
     from basinmark.core.sets import cores, open_set
@@ -89,30 +94,34 @@ def main() -> None:
         (root / "basins.toml").write_text(RULES, encoding="utf-8")
         rules = parse_rules(RULES)
 
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         tset = open_set(root, use_cache=False, workers=1, processes=False)
         expected = classify_set(tset, rules)
-        ref = time.perf_counter() - t0
+        ref, ref_cpu = time.perf_counter() - t0, time.process_time() - c0
         n = len(expected)
         ref_rate = n / ref
-        print(f"reference: single process, one thread: {ref:.2f} s = {ref_rate:.0f} runs/s ({load()})")
+        print(f"reference: single process, one thread: {ref:.2f} s = {ref_rate:.0f} runs/s, "
+              f"CPU {1e3 * ref_cpu / n:.1f} ms per run ({load()})")
         print(f"  outcomes: {expected['outcome'].value_counts().to_dict()}")
 
         for w in counts:
             t0 = time.perf_counter()
-            with distributed.LocalCluster(n_workers=w, threads_per_worker=1, processes=True,
-                                          dashboard_address=":0", silence_logs=logging.ERROR) as cluster:
+            with _Connection(None, w, 10.0, True) as probe:  # the local cluster `classify --workers` starts
+                probe.run(_warm)  # the workers import the readers once, as a long-running cluster has
                 start = time.perf_counter() - t0
-                t0 = time.perf_counter()
-                got, parts = classify_on_cluster(root, rules, address=cluster.scheduler_address)
+                before = sum(probe.run(time.process_time).values())
+                t0, c0 = time.perf_counter(), time.process_time()
+                got, parts = classify_on_cluster(root, rules, address=probe.scheduler.address)
                 table = assemble_table(got, parts, rules)
-                took = time.perf_counter() - t0
+                took, client_cpu = time.perf_counter() - t0, time.process_time() - c0
+                cpu = sum(probe.run(time.process_time).values()) - before + client_cpu
             pd.testing.assert_frame_equal(table, expected, check_exact=True)
             rate = n / took
             print(f"Dask, {w} worker{'s' if w != 1 else ''}: {took:.2f} s = {rate:.0f} runs/s, "
                   f"{rate / w:.0f} runs/s per worker = {rate / w / ref_rate:.2f} x the single process per worker, "
-                  f"{rate / ref_rate:.2f} x in all (cluster start {start:.1f} s, not counted; {load()}); "
-                  "same table")
+                  f"{rate / ref_rate:.2f} x in all; CPU {1e3 * cpu / n:.1f} ms per run (workers and client) = "
+                  f"{cpu / ref_cpu:.2f} x the single process's (cluster start {start:.1f} s, not counted; "
+                  f"{load()}); same table")
     finally:
         if args.keep is None:
             shutil.rmtree(work, ignore_errors=True)

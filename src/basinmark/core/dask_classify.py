@@ -87,10 +87,15 @@ class _Connection:
                                    f"({exc}); check the address and that the scheduler is running and reachable "
                                    "from this machine (docs/cluster.md)") from None
         else:
+            import dask
+
             try:
-                self.cluster = dist.LocalCluster(n_workers=self.workers, threads_per_worker=1,
-                                                 processes=self.processes, dashboard_address=":0",
-                                                 silence_logs=logging.ERROR)
+                # the workers' sampling profiler feeds a dashboard nobody looks at here, and costs ~15 % CPU on
+                # reading and classifying (measured: 64 runs x 3 on one worker, 2.38 s against 2.02 s without)
+                with dask.config.set({"distributed.worker.profile.enabled": False}):
+                    self.cluster = dist.LocalCluster(n_workers=self.workers, threads_per_worker=1,
+                                                     processes=self.processes, dashboard_address=":0",
+                                                     silence_logs=logging.ERROR)
                 self.client = dist.Client(self.cluster, set_as_default=False)
             except Exception as exc:  # e.g. no new processes allowed, no free port
                 self.__exit__()
