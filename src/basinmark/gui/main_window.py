@@ -34,6 +34,12 @@ from basinmark.gui.traces import TracesView
 
 MAX_RECENT = 8
 
+#: the version of the saved dock layout (QMainWindow.saveState's version number, also kept as
+#: ``window/layout_version``).  Raise it whenever the first layout changes enough that a layout saved by an
+#: older version would undo it: such a layout is then ignored once (version 1: the 1366×768 layout with
+#: the analysis views as tabs beside the traces; older versions saved version 0 and no key).
+LAYOUT_VERSION = 1
+
 
 def _short_reason(failure) -> str:
     """``ts.xyz (one frame only, …)``: the file's name and the reason without its full path."""
@@ -285,7 +291,7 @@ class MainWindow(QMainWindow):
         for dock in self.docks.values():
             dock.setFloating(False)
         if self._default_state is not None:
-            self.restoreState(self._default_state)
+            self.restoreState(self._default_state, LAYOUT_VERSION)
         for name, dock in self.docks.items():
             dock.setVisible(name in ("runs", "traces", "label", "map"))
         if "traces" in self.docks:
@@ -301,13 +307,24 @@ class MainWindow(QMainWindow):
 
         The layout before restoring (every dock added so far, in its first place) is what Reset Layout
         returns to."""
-        self._default_state = self.saveState()
+        self._default_state = self.saveState(LAYOUT_VERSION)
         geo = self.settings.value("window/geometry")
+        st = self.settings.value("window/state")
+        try:
+            saved_version = int(self.settings.value("window/layout_version", 0))
+        except (TypeError, ValueError):
+            saved_version = 0
+        if saved_version != LAYOUT_VERSION:
+            # a layout (and window size) from another version would undo the current first layout: ignored
+            # once, and this version's layout is saved on closing
+            if isinstance(st, QByteArray) and not st.isEmpty():
+                self.statusBar().showMessage("The window layout saved by an older version was not restored; "
+                                             "this version's layout is shown.", 8000)
+            geo = st = None
         if isinstance(geo, QByteArray) and not geo.isEmpty():
             self.restoreGeometry(geo)
-        st = self.settings.value("window/state")
         if isinstance(st, QByteArray) and not st.isEmpty():
-            self.restoreState(st)
+            self.restoreState(st, LAYOUT_VERSION)
         self.traces.set_energy_unit(str(self.settings.value("energy_unit", "kcal/mol")))
         self.actions_["energy_unit"].setChecked(self.traces.energy_unit == "kJ/mol")
         self.actions_["auto_advance"].setChecked(str(self.settings.value("auto_advance", "false")).lower() == "true")
@@ -316,7 +333,8 @@ class MainWindow(QMainWindow):
 
     def save_settings(self) -> None:
         self.settings.setValue("window/geometry", self.saveGeometry())
-        self.settings.setValue("window/state", self.saveState())
+        self.settings.setValue("window/state", self.saveState(LAYOUT_VERSION))
+        self.settings.setValue("window/layout_version", LAYOUT_VERSION)
         self.settings.setValue("labeler", self.label_panel.labeler_name)
         self.settings.setValue("energy_unit", self.traces.energy_unit)
         self.settings.sync()
