@@ -21,6 +21,11 @@ from basinmark.core.errors import BasinmarkError
 #: exit code of a command whose output comes from a damaged label journal (as of its last good event)
 DAMAGED_EXIT = 3
 
+#: commands with a SET argument that may be given a folder without runs: ``init`` inspects any folder of
+#: files, ``open`` leaves it to the window (which says so itself).  Every other command with a SET argument
+#: first checks that the folder is a set, so that nothing is written into a folder that is not one.
+ANY_FOLDER = frozenset({"init", "open"})
+
 
 def build_parser() -> argparse.ArgumentParser:
     import basinmark.commands as commands
@@ -52,6 +57,10 @@ def main(argv: list[str] | None = None) -> int:
 
     take_damage_reports()
     try:
+        if getattr(args, "set", None) and args.command not in ANY_FOLDER:
+            from basinmark.core.not_a_set import require_set
+
+            require_set(args.set)  # NotASetError: nothing is written into a folder without runs
         code = int(args.func(args) or 0)
     except BasinmarkError as exc:
         print(f"basinmark: error: {exc}", file=sys.stderr)

@@ -33,6 +33,9 @@ def register(sub) -> None:
                    help="rules file for thresholds, basin band and commit marks (default: the set's basins.toml)")
     p.add_argument("--energy-unit", choices=("kcal/mol", "kJ/mol"), default="kcal/mol",
                    help="unit of the energy trace (default: kcal/mol)")
+    p.add_argument("--measure", action="append", default=[], metavar="A-B[-C[-D]]",
+                   help="also trace this distance (2 atoms), angle (3) or dihedral (4), atoms numbered from 1, "
+                        "and write its value on the molecule; may be given several times")
     p.add_argument("--no-cache", action="store_true", help="ignore and do not write the parsed-array cache")
     p.set_defaults(func=cmd_movie)
 
@@ -88,6 +91,19 @@ def load_one_run(root: Path, run_id: str, *, use_cache: bool = True):
     raise BasinmarkError(f"run {run_id} could not be loaded")  # pragma: no cover (iter_runs yields once)
 
 
+def parse_measure(text: str, n_atoms: int) -> tuple[int, ...]:
+    """``"5-4"`` -> (5, 4): 2 to 4 different atom numbers from 1 to ``n_atoms``."""
+    try:
+        atoms = tuple(int(a) for a in str(text).replace(",", "-").split("-"))
+    except ValueError:
+        raise BasinmarkError(f"--measure {text!r} is not atom numbers joined by '-', e.g. 5-4 or 1-2-3") from None
+    if not 2 <= len(atoms) <= 4 or len(set(atoms)) != len(atoms):
+        raise BasinmarkError(f"--measure {text!r} needs 2, 3 or 4 different atoms (distance, angle, dihedral)")
+    if not all(1 <= a <= n_atoms for a in atoms):
+        raise BasinmarkError(f"--measure {text!r}: atoms are numbered 1 to {n_atoms} in this run")
+    return atoms
+
+
 def cmd_movie(args) -> int:
     from basinmark.core.classify import classify_run
     from basinmark.core.rules import load_rules
@@ -101,6 +117,7 @@ def cmd_movie(args) -> int:
     size = parse_size(args.size)
     traj = load_one_run(root, args.run, use_cache=not args.no_cache)
     frames = parse_frames(args.frames, traj.n_frames)
+    measures = [parse_measure(m, traj.n_atoms) for m in args.measure]
     if len(frames) > MAX_MOVIE_FRAMES:
         raise BasinmarkError(f"a movie has at most {MAX_MOVIE_FRAMES} frames; run {args.run} has {len(frames)} "
                              f"in the frames asked for: choose a part with --frames A:B (e.g. --frames 1:"
@@ -127,7 +144,7 @@ def cmd_movie(args) -> int:
             print(f"\rrendering {n}/{total} frames", end="", file=sys.stderr, flush=True)
 
     res = export_movie(args.output, traj, result=result, rules=rules, fps=args.fps, size=size, frames=frames,
-                       energy_unit=args.energy_unit, progress=progress)
+                       energy_unit=args.energy_unit, progress=progress, user_monitors=measures)
     if sys.stderr.isatty():
         print(file=sys.stderr)
     print(f"wrote {res.path}: {res.n_frames} frames, {res.size[0]}x{res.size[1]} pixels, {res.fps:g} frames/s")

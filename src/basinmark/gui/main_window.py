@@ -15,6 +15,7 @@ from basinmark.core.errors import BasinmarkError
 from basinmark.core.journal import JournalError, JournalLockedError, LabelJournal, default_labeler
 from basinmark.core.labels import all_labels
 from basinmark.core.model import TrajectorySet
+from basinmark.core.not_a_set import holds_no_runs, not_a_set_message
 from basinmark.core.rules_keep import round_as_shown
 from basinmark.core.sets import journal_path, rules_path
 from basinmark.gui import labeler as labeler_dialog
@@ -551,6 +552,13 @@ class MainWindow(QMainWindow):
             return
         self._messages.pop("error", None)
         tset = result["tset"]
+        if not result.get("rules_only") and not result.get("cancelled") and holds_no_runs(tset):
+            # not a set: no journal, head, lock or cache is written into the folder, and it is not remembered
+            self._messages["error"] = not_a_set_message(tset.root, tset.left_out)
+            self._show_banner()
+            self.statusBar().showMessage(self._messages["error"], 10000)
+            self.load_failed.emit(self._messages["error"])
+            return
         if not result.get("rules_only"):
             keep = self.state.run_id if self.state.run_id != getattr(self, "_auto_run", "") else ""
             self.state.set_set(tset)

@@ -50,6 +50,7 @@ class MoleculeView(QWidget):
 
     picks_changed = Signal(list)        # 1-based atom numbers currently picked
     monitor_requested = Signal(tuple)   # 2, 3 or 4 1-based atom numbers
+    show_caption = True                 # run and time at the top left (a movie draws its own instead)
 
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
@@ -346,7 +347,8 @@ class MoleculeView(QWidget):
         self._paint_measure_values(p, xy, w, h, highlight)
         if self._show_numbers:
             self._paint_numbers(p, xy, diam, n)
-        self._paint_caption(p, w, h)
+        if self.show_caption:  # a movie writes its own caption above the molecule
+            self._paint_caption(p, w, h)
 
     def _paint_caption(self, p: QPainter, w: int, h: int) -> None:
         """Run and time at the top left; while picking, what the next click does."""

@@ -10,18 +10,23 @@ times the cost of everything else, and the plots do not change while the run pla
 from __future__ import annotations
 
 import importlib.util
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
+from typing import Callable, Sequence
 
+import numpy as np
 from PySide6.QtCore import QPointF, QRectF, Qt
-from PySide6.QtGui import QImage, QPainter, QPalette, QPen
+from PySide6.QtGui import QFont, QFontMetricsF, QImage, QPainter, QPalette, QPen
 
 from basinmark.core.errors import BasinmarkError
 from basinmark.gui.colours import cursor_colour
+from basinmark.gui.export_folder import default_export_folder, remember_export_folder
 
 MAX_SIDE = 4096          # pixels; larger movies are refused (memory), our own limit
 MAX_FPS = 100.0          # GIF frame delays are whole hundredths of a second
+PROGRESS_H = 3           # pixels: the strip under the molecule showing where the frame sits in the run
+SWATCH_W = 16            # pixels: the line before each legend name
+UNITS_ENTRY = "units"    # the legend entry that names the energy unit
 
 
 class MovieError(BasinmarkError):
@@ -37,6 +42,7 @@ class MovieResult:
     format: str          # "gif" | "mp4"
     cancelled: bool = False
     note: str = ""       # plain sentence, e.g. the frame delay GIF could actually store
+    layout: dict = field(default_factory=dict)  # name -> QRectF of every caption, legend entry, mark and panel
 
 
 def parse_size(text: str) -> tuple[int, int]:
@@ -111,10 +117,20 @@ def qimage_to_pil(img: QImage):
 
 
 class MovieRenderer:
-    """Paints frames of one run: molecule left, traces right, caption and cursor per frame."""
+    """Paints frames of one run: a caption strip on top, the molecule left, the traces right (with their
+    legend and the names of the TS and commit marks above the plots) and the time cursor per frame.
+
+    Every piece of text has a rectangle in :attr:`layout` (frame pixels), computed before the first frame:
+    the caption, one ``legend:<trace>`` per trace, one ``mark:<key>`` per mark name, and the ``molecule``
+    and ``traces`` panels.  No two overlap and all lie inside the frame: mark names that would print over
+    each other (a commit a few fs from the TS) go to another row of the strip above the plots.
+    """
 
     def __init__(self, traj, *, result=None, rules=None, size: tuple[int, int] = (640, 480), source_view=None,
-                 energy_unit: str = "kcal/mol", palette: QPalette | None = None) -> None:
+                 energy_unit: str = "kcal/mol", palette: QPalette | None = None,
+                 user_monitors: Sequence[Sequence[int]] = ()) -> None:
+        from PySide6.QtWidgets import QApplication
+
         from basinmark.gui.molecule_view import MoleculeView
         from basinmark.gui.traces import TracesView
 
@@ -124,46 +140,154 @@ class MovieRenderer:
         w, h = self.size
         self.mol_w = w // 2
         self.tr_w = w - self.mol_w
+        self.user_monitors = [tuple(int(a) for a in m) for m in user_monitors if 2 <= len(m) <= 4]
         self.molecule = MoleculeView()
+        self.molecule.show_caption = False  # the movie's own caption, above the molecule
         self.traces = TracesView()
         for widget in (self.molecule, self.traces):
             if palette is not None:
                 widget.setPalette(palette)
             widget.setAttribute(Qt.WidgetAttribute.WA_DontShowOnScreen, True)
+        self.font = QFont(self.traces.font())
+        self.font.setPixelSize(max(10, h // 36))
+        fm = QFontMetricsF(self.font)
+        self.line_h = float(np.ceil(fm.height() * 1.35))
+        self.caption_rect = QRectF(6, 0, w - 12, self.line_h)
+        top = self.line_h
+        self.mol_rect = QRectF(0, top, self.mol_w, h - top - PROGRESS_H)
         self.molecule.setMinimumSize(1, 1)
-        self.molecule.resize(self.mol_w, h)
-        self.traces.setMinimumSize(1, 1)
-        self.traces.resize(self.tr_w, h)
-        self.traces.show()
+        self.molecule.resize(int(self.mol_rect.width()), int(self.mol_rect.height()))
         self.molecule.show()
         self.molecule.set_trajectory(traj)
+        self.molecule.set_measures(self.user_monitors)  # each added measure's value on the molecule
         if source_view is not None and source_view.trajectory is not None:
             sw, sh = max(source_view.width(), 1), max(source_view.height(), 1)
-            copy_view(source_view, self.molecule, min(self.mol_w, h) / min(sw, sh))
-        self.traces.thresholds_editable = False
-        self.traces.set_energy_unit(energy_unit)
-        self.traces.set_run(traj, result, rules)
-        for c in self.traces.cursors:
-            c.setVisible(False)
-        # a movie panel is narrow: keep the threshold lines (coloured by basin) but drop their text,
-        # which would cover the curves; the TS and commit marks keep theirs
-        marks = set(map(id, self.traces.marks.values()))
-        for line in self.traces.threshold_lines:
-            label = getattr(line, "label", None)
-            if label is not None and id(line) not in marks:
-                label.setVisible(False)
-        from PySide6.QtWidgets import QApplication
-
-        QApplication.processEvents()
-        self.background = QImage(self.tr_w, h, QImage.Format.Format_ARGB32_Premultiplied)
-        self.background.fill(self.traces.palette().color(QPalette.ColorRole.Base))
-        self.traces.render(self.background)
-        self._x_of_time = self._time_mapping()
-
-    def _time_mapping(self) -> tuple[float, float, float, float]:
-        """(x at t0, x per fs, top y, bottom y) of the plots inside the traces image."""
+            ratio = min(self.mol_rect.width(), self.mol_rect.height()) / min(sw, sh)
+            copy_view(source_view, self.molecule, ratio)
         tr = self.traces
-        top_plot, bottom_plot = tr.p_dist, tr.p_energy
+        tr.thresholds_editable = False
+        tr.set_energy_unit(energy_unit)
+        tr.set_run(traj, result, rules, self.user_monitors)
+        for c in tr.cursors:
+            c.setVisible(False)
+        # the movie draws the legend and the mark names itself (laid out so that nothing overlaps); the
+        # threshold lines keep their colour but drop their text, which would cover the curves
+        tr.legend.setVisible(False)
+        for line in tr.threshold_lines:
+            label = getattr(line, "label", None)
+            if label is not None:
+                label.setVisible(False)
+        self.legend = self._legend_entries(fm)
+        legend_bottom = max([r.bottom() for _n, r, _p in self.legend], default=top) + 2
+        # the strip of mark names: rows are counted with a first layout of the plots (the time axis
+        # depends on the width only), then the plots take what is left of the height
+        tr.setMinimumSize(1, 1)
+        tr.resize(self.tr_w, max(1, int(h - legend_bottom)))
+        tr.show()
+        QApplication.processEvents()
+        self._x_of_time = self._time_mapping(0.0)
+        rows = max(1, self._place_marks(fm, 0.0)[1])
+        self.traces_rect = QRectF(self.mol_w, legend_bottom + rows * self.line_h, self.tr_w,
+                                  h - legend_bottom - rows * self.line_h)
+        tr.resize(self.tr_w, max(1, int(self.traces_rect.height())))
+        self._short_axis_labels()
+        QApplication.processEvents()
+        self._x_of_time = self._time_mapping(self.traces_rect.top())
+        self.marks, _rows = self._place_marks(fm, legend_bottom)
+        self.background = QImage(self.tr_w, int(self.traces_rect.height()), QImage.Format.Format_ARGB32_Premultiplied)
+        self.background.fill(tr.palette().color(QPalette.ColorRole.Base))
+        tr.render(self.background)
+        self.layout: dict[str, QRectF] = {"caption": QRectF(self.caption_rect), "molecule": QRectF(self.mol_rect),
+                                          "traces": QRectF(self.traces_rect)}
+        self.layout.update({f"legend:{name}": QRectF(rect) for name, rect, _pen in self.legend})
+        self.layout.update({f"mark:{key}": QRectF(rect) for key, rect, _x, _t in self.marks})
+
+    # --- layout ---------------------------------------------------------------------------------
+    def _legend_entries(self, fm: QFontMetricsF) -> list[tuple[str, QRectF, QPen]]:
+        """One entry per trace (a short line in its pen, then its name), flowing in rows above the plots."""
+        x0, x1 = self.mol_w + 6.0, self.size[0] - 4.0
+        x, y = x0, self.line_h + 1.0
+        out = []
+        for name, item in self.traces.curves.items():
+            if name in self.traces.hidden:
+                continue
+            width = SWATCH_W + 4 + fm.horizontalAdvance(name) + 2
+            if x > x0 and x + width > x1:
+                x, y = x0, y + self.line_h
+            width = min(width, x1 - x)  # a name wider than the panel is cut at its edge (elided when drawn)
+            out.append((name, QRectF(x, y, width, self.line_h - 2), QPen(item.opts["pen"])))
+            x += width + 10
+        if any(n.startswith("E_") for n, _r, _p in out):  # the energies' unit, once (short axes drop it)
+            name = f"ΔE in {self.traces.energy_unit}"
+            width = min(fm.horizontalAdvance(name) + 2, x1 - x0)
+            if x + width > x1:
+                x, y = x0, y + self.line_h
+            out.append((UNITS_ENTRY, QRectF(x, y, width, self.line_h - 2), QPen(Qt.PenStyle.NoPen)))
+        return out
+
+    def _place_marks(self, fm: QFontMetricsF, strip_top: float) -> tuple[list[tuple[str, QRectF, float, str]], int]:
+        """Names of the TS and commit marks in rows of a strip above the plots: each centred on its line
+        where there is room, else moved to the next row down; returns ``(key, rect, x of the line, text)``
+        and the number of rows."""
+        lo, hi = self.mol_w + 2.0, self.size[0] - 2.0
+        rows: list[list[QRectF]] = []
+        out = []
+        entries = []
+        for key, line in self.traces.marks.items():
+            label = getattr(line, "label", None)
+            text = getattr(label, "format", None) if label is not None else None
+            if not text:
+                continue
+            t = float(line.value())
+            entries.append((self.mol_w + self.cursor_x(t), key, str(text), t))
+        for x, key, text, t in sorted(entries):
+            width = min(fm.horizontalAdvance(text) + 8, hi - lo)
+            # a mark before the TS is named to the left of its line, one after it to the right, the TS
+            # centred; where that is taken, the other two places, then the next row
+            ending, centred, starting = x - width, x - width / 2, x
+            lefts = (centred, ending, starting) if abs(t) < 1e-9 else (
+                (ending, centred, starting) if t < 0 else (starting, centred, ending))
+            placed = None
+            for k in range(len(rows) + 1):
+                if k == len(rows):
+                    rows.append([])
+                for left in lefts:
+                    left = min(max(left, lo), hi - width)
+                    rect = QRectF(left, strip_top + k * self.line_h + 1, width, self.line_h - 2)
+                    if not any(rect.adjusted(-3, 0, 3, 0).intersects(r) for r in rows[k]):
+                        placed = rect
+                        break
+                if placed is not None:
+                    rows[k].append(placed)
+                    out.append((key, placed, x, text))
+                    break
+        return out, len(rows)
+
+    def _short_axis_labels(self) -> None:
+        """Axis titles that fit the movie's short plots (a rotated title longer than its plot prints over
+        the next plot's); the energy unit is in the legend, so the energy axes can do without it."""
+        tr = self.traces
+        unit = tr.energy_unit
+        for plot, words in ((tr.p_energy, (f"ΔE / {unit}", "ΔE")), (tr.p_drift, (f"drift / {unit}", "drift")),
+                            (tr.p_dist, ("distance / Å", "d / Å")), (tr.p_angle, ("angle / °", "°"))):
+            axis = plot.getAxis("left")
+            # no "(x0.001)" after a title that has to be short: the ticks carry the plain numbers.  pyqtgraph
+            # 0.14 keeps the last scale when the prefix is switched off (ticks x1000 with nothing to say so),
+            # so the scale is put back to 1 as well
+            axis.enableAutoSIPrefix(False)
+            axis.autoSIPrefixScale = 1.0
+            axis.labelUnitPrefix = ""
+            axis.picture = None
+            fm = QFontMetricsF(axis.label.font())
+            room = plot.vb.sceneBoundingRect().height() if plot.isVisible() else 0
+            text = next((t for t in words if fm.horizontalAdvance(t) + 6 <= room), words[-1])
+            axis.setLabel(text)
+            axis.resizeEvent()  # pyqtgraph places a rotated title only on resizing: centre the new one
+
+    def _time_mapping(self, y_offset: float) -> tuple[float, float, float, float]:
+        """(x at t0 in the traces panel, x per fs, top y, bottom y in the frame) of the plots."""
+        tr = self.traces
+        top_plot, bottom_plot = tr.p_dist, tr.p_drift if tr.p_drift.isVisible() else tr.p_energy
         glw = tr.glw
 
         def to_widget(plot, x: float, y: float) -> QPointF:
@@ -177,42 +301,68 @@ class MovieRenderer:
         a, b = to_widget(bottom_plot, t0, 0.0), to_widget(bottom_plot, t1, 0.0)
         top = glw.viewport().mapTo(tr, glw.mapFromScene(top_plot.vb.sceneBoundingRect().topLeft())).y()
         bottom = glw.viewport().mapTo(tr, glw.mapFromScene(bottom_plot.vb.sceneBoundingRect().bottomLeft())).y()
-        return a.x(), (b.x() - a.x()) / (t1 - t0), float(top), float(bottom)
+        return a.x(), (b.x() - a.x()) / (t1 - t0), float(top) + y_offset, float(bottom) + y_offset
 
     def cursor_x(self, t: float) -> float:
+        """x of time ``t`` inside the traces panel (add ``mol_w`` for the frame)."""
         x0, per_fs, _top, _bottom = self._x_of_time
         return x0 + (t - float(self.traj.time_span[0])) * per_fs
 
+    # --- painting -------------------------------------------------------------------------------
     def render(self, frame: int) -> QImage:
         w, h = self.size
         traj = self.traj
         self.molecule.set_frame(frame)
         img = QImage(w, h, QImage.Format.Format_ARGB32_Premultiplied)
         pal = self.traces.palette()
+        text_colour = pal.color(QPalette.ColorRole.Text)
         img.fill(pal.color(QPalette.ColorRole.Base))
         p = QPainter(img)
         p.setRenderHint(QPainter.RenderHint.Antialiasing, True)
-        mol = self.molecule.render_image(self.mol_w, h)
-        p.drawImage(0, 0, mol)
-        p.drawImage(self.mol_w, 0, self.background)
+        mol = self.molecule.render_image(int(self.mol_rect.width()), int(self.mol_rect.height()))
+        p.drawImage(self.mol_rect.topLeft(), mol)
+        p.drawImage(self.traces_rect.topLeft(), self.background)
+        _x0, _k, top, bottom = self._x_of_time
+        p.setFont(self.font)
+        fm = p.fontMetrics()
+        # legend: each trace's pen beside its name
+        for name, rect, pen in self.legend:
+            room = rect
+            if name == UNITS_ENTRY:
+                name = f"ΔE in {self.traces.energy_unit}"
+            else:
+                y = rect.center().y()
+                swatch = QPen(pen)
+                swatch.setWidthF(max(2.0, pen.widthF()))
+                p.setPen(swatch)
+                p.drawLine(QPointF(rect.left(), y), QPointF(rect.left() + SWATCH_W, y))
+                room = rect.adjusted(SWATCH_W + 4, 0, 0, 0)
+            p.setPen(text_colour)
+            p.drawText(room, Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter,
+                       fm.elidedText(name, Qt.TextElideMode.ElideRight, int(room.width())))
+        # mark names in their rows, each joined to its line by a dotted lead
+        for _key, rect, x, text in self.marks:
+            p.setPen(QPen(text_colour, 1, Qt.PenStyle.DotLine))
+            p.drawLine(QPointF(x, rect.bottom()), QPointF(x, top))
+        for _key, rect, _x, text in self.marks:
+            p.fillRect(rect, pal.color(QPalette.ColorRole.Base))
+            p.setPen(text_colour)
+            p.drawText(rect, Qt.AlignmentFlag.AlignCenter,
+                       fm.elidedText(text, Qt.TextElideMode.ElideRight, int(rect.width())))
         t = float(traj.times[frame])
         x = self.mol_w + self.cursor_x(t)
-        _x0, _k, top, bottom = self._x_of_time
         p.setPen(QPen(cursor_colour(), 2))
         p.drawLine(QPointF(x, top), QPointF(x, bottom))
         p.setPen(QPen(pal.color(QPalette.ColorRole.Mid), 1))
-        p.drawLine(QPointF(self.mol_w - 0.5, 0), QPointF(self.mol_w - 0.5, h))
-        p.setPen(pal.color(QPalette.ColorRole.Text))
-        font = p.font()
-        font.setPixelSize(max(10, h // 36))
-        p.setFont(font)
-        # the changing parts first, so a narrow movie still shows them
-        caption = f"t = {t:+.1f} fs   frame {frame + 1}/{traj.n_frames}   {traj.run_id}"
-        p.drawText(QRectF(6, 4, self.mol_w - 12, font.pixelSize() * 1.6),
-                   Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter, caption)
+        p.drawLine(QPointF(self.mol_w - 0.5, self.mol_rect.top()), QPointF(self.mol_w - 0.5, h))
+        # one caption across the top, the changing parts first so that a narrow movie still shows them
+        p.setPen(text_colour)
+        caption = f"t = {t:+.1f} fs   frame {frame + 1}/{traj.n_frames}   run {traj.run_id}"
+        p.drawText(self.caption_rect, Qt.AlignmentFlag.AlignLeft | Qt.AlignmentFlag.AlignVCenter,
+                   fm.elidedText(caption, Qt.TextElideMode.ElideRight, int(self.caption_rect.width())))
         # a thin strip along the bottom of the molecule panel: where this frame sits in the run
         frac = (frame + 1) / traj.n_frames
-        p.fillRect(QRectF(0, h - 3, self.mol_w * frac, 3), pal.color(QPalette.ColorRole.Highlight))
+        p.fillRect(QRectF(0, h - PROGRESS_H, self.mol_w * frac, PROGRESS_H), pal.color(QPalette.ColorRole.Highlight))
         p.end()
         return img
 
@@ -237,8 +387,13 @@ def export_movie(path: str | Path, traj, *, result=None, rules=None, fps: float 
                  size: tuple[int, int] = (640, 480), frames: range | None = None, source_view=None,
                  energy_unit: str = "kcal/mol", palette: QPalette | None = None,
                  progress: Callable[[int, int], None] | None = None,
-                 cancel: Callable[[], bool] | None = None) -> MovieResult:
+                 cancel: Callable[[], bool] | None = None,
+                 user_monitors: Sequence[Sequence[int]] = ()) -> MovieResult:
     """Write a movie of ``traj`` (``frames``: 0-based range, default all) to ``path`` (.gif or .mp4).
+
+    ``user_monitors``: the distances, angles and dihedrals the chemist added (1-based atoms), drawn as traces
+    beside the rules' monitors and written on the molecule.  The result's ``layout`` holds the rectangles
+    of every caption, legend entry, mark name and panel in the frames.
 
     ``progress(done, total)`` is called after each frame; when ``cancel()`` returns True the export
     stops and nothing is written (``cancelled`` is set in the result).  Needs a QApplication.
@@ -254,11 +409,12 @@ def export_movie(path: str | Path, traj, *, result=None, rules=None, fps: float 
     if not path.parent.is_dir():
         raise MovieError(f"cannot write {path}: the folder does not exist")
     renderer = MovieRenderer(traj, result=result, rules=rules, size=size, source_view=source_view,
-                             energy_unit=energy_unit, palette=palette)
+                             energy_unit=energy_unit, palette=palette, user_monitors=user_monitors)
     try:
-        if fmt == "gif":
-            return _write_gif(path, renderer, frames, fps, progress, cancel)
-        return _write_mp4(path, renderer, frames, fps, progress, cancel)
+        write = _write_gif if fmt == "gif" else _write_mp4
+        res = write(path, renderer, frames, fps, progress, cancel)
+        res.layout = dict(renderer.layout)
+        return res
     finally:
         renderer.close()
 
@@ -359,7 +515,10 @@ class MovieDialog:
         d.setWindowTitle("Export movie")
         form = QFormLayout(d)
         self.file = QLineEdit(d)
-        default = Path(window.state.tset.root) / f"{traj.run_id}.gif" if traj is not None else Path("run.gif")
+        tset = window.state.tset
+        # the last export folder, never the set's own folder: a movie is not part of the data
+        folder = default_export_folder(window.settings, tset.root if tset is not None else None)
+        default = folder / (f"{traj.run_id}.gif" if traj is not None else "run.gif")
         self.file.setText(str(default))
         browse = QPushButton("Browse…", d)
         browse.clicked.connect(self._browse)
@@ -443,9 +602,12 @@ class MovieDialog:
             res = export_movie(self.file.text().strip(), traj, result=win.state.run_result(), rules=win.state.rules,
                                fps=self.fps.value(), size=(self.width.value(), self.height.value()),
                                frames=frames, source_view=win.molecule, energy_unit=win.traces.energy_unit,
-                               palette=win.molecule.palette(), progress=on_progress, cancel=prog.wasCanceled)
+                               palette=win.molecule.palette(), progress=on_progress, cancel=prog.wasCanceled,
+                               user_monitors=list(win.state.user_monitors))
         finally:
             prog.close()
+        if not res.cancelled:
+            remember_export_folder(win.settings, res.path)
         msg = ("Movie export cancelled; nothing was written." if res.cancelled
                else f"Movie written: {res.path} ({res.n_frames} frames, {res.size[0]}x{res.size[1]})")
         if res.note:
