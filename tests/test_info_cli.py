@@ -20,7 +20,7 @@ def test_info_on_a_set_with_a_bad_file(tmp_path, capsys):
 
 
 def test_info_csv_and_empty_folder(tmp_path, capsys):
-    assert main(["info", str(tmp_path), "--format", "csv"]) == 1  # no runs: non-zero
-    assert capsys.readouterr().out.startswith("run,frames")
+    assert main(["info", str(tmp_path), "--format", "csv"]) == 2  # no runs: not a set, said plainly
+    assert f"{tmp_path} is not a set" in capsys.readouterr().err
     assert main(["info", str(tmp_path / "missing")]) == 2
     assert "no such folder" in capsys.readouterr().err

@@ -160,6 +160,8 @@ def set_dir(tmp_path, monkeypatch):
     """A set folder with a rules file; open_set and classify_set replaced by fakes of their interfaces."""
     (tmp_path / "basins.toml").write_text(RULES_TOML)
     tset = fake_set(tmp_path, OUTCOMES)
+    for rid in tset.run_ids:  # the run files on disk (empty: never read), so that the folder is a set
+        (tmp_path / f"{rid}.xyz").touch()
     import basinmark.core.sets as sets
     monkeypatch.setattr(sets, "open_set", lambda path, **kw: tset)
     calls = []
@@ -329,5 +331,6 @@ def test_summary_with_a_missing_journal_file_says_so(tmp_path, capsys):
     from basinmark.cli import main
 
     (tmp_path / "set").mkdir()
+    (tmp_path / "set" / "run-0001.xyz").touch()  # a set (a folder without runs is refused before the journal)
     assert main(["summary", str(tmp_path / "set"), "--journal", str(tmp_path / "nope.jsonl")]) == 2
     assert "no label journal there" in capsys.readouterr().err

@@ -13,6 +13,7 @@ import argparse
 import importlib
 import pkgutil
 import sys
+from pathlib import Path
 
 from basinmark import __version__
 from basinmark.core.errors import BasinmarkError
@@ -57,7 +58,7 @@ def main(argv: list[str] | None = None) -> int:
 
     take_damage_reports()
     try:
-        if getattr(args, "set", None) and args.command not in ANY_FOLDER:
+        if getattr(args, "set", None) and args.command not in ANY_FOLDER and Path(args.set).expanduser().is_dir():
             from basinmark.core.not_a_set import require_set
 
             require_set(args.set)  # NotASetError: nothing is written into a folder without runs
