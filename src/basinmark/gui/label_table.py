@@ -90,7 +90,9 @@ def final_label_counts(final_labels: Iterable, products: Sequence[str] = ()) -> 
     The one count behind every "how many runs" the window shows per outcome (the run table's counts, the map's
     legend, the summary plots' legends), so that two of them never disagree.
     """
-    counts = Counter((str(x) if isinstance(x, str) and x else UNCLASSIFIED) for x in final_labels)
+    labels = final_labels if isinstance(final_labels, pd.Series) else pd.Series(list(final_labels), dtype=object)
+    text = labels.fillna("").astype(str)  # None, NaN: no label
+    counts = Counter(text.replace("", UNCLASSIFIED).value_counts().to_dict())  # vectorised: 10^4 runs per event
     products = list(products or [])
     order = products + [x for x in FIXED_LABELS if x not in products] + sorted(
         k for k in counts if k not in products and k not in FIXED_LABELS)

@@ -133,19 +133,29 @@ def note_cell(row: dict, role, extra_note=lambda row: "") -> Any:
     return None if extra_note(row) else f"note: {note}"
 
 
-def search_runs(df: pd.DataFrame, text: str) -> list[str]:
-    """Runs whose id, labels, flags (as words), labeler, reason or note contain ``text`` (any case), in order."""
-    needle = text.strip().lower()
-    if not needle or not len(df):
-        return list(df["run"]) if len(df) else []
-    hit = np.zeros(len(df), dtype=bool)
+def search_text(df: pd.DataFrame) -> pd.Series:
+    """Per run, the lower-cased searched cells joined by a line break (which no typed text contains)."""
+    parts = []
     for col in SEARCHED:
         if col in df:
             cells = df[col].fillna("").astype(str)
             if col == "flags":
                 cells = cells.str.replace("_", " ", regex=False).str.replace(";", ", ", regex=False)
-            hit |= cells.str.lower().str.contains(needle, regex=False).to_numpy()
-    return [str(r) for r in df["run"][hit]]
+            parts.append(cells)
+    joined = parts[0].str.cat(parts[1:], sep="\n") if parts else pd.Series([""] * len(df))
+    return joined.str.lower()
+
+
+def search_runs(df: pd.DataFrame, text: str, haystack: pd.Series | None = None) -> list[str]:
+    """Runs whose id, labels, flags (as words), labeler, reason or note contain ``text`` (any case), in order.
+
+    ``haystack``: :func:`search_text` of ``df`` when already made (one pass per keystroke instead of eight)."""
+    needle = text.strip().lower()
+    if not needle or not len(df):
+        return list(df["run"]) if len(df) else []
+    hay = search_text(df) if haystack is None else haystack
+    hit = hay.str.contains(needle, regex=False).to_numpy(dtype=bool)
+    return [str(r) for r in df["run"].to_numpy()[hit]]
 
 
 #: the columns the search field looks in
@@ -368,7 +378,8 @@ def column_widths(view: QTableView, df: pd.DataFrame, products: list[str]) -> li
     out = []
     for key, _title in COLUMNS:
         if key == "run":
-            ids = sorted(texts("run"), key=len)[-40:]  # the longest ids (widths follow lengths closely)
+            runs = df["run"].astype(str)
+            ids = list(runs[runs.str.len().nlargest(40).index])  # the longest ids (widths follow lengths)
             w = _widest(ids, fm) + pad + (icon if "note" in df and (df["note"].fillna("") != "").any() else 0)
         elif key in ("auto_label", "final_label"):
             w = _widest(vocabulary + texts(key), fmb if key == "final_label" else fm) + pad + icon
@@ -808,7 +819,10 @@ class RunTable(QWidget):
                 self.set_filter(self._mode_before_search)
             return
         mode = self._mode_before_search or (self.proxy.mode if self.proxy.only is None else "all")
-        runs = search_runs(self.state.labels, text)
+        df = self.state.labels
+        if getattr(self, "_haystack_of", None) is not df:  # made once per label table, not per keystroke
+            self._haystack, self._haystack_of = search_text(df), df
+        runs = search_runs(df, text, self._haystack)
         self.show_only_runs(runs, f"the search for “{text.strip()}” (ids, labels, flags, reasons, notes)",
                             searching=True)
         self._mode_before_search = mode
