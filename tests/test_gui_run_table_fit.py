@@ -106,6 +106,17 @@ def test_the_run_column_stays_in_view_when_scrolling_right(win, qtbot):
                      frozen.visualRect(target).center())
     assert win.state.run_id == target.data() == win.run_table.selected_run()
     assert view.hasFocus()   # number keys and finding stay with the table
+    # its header sorts as the table's own does, and shows the same sort indicator
+    fh = frozen.horizontalHeader()
+    for order in (Qt.SortOrder.DescendingOrder, Qt.SortOrder.AscendingOrder):
+        QTest.mouseClick(fh.viewport(), Qt.MouseButton.LeftButton, Qt.KeyboardModifier.NoModifier,
+                         QPoint(fh.sectionViewportPosition(0) + 5, fh.height() // 2))
+        header = view.horizontalHeader()
+        assert (header.sortIndicatorSection(), header.sortIndicatorOrder()) == (0, order)
+        assert (fh.sortIndicatorSection(), fh.sortIndicatorOrder()) == (0, order)
+        runs = win.run_table.visible_runs()
+        assert runs == sorted(runs, reverse=order == Qt.SortOrder.DescendingOrder)
+    assert win.state.run_id == win.run_table.selected_run()
 
 
 def test_a_note_shows_as_a_mark_is_found_by_search_and_exported(win, qtbot, tmp_path):
