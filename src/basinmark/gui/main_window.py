@@ -540,6 +540,8 @@ class MainWindow(QMainWindow):
         self.progress.setRange(0, max(total, 1))
         self.progress.setValue(done)
         self.progress.setFormat(f"{phase} %v/%m")
+        if phase == "Loading":
+            self.run_table.set_load_progress(done, total)
 
     def _on_loaded(self, result: dict) -> None:
         self.job = None
@@ -559,37 +561,39 @@ class MainWindow(QMainWindow):
             self.statusBar().showMessage(self._messages["error"], 10000)
             self.load_failed.emit(self._messages["error"])
             return
-        if not result.get("rules_only"):
-            keep = self.state.run_id if self.state.run_id != getattr(self, "_auto_run", "") else ""
-            self.state.set_set(tset)
-            if keep and keep in tset:
-                self.state.set_run(keep)
-            elif not self.molecule.user_moved:
-                self.molecule.reset_view()  # oriented on the set's first run, not on whichever loaded first
-            self._remember(tset.root)
-            said = list(tset.warnings)
-            if tset.left_out or not tset.metadata.get("pairing_plain", True):
-                # runs found by a naming convention guessed from the files, or files left out: said out loud
-                said.insert(0, "Runs found: " + "; ".join(tset.notes) + "." if tset.notes else "No runs found.")
-                if tset.left_out:
-                    n = len(tset.left_out)
-                    said.insert(1, f"{n} file{'s' if n != 1 else ''} left out, not runs: "
-                                   + "; ".join(_short_reason(f) for f in tset.left_out[:3])
-                                   + (" …" if n > 3 else "") + ".")
-            if said:
-                self._messages["set"] = " ".join(said)
-            self._open_journal(tset, result.get("rules"))
-        if result.get("rules_error"):
-            self._messages["rules"] = result["rules_error"]
-        else:
-            self._messages.pop("rules", None)
-        if result.get("rules_only") and result.get("rules") is None:
-            # other rules failed to load or classify: keep the ones in use, and say so
-            self._messages["rules"] = (result.get("rules_error", "") + " The rules in use are unchanged.").strip()
-            self._show_banner()
-            self.rules_applied.emit()
-            return
-        self.state.set_rules(result.get("rules"), result.get("classification"), result.get("rules_error", ""))
+        # the set, its journal and the rules each change the label table: it is rebuilt once, at the end
+        with self.state.labels_batch():
+            if not result.get("rules_only"):
+                keep = self.state.run_id if self.state.run_id != getattr(self, "_auto_run", "") else ""
+                self.state.set_set(tset)
+                if keep and keep in tset:
+                    self.state.set_run(keep)
+                elif not self.molecule.user_moved:
+                    self.molecule.reset_view()  # oriented on the set's first run, not on whichever loaded first
+                self._remember(tset.root)
+                said = list(tset.warnings)
+                if tset.left_out or not tset.metadata.get("pairing_plain", True):
+                    # runs found by a naming convention guessed from the files, or files left out: said out loud
+                    said.insert(0, "Runs found: " + "; ".join(tset.notes) + "." if tset.notes else "No runs found.")
+                    if tset.left_out:
+                        n = len(tset.left_out)
+                        said.insert(1, f"{n} file{'s' if n != 1 else ''} left out, not runs: "
+                                       + "; ".join(_short_reason(f) for f in tset.left_out[:3])
+                                       + (" …" if n > 3 else "") + ".")
+                if said:
+                    self._messages["set"] = " ".join(said)
+                self._open_journal(tset, result.get("rules"))
+            if result.get("rules_error"):
+                self._messages["rules"] = result["rules_error"]
+            else:
+                self._messages.pop("rules", None)
+            if result.get("rules_only") and result.get("rules") is None:
+                # other rules failed to load or classify: keep the ones in use, and say so
+                self._messages["rules"] = (result.get("rules_error", "") + " The rules in use are unchanged.").strip()
+                self._show_banner()
+                self.rules_applied.emit()
+                return
+            self.state.set_rules(result.get("rules"), result.get("classification"), result.get("rules_error", ""))
         journal = self.state.journal
         if journal is not None and not journal.readonly and result.get("rules") is not None:
             journal.allowed = all_labels(result["rules"])

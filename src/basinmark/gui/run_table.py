@@ -15,9 +15,8 @@ import numpy as np
 import pandas as pd
 import time
 
-from PySide6.QtCore import (QAbstractTableModel, QEvent, QItemSelectionModel, QModelIndex, QRectF, QSignalBlocker,
-                            QSize, QSortFilterProxyModel, Qt, Signal)
-from PySide6.QtCore import QPointF
+from PySide6.QtCore import (QAbstractProxyModel, QAbstractTableModel, QEvent, QItemSelectionModel, QModelIndex,
+                            QPointF, QRectF, QSignalBlocker, QSize, Qt, QTimer, Signal)
 from PySide6.QtGui import (QColor, QFont, QFontMetrics, QIcon, QKeyEvent, QPainter, QPalette, QPen, QPixmap,
                            QPolygonF)
 from PySide6.QtWidgets import (QAbstractItemView, QButtonGroup, QFrame, QHBoxLayout, QHeaderView, QLabel, QLineEdit,
@@ -27,7 +26,7 @@ from basinmark.core import stats
 from basinmark.core.classify import signed_commit_time
 from basinmark.core.labels import FIXED_LABELS
 from basinmark.gui.colours import outcome_colour
-from basinmark.gui.label_table import final_label_counts
+from basinmark.gui.label_table import LABEL_COLUMNS, final_label_counts
 from basinmark.gui.state import AppState
 
 #: (column in the labels table, header shown)
@@ -76,22 +75,32 @@ def row_matches(row: dict, mode: str) -> bool:
     return True
 
 
+def _texts(values) -> np.ndarray:
+    return pd.Series(values, dtype=object).fillna("").astype(str).to_numpy(dtype=object)
+
+
+def filter_masks(columns) -> dict[str, np.ndarray]:
+    """Per quick filter, which rows of a labels table pass it (whole columns at once; the rules of
+    :func:`row_matches`).  ``columns``: a labels DataFrame or a mapping of its columns to arrays."""
+    hand, auto, flags = (_texts(columns[k]) for k in ("hand_label", "auto_label", "flags"))
+    changed = pd.Series(columns["data_changed"], dtype=object).fillna(False).astype(bool).to_numpy()
+    flagged = flags != ""
+    unlabeled = hand == ""
+    return {
+        "all": np.ones(hand.size, dtype=bool),
+        "look": unlabeled & (flagged | np.isin(auto, list(NOT_CLEAN))),
+        "flagged": flagged,
+        "unlabeled": unlabeled,
+        "disagree": ~unlabeled & (hand != auto),
+        "changed": changed,
+    }
+
+
 def filter_counts(df: pd.DataFrame) -> dict[str, int]:
     """How many rows of a labels table pass each quick filter (vectorised; the rules of row_matches)."""
     if not len(df):
         return {k: 0 for k, _t, _tip in FILTERS}
-    hand = df["hand_label"].fillna("").astype(str)
-    auto = df["auto_label"].fillna("").astype(str)
-    flagged = df["flags"].fillna("").astype(str) != ""
-    unlabeled = hand == ""
-    return {
-        "all": len(df),
-        "look": int((unlabeled & (flagged | auto.isin(NOT_CLEAN))).sum()),
-        "flagged": int(flagged.sum()),
-        "unlabeled": int(unlabeled.sum()),
-        "disagree": int(((hand != "") & (hand != auto)).sum()),
-        "changed": int(df["data_changed"].fillna(False).astype(bool).sum()),
-    }
+    return {k: int(m.sum()) for k, m in filter_masks(df).items()}
 
 
 def flag_words(flags: str | None) -> str:
@@ -163,26 +172,100 @@ SEARCHED = ("run", "auto_label", "hand_label", "final_label", "flags", "labeler"
 
 
 class RunTableModel(QAbstractTableModel):
-    """A read-only Qt model over the labels DataFrame (rows kept as plain lists for speed)."""
+    """A read-only Qt model over the labels table, kept as one numpy array per column.
+
+    Only the cells on screen are asked for (``data``); sorting and filtering never go through it: they are
+    computed on the arrays (:meth:`sort_key`, :meth:`mask`) by :class:`RunFilterProxy`.  While a set loads,
+    :meth:`append_runs` lists the runs that arrived (one ``rowsInserted`` per batch); the full table with
+    outcomes and labels replaces them with one reset when loading ends (:meth:`set_table`).
+    """
 
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
-        self._rows: list[dict] = []
+        self._c: dict[str, np.ndarray] = _blank_columns([])
         self._index: dict[str, int] = {}
         self.products: list[str] = []
         #: says why a row is listed although the filter would hide it ("" when it matches); set by the proxy
         self.extra_note = lambda row: ""
+        #: the run listed even when it no longer matches the filter ("" for none); set by the proxy
+        self.pinned_run = lambda: ""
+        self._fonts: dict[tuple[bool, bool], QFont] = {}
+        self._masks: dict[str, np.ndarray] | None = None   # per quick filter, kept until the rows change
+        self._keys: dict[int, np.ndarray] = {}               # per column, likewise
 
+    # --- contents ---------------------------------------------------------------------------
     def set_table(self, df: pd.DataFrame, products: list[str] | None = None) -> None:
+        """Replace every row by the labels table ``df`` (one reset)."""
         if products is not None:
             self.products = list(products)
         self.beginResetModel()
-        self._rows = df.to_dict("records")
-        self._index = {r["run"]: i for i, r in enumerate(self._rows)}
+        self._c = _columns_of(df)
+        self._masks, self._keys = None, {}
+        self._index = {r: i for i, r in enumerate(self._c["run"].tolist())}
         self.endResetModel()
 
+    def append_runs(self, run_ids) -> int:
+        """List runs that arrived while the set loads (no outcome or label yet): one ``rowsInserted``.
+
+        Runs already listed are skipped; returns how many were added."""
+        new = [str(r) for r in dict.fromkeys(run_ids) if str(r) not in self._index]
+        if not new:
+            return 0
+        n = len(self._c["run"])
+        add = _blank_columns(new)
+        self.beginInsertRows(QModelIndex(), n, n + len(new) - 1)
+        self._c = {k: np.concatenate([v, add[k]]) for k, v in self._c.items()}
+        self._masks, self._keys = None, {}
+        self._index.update({r: n + i for i, r in enumerate(new)})
+        self.endInsertRows()
+        return len(new)
+
+    @property
+    def n_rows(self) -> int:
+        return len(self._c["run"])
+
+    def column(self, key: str) -> np.ndarray:
+        """One column of every row, in the model's (the set's) order."""
+        return self._c[key]
+
+    def row(self, r: int) -> dict:
+        return {k: _plain(v[r]) for k, v in self._c.items()}
+
+    def row_of(self, run_id: str) -> int | None:
+        return self._index.get(run_id)
+
+    # --- arrays for the proxy -----------------------------------------------------------------
+    def mask(self, mode: str) -> np.ndarray:
+        """Which rows pass quick filter ``mode`` (the rules of :func:`row_matches`, on whole columns)."""
+        if self._masks is None:
+            self._masks = filter_masks(self._c)
+        return self._masks[mode].copy() if mode in self._masks else np.ones(self.n_rows, dtype=bool)
+
+    def sort_key(self, column: int) -> np.ndarray:
+        """A number per row whose order is the column's order (ties are broken by the set's order)."""
+        if column not in self._keys:
+            self._keys[column] = self._sort_key(COLUMNS[column][0])
+        return self._keys[column]
+
+    def _sort_key(self, key: str) -> np.ndarray:
+        values = self._c[key]
+        if key == "run":
+            return np.arange(len(values), dtype=np.float64)  # the set's natural order
+        if key == "product_final_entry_fs":  # by distance from the TS, whichever end; no commit last
+            v = values.astype(np.float64)
+            return np.where(np.isfinite(v), v, np.inf)
+        if key == "data_changed":
+            return values.astype(bool).astype(np.float64)
+        if key == "flags":
+            values = np.array([flag_words(v) for v in values.tolist()], dtype=object)
+        text = np.array([str(v or "") for v in values.tolist()], dtype=object)
+        # ranks of the texts in code-point order (the order Qt's own string sort used)
+        _uniq, codes = np.unique(text.astype(str), return_inverse=True) if len(text) else (None, np.zeros(0, int))
+        return codes.astype(np.float64)
+
+    # --- Qt's model interface ------------------------------------------------------------------
     def rowCount(self, parent=QModelIndex()) -> int:  # noqa: N802
-        return 0 if parent.isValid() else len(self._rows)
+        return 0 if parent.isValid() else len(self._c["run"])
 
     def columnCount(self, parent=QModelIndex()) -> int:  # noqa: N802
         return 0 if parent.isValid() else len(COLUMNS)
@@ -195,83 +278,255 @@ class RunTableModel(QAbstractTableModel):
             return COMMIT_TIP
         return None
 
-    def row(self, r: int) -> dict:
-        return self._rows[r]
+    def _note(self, r: int) -> str:
+        pinned = self.pinned_run()
+        if not pinned or self._c["run"][r] != pinned:
+            return ""
+        return self.extra_note(self.row(r))
 
-    def row_of(self, run_id: str) -> int | None:
-        return self._index.get(run_id)
+    def _font(self, italic: bool, bold: bool) -> QFont:
+        f = self._fonts.get((italic, bold))
+        if f is None:
+            f = QFont()
+            f.setItalic(italic)
+            f.setBold(bold)
+            self._fonts[(italic, bold)] = f
+        return f
 
     def data(self, index: QModelIndex, role=Qt.ItemDataRole.DisplayRole) -> Any:
         if not index.isValid():
             return None
-        if index.column() == 0 and role in _NOTE_ROLES:  # the run's note: a mark beside its id, the text on hover
-            shown = note_cell(self.row(index.row()), role, self.extra_note)
+        r = index.row()
+        if index.column() == 0 and role in _NOTE_ROLES and self._c["note"][r]:
+            # the run's note: a mark beside its id, the text on hover
+            shown = note_cell(self.row(r), role, self.extra_note)
             if shown is not None:
                 return shown
-        row = self._rows[index.row()]
         key = COLUMNS[index.column()][0]
-        value = row.get(key)
+        value = _plain(self._c[key][r])
         if role == Qt.ItemDataRole.DisplayRole:
             if key == "product_final_entry_fs":  # on the run's time axis: negative at the backward end
-                t = signed_commit_time(row.get("product_end"), value)
+                t = signed_commit_time(self._c["product_end"][r], value)
                 return "" if t is None else f"{t:.1f}"
             if key == "data_changed":
                 return "changed" if value else ""
             if key == "flags":
                 return flag_words(value)
             return "" if value is None else str(value)
-        if role == Qt.ItemDataRole.UserRole:  # sort key
-            if key == "product_final_entry_fs":  # by distance from the TS, whichever end
-                return float("inf") if value is None or not np.isfinite(value) else float(value)
-            if key == "run":
-                return index.row()  # the set's natural order
-            return str(value or "")
         if role == Qt.ItemDataRole.ToolTipRole:
-            note = self.extra_note(row)
+            note = self._note(r)
             if note:
                 return note
             if key == "product_final_entry_fs":
                 return COMMIT_TIP
-            if key == "hand_label" and row.get("reason"):
-                return f"reason: {row['reason']}"
+            if key == "hand_label" and self._c["reason"][r]:
+                return f"reason: {self._c['reason'][r]}"
             if key == "data_changed" and value:
                 return "The run's files changed after this label was set; look at it again."
         if role == Qt.ItemDataRole.DecorationRole and key in ("final_label", "auto_label") and value:
             return outcome_colour(str(value), self.products)
         if role == Qt.ItemDataRole.FontRole:
-            extra = bool(self.extra_note(row))
-            bold = key == "final_label" and bool(row.get("hand_label"))
+            extra = bool(self._note(r))
+            bold = key == "final_label" and bool(self._c["hand_label"][r])
             if extra or bold:
-                f = QFont()
-                f.setItalic(extra)   # listed only while on screen: it no longer matches the filter
-                f.setBold(bold)
-                return f
+                return self._font(extra, bold)  # italic: listed only while on screen (no longer matches)
         return None
 
 
-class RunFilterProxy(QSortFilterProxyModel):
-    """Sorts by each column's sort key and keeps the rows of the quick filter, plus the pinned run."""
+def _plain(value):
+    """A numpy scalar as the Python value the rest of the window expects."""
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def _blank_columns(run_ids) -> dict[str, np.ndarray]:
+    """Rows for runs with no outcome and no label yet (listed while the set loads)."""
+    n = len(run_ids)
+    out = {}
+    for k in LABEL_COLUMNS:
+        if k == "run":
+            out[k] = np.array([str(r) for r in run_ids], dtype=object)
+        elif k in _NUMBER_COLUMNS:
+            out[k] = np.full(n, np.nan)
+        elif k == "data_changed":
+            out[k] = np.zeros(n, dtype=bool)
+        else:
+            out[k] = np.full(n, "", dtype=object)
+    return out
+
+
+_NUMBER_COLUMNS = frozenset({"product_final_entry_fs", "product_first_arrival_fs"})
+
+
+def _columns_of(df: pd.DataFrame) -> dict[str, np.ndarray]:
+    """The labels table as one array per column (text as objects, "" for missing; times as floats)."""
+    out = _blank_columns([])
+    n = len(df)
+    for k in LABEL_COLUMNS:
+        if k not in df.columns:
+            out[k] = _blank_columns([""] * n)[k]
+        elif k in _NUMBER_COLUMNS:
+            out[k] = pd.to_numeric(df[k], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        elif k == "data_changed":
+            out[k] = df[k].fillna(False).astype(bool).to_numpy()
+        else:
+            out[k] = df[k].fillna("").to_numpy(dtype=object)
+    out["run"] = np.array([str(r) for r in out["run"].tolist()], dtype=object)
+    return out
+
+
+class RunFilterProxy(QAbstractProxyModel):
+    """The rows of the quick filter (plus the pinned run) in the chosen column's order, computed on arrays.
+
+    A sort or filter is one numpy pass over the source model's columns (a stable sort: ties keep the set's
+    order, as Qt's own sorting proxy did), never a call per cell.  Each change of the source reaches the
+    view as one signal: a reset, or ``rowsInserted`` when runs that arrived while loading go at the end.
+    A sort keeps the selection (a layout change).
+    """
 
     def __init__(self, parent=None) -> None:
         super().__init__(parent)
         self.mode = "all"
         self.only: frozenset[str] | None = None  # a given list of runs (e.g. a summary warning's) instead
         self.pinned = ""   # the run on screen: listed even when it no longer matches the filter
-        self.setSortRole(Qt.ItemDataRole.UserRole)
+        self.sort_column = -1
+        self.sort_order = Qt.SortOrder.AscendingOrder
+        self._rows = np.zeros(0, dtype=np.intp)   # proxy row -> source row
+        self._pos = np.zeros(0, dtype=np.intp)    # source row -> proxy row, -1 when hidden
 
-    def _refilter(self, change) -> None:
-        if hasattr(self, "beginFilterChange"):  # Qt >= 6.9; invalidateFilter is deprecated there
-            self.beginFilterChange()
-            change()
-            self.endFilterChange()
+    # --- the mapping --------------------------------------------------------------------------
+    def _order(self) -> np.ndarray:
+        model = self.sourceModel()
+        n = model.n_rows if model is not None else 0
+        if n == 0:
+            return np.zeros(0, dtype=np.intp)
+        if self.only is not None:
+            keep = np.isin(model.column("run"), np.array(sorted(self.only), dtype=object))
         else:
-            change()
-            self.invalidateFilter()
+            keep = model.mask(self.mode)
+        if self.pinned:
+            r = model.row_of(self.pinned)
+            if r is not None:
+                keep[r] = True
+        rows = np.flatnonzero(keep)
+        if self.sort_column >= 0 and rows.size:
+            key = model.sort_key(self.sort_column)[rows]
+            if self.sort_order == Qt.SortOrder.DescendingOrder:
+                key = -key
+            rows = rows[np.argsort(key, kind="stable")]
+        return rows
 
+    def _install(self, rows: np.ndarray) -> None:
+        self._rows = rows.astype(np.intp, copy=False)
+        n = self.sourceModel().n_rows if self.sourceModel() is not None else 0
+        pos = np.full(n, -1, dtype=np.intp)
+        pos[self._rows] = np.arange(self._rows.size, dtype=np.intp)
+        self._pos = pos
+
+    def _reset(self) -> None:
+        self.beginResetModel()
+        self._install(self._order())
+        self.endResetModel()
+
+    def _source_about_to_reset(self) -> None:
+        self.beginResetModel()
+
+    def _source_reset(self) -> None:
+        self._install(self._order())
+        self.endResetModel()
+
+    def _source_inserted(self, _parent, _first, _last) -> None:
+        new = self._order()
+        old = self._rows
+        if new.size > old.size and np.array_equal(new[:old.size], old):
+            self.beginInsertRows(QModelIndex(), int(old.size), int(new.size) - 1)
+            self._install(new)
+            self.endInsertRows()
+        elif np.array_equal(new, old):
+            self._install(new)  # the new runs are all filtered out: nothing the view shows changes
+        else:
+            self.beginResetModel()
+            self._install(new)
+            self.endResetModel()
+
+    def setSourceModel(self, model) -> None:  # noqa: N802
+        super().setSourceModel(model)
+        model.extra_note = self.extra_note
+        model.pinned_run = lambda: self.pinned
+        model.modelAboutToBeReset.connect(self._source_about_to_reset)
+        model.modelReset.connect(self._source_reset)
+        model.rowsInserted.connect(self._source_inserted)
+        model.dataChanged.connect(self._source_data_changed)
+        self._reset()
+
+    def _source_data_changed(self, top_left, bottom_right, roles=()) -> None:
+        for r in range(top_left.row(), bottom_right.row() + 1):
+            p = self._pos[r] if r < self._pos.size else -1
+            if p >= 0:
+                self.dataChanged.emit(self.index(int(p), top_left.column()),
+                                      self.index(int(p), bottom_right.column()), roles)
+
+    def mapToSource(self, proxy_index: QModelIndex) -> QModelIndex:  # noqa: N802
+        if not proxy_index.isValid() or self.sourceModel() is None:
+            return QModelIndex()
+        r = proxy_index.row()
+        if not 0 <= r < self._rows.size:
+            return QModelIndex()
+        return self.sourceModel().index(int(self._rows[r]), proxy_index.column())
+
+    def mapFromSource(self, source_index: QModelIndex) -> QModelIndex:  # noqa: N802
+        if not source_index.isValid():
+            return QModelIndex()
+        r = source_index.row()
+        if not 0 <= r < self._pos.size or self._pos[r] < 0:
+            return QModelIndex()
+        return self.createIndex(int(self._pos[r]), source_index.column())
+
+    def index(self, row: int, column: int, parent=QModelIndex()) -> QModelIndex:
+        if parent.isValid() or not (0 <= row < self._rows.size and 0 <= column < len(COLUMNS)):
+            return QModelIndex()
+        return self.createIndex(row, column)
+
+    def parent(self, *args):  # noqa: D401  (index.parent() and QObject.parent() share the name)
+        if args:
+            return QModelIndex()
+        return super().parent()
+
+    def rowCount(self, parent=QModelIndex()) -> int:  # noqa: N802
+        return 0 if parent.isValid() else int(self._rows.size)
+
+    def columnCount(self, parent=QModelIndex()) -> int:  # noqa: N802
+        return 0 if parent.isValid() else len(COLUMNS)
+
+    def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):  # noqa: N802
+        if orientation == Qt.Orientation.Horizontal and self.sourceModel() is not None:
+            return self.sourceModel().headerData(section, orientation, role)
+        return None
+
+    def sort(self, column: int, order=Qt.SortOrder.AscendingOrder) -> None:
+        """Order the rows by ``column`` (a layout change: the selection stays on its run)."""
+        self.sort_column, self.sort_order = column, order
+        self.layoutAboutToBeChanged.emit()
+        persistent = self.persistentIndexList()
+        sources = [(int(self._rows[i.row()]) if 0 <= i.row() < self._rows.size else -1, i.column())
+                   for i in persistent]
+        self._install(self._order())
+        self.changePersistentIndexList(persistent, [
+            self.createIndex(int(self._pos[s]), c) if s >= 0 and self._pos[s] >= 0 else QModelIndex()
+            for s, c in sources])
+        self.layoutChanged.emit()
+
+    def source_rows(self) -> np.ndarray:
+        """The source rows listed, in the view's order."""
+        return self._rows.copy()
+
+    def visible_runs(self) -> list[str]:
+        model = self.sourceModel()
+        return model.column("run")[self._rows].tolist() if model is not None and self._rows.size else []
+
+    # --- the filter ---------------------------------------------------------------------------
     def set_mode(self, mode: str, only: frozenset[str] | None = None) -> None:
-        def change() -> None:
-            self.mode, self.only, self.pinned = mode, only, ""
-        self._refilter(change)
+        self.mode, self.only, self.pinned = mode, only, ""
+        self._reset()
 
     def matches(self, row: dict) -> bool:
         """The row passes the quick filter (or is one of the given runs), pin aside."""
@@ -290,13 +545,9 @@ class RunFilterProxy(QSortFilterProxyModel):
         model = self.sourceModel()
         r = model.row_of(old) if old else None
         extra = r is not None and not self.matches(model.row(r))
-
-        def change() -> None:
-            self.pinned = run_id
+        self.pinned = run_id
         if extra:
-            self._refilter(change)
-        else:
-            self.pinned = run_id
+            self._reset()
 
     def is_extra(self, source_row: int) -> bool:
         """The row is listed only because it is pinned (it no longer matches the filter)."""
@@ -306,14 +557,6 @@ class RunFilterProxy(QSortFilterProxyModel):
         if not self.pinned or row["run"] != self.pinned or self.matches(row):
             return ""
         return f"Listed while it is on screen: it no longer matches {self.describe()}."
-
-    def setSourceModel(self, model) -> None:  # noqa: N802
-        super().setSourceModel(model)
-        model.extra_note = self.extra_note
-
-    def filterAcceptsRow(self, source_row: int, source_parent: QModelIndex) -> bool:  # noqa: N802
-        row = self.sourceModel().row(source_row)
-        return (bool(self.pinned) and row["run"] == self.pinned) or self.matches(row)
 
 
 class CountBar(QWidget):
@@ -582,7 +825,13 @@ class RunTableView(QTableView):
 
 
 class RunTable(QWidget):
-    """Quick-filter buttons (with counts), the sortable table, and the counts of the final labels."""
+    """Quick-filter buttons (with counts), the sortable table, and the counts of the final labels.
+
+    While a set loads, the runs that arrived are listed every ``ARRIVAL_BATCH_MS`` (they can be looked at
+    at once) with the count so far; their outcomes and labels fill in when loading ends.
+    """
+
+    ARRIVAL_BATCH_MS = 150
 
     def __init__(self, state: AppState, parent=None) -> None:
         super().__init__(parent)
@@ -678,8 +927,51 @@ class RunTable(QWidget):
         self.view.find_ended.connect(lambda: _show(self.find_label, False))
         state.labels_changed.connect(self._on_labels)
         state.run_changed.connect(self._on_run_changed)
+        # runs arriving while a set loads are listed in batches (one rowsInserted each), not one by one
+        self._load_total = 0
+        self._arrivals = QTimer(self)
+        self._arrivals.setSingleShot(True)
+        self._arrivals.setInterval(self.ARRIVAL_BATCH_MS)
+        self._arrivals.timeout.connect(self.list_arrived_runs)
+        if hasattr(state, "runs_arrived"):
+            state.runs_arrived.connect(self._on_arrived)
 
     # --- data ------------------------------------------------------------------------------
+    def _on_arrived(self) -> None:
+        if not self._arrivals.isActive():
+            self._arrivals.start()
+
+    def set_load_progress(self, done: int, total: int) -> None:
+        """How many runs the loading set has in all (for the count so far)."""
+        self._load_total = int(total)
+
+    @property
+    def listing_arrivals(self) -> bool:
+        """Runs are listed as they arrive: the set is loading and its label table is not built yet."""
+        return self.model.n_rows > len(self.state.labels)
+
+    def list_arrived_runs(self) -> int:
+        """List the runs that arrived since the last batch (one rowsInserted); returns how many."""
+        tset = self.state.tset
+        if tset is None:
+            return 0
+        ids = list(tset.runs)
+        if len(ids) <= self.model.n_rows:
+            return 0
+        self._syncing = True  # rows appear: Qt may move the current row, which is not a choice
+        try:
+            added = self.model.append_runs(ids[self.model.n_rows:])
+        finally:
+            self._syncing = False
+        if added:
+            if self.state.run_id and self.selected_run() != self.state.run_id:
+                self._select_run(self.state.run_id)
+            self._update_counts()
+            if self._sized != ("arrivals",):
+                self.view.resizeColumnsToContents()  # once, on the first batch (sampled rows)
+                self._sized = ("arrivals",)
+        return added
+
     def _on_labels(self) -> None:
         self._syncing = True  # rows vanish and reappear: Qt moves the current row, which is not a choice
         try:
@@ -727,6 +1019,9 @@ class RunTable(QWidget):
         return filter_counts(self.state.labels)
 
     def _update_counts(self) -> None:
+        if self.listing_arrivals:
+            self._update_arrival_counts()
+            return
         counts = self.outcome_counts()
         products = list(getattr(self.state.rules, "products", []) or [])
         self.count_bar.set_counts(counts, products)
@@ -745,8 +1040,19 @@ class RunTable(QWidget):
             self.filter_buttons[key].setText(f"{text} {fcounts.get(key, 0)}")
         self._update_empty()
 
+    def _update_arrival_counts(self) -> None:
+        n = self.model.n_rows
+        total = max(self._load_total, n)
+        self.count_label.setText(f"Loading: {n:,} of {total:,} runs listed so far; their outcomes and labels "
+                                 "appear when loading has finished.")
+        self.count_bar.set_counts({}, [])
+        self.warning_label.setVisible(False)
+        for key, text, _tip in FILTERS:  # counts of labels not known yet would mislead: only All is counted
+            self.filter_buttons[key].setText(f"{text} {n:,}" if key == "all" else text)
+        self._update_empty()
+
     def _update_empty(self) -> None:
-        empty = len(self.state.labels) > 0 and self.proxy.rowCount() == 0
+        empty = self.model.n_rows > 0 and self.proxy.rowCount() == 0
         if empty:
             self.empty_label.setText(f"No run matches {self.proxy.describe()}: no run is selected. "
                                      "Click 'All' to see every run.")
@@ -838,7 +1144,7 @@ class RunTable(QWidget):
         return self.proxy.mode
 
     def visible_runs(self) -> list[str]:
-        return [self.proxy.index(r, 0).data() for r in range(self.proxy.rowCount())]
+        return self.proxy.visible_runs()
 
     def selected_run(self) -> str:
         """The run of the selected row ("" when no row is selected)."""
@@ -975,9 +1281,10 @@ class RunTable(QWidget):
         shown = set(order)
         order += [r for r in self.state.run_ids if r not in shown]
         cur = self.state.run_id
-        rows = {r["run"]: r for r in self.model._rows}
+        passes = self.model.mask(mode)
         for rid in order:
-            if rid != cur and rid in rows and row_matches(rows[rid], mode):
+            r = self.model.row_of(rid)
+            if rid != cur and r is not None and passes[r]:
                 if rid not in shown:
                     self.set_filter("all")
                 self.state.set_run(rid)

@@ -1,0 +1,257 @@
+"""The window on a large generated set, offscreen: how soon rows and a run show, and whether it ever freezes.
+
+Generates N gzipped half-pair runs (default 2,000; 12 atoms x 400 frames per half, the generator of
+bench/bench_scale.py) with rules of our own over them, then drives the real window (with every panel
+installed) in this process's event loop while a 2 ms heartbeat timer records the gaps between its turns:
+
+* cold open (no cache): first rows listed, first run on screen, fully loaded and classified, and the
+  longest gap between event-loop turns from the click until 1 s after loading ends;
+* the map of every run brought to the front once the data is ready: time until its paths are drawn,
+  and the longest gap meanwhile;
+* open from the cache (written by an open in between): first rows, first run on screen, the longest gap,
+  and the background check of the files ending.
+
+References (named, measured in the same run): the core's own ``open_set`` of the same set in a child
+process, without and with the cache, against "fully loaded"; the targets of issue 14 (gap <= 100 ms,
+first rows <= 1 s, from the cache first run <= 0.5 s, map <= 300 ms after the data is ready) against the
+rest.  The machine's load average is printed: on a shared machine the numbers move with it.
+
+    QT_QPA_PLATFORM=offscreen .venv/bin/python bench/bench_window_scale.py [--runs 2000] [--keep DIR]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from bench_scale import generate, load  # noqa: E402
+
+TARGET_GAP_MS = 100.0
+TARGET_FIRST_ROWS_S = 1.0
+TARGET_CACHED_FIRST_RUN_S = 0.5
+TARGET_MAP_MS = 300.0
+
+# rules of our own over the generated 12-atom framework (its atoms wander in a random walk, so the
+# outcomes are whatever the walk gives; what matters here is that every run is classified and mapped)
+RULES = """\
+name = "scale"
+reactant = "reactant"
+dwell_fs = 5.0
+
+[monitors]
+d_one = [1, 2]
+d_two = [3, 4]
+d_three = [5, 6]
+
+[basins.reactant]
+d_one = { above = 3.0 }
+
+[basins.near]
+d_one = { below = 3.0 }
+d_two = { below = 2.5 }
+
+[basins.far]
+d_one = { below = 3.0 }
+d_two = { above = 2.5 }
+"""
+
+CORE_OPEN = r"""
+import sys, time
+from basinmark.core.sets import open_set
+t0 = time.perf_counter()
+tset = open_set(sys.argv[1], use_cache=sys.argv[2] == "1")
+print(time.perf_counter() - t0, len(tset))
+"""
+
+
+def _core_open(root: Path, cache: bool) -> float:
+    env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1] / "src"))
+    out = subprocess.run([sys.executable, "-c", CORE_OPEN, str(root), "1" if cache else "0"],
+                         capture_output=True, text=True, env=env)
+    if out.returncode:
+        raise SystemExit(out.stderr)
+    return float(out.stdout.split()[0])
+
+
+class Watch:
+    """A 2 ms heartbeat on the GUI thread: the gaps between its ticks are the window's event-loop turns."""
+
+    def __init__(self, app) -> None:
+        from PySide6.QtCore import QTimer
+
+        self.app = app
+        self.timer = QTimer()
+        self.timer.setInterval(2)
+        self.timer.timeout.connect(self._tick)
+        self.last = time.perf_counter()
+        self.gaps: list[tuple[float, float]] = []   # (gap in s, when, relative to start)
+        self.t0 = self.last
+        self.until = None
+        self.loop = None
+
+    def _tick(self) -> None:
+        now = time.perf_counter()
+        self.gaps.append((now - self.last, now - self.t0))
+        self.last = now
+        if self.until is not None and self.until():
+            self.loop.quit()
+
+    def run_until(self, cond, timeout_s: float = 600.0) -> float:
+        """Run the event loop until ``cond()`` holds; the time it took (s)."""
+        from PySide6.QtCore import QEventLoop
+
+        start = time.perf_counter()
+        self.until = lambda: cond() or time.perf_counter() - start > timeout_s
+        self.loop = QEventLoop()
+        self.last = time.perf_counter()
+        self.timer.start()
+        self.loop.exec()
+        self.timer.stop()
+        self.until = None
+        return time.perf_counter() - start
+
+    def reset(self) -> None:
+        self.gaps = []
+        self.t0 = time.perf_counter()
+
+    def longest(self) -> tuple[float, float]:
+        return max(self.gaps) if self.gaps else (0.0, 0.0)
+
+
+def _window(settings_dir: Path):
+    from PySide6.QtCore import QSettings
+
+    from basinmark.gui.app import install_extras
+    from basinmark.gui.main_window import MainWindow
+
+    win = MainWindow(QSettings(str(settings_dir / "settings.ini"), QSettings.Format.IniFormat))
+    install_extras(win)
+    win.resize(1400, 900)
+    win.show()
+    return win
+
+
+def _rows(win) -> int:
+    return win.run_table.proxy.rowCount()
+
+
+def _fmt(label: str, value_s: float, ref_s: float, ref_name: str) -> str:
+    return f"  {label:<34} {value_s * 1000:8.0f} ms = {value_s / ref_s:5.2f} x {ref_name}"
+
+
+def window_open(app, root: Path, tmp: Path, use_cache: bool, with_map: bool) -> dict:
+    watch = Watch(app)
+    win = _window(tmp)
+    watch.run_until(lambda: True)
+    out: dict = {}
+    watch.reset()
+    t0 = time.perf_counter()
+    win.open_set(root, use_cache=use_cache)
+
+    def first_rows() -> bool:
+        if "rows" not in out and _rows(win) > 0:
+            out["rows"] = time.perf_counter() - t0
+            out["rows_n"] = _rows(win)
+            out["rows_busy"] = win.busy
+        if "run" not in out and win.state.traj is not None:
+            win.molecule.repaint()
+            out["run"] = time.perf_counter() - t0
+        return "rows" in out and "run" in out or not win.busy
+
+    watch.run_until(first_rows)
+    watch.run_until(lambda: not win.busy)
+    out["loaded"] = time.perf_counter() - t0
+    out["n"] = len(win.state.tset) if win.state.tset is not None else 0
+    checking = getattr(win, "files_checking", None)
+    if checking is not None:
+        watch.run_until(lambda: not win.files_checking)
+        out["checked"] = time.perf_counter() - t0
+    watch.run_until(lambda: time.perf_counter() - t0 > out["loaded"] + 1.0)  # a second of calm after
+    out["gap"] = watch.longest()
+    if with_map:
+        panel = win.map_panel
+        watch.reset()
+        t1 = time.perf_counter()
+        win.findChild(type(win.actions()[0]), "action_show_map").trigger()
+
+        def drawn() -> bool:
+            return panel.canvas.data is not None and bool(panel.canvas.curves) and not getattr(panel, "busy", False)
+
+        watch.run_until(drawn)
+        win.map_panel.canvas.repaint()
+        out["map"] = time.perf_counter() - t1
+        out["map_runs"] = panel.canvas.data.n_runs if panel.canvas.data is not None else 0
+        out["map_note"] = panel.note.text()
+        watch.run_until(lambda: time.perf_counter() - t1 > out["map"] + 0.5)
+        out["map_gap"] = watch.longest()
+    win.close()
+    win.deleteLater()
+    watch.run_until(lambda: True)
+    return out
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--runs", type=int, default=2000)
+    ap.add_argument("--frames", type=int, default=400)
+    ap.add_argument("--keep", metavar="DIR", help="generate into DIR (kept) or reuse the set already there")
+    args = ap.parse_args()
+    tmp = Path(tempfile.mkdtemp(prefix="basinmark-window-"))
+    root = Path(args.keep) if args.keep else tmp / "scale-set"
+    try:
+        if not (root / "runs").is_dir():
+            t0 = time.perf_counter()
+            size = generate(root, args.runs, args.frames)
+            print(f"generated {args.runs} runs ({size / 1e6:.0f} MB) in {time.perf_counter() - t0:.1f} s")
+        (root / "basins.toml").write_text(RULES, encoding="utf-8")
+        for extra in (".basinmark-cache", "basinmark-labels.jsonl", "basinmark-labels.jsonl.head"):
+            p = root / extra
+            shutil.rmtree(p, ignore_errors=True) if p.is_dir() else p.unlink(missing_ok=True)
+        print(f"load average at start: {load()}")
+        core_cold = _core_open(root, cache=False)
+        print(f"reference: core open_set without cache {core_cold:.2f} s   load {load()}")
+
+        from basinmark.gui.app import make_app
+
+        app = make_app(["bench"])
+        cold = window_open(app, root, tmp, use_cache=False, with_map=True)
+        print(f"window, cold open of {cold['n']} runs (no cache)   load {load()}")
+        print(_fmt("first rows listed", cold["rows"], TARGET_FIRST_ROWS_S, "target 1 s")
+              + f"   ({cold['rows_n']} rows{', still loading' if cold['rows_busy'] else ', loading over'})")
+        print(_fmt("first run on screen", cold["run"], TARGET_FIRST_ROWS_S, "target 1 s"))
+        print(_fmt("fully loaded and classified", cold["loaded"], core_cold, "core open_set, no cache"))
+        gap, when = cold["gap"]
+        print(_fmt("longest event-loop gap", gap, TARGET_GAP_MS / 1000, "target 100 ms") + f"   (at {when:.1f} s)")
+        gap, when = cold["map_gap"]
+        print(_fmt(f"map of {cold['map_runs']} runs drawn", cold["map"], TARGET_MAP_MS / 1000, "target 300 ms")
+              + (f"   ({cold['map_note']})" if cold["map_note"] else ""))
+        print(_fmt("longest gap while the map is built", gap, TARGET_GAP_MS / 1000, "target 100 ms"))
+
+        core_write = _core_open(root, cache=True)   # writes the cache
+        core_again = _core_open(root, cache=True)   # reads it
+        print(f"reference: core open_set first open {core_write:.2f} s (writes the cache), "
+              f"reopen {core_again:.2f} s   load {load()}")
+        cached = window_open(app, root, tmp, use_cache=True, with_map=False)
+        print(f"window, open of {cached['n']} runs from the cache   load {load()}")
+        print(_fmt("first rows listed", cached["rows"], TARGET_FIRST_ROWS_S, "target 1 s"))
+        print(_fmt("first run on screen", cached["run"], TARGET_CACHED_FIRST_RUN_S, "target 0.5 s"))
+        print(_fmt("fully loaded and classified", cached["loaded"], core_again, "core reopen from the cache"))
+        if "checked" in cached:
+            print(_fmt("files checked in the background", cached["checked"], core_again, "core reopen from the cache"))
+        gap, when = cached["gap"]
+        print(_fmt("longest event-loop gap", gap, TARGET_GAP_MS / 1000, "target 100 ms") + f"   (at {when:.1f} s)")
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
