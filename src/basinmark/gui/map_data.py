@@ -16,6 +16,10 @@ from basinmark.core.rules import MONITOR_KINDS
 
 NO_LABEL = "no label"
 MAX_DRAW_POINTS = 160  # points drawn per run (picking always uses every frame); our own choice, measured in bench
+#: points drawn for the whole map: with many runs each is thinned further (never below MIN_DRAW_POINTS), so that
+#: drawing stays a short turn of the window's event loop (our own budget, measured in bench/bench_window_scale.py)
+DRAW_BUDGET = 400_000
+MIN_DRAW_POINTS = 24
 PICK_RADIUS_PX = 8.0
 _UNIT = {"distance": "Å", "angle": "°", "dihedral": "°"}
 _FAR = 1.0e4  # an open side of a basin region is drawn this far out (Å or degrees), never in the auto-range
@@ -109,6 +113,29 @@ class MapData:
         x, y = _measure_all(trajs, [x_axis, y_axis], cache)
         return cls([t.run_id for t in trajs], x, y, ends - lengths, ends, x_axis, y_axis)
 
+    def finite_range(self) -> tuple[float, float, float, float] | None:
+        """(x min, x max, y min, y max) over finite values (computed once), or None when there are none."""
+        got = getattr(self, "_range", False)
+        if got is False:
+            fx, fy = self.x[np.isfinite(self.x)], self.y[np.isfinite(self.y)]
+            got = (float(fx.min()), float(fx.max()), float(fy.min()), float(fy.max())) if fx.size and fy.size else None
+            self._range = got
+        return got
+
+    def prepare(self, max_points: int) -> None:
+        """Work done once per data (and thinning), in whichever thread builds it: ranges, thinned indices."""
+        self.finite_range()
+        self.thinned(max_points)
+
+    def thinned(self, max_points: int) -> tuple[np.ndarray, np.ndarray]:
+        """(indices kept for drawing, the run of each), computed once per ``max_points``."""
+        memo = self.__dict__.setdefault("_thinned", {})
+        if max_points not in memo:
+            keep = decimated_indices(self.starts, self.ends, max_points)
+            run_of = np.repeat(np.arange(self.n_runs), self.ends - self.starts)[keep] if keep.size else keep
+            memo[max_points] = (keep, run_of)
+        return memo[max_points]
+
     @property
     def n_runs(self) -> int:
         return len(self.run_ids)
@@ -125,6 +152,24 @@ class MapData:
             return None
         s = slice(int(self.starts[r]), int(self.ends[r]))
         return self.x[s], self.y[s]
+
+
+def draw_points(n_runs: int, max_points: int = MAX_DRAW_POINTS, budget: int = DRAW_BUDGET) -> int:
+    """Points drawn per run: ``max_points``, fewer when the runs together would pass ``budget``."""
+    if n_runs <= 0:
+        return max_points
+    return int(max(min(MIN_DRAW_POINTS, max_points), min(max_points, budget // n_runs)))
+
+
+def thinning_note(data: "MapData", per_run: int) -> str:
+    """A sentence saying that (and how much) the paths are thinned for drawing, or "" when none is."""
+    if data is None or data.n_runs == 0:
+        return ""
+    longest = int((data.ends - data.starts).max())
+    if longest <= per_run:
+        return ""
+    return (f"Paths are drawn thinned: at most {per_run} points of each run (the longest has {longest} frames), "
+            "always with both ends; clicking picks on every frame.")
 
 
 def decimated_indices(starts: np.ndarray, ends: np.ndarray, max_points: int = MAX_DRAW_POINTS) -> np.ndarray:
@@ -146,17 +191,18 @@ def decimated_indices(starts: np.ndarray, ends: np.ndarray, max_points: int = MA
 def grouped_paths(data: MapData, labels: Mapping[str, str], max_points: int = MAX_DRAW_POINTS
                   ) -> dict[str, tuple[np.ndarray, np.ndarray, int]]:
     """Per label: (x, y, number of runs), the runs' thinned paths joined with a NaN between runs."""
-    keep = decimated_indices(data.starts, data.ends, max_points)
+    keep, run_of = data.thinned(max_points)
     if keep.size == 0:
         return {}
-    lengths = data.ends - data.starts
-    run_of = np.repeat(np.arange(data.n_runs), lengths)[keep]
     run_label = np.array([labels.get(r) or NO_LABEL for r in data.run_ids], dtype=object)
+    names, code = np.unique(run_label.astype(str), return_inverse=True)
+    point_code = code[run_of]   # one comparison per label over the points (np.isin per label was slower)
     out: dict[str, tuple[np.ndarray, np.ndarray, int]] = {}
     last_of_run = np.append(run_of[1:] != run_of[:-1], True)
     for label in dict.fromkeys(run_label):
-        runs = np.flatnonzero(run_label == label)
-        mask = np.isin(run_of, runs)
+        k = int(np.searchsorted(names, str(label)))
+        runs = np.flatnonzero(code == k)
+        mask = point_code == k
         idx = keep[mask]
         # a NaN after each run's last point breaks the line between runs (connect="finite")
         breaks = np.flatnonzero(last_of_run[mask]) + 1

@@ -16,6 +16,7 @@ Pieces, from data to screen:
 
 from __future__ import annotations
 
+import threading
 from typing import Any, Mapping, Sequence
 
 import numpy as np
@@ -28,7 +29,7 @@ from PySide6.QtWidgets import (QComboBox, QDockWidget, QGraphicsRectItem, QHBoxL
 from basinmark.gui.colours import basin_colour, outcome_colour
 from basinmark.gui.label_table import UNCLASSIFIED, final_label_counts
 
-from basinmark.gui.map_data import (NO_LABEL, _finite, MAX_DRAW_POINTS, PICK_RADIUS_PX, MapAxis, added_monitor_name, map_axes, MapData, decimated_indices, grouped_paths, nearest_on_paths, basin_regions)  # noqa: F401  (some re-exported)
+from basinmark.gui.map_data import (NO_LABEL, _finite, MAX_DRAW_POINTS, PICK_RADIUS_PX, MapAxis, added_monitor_name, map_axes, MapData, decimated_indices, draw_points, grouped_paths, nearest_on_paths, basin_regions, thinning_note)  # noqa: F401  (some re-exported)
 
 
 class MapCanvas(pg.PlotWidget):
@@ -111,8 +112,10 @@ class MapCanvas(pg.PlotWidget):
 
     # --- data -----------------------------------------------------------------------------
     def set_data(self, data: MapData | None, labels: Mapping[str, str], rules: Any = None,
-                 products: Sequence[str] = ()) -> None:
-        """New paths (other set, rules or axes): everything is drawn again and the view fitted."""
+                 products: Sequence[str] = (), groups: dict | None = None) -> None:
+        """New paths (other set, rules or axes): everything is drawn again and the view fitted.
+
+        ``groups``: the paths already grouped by :func:`grouped_paths` for ``labels`` (e.g. in a worker)."""
         self.data = data
         self.rules = rules
         self.products = list(products) if products else (list(rules.products) if rules is not None else [])
@@ -122,7 +125,7 @@ class MapCanvas(pg.PlotWidget):
             pi.setLabel("bottom", data.x_axis.title, units=data.x_axis.unit)
             pi.setLabel("left", data.y_axis.title, units=data.y_axis.unit)
         self._draw_regions()
-        self._draw_curves()
+        self._draw_curves(groups)
         self._current_xy = None
         self._draw_current()
         pi.enableAutoRange()
@@ -145,8 +148,7 @@ class MapCanvas(pg.PlotWidget):
         if data is None or self.rules is None or not (data.x_axis.from_rules and data.y_axis.from_rules):
             return
         _base, text, _hl, _mid = self._pal()
-        fx = data.x[np.isfinite(data.x)]
-        fy = data.y[np.isfinite(data.y)]
+        rng = data.finite_range()  # computed with the data (in the map's worker for a large set)
         for reg in basin_regions(self.rules, data.x_axis.key, data.y_axis.key):
             colour = basin_colour(reg.basin, self.rules.basin_names, self.rules.reactant)
             rect = QRectF(_finite(reg.x0), _finite(reg.y0), _finite(reg.x1) - _finite(reg.x0),
@@ -165,9 +167,9 @@ class MapCanvas(pg.PlotWidget):
             item.setToolTip(tip)
             self.plot_item.addItem(item, ignoreBounds=True)
             self.region_items.append(item)
-            if fx.size and fy.size:  # the name at the middle of the region's part inside the data
-                lx0, lx1 = max(reg.x0, fx.min()), min(reg.x1, fx.max())
-                ly0, ly1 = max(reg.y0, fy.min()), min(reg.y1, fy.max())
+            if rng is not None:  # the name at the middle of the region's part inside the data
+                lx0, lx1 = max(reg.x0, rng[0]), min(reg.x1, rng[1])
+                ly0, ly1 = max(reg.y0, rng[2]), min(reg.y1, rng[3])
                 if lx0 <= lx1 and ly0 <= ly1:
                     back = QColor(_base)
                     back.setAlpha(170)
@@ -182,14 +184,15 @@ class MapCanvas(pg.PlotWidget):
         known = list(self.products) + ["recrossing", "unfinished", "ambiguous", "excluded"]
         return sorted(names, key=lambda n: (known.index(n) if n in known else len(known), n == NO_LABEL, n))
 
-    def _draw_curves(self) -> None:
+    def _draw_curves(self, groups: dict | None = None) -> None:
         for c in self.curves.values():
             self.plot_item.removeItem(c)
         self.legend.clear()
         self.curves, self.counts = {}, {}
         if self.data is None:
             return
-        groups = grouped_paths(self.data, self.labels, self.max_points)
+        if groups is None:
+            groups = grouped_paths(self.data, self.labels, self.max_points)
         # the legend counts runs as the run table does (one function); paths not drawn are said
         totals = final_label_counts(("" if v == NO_LABEL else v for v in self.labels.values()), self.products)
         for z, label in enumerate(self._legend_order(list(groups))):
@@ -273,12 +276,26 @@ class MapCanvas(pg.PlotWidget):
 
 
 class MapPanel(QWidget):
-    """The map with its axis choosers, following the window's state."""
+    """The map with its axis choosers, following the window's state.
+
+    A set of at least ``WORKER_FROM_FRAMES`` frames in all is measured and thinned in a worker thread (the
+    window stays responsive; the panel says it is measuring); the drawing then takes one short turn.  Smaller
+    sets are measured at once (a thread would cost more than the work).
+    """
+
+    #: frames of all runs together from which the map is computed off the window's thread; our own choice:
+    #: 100,000 frames measure in ~30 ms on one core (bench/bench_window_scale.py measures large sets)
+    WORKER_FROM_FRAMES = 100_000
+
+    computed = Signal(object)   # (generation, MapData or None, groups, error), from the worker thread
 
     def __init__(self, state, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self.state = state
         self.cache: dict = {}
+        self.busy = False        # a worker is measuring the map
+        self._generation = 0     # results of older requests are dropped
+        self.computed.connect(self._on_computed)
         self._axes: list[MapAxis] = []
         self.stale = True  # state changed while hidden: draw again when shown
         lay = QVBoxLayout(self)
@@ -398,12 +415,59 @@ class MapPanel(QWidget):
                           "picking two atoms in the molecule view.")
             self.canvas.set_data(None, {})
             return
-        data = MapData.build(st.tset, xa, ya, self.cache)
+        self._generation += 1
+        trajs = list(st.tset)   # taken here: runs may still be added to the set while the worker reads
+        labels = self.final_labels()
+        per_run = draw_points(len(trajs), self.canvas.max_points)
+        if sum(t.n_frames for t in trajs) < self.WORKER_FROM_FRAMES:
+            self.busy = False
+            data = MapData.build(trajs, xa, ya, self.cache)
+            self._show(data, labels, per_run, None)
+            return
+        self.busy = True
+        self.canvas.set_data(None, {})
+        self._message(f"Measuring the map of {len(trajs):,} runs…")
+        job = (self._generation, trajs, xa, ya, dict(self.cache), labels, per_run)
+        threading.Thread(target=self._compute, args=job, name="basinmark-map", daemon=True).start()
+
+    def _compute(self, generation: int, trajs: list, xa: MapAxis, ya: MapAxis, cache: dict,
+                 labels: dict, per_run: int) -> None:
+        """In the worker thread: measure both monitors over every frame, thin and group the paths."""
+        try:
+            data = MapData.build(trajs, xa, ya, cache)
+            data.prepare(per_run)
+            result = (generation, data, cache, grouped_paths(data, labels, per_run), labels, per_run, "")
+        except Exception as exc:  # said in the panel, never a crash of the window
+            result = (generation, None, {}, None, labels, per_run, f"{type(exc).__name__}: {exc}")
+        try:
+            self.computed.emit(result)
+        except RuntimeError:  # the panel was closed meanwhile
+            pass
+
+    def _on_computed(self, result) -> None:
+        generation, data, cache, groups, labels, per_run, error = result
+        if generation != self._generation:
+            return  # a newer request (other set, axes or rules) is under way
+        self.busy = False
+        if error:
+            self._message(f"The map could not be measured: {error}")
+            return
+        self.cache.update(cache)
+        self._show(data, labels, per_run, groups)
+
+    def _show(self, data: MapData, labels: dict, per_run: int, groups) -> None:
+        st = self.state
+        xa, ya = data.x_axis, data.y_axis
         msg = "The same monitor is on both axes: choose another for one of them." if xa.key == ya.key else ""
         if st.rules is None:
             msg = (msg + " " if msg else "") + "No rules: runs are shown without basins or automatic outcomes."
-        self._message(msg)
-        self.canvas.set_data(data, self.final_labels(), st.rules)
+        thin = thinning_note(data, per_run)
+        self._message(" ".join(m for m in (msg, thin) if m))
+        self.canvas.max_points = per_run
+        self.canvas.set_data(data, labels, st.rules, groups=groups)
+        now = self.final_labels()
+        if now != labels:  # labels changed while the worker measured
+            self.canvas.set_labels(now)
         self.canvas.set_current(st.run_id, st.frame)
 
     def _picked(self, run_id: str, frame: int) -> None:
