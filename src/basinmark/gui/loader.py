@@ -1,12 +1,16 @@
 """Loading and classifying a set in a worker thread, reporting progress, cancellable.
 
-The worker calls the core (``open_set``, ``load_rules``, ``classify_set``) and
-only emits signals; the window receives them in the GUI thread (queued).
+The worker calls the core (``quick_open`` or ``open_set``, ``load_rules``, ``classify_set``) and
+only emits signals; the window receives them in the GUI thread (queued).  Runs that arrive are sent
+in batches (at most one every ``RunBatcher.EVERY_S``): ten thousand queued signals, each handled in the
+window's thread, would be one long turn of its event loop.  :class:`FileCheckWorker` hashes a set's files
+after it is shown (the full check after a quick one, see :mod:`basinmark.core.quick_open`).
 """
 
 from __future__ import annotations
 
 import threading
+import time
 from pathlib import Path
 
 from PySide6.QtCore import QObject, QThread, Signal
@@ -14,12 +18,41 @@ from PySide6.QtCore import QObject, QThread, Signal
 from basinmark.core.errors import BasinmarkError
 
 
+class RunBatcher:
+    """Collects runs as they arrive and hands them on in lists: the first at once, then at most one list
+    every ``EVERY_S`` (a list of 10,000 runs costs the window one short turn, 10,000 signals a long one)."""
+
+    EVERY_S = 0.1
+
+    def __init__(self, emit) -> None:
+        self.emit = emit
+        self.pending: list = []
+        self.last = 0.0
+
+    def add(self, traj) -> None:
+        self.pending.append(traj)
+        now = time.monotonic()
+        if now - self.last >= self.EVERY_S:
+            self.flush()
+            self.last = now
+
+    def flush(self) -> None:
+        if self.pending:
+            batch, self.pending = self.pending, []
+            self.emit(batch)
+
+
 class SetLoader(QObject):
-    """Does the work; lives in a QThread.  Emits ``done(result dict)`` exactly once."""
+    """Does the work; lives in a QThread.  Emits ``done(result dict)`` exactly once.
+
+    With the cache, a set whose files all have the size and time recorded with its snapshot is opened from it
+    at once (``result["quick"]``, to be checked fully in the background with :class:`FileCheckWorker`).
+    """
 
     progress = Signal(str, int, int)     # phase ("Loading" | "Classifying"), done, total
-    run_loaded = Signal(object)          # each Trajectory as soon as it is ready
-    done = Signal(object)                # {"tset", "rules", "classification", "rules_error", "error", "cancelled"}
+    run_loaded = Signal(object)          # a list of Trajectory objects, as soon as they are ready
+    done = Signal(object)                # {"tset", "rules", "classification", "rules_error", "error", "cancelled",
+    #                                       "quick": QuickOpen | None}
 
     def __init__(self, path: str | Path, rules_file: str | Path | None = None, *, use_cache: bool = True) -> None:
         super().__init__()
@@ -39,11 +72,23 @@ class SetLoader(QObject):
         from basinmark.core.sets import open_set, rules_path
 
         out = {"path": self.path, "tset": None, "rules": None, "classification": None, "rules_error": "",
-               "error": "", "cancelled": False}
+               "error": "", "cancelled": False, "quick": None, "use_cache": self.use_cache}
+        batcher = RunBatcher(self.run_loaded.emit)
         try:
-            tset = open_set(self.path, use_cache=self.use_cache, cancel=self._cancel.is_set,
-                            progress=lambda d, t, _r: self.progress.emit("Loading", d, t),
-                            on_run=self.run_loaded.emit)
+            quick = None
+            if self.use_cache:
+                from basinmark.core.quick_open import quick_open
+
+                quick = quick_open(self.path, on_run=batcher.add)
+            if quick is not None:
+                tset = quick.tset
+                out["quick"] = quick
+                self.progress.emit("Loading", len(tset), len(tset))
+            else:
+                tset = open_set(self.path, use_cache=self.use_cache, cancel=self._cancel.is_set,
+                                progress=lambda d, t, _r: self.progress.emit("Loading", d, t),
+                                on_run=batcher.add)
+            batcher.flush()
             out["tset"] = tset
             out["cancelled"] = self.cancelled
             rules_file = self.rules_file or rules_path(tset.root)
@@ -125,6 +170,34 @@ class RulesWorker(QObject):
             out.update({"rules": None, "classification": None,
                         "rules_error": f"Classification failed: {type(exc).__name__}: {exc}"})
         self.done.emit(out)
+
+
+class FileCheckWorker(QObject):
+    """Hashes every file of an open set in the background: after a quick open, names the files whose content
+    is not what the snapshot shown was made from; after any open, records the files so the next open is quick.
+    Emits ``done(FullCheck or an error sentence)`` exactly once."""
+
+    progress = Signal(str, int, int)   # unused; keeps the worker interface uniform
+    run_loaded = Signal(object)        # unused
+    done = Signal(object)
+
+    def __init__(self, root, quick=None) -> None:
+        super().__init__()
+        self.root = Path(root)
+        self.quick = quick
+        self._cancel = threading.Event()
+
+    def cancel(self) -> None:
+        self._cancel.set()
+
+    def run(self) -> None:
+        from basinmark.core.quick_open import full_check
+
+        try:
+            result = full_check(self.root, self.quick, cancel=self._cancel.is_set)
+        except Exception as exc:  # the check must never break the window: say so instead
+            result = f"The set's files could not be checked against the cache ({type(exc).__name__}: {exc})."
+        self.done.emit(result)
 
 
 class LoadJob(QObject):

@@ -25,7 +25,7 @@ from basinmark.gui.dialogs import FailuresDialog, ShortcutsDialog
 from basinmark.gui.goto_run import GotoRunDialog
 from basinmark.gui.icons import icon
 from basinmark.gui.label_panel import Banner, LabelPanel
-from basinmark.gui.loader import LoadJob, RulesWorker, SetLoader
+from basinmark.gui.loader import FileCheckWorker, LoadJob, RulesWorker, SetLoader
 from basinmark.gui.molecule_view import MoleculeView
 from basinmark.gui.playback import PlaybackBar, PlaybackController
 from basinmark.gui.lock_dialog import open_or_offer_break
@@ -66,6 +66,7 @@ class MainWindow(QMainWindow):
         self.settings = settings or default_settings()
         self.state = AppState(self)
         self.job: LoadJob | None = None
+        self.file_check: LoadJob | None = None   # the files of the open set hashed in the background
         self.failure_dialog: FailuresDialog | None = None
         self.init_offer = None  # the offer to propose rules, for a folder without any
         self._messages: dict[str, str] = {}
@@ -407,6 +408,8 @@ class MainWindow(QMainWindow):
         self.playback.pause()
         if self.job is not None:
             self.job.wait(5000)
+        if self.file_check is not None:
+            self.file_check.wait(10000)
         self.save_settings()
         self.state.set_journal(None)
         super().closeEvent(event)
@@ -438,6 +441,9 @@ class MainWindow(QMainWindow):
             self.job.cancel()
             self.job.wait(5000)
             self.job = None
+        if self.file_check is not None:
+            self.file_check.cancel()   # it ends on its own; its finding is about the set being left
+            self.file_check = None
         self.playback.pause()
         self.state.set_journal(None)
         self._messages.clear()
@@ -455,9 +461,10 @@ class MainWindow(QMainWindow):
         self._busy(True, "Loading")
         job.start()
 
-    def _on_first_runs(self, traj) -> None:
+    def _on_first_runs(self, trajs) -> None:
         shown = self.state.run_id
-        self.state.add_run(traj)
+        for traj in trajs:   # a batch (gui/loader.RunBatcher)
+            self.state.add_run(traj)
         if not shown and self.state.run_id:
             self._auto_run = self.state.run_id
 
@@ -607,10 +614,39 @@ class MainWindow(QMainWindow):
         if tset is not None and tset.failures and not result.get("rules_only"):
             self.failure_dialog = FailuresDialog(tset.name, tset.failures, self, left_out=tset.left_out)
             self.failure_dialog.open()
+        if (not result.get("rules_only") and result.get("use_cache") and tset is not None and len(tset)
+                and not result.get("cancelled")):
+            self._check_files(tset.root, result.get("quick"))
         focus = QApplication.focusWidget()
         if not result.get("rules_only") and (focus is None or focus is self or not self.isAncestorOf(focus)):
             self.run_table.view.setFocus(Qt.FocusReason.OtherFocusReason)
         (self.rules_applied if result.get("rules_only") else self.set_loaded).emit()
+
+    @property
+    def files_checking(self) -> bool:
+        """The open set's files are being hashed in the background (after a quick open from the cache)."""
+        return self.file_check is not None
+
+    def _check_files(self, root: Path, quick) -> None:
+        """Hash the set's files in the background: after a quick open (sizes and times only), any file whose
+        content is not what the cache shows is named in the banner and the set is read again."""
+        job = LoadJob(FileCheckWorker(root, quick), self)
+        job.finished.connect(lambda found, j=job: self._on_files_checked(j, found))
+        self.file_check = job
+        job.start()
+
+    def _on_files_checked(self, job: LoadJob, found) -> None:
+        if job is not self.file_check:
+            return  # about a set no longer open
+        self.file_check = None
+        if isinstance(found, str):
+            self.statusBar().showMessage(found, 10000)
+            return
+        said = found.describe()
+        if said:
+            self.open_set(self.state.tset.root if self.state.tset is not None else job.worker.root)
+            self._messages["files"] = said
+            self._show_banner()
 
     def _open_journal(self, tset: TrajectorySet, rules) -> None:
         elsewhere = journal_elsewhere.remembered(self.settings, tset.root)  # Save Labels Elsewhere…
@@ -663,7 +699,7 @@ class MainWindow(QMainWindow):
         self._show_banner()
 
     def _show_banner(self) -> None:
-        order = ("error", "journal", "journal_warn", "rules", "rules_edited", "set")
+        order = ("error", "files", "journal", "journal_warn", "rules", "rules_edited", "set")
         self.banner.show_message("\n".join(self._messages[k] for k in order if self._messages.get(k)))
 
     # --- reacting to state ------------------------------------------------------------------
