@@ -225,3 +225,4 @@ def test_table_lists_runs_with_counts_so_far_before_loading_ends(qtbot, tmp_path
     assert table.model.row(table.model.row_of("toy-002"))["auto_label"] == "right"
     assert win.state.run_id == target  # the run the person chose stays on screen
     win.close()
+

@@ -102,7 +102,12 @@ class Trajectory:
 
     @property
     def content_hash(self) -> str:
-        return combined_hash(self.sources, self.reading)
+        # kept while sources and reading stay the same: the window asks for every run's on each label refresh
+        memo = self.__dict__.get("_content_hash_memo")
+        if memo is None or memo[0] is not self.sources or memo[1] != self.reading:
+            memo = (self.sources, self.reading, combined_hash(self.sources, self.reading))
+            self.__dict__["_content_hash_memo"] = memo
+        return memo[2]
 
     @property
     def ts_index(self) -> int:

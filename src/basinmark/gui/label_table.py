@@ -11,6 +11,7 @@ from __future__ import annotations
 from collections import Counter
 from typing import Iterable, Mapping, Sequence
 
+import numpy as np
 import pandas as pd
 
 from basinmark.core.labels import FIXED_LABELS
@@ -53,34 +54,72 @@ def _flag(value) -> bool:
     return bool(value)
 
 
+def _by_run(frame: pd.DataFrame | None, index: pd.Index) -> pd.DataFrame | None:
+    """``frame``'s rows in the order of ``index`` (missing runs: NaN); the last row of a run listed twice wins."""
+    if frame is None or frame.empty or "run" not in frame.columns:
+        return None
+    return frame.drop_duplicates("run", keep="last").set_index("run").reindex(index)
+
+
+def _column(frame: pd.DataFrame | None, name: str, index: pd.Index) -> pd.Series:
+    """``frame[name]`` (already by run) as objects; None throughout when there is no such column."""
+    if frame is None or name not in frame.columns:
+        return pd.Series([None] * len(index), index=index, dtype=object)
+    return frame[name].astype(object)
+
+
+def _texts(values: pd.Series) -> np.ndarray:
+    """:func:`_text` of every value (None and NaN become "")."""
+    return np.array(["" if v is None or (isinstance(v, float) and v != v) or v is pd.NA else str(v)
+                     for v in values.tolist()], dtype=object)
+
+
 def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | None,
                       journal_state: pd.DataFrame | None, notes: Mapping[str, str] | None = None) -> pd.DataFrame:
-    """One row per run id, in the given order, with the LABEL_COLUMNS; ``notes``: each run's note (run → text)."""
-    notes = notes or {}
-    cls = {} if classification is None else {r["run"]: r for r in classification.to_dict("records")}
-    jst = {} if journal_state is None or journal_state.empty else {
-        r["run"]: r for r in journal_state.to_dict("records")}
-    rows = []
-    for run in run_ids:
-        c, j = cls.get(run, {}), jst.get(run, {})
-        auto = _text(c.get("outcome")) or _text(j.get("auto_label"))
-        hand = _text(j.get("hand_label"))
-        rows.append({
-            "run": run,
-            "auto_label": auto,
-            "hand_label": hand,
-            "final_label": hand or auto,
-            "product_end": _text(c.get("product_end")),  # the end committed to the product (docs/commit-times.md)
-            "product_final_entry_fs": _num(c.get("product_final_entry_fs")),
-            "product_first_arrival_fs": _num(c.get("product_first_arrival_fs")),
-            "flags": _text(c.get("flags")),
-            # free text from the journal, shown as it is (an older file's line breaks or overrides escaped)
-            "labeler": printable(_text(j.get("labeler"))) if hand else "",
-            "reason": printable(_text(j.get("reason"))) if hand else "",
-            "data_changed": _flag(j.get("data_changed")),
-            "note": printable(_text(notes.get(run))),  # free text beside the labels (never a label)
-        })
-    return pd.DataFrame(rows, columns=LABEL_COLUMNS)
+    """One row per run id, in the given order, with the LABEL_COLUMNS; ``notes``: each run's note (run → text).
+
+    Built a column at a time (a dict per run cost 0.7 s of the window's turn at 2,000 runs, profiled)."""
+    index = pd.Index([str(r) for r in run_ids])
+    if not len(index):
+        return pd.DataFrame(columns=LABEL_COLUMNS)
+    cls = _by_run(classification, index)
+    jst = _by_run(journal_state, index)
+
+    def c(name: str) -> pd.Series:
+        return _column(cls, name, index)
+
+    def j(name: str) -> pd.Series:
+        return _column(jst, name, index)
+
+    auto_c, auto_j = _texts(c("outcome")), _texts(j("auto_label"))
+    auto = np.where(auto_c != "", auto_c, auto_j)
+    hand = _texts(j("hand_label"))
+    has_hand = hand != ""
+
+    def own_text(name: str) -> np.ndarray:
+        # free text from the journal, shown as it is (an older file's line breaks or overrides escaped)
+        return np.array([printable(t) if h else "" for t, h in zip(_texts(j(name)).tolist(), has_hand.tolist())],
+                        dtype=object)
+
+    def number(name: str) -> np.ndarray:
+        return pd.to_numeric(c(name), errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+
+    changed = np.array([_flag(v) for v in j("data_changed").tolist()], dtype=bool)
+    return pd.DataFrame({
+        "run": np.array(index, dtype=object),
+        "auto_label": auto,
+        "hand_label": hand,
+        "final_label": np.where(has_hand, hand, auto),
+        "product_end": _texts(c("product_end")),  # the end committed to the product (docs/commit-times.md)
+        "product_final_entry_fs": number("product_final_entry_fs"),
+        "product_first_arrival_fs": number("product_first_arrival_fs"),
+        "flags": _texts(c("flags")),
+        "labeler": own_text("labeler"),
+        "reason": own_text("reason"),
+        "data_changed": changed,
+        # free text beside the labels (never a label)
+        "note": np.array([printable(_text(notes.get(r))) if notes else "" for r in index], dtype=object),
+    }, columns=LABEL_COLUMNS)
 
 
 def final_label_counts(final_labels: Iterable, products: Sequence[str] = ()) -> dict[str, int]:

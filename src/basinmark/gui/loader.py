@@ -1,45 +1,22 @@
 """Loading and classifying a set in a worker thread, reporting progress, cancellable.
 
 The worker calls the core (``quick_open`` or ``open_set``, ``load_rules``, ``classify_set``) and
-only emits signals; the window receives them in the GUI thread (queued).  Runs that arrive are sent
-in batches (at most one every ``RunBatcher.EVERY_S``): ten thousand queued signals, each handled in the
-window's thread, would be one long turn of its event loop.  :class:`FileCheckWorker` hashes a set's files
+only emits signals; the window receives them in the GUI thread (queued).  Runs that arrive are put in
+a queue that :class:`LoadJob` empties from the window's thread every ``LoadJob.ARRIVALS_MS`` into one
+list: ten thousand queued signals, one per run, would be one long turn of the window's event loop, and
+runs held back by the worker until the next one arrives would wait as long as a slow file.  :class:`FileCheckWorker` hashes a set's files
 after it is shown (the full check after a quick one, see :mod:`basinmark.core.quick_open`).
 """
 
 from __future__ import annotations
 
 import threading
-import time
+from collections import deque
 from pathlib import Path
 
-from PySide6.QtCore import QObject, QThread, Signal
+from PySide6.QtCore import QObject, QThread, QTimer, Signal
 
 from basinmark.core.errors import BasinmarkError
-
-
-class RunBatcher:
-    """Collects runs as they arrive and hands them on in lists: the first at once, then at most one list
-    every ``EVERY_S`` (a list of 10,000 runs costs the window one short turn, 10,000 signals a long one)."""
-
-    EVERY_S = 0.1
-
-    def __init__(self, emit) -> None:
-        self.emit = emit
-        self.pending: list = []
-        self.last = 0.0
-
-    def add(self, traj) -> None:
-        self.pending.append(traj)
-        now = time.monotonic()
-        if now - self.last >= self.EVERY_S:
-            self.flush()
-            self.last = now
-
-    def flush(self) -> None:
-        if self.pending:
-            batch, self.pending = self.pending, []
-            self.emit(batch)
 
 
 class SetLoader(QObject):
@@ -50,7 +27,6 @@ class SetLoader(QObject):
     """
 
     progress = Signal(str, int, int)     # phase ("Loading" | "Classifying"), done, total
-    run_loaded = Signal(object)          # a list of Trajectory objects, as soon as they are ready
     done = Signal(object)                # {"tset", "rules", "classification", "rules_error", "error", "cancelled",
     #                                       "quick": QuickOpen | None}
 
@@ -60,6 +36,7 @@ class SetLoader(QObject):
         self.rules_file = Path(rules_file) if rules_file else None
         self.use_cache = use_cache
         self._cancel = threading.Event()
+        self.arrived: deque = deque()   # runs ready to show; LoadJob takes them in the window's thread
 
     def cancel(self) -> None:
         self._cancel.set()
@@ -73,13 +50,12 @@ class SetLoader(QObject):
 
         out = {"path": self.path, "tset": None, "rules": None, "classification": None, "rules_error": "",
                "error": "", "cancelled": False, "quick": None, "use_cache": self.use_cache}
-        batcher = RunBatcher(self.run_loaded.emit)
         try:
             quick = None
             if self.use_cache:
                 from basinmark.core.quick_open import quick_open
 
-                quick = quick_open(self.path, on_run=batcher.add)
+                quick = quick_open(self.path, on_run=self.arrived.append)
             if quick is not None:
                 tset = quick.tset
                 out["quick"] = quick
@@ -87,8 +63,7 @@ class SetLoader(QObject):
             else:
                 tset = open_set(self.path, use_cache=self.use_cache, cancel=self._cancel.is_set,
                                 progress=lambda d, t, _r: self.progress.emit("Loading", d, t),
-                                on_run=batcher.add)
-            batcher.flush()
+                                on_run=self.arrived.append)
             out["tset"] = tset
             out["cancelled"] = self.cancelled
             rules_file = self.rules_file or rules_path(tset.root)
@@ -147,7 +122,6 @@ class RulesWorker(QObject):
     """Re-classifies an open set with another rules file (same result keys as SetLoader)."""
 
     progress = Signal(str, int, int)
-    run_loaded = Signal(object)  # unused; keeps the worker interface uniform
     done = Signal(object)
 
     def __init__(self, tset, rules_file) -> None:
@@ -178,7 +152,6 @@ class FileCheckWorker(QObject):
     Emits ``done(FullCheck or an error sentence)`` exactly once."""
 
     progress = Signal(str, int, int)   # unused; keeps the worker interface uniform
-    run_loaded = Signal(object)        # unused
     done = Signal(object)
 
     def __init__(self, root, quick=None) -> None:
@@ -201,9 +174,14 @@ class FileCheckWorker(QObject):
 
 
 class LoadJob(QObject):
-    """Owns the thread and the worker of one job; ``finished(result)`` in the GUI thread."""
+    """Owns the thread and the worker of one job; ``finished(result)`` in the GUI thread.
+
+    ``run_loaded(list)``: the runs the worker put in its ``arrived`` queue, taken every ``ARRIVALS_MS``."""
 
     finished = Signal(object)
+    run_loaded = Signal(object)
+
+    ARRIVALS_MS = 60
 
     def __init__(self, worker: QObject, parent: QObject | None = None) -> None:
         super().__init__(parent)
@@ -213,15 +191,30 @@ class LoadJob(QObject):
         self.thread.started.connect(self.worker.run)
         self.worker.done.connect(self._on_done)
         self.progress = self.worker.progress
-        self.run_loaded = self.worker.run_loaded
+        self._arrivals = QTimer(self)
+        self._arrivals.setInterval(self.ARRIVALS_MS)
+        self._arrivals.timeout.connect(self._take_arrivals)
 
     def start(self) -> None:
+        if hasattr(self.worker, "arrived"):
+            self._arrivals.start()
         self.thread.start()
+
+    def _take_arrivals(self) -> None:
+        queue = getattr(self.worker, "arrived", None)
+        if not queue:
+            return
+        batch = []
+        while queue:
+            batch.append(queue.popleft())
+        self.run_loaded.emit(batch)
 
     def cancel(self) -> None:
         self.worker.cancel()
 
     def _on_done(self, result: dict) -> None:
+        self._arrivals.stop()
+        self._take_arrivals()   # the last runs before the result
         self.thread.quit()
         self.thread.wait(5000)
         self.finished.emit(result)

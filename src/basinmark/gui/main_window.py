@@ -463,8 +463,7 @@ class MainWindow(QMainWindow):
 
     def _on_first_runs(self, trajs) -> None:
         shown = self.state.run_id
-        for traj in trajs:   # a batch (gui/loader.RunBatcher)
-            self.state.add_run(traj)
+        self.state.add_runs(trajs)   # a batch (gui/loader.LoadJob takes them every ARRIVALS_MS)
         if not shown and self.state.run_id:
             self._auto_run = self.state.run_id
 

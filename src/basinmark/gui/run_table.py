@@ -967,9 +967,6 @@ class RunTable(QWidget):
             if self.state.run_id and self.selected_run() != self.state.run_id:
                 self._select_run(self.state.run_id)
             self._update_counts()
-            if self._sized != ("arrivals",):
-                self.view.resizeColumnsToContents()  # once, on the first batch (sampled rows)
-                self._sized = ("arrivals",)
         return added
 
     def _on_labels(self) -> None:
