@@ -87,3 +87,19 @@ def test_a_change_the_quick_check_missed_is_reported_and_read_again(qtbot, tmp_p
     qtbot.waitUntil(lambda: not win.files_checking, timeout=20000)
     assert "changed since it was cached" in win.banner.text()  # still said after the set is read again
     win.close()
+
+
+def test_leaving_a_set_while_its_files_are_checked_waits_for_the_check_on_close(qtbot, tmp_path, cached_root,
+                                                                                 monkeypatch):
+    release = threading.Event()
+    real = quick_module.full_check
+    monkeypatch.setattr(quick_module, "full_check", lambda *a, **kw: (release.wait(20), real(*a, **kw))[1])
+    win = _window(qtbot, tmp_path)
+    _open(qtbot, win, cached_root)
+    first = win.file_check
+    assert first is not None and first.thread.isRunning()
+    _open(qtbot, win, cached_root)   # opened again while the first check still runs: its finding is dropped
+    assert first in win._left_checks and win.file_check is not first
+    release.set()
+    win.close()                      # waits for both checks: no thread outlives the window
+    assert not first.thread.isRunning()

@@ -67,6 +67,7 @@ class MainWindow(QMainWindow):
         self.state = AppState(self)
         self.job: LoadJob | None = None
         self.file_check: LoadJob | None = None   # the files of the open set hashed in the background
+        self._left_checks: list[LoadJob] = []    # checks of sets left meanwhile, still ending
         self.failure_dialog: FailuresDialog | None = None
         self.init_offer = None  # the offer to propose rules, for a folder without any
         self._messages: dict[str, str] = {}
@@ -408,8 +409,9 @@ class MainWindow(QMainWindow):
         self.playback.pause()
         if self.job is not None:
             self.job.wait(5000)
-        if self.file_check is not None:
-            self.file_check.wait(10000)
+        for check in [self.file_check, *self._left_checks]:
+            if check is not None:
+                check.wait(10000)   # its thread must end before the window (its parent) is destroyed
         self.save_settings()
         self.state.set_journal(None)
         super().closeEvent(event)
@@ -443,6 +445,7 @@ class MainWindow(QMainWindow):
             self.job = None
         if self.file_check is not None:
             self.file_check.cancel()   # it ends on its own; its finding is about the set being left
+            self._left_checks = [c for c in self._left_checks if c.thread.isRunning()] + [self.file_check]
             self.file_check = None
         self.playback.pause()
         self.state.set_journal(None)
