@@ -296,21 +296,53 @@ def _constant(key: str, value, out: Comments) -> None:
 
 
 _SPECIAL = re.compile(rb"[=\"'\[\]{}\\]")
-_PLAIN_NUMBERS = re.compile(rb"[0-9eE.+\-]*")
 
 
-def _column_floats(values: list[bytes]) -> np.ndarray | None:
-    """Numbers converted in C by float(); None if any value is something else.
+_PLAIN_NUMBERS = re.compile(rb"[0-9eE.+\- ]*")
+
+
+def _column_floats(text: bytes, n: int) -> np.ndarray | None:
+    """The ``n`` numbers of ``text`` (values separated by single spaces) converted in C by float(); None if
+    any value is something else.
 
     float() also takes '1_000' and 'infinity', which the format does not write: values holding '_' or
     letters other than e/E are left to the value parser."""
+    if not _PLAIN_NUMBERS.fullmatch(text):
+        return None
+    words = text.split(b" ")
+    if len(words) != n:
+        return None  # an empty value ('key=' with nothing after it)
     try:
-        out = np.array(list(map(float, values)), dtype=np.float64)
+        return np.array(list(map(float, words)), dtype=np.float64)
     except ValueError:
         return None
-    if not _PLAIN_NUMBERS.fullmatch(b"".join(values)):
-        return None
-    return out
+
+
+def _column_values(col: list[bytes], skip: int, toks, width: int, j0: int, j1: int):
+    """One column's values the general way (each distinct value read once): a tuple of one value when it is the
+    same on every line, else a list; None when a value cannot be read (the line-by-line path decides)."""
+    raw = [t[skip:] for t in col] if skip else col
+    if j1 - j0 > 1:
+        raw = [b" ".join(x) for x in zip(raw, *(toks[jj::width] for jj in range(j0 + 1, j1)))]
+    n = len(raw)
+    if raw.count(raw[0]) == n:  # the same on every line (Properties=, tags): read once
+        try:
+            return (parse_value(raw[0].decode("utf-8", "replace")),)
+        except ValueError:
+            return None
+    cache: dict[bytes, object] = {}
+    values = []
+    for r in raw:
+        v = cache.get(r, cache)
+        if v is cache:
+            try:
+                v = parse_value(r.decode("utf-8", "replace"))
+            except ValueError:
+                return None
+            if len(cache) < 4 * MAX_DISTINCT:
+                cache[r] = v
+        values.append(v)
+    return values
 
 
 def _regular(lines: list[bytes], out: Comments) -> bool:
@@ -346,7 +378,7 @@ def _regular(lines: list[bytes], out: Comments) -> bool:
         if t0[j:j + len(expect)] != expect or (len(expect) > 1 and not multi_ok):
             return False
         is_flag = p.flag
-        spans.append((p.key, first[p.start:p.end].split("=", 1)[0].encode(), is_flag, j, j + len(expect)))
+        spans.append((p.key, first[p.start:p.end].split("=", 1)[0].encode(), is_flag, j, j + len(expect), p.value))
         j += len(expect)
     width = j
     if width != len(t0):
@@ -354,10 +386,11 @@ def _regular(lines: list[bytes], out: Comments) -> bool:
     toks = joined.split()
     if len(toks) != n * width:
         return False
-    columns: list[tuple[str, list]] = []
+    columns: list[tuple[str, object]] = []
     flag_keys: list[str] = []
     varying: dict[bytes, None] = {}
-    for key, raw_key, is_flag, j0, j1 in spans:
+    batch: list[tuple[int, bytes]] = []  # (slot in columns, the column's values joined by spaces)
+    for key, raw_key, is_flag, j0, j1, first_value in spans:
         col = toks[j0::width]
         if is_flag:
             if col.count(raw_key) != n:
@@ -372,38 +405,35 @@ def _regular(lines: list[bytes], out: Comments) -> bool:
             flag_keys.append(key)
             continue
         prefix = raw_key + b"="
-        if (b"\n" + b"\n".join(col)).count(b"\n" + prefix) != n:
+        text = b" ".join(col)  # tokens hold no whitespace: ' key=' counts the tokens that start with it
+        if (b" " + text).count(b" " + prefix) != n:
             return False
         low = key.lower()
         if low in DROPPED_KEYS:
             continue
-        skip = len(prefix)
-        raw = [t[skip:] for t in col]
-        if j1 - j0 > 1:
-            raw = [b" ".join(x) for x in zip(raw, *(toks[jj::width] for jj in range(j0 + 1, j1)))]
-        nums = None if j1 - j0 > 1 else _column_floats(raw)
-        if nums is not None:
-            columns.append((key, nums))
+        if j1 - j0 == 1 and isinstance(first_value, (int, float)) and not isinstance(first_value, bool) \
+                and text.count(prefix) == n:  # the key nowhere but at the start of its tokens: strip it at once
+            batch.append((len(columns), text.replace(prefix, b"")))
+            columns.append((key, None))
             continue
-        if raw.count(raw[0]) == n:  # the same on every line (Properties=, tags): read once
-            try:
-                columns.append((key, (parse_value(raw[0].decode("utf-8", "replace")),)))
-            except ValueError:
-                return False
-            continue
-        cache: dict[bytes, object] = {}
-        values = []
-        for r in raw:
-            v = cache.get(r, cache)
-            if v is cache:
-                try:
-                    v = parse_value(r.decode("utf-8", "replace"))
-                except ValueError:
-                    return False
-                if len(cache) < 4 * MAX_DISTINCT:
-                    cache[r] = v
-            values.append(v)
+        values = _column_values(col, len(prefix), toks, width, j0, j1)
+        if values is None:
+            return False
         columns.append((key, values))
+    if batch:
+        # every numeric column of every frame converted in one go (one C-level float() pass over the values)
+        nums = _column_floats(b" ".join(text for _, text in batch), n * len(batch))
+        for i, (slot, text) in enumerate(batch):
+            key = columns[slot][0]
+            if nums is not None:
+                values = nums[i * n:(i + 1) * n]
+            else:  # a value that is not a plain number somewhere: these columns one by one, the general way
+                values = _column_floats(text, n)
+                if values is None:
+                    values = _column_values(text.split(b" "), 0, None, 0, 0, 1)
+                    if values is None:
+                        return False
+            columns[slot] = (key, values)
     if varying:
         examples = ", ".join(repr(w.decode("utf-8", "replace")) for w in list(varying)[:3])
         out.dropped["flags"] = _FLAGS_NOTE.format(examples)
