@@ -18,6 +18,7 @@ import pytest
 
 from basinmark.commands.summary import in_set_order, stale_auto_labels
 from basinmark.core.journal_replay import Replay
+from basinmark.core.report import label_export_table, summary_text
 from basinmark.core.review import compare_labels
 from basinmark.core.summary import build_summary
 
@@ -110,7 +111,8 @@ def count_calls(fn) -> int:
 
 
 def label_pipeline(n: int):
-    """What `summary`, `export-summary`, review and the journal replay do with ``n`` label rows."""
+    """What `summary`, `export-summary` (every format), `export-labels`, review and the journal replay do with
+    ``n`` label rows."""
     labels = synthetic_labels(n)
     run_ids = list(labels["run"])
     classified = pd.DataFrame({"run": labels["run"], "outcome": labels["final_label"].fillna("unfinished")})
@@ -128,6 +130,7 @@ def label_pipeline(n: int):
         stale = stale_auto_labels(labels, classified)
         summary = build_summary(ordered, PRODUCTS)
         summary.to_text(), summary.to_json(), summary.to_markdown()
+        summary_text(summary, "csv"), label_export_table(ordered)  # export-summary's CSV, export-labels' table
         review = compare_labels(side_a, side_b)
         replay = Replay()
         for ev in events:
