@@ -1,23 +1,19 @@
-"""Render the Review and Rules docks on the sample set to PNG, offscreen.
+"""Render the window at 1366×768 with the Review, Rules and Sensitivity views in front, offscreen.
 
 The set is copied to a temporary folder and given demo labels there (automatic labels from its rules,
 then two invented labelers, "labeler-a" and "labeler-b", who hand-label the same runs and disagree on
 a few), so nothing is written into the source tree.  Usage::
 
-    QT_QPA_PLATFORM=offscreen python scripts/screenshots_review.py [--set FOLDER] [--out DIR] [--size 1500x950]
+    QT_QPA_PLATFORM=offscreen python scripts/screenshots_review.py [--set FOLDER] [--out DIR] [--size 1366x768]
 """
 
 from __future__ import annotations
 
-import os
-import shutil
 import sys
 import tempfile
 from pathlib import Path
 
-os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
-
-from _shots import parse_args  # noqa: E402  (scripts/ is on sys.path when run)
+from _shots import close, copy_set, open_window, parse_args, save, settle, show_view  # scripts/ is on sys.path when run
 
 
 def demo_labels(root: Path, n_runs: int = 60, seed: int = 11) -> None:
@@ -49,50 +45,25 @@ def demo_labels(root: Path, n_runs: int = 60, seed: int = 11) -> None:
 
 
 def render(set_path: Path, out_dir: Path, size: tuple[int, int]) -> list[Path]:
-    from PySide6.QtCore import QEventLoop, QSettings, Qt, QTimer
-
-    from basinmark.gui.app import make_app
-
-    app = make_app()
-    from basinmark.gui.main_window import MainWindow
-    from basinmark.gui.review_view import install_review_dock
-    from basinmark.gui.rules_editor import install_rules_editor
+    from PySide6.QtCore import QEventLoop, QTimer
 
     written = []
     with tempfile.TemporaryDirectory(prefix="basinmark-shot-") as tmp:
-        work = Path(tmp) / set_path.name
-        shutil.copytree(set_path, work, ignore=shutil.ignore_patterns(".basinmark-cache", "basinmark-labels.*"))
+        work = copy_set(set_path, Path(tmp))
         demo_labels(work)
-        win = MainWindow(QSettings(str(Path(tmp) / "settings.ini"), QSettings.Format.IniFormat))
-        review = install_review_dock(win)
-        rules = install_rules_editor(win)
-        win.label_panel.set_labeler("reviewer")
-        win.resize(*size)
-        win.show()
-        loop = QEventLoop()
-        win.set_loaded.connect(loop.quit)
-        QTimer.singleShot(120_000, loop.quit)
-        win.open_set(work)
-        loop.exec()
-        if win.failure_dialog is not None:
-            win.failure_dialog.close()
-        out_dir.mkdir(parents=True, exist_ok=True)
+        app, win = open_window(work, Path(tmp), size, labeler="reviewer")
 
         panel = win.review_panel
-        review.toggleViewAction().trigger()
+        show_view(app, win, "review")
         panel.refresh_sources()
         panel.set_sources(("person", "labeler-a"), ("person", "labeler-b"))
         panel.reviewer.setText("reviewer")
         panel.compare()
         panel.queue_view.selectRow(0)
-        win.resizeDocks([review], [760], Qt.Orientation.Horizontal)
-        for _ in range(8):
-            app.processEvents()
-        path = out_dir / "review.png"
-        win.grab().save(str(path))
-        written.append(path)
+        settle(app)
+        written.append(save(win, out_dir / "review.png"))
 
-        rules.toggleViewAction().trigger()
+        show_view(app, win, "rules")
         ed = win.rules_editor
         loop = QEventLoop()
         ed.reclassified.connect(loop.quit)
@@ -102,24 +73,31 @@ def render(set_path: Path, out_dir: Path, size: tuple[int, int]) -> list[Path]:
             if ed.conditions.item(r, 0).text() == "alpha" and ed.conditions.cellWidget(r, 1).currentText() == "r_b":
                 ed.conditions.item(r, 3).setText("2.05")
         loop.exec()
-        win.resizeDocks([rules], [760], Qt.Orientation.Horizontal)
-        for _ in range(8):
-            app.processEvents()
-        path = out_dir / "rules.png"
-        win.grab().save(str(path))
-        written.append(path)
-        win.close()
+        settle(app)
+        written.append(save(win, out_dir / "rules.png"))
+
+        # the sensitivity of the alpha:beta ratio to the alpha basin's r_b limit, swept in the background
+        show_view(app, win, "sensitivity")
+        view = win.sweep_view
+        view.basin.setCurrentText("alpha")
+        view.monitor.setCurrentText("r_b")
+        loop = QEventLoop()
+        view.finished.connect(loop.quit)
+        QTimer.singleShot(120_000, loop.quit)
+        if view.run() is not None:
+            loop.exec()
+        settle(app)
+        written.append(save(win, out_dir / "sensitivity.png"))
+        close(app, win)
     return written
 
 
 def main(argv: list[str] | None = None) -> int:
-    args = parse_args(__doc__, argv, size="1500x950")
-    w, h = args.size_px
+    args = parse_args(__doc__, argv)
     if not (args.set / "basins.toml").is_file():
         print(f"screenshots_review: {args.set}: not a set folder with basins.toml", file=sys.stderr)
         return 2
-    for p in render(args.set, args.out, (w, h)):
-        print(p)
+    render(args.set, args.out, args.size_px)
     return 0
 
 

@@ -101,6 +101,23 @@ def movie_format(path: str | Path) -> str:
     raise MovieError(f"{path}: a movie file must end in .gif" + (" or .mp4" if mp4_available() else ""))
 
 
+def plain_ticks(axis) -> None:
+    """Tick numbers as they are, without pyqtgraph's scale note ("(x0.001)") after a short axis title.
+
+    pyqtgraph 0.14 keeps the last scale when the automatic prefix is switched off (ticks x1000 with nothing
+    left to say so), so the scale is put back to 1 as well."""
+    axis.enableAutoSIPrefix(False)
+    axis.autoSIPrefixScale = 1.0
+    axis.labelUnitPrefix = ""
+    axis.picture = None
+
+
+def set_axis_title(axis, text: str) -> None:
+    """Set a title and centre it again (pyqtgraph places a rotated title only when the axis is resized)."""
+    axis.setLabel(text)
+    axis.resizeEvent()
+
+
 def copy_view(source, target, scale_ratio: float) -> None:
     """Give ``target`` (a MoleculeView) the orientation, centre, pan, zoom and marks of ``source``."""
     target.set_view_state(source.view_state(), scale_ratio)
@@ -271,18 +288,11 @@ class MovieRenderer:
         for plot, words in ((tr.p_energy, (f"ΔE / {unit}", "ΔE")), (tr.p_drift, (f"drift / {unit}", "drift")),
                             (tr.p_dist, ("distance / Å", "d / Å")), (tr.p_angle, ("angle / °", "°"))):
             axis = plot.getAxis("left")
-            # no "(x0.001)" after a title that has to be short: the ticks carry the plain numbers.  pyqtgraph
-            # 0.14 keeps the last scale when the prefix is switched off (ticks x1000 with nothing to say so),
-            # so the scale is put back to 1 as well
-            axis.enableAutoSIPrefix(False)
-            axis.autoSIPrefixScale = 1.0
-            axis.labelUnitPrefix = ""
-            axis.picture = None
+            plain_ticks(axis)  # no "(x0.001)" after a title that has to be short: the ticks carry the numbers
             fm = QFontMetricsF(axis.label.font())
             room = plot.vb.sceneBoundingRect().height() if plot.isVisible() else 0
             text = next((t for t in words if fm.horizontalAdvance(t) + 6 <= room), words[-1])
-            axis.setLabel(text)
-            axis.resizeEvent()  # pyqtgraph places a rotated title only on resizing: centre the new one
+            set_axis_title(axis, text)
 
     def _time_mapping(self, y_offset: float) -> tuple[float, float, float, float]:
         """(x at t0 in the traces panel, x per fs, top y, bottom y in the frame) of the plots."""
