@@ -129,7 +129,7 @@ def test_atom_numbers_are_one_based_and_toggle(view):
     assert img_on != img_off
 
 
-def test_sprites_cached_per_colour_size_and_dpr():
+def test_sprites_cached_per_colour_size_and_dpr(qapp):  # pixmaps need the application
     cache = SpriteCache()
     a = cache.ball((10, 20, 30), 20, 1.0)
     assert cache.ball((10, 20, 30), 20, 1.0) is a
