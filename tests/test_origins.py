@@ -145,3 +145,12 @@ def test_distributions_per_outcome(toy):
     assert d.loc[("dr_bc/dt [angstrom/fs]", "alpha"), "mean"] == pytest.approx(alpha.mean())
     assert d.loc[("dr_bc/dt [angstrom/fs]", "alpha"), "min"] > 0  # alpha is exactly the runs with a positive rate
     assert d.loc[("dr_bc/dt [angstrom/fs]", "beta"), "max"] < 0
+
+
+def test_too_few_permutations_to_decide_are_said(toy):
+    start, outcome = toy
+    a = analyse(start, outcome, Settings(n_repeats=1, n_permutations=9, importance_repeats=1))
+    assert a.p_value == pytest.approx(0.1) and not a.predictable
+    assert a.sentence.startswith("Too few permutations (9) to tell whether the outcome is predictable")
+    assert "the rate of change of r_bc" in a.sentence
+    assert any("cannot give a p-value below 0.1" in w for w in a.warnings)

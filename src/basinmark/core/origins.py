@@ -244,6 +244,11 @@ def plain_sentence(a: Analysis) -> str:
         return "The outcome was not analysed: " + (a.warnings[0] if a.warnings else "too few runs.")
     numbers = (f"cross-validated accuracy {_fmt(a.accuracy)} ± {_fmt(a.accuracy_se)}, baseline {_fmt(a.baseline)} "
                f"(always {a.majority}), permutation p = {a.p_value:.3g}")
+    smallest_p = 1.0 / (len(a.permutation_scores) + 1)
+    if smallest_p > ALPHA and a.p_value <= smallest_p and len(a.importance):
+        return (f"Too few permutations ({len(a.permutation_scores)}) to tell whether the outcome is predictable: "
+                f"the smallest p-value they can give is {smallest_p:.2g}. The most important coordinate is "
+                f"{a.importance.iloc[0]['phrase']} ({numbers}).")
     if not a.predictable:
         return (f"The outcome is not predictable from these starting conditions: the classifier does no better than "
                 f"always guessing the commonest outcome ({numbers}).")
@@ -359,6 +364,10 @@ def _analyse(start, outcome, settings, include, columns) -> Analysis:
                               else 0.0))
     a.accuracy_interval = wilson_interval(int(round(a.accuracy * n)), n, s.confidence)
     a.permutation_score, a.permutation_scores, a.p_value = permutation_test(X, y, s)
+    if 1.0 / (s.n_permutations + 1) > ALPHA:
+        a.warnings.append(f"{s.n_permutations} permutations cannot give a p-value below "
+                          f"{1.0 / (s.n_permutations + 1):.2g}; use at least {int(np.ceil(1 / ALPHA)) - 1} (200 by "
+                          "default) for the test to be able to say the outcome is predictable.")
     imp = fold_importances(X, y, s)
     table = pd.DataFrame({"feature": [f.name for f in feats], "coordinate": [f.coordinate for f in feats],
                           "phrase": [f.phrase for f in feats], "group": [f.group for f in feats],
@@ -371,3 +380,18 @@ def _analyse(start, outcome, settings, include, columns) -> Analysis:
                    "may look less important than the two together.")
     a.sentence = plain_sentence(a)
     return a
+
+
+def boundary_accuracy(a: Analysis, names: Sequence[str]) -> float:
+    """Cross-validated accuracy (one repeat of the folds) of the classifier on the features ``names`` alone: how
+    much of the answer the two-coordinate picture shows."""
+    from sklearn.model_selection import StratifiedKFold, cross_val_predict
+    from threadpoolctl import threadpool_limits
+
+    if not a.classified:
+        return float("nan")
+    idx = [[f.name for f in a.features].index(n) for n in names]
+    cv = StratifiedKFold(a.settings.n_splits, shuffle=True, random_state=a.settings.seed)
+    with threadpool_limits(1):
+        pred = cross_val_predict(make_classifier(a.settings), a.X[:, idx], a.y, cv=cv)
+    return float(np.mean(pred == a.y))

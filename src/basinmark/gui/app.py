@@ -38,6 +38,7 @@ EXTRAS = (
     ("basinmark.gui.summary_view", "install_summary_dock"),
     ("basinmark.gui.review_view", "install_review_dock"),
     ("basinmark.gui.sweep_view", "install_sweep_dock"),
+    ("basinmark.gui.origins_view", "install_origins_dock"),
     ("basinmark.gui.rules_editor", "install_rules_editor"),
     ("basinmark.gui.exports", "install_export_menu"),
     ("basinmark.gui.movie", "install_movie_action"),
