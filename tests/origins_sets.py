@@ -55,14 +55,18 @@ def by_rate_bc(x0, v0) -> str:
 
 
 def toy_runs(n: int = 80, seed: int = 1, decide=by_rate_bc, spread: float = 0.03, speed: float = 0.01,
-             step_fs: float = 2.0, span_fs: float = 60.0):
-    """``[(run_id, times, positions (F, 4, 3), v0 (4, 3), outcome)]``."""
+             step_fs: float = 2.0, span_fs: float = 60.0, draw=None):
+    """``[(run_id, times, positions (F, 4, 3), v0 (4, 3), outcome)]``; ``draw(rng) -> (x0, v0)`` replaces the
+    default random start."""
     rng = np.random.default_rng(seed)
     times = np.arange(-span_fs, span_fs + step_fs / 2, step_fs)
     out = []
     for k in range(n):
-        x0 = BASE + rng.normal(0, spread, BASE.shape)
-        v0 = rng.normal(0, speed, BASE.shape)
+        if draw is not None:
+            x0, v0 = draw(rng)
+        else:
+            x0 = BASE + rng.normal(0, spread, BASE.shape)
+            v0 = rng.normal(0, speed, BASE.shape)
         outcome = decide(x0, v0)
         end_f = ALPHA_END if outcome == "alpha" else BETA_END
         pos = np.empty((times.size, 4, 3))

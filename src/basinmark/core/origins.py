@@ -150,6 +150,16 @@ class Analysis:
         """Better than chance by the permutation test and above the baseline's interval."""
         return self.classified and self.p_value <= ALPHA and self.accuracy_interval[0] > self.baseline
 
+    @property
+    def chance_range(self) -> tuple[float, float]:
+        """The middle 95 % of the accuracies this classifier and these folds reach on shuffled outcomes: what
+        chance looks like here.  With many coordinates it can lie below the majority baseline (held-out runs
+        of noise are often guessed as the rarer outcome)."""
+        if not len(self.permutation_scores):
+            return float("nan"), float("nan")
+        lo, hi = np.percentile(self.permutation_scores, [2.5, 97.5])
+        return float(lo), float(hi)
+
     def ranked(self) -> list[str]:
         """Feature names from most to least important (empty when the classifier did not run)."""
         return list(self.importance["feature"]) if len(self.importance) else []

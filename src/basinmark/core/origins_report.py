@@ -55,7 +55,8 @@ def analysis_dict(a) -> dict:
         "baseline": {"value": _num(a.baseline), "majority": a.majority,
                      "interval": [_num(x) for x in a.baseline_interval]},
         "permutation_test": {"score": _num(a.permutation_score), "p_value": _num(a.p_value),
-                             "permutations": int(len(a.permutation_scores))},
+                             "permutations": int(len(a.permutation_scores)),
+                             "chance_range": [_num(x) for x in a.chance_range]},
         "importance": [{k: _num(v) for k, v in row.items()} for row in a.importance.to_dict(orient="records")],
         "distributions": [{k: _num(v) for k, v in row.items()}
                           for row in a.distributions.to_dict(orient="records")],

@@ -160,8 +160,9 @@ class OriginsCanvas(pg.PlotWidget):
     def caption(self) -> str:
         if self.line_item is None:
             return "Starting conditions by outcome"
+        a = self.analysis
         return (f"Starting conditions by outcome; shaded: a classifier on these two coordinates alone "
-                f"(cross-validated accuracy {self.boundary_accuracy:.2f})")
+                f"(cross-validated accuracy {self.boundary_accuracy:.2f}; always {a.majority}: {a.baseline:.2f})")
 
     def _draw_regions(self, xv: np.ndarray, yv: np.ndarray) -> None:
         a = self.analysis
