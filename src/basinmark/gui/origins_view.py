@@ -87,6 +87,9 @@ class OriginsCanvas(pg.PlotWidget):
         self.current.setZValue(30)
         self.plot_item.addItem(self.current, ignoreBounds=True)
         self.current_run = ""
+        #: the caption as the plot's title (figures); the window shows it in a wrapping label instead, since a
+        #: long title sets the plot's smallest width
+        self.title_in_plot = True
         self.apply_palette()
 
     def apply_palette(self) -> None:
@@ -151,8 +154,8 @@ class OriginsCanvas(pg.PlotWidget):
             self.plot_item.addItem(item)
             self.scatters[label] = item
         if title is None:
-            title = self.caption()
-        self.plot_item.setTitle(title)
+            title = self.caption() if self.title_in_plot else ""
+        self.plot_item.setTitle(title or None)
         self.set_current(self.current_run)
         self.plot_item.enableAutoRange()
         self.plot_item.autoRange()
@@ -289,23 +292,34 @@ class OriginsPanel(QWidget):
         self.recross_box.toggled.connect(lambda _on: self.mark_stale())
         self.x_combo, self.y_combo = QComboBox(self), QComboBox(self)
         for combo in (self.x_combo, self.y_combo):
-            combo.setMinimumContentsLength(14)
+            # narrow: the dock shares the window with the run table and the molecule, and a wide row of controls
+            # would make the whole view scroll sideways (and the sentence wrap beyond the visible edge)
+            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+            combo.setMinimumContentsLength(10)
             combo.currentIndexChanged.connect(lambda _i: self._redraw())
         self.again_button = QPushButton("Analyse Again", self)
         self.again_button.clicked.connect(lambda: self.refresh(force=True))
-        for w in (self.modes_button, self.modes_label, self.recross_box):
+        for w in (self.modes_button, self.modes_label):
             row.addWidget(w)
         row.addStretch(1)
-        row.addWidget(QLabel("x:", self))
-        row.addWidget(self.x_combo)
-        row.addWidget(QLabel("y:", self))
-        row.addWidget(self.y_combo)
         row.addWidget(self.again_button)
         lay.addLayout(row)
+        lay.addWidget(self.recross_box)
+        axes = QHBoxLayout()
+        axes.addWidget(QLabel("x:", self))
+        axes.addWidget(self.x_combo, 1)
+        axes.addWidget(QLabel("y:", self))
+        axes.addWidget(self.y_combo, 1)
+        lay.addLayout(axes)
         self.canvas = OriginsCanvas(self)
+        self.canvas.title_in_plot = False
         self.canvas.setMinimumHeight(260)
         self.canvas.run_picked.connect(self.open_run)
         lay.addWidget(self.canvas, 3)
+        self.caption = QLabel("", self)
+        self.caption.setObjectName("originsCaption")
+        self.caption.setWordWrap(True)
+        lay.addWidget(self.caption)
         self.table = QTableWidget(0, 3, self)
         self.table.setObjectName("originsTable")
         self.table.verticalHeader().hide()
@@ -387,6 +401,7 @@ class OriginsPanel(QWidget):
         self.sentence.setText(text)
         self.warning_label.setText("")
         self.canvas.set_analysis(None)
+        self.caption.setText("")
         self.table.setRowCount(0)
         self.updated.emit()
 
@@ -424,6 +439,7 @@ class OriginsPanel(QWidget):
             return
         self.canvas.current_run = self.state.run_id
         self.canvas.set_analysis(a, self.products(), self.x_combo.currentData(), self.y_combo.currentData())
+        self.caption.setText(self.canvas.caption() + ". Click a point to open its run.")
 
     def _fill_table(self) -> None:
         a = self.analysis
