@@ -23,6 +23,7 @@ from typing import Callable
 import numpy as np
 
 from basinmark.demo.integrate import velocity_verlet
+from basinmark.demo.phase_set import PhaseSettings, finish_phase_set, phase_readme, phase_start, ts_modes
 from basinmark.demo.sampling import find_saddle, landmarks, normal_modes, quasiclassical
 from basinmark.demo.scenario import basins_toml, manifest_text, readme_text
 from basinmark.demo.surface import PAIR_A, PAIR_B, PAIR_C, SYMBOLS, Surface
@@ -66,6 +67,12 @@ class GenerateSummary:
     ends: dict[str, tuple[str, str]] = field(default_factory=dict)  # run -> (backward end, forward end)
     max_drift_ev: dict[str, float] = field(default_factory=dict)
     bytes_written: int = 0
+    #: phase-decided sets only: the deciding mode (numbered from 1), each run's phase of it (rad, as
+    #: basinmark.core.modes.project computes it from the written t = 0 frame) and the arc of phases giving
+    #: alpha, (start, width, share of the finished product runs it predicts), from phase_set.best_arc
+    decide_mode: int | None = None
+    phases: dict[str, float] = field(default_factory=dict)
+    arc: tuple[float, float, float] | None = None
 
     def outcome(self, run: str) -> str:
         """Our own rough reading of a run's two ends (for the report only)."""
@@ -109,9 +116,13 @@ def write_record(summary: GenerateSummary, path: Path) -> None:
     """The generator's own record of where each half ended (its regions of the surface it made), one row
     per run, so that classification of the set can be checked against what the generator knows."""
     kcal = energy_factor("kcal/mol")
-    lines = ["run,backward_end,forward_end,outcome,max_drift_kcal_mol"]
+    extra = summary.decide_mode is not None
+    lines = ["run,backward_end,forward_end,outcome,max_drift_kcal_mol" + (",decide_mode,phase_rad" if extra else "")]
     for run, (b, f) in summary.ends.items():
-        lines.append(f"{run},{b},{f},{summary.outcome(run)},{summary.max_drift_ev[run] / kcal:.4f}")
+        row = f"{run},{b},{f},{summary.outcome(run)},{summary.max_drift_ev[run] / kcal:.4f}"
+        if extra:
+            row += f",{summary.decide_mode},{summary.phases[run]:.6f}"
+        lines.append(row)
     path.write_text("\n".join(lines) + "\n", encoding="utf-8")
 
 
@@ -143,20 +154,26 @@ def _stop_test(runs: int, dwell_steps: int):
 
 
 def format_frames(symbols: list[str], positions: np.ndarray, times: np.ndarray, epot: np.ndarray,
-                  ekin: np.ndarray) -> str:
+                  ekin: np.ndarray, velocities: np.ndarray | None = None) -> str:
     """Extended XYZ text, 4 decimals in Å and 5 in eV (small files; ase.io.read reads it back).
 
+    With ``velocities`` (F, N, 3) in Å/fs, a ``vel`` column (6 decimals) follows the positions.
     Written by hand rather than with ``ase.io.write``: that writer prints 8 decimals, which
     roughly doubles the size of the bundled set for precision nobody can see.
     """
     n = len(symbols)
     out = io.StringIO()
     sym = [f"{s:<2}" for s in symbols]
-    for x, t, ep, ek in zip(positions, times, epot, ekin):
+    props = "species:S:1:pos:R:3" + (":vel:R:3" if velocities is not None else "")
+    for f, (x, t, ep, ek) in enumerate(zip(positions, times, epot, ekin)):
         out.write(f"{n}\n")
-        out.write(f'Properties=species:S:1:pos:R:3 time={t:.2f} epot={ep:.5f} ekin={ek:.5f} pbc="F F F"\n')
-        for s, (px, py, pz) in zip(sym, x):
-            out.write(f"{s} {px:9.4f} {py:9.4f} {pz:9.4f}\n")
+        out.write(f'Properties={props} time={t:.2f} epot={ep:.5f} ekin={ek:.5f} pbc="F F F"\n')
+        if velocities is None:
+            for s, (px, py, pz) in zip(sym, x):
+                out.write(f"{s} {px:9.4f} {py:9.4f} {pz:9.4f}\n")
+        else:
+            for s, (px, py, pz), (vx, vy, vz) in zip(sym, x, velocities[f]):
+                out.write(f"{s} {px:9.4f} {py:9.4f} {pz:9.4f} {vx:10.6f} {vy:10.6f} {vz:10.6f}\n")
     return out.getvalue()
 
 
@@ -186,11 +203,21 @@ def _stationary_points(surface: Surface):
 
 def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: float = 298.15,
              progress: Callable[[int, int], None] | None = None, *, settings: DemoSettings | None = None,
-             surface: Surface | None = None) -> GenerateSummary:
-    """Make a demo set of ``runs`` runs in ``out_dir`` (created; existing run files are overwritten)."""
+             surface: Surface | None = None, velocities: bool = False,
+             phase: PhaseSettings | None = None) -> GenerateSummary:
+    """Make a demo set of ``runs`` runs in ``out_dir`` (created; existing run files are overwritten).
+
+    ``velocities``: write each frame's velocities (Å/fs) as a ``vel`` column.  ``phase``: make a set whose
+    outcome is decided by one mode's starting phase (:mod:`basinmark.demo.phase_set`; velocities are then
+    always written, the TS's modes go beside the set as ``ts-modes.toml``, the deliberately coarse runs are
+    left out, and ``temperature`` is not used).
+    """
     if runs < 1:
         raise ValueError("runs must be at least 1")
     settings = replace(settings or DemoSettings(), temperature=float(temperature))
+    if phase is not None:
+        settings = replace(settings, coarse_runs=())
+        velocities = True
     surface = surface or Surface()
     out = Path(out_dir)
     for folder in (out, out / "runs"):
@@ -201,7 +228,11 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
     saddle, modes, points = _stationary_points(surface)
     e_ts = float(surface.energy(saddle))
     rng = np.random.default_rng(seed)
-    start = quasiclassical(modes, saddle, runs, settings.temperature, rng)
+    if phase is None:
+        start = quasiclassical(modes, saddle, runs, settings.temperature, rng)
+    else:
+        ts = ts_modes(surface, saddle)
+        start, decide = phase_start(ts, runs, rng, phase)
 
     save_every = max(1, int(round(settings.save_every_fs / settings.dt_fs)))
     dwell_steps = int(round(settings.stop_dwell_fs / settings.dt_fs))
@@ -220,12 +251,13 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
                                    stop=_stop_test(len(coarse), int(round(settings.stop_dwell_fs
                                                                           / settings.coarse_dt_fs))))
             for j, k in enumerate(coarse):
-                for part in ("positions", "times", "potential", "kinetic"):
+                for part in ("positions", "times", "potential", "kinetic", "velocities"):
                     getattr(halves[name], part)[k] = getattr(redo, part)[j]
         if progress is not None:
             progress(done + 1, total_steps + 1)
 
     width = max(4, len(str(runs)))
+    starts_x, starts_v = [], []
     for k in range(runs):
         run_id = f"run-{k + 1:0{width}d}"
         ends = []
@@ -234,7 +266,9 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
             h = halves[name]
             times = sign * h.times[k] + 0.0  # + 0.0 turns -0.0 into 0.0
             epot = h.potential[k] - e_ts
-            text = format_frames(SYMBOLS, h.positions[k], times, epot, h.kinetic[k])
+            # the backward half was propagated with reversed velocities: the file gets the true dx/dt
+            vel = sign * h.velocities[k] if velocities else None
+            text = format_frames(SYMBOLS, h.positions[k], times, epot, h.kinetic[k], vel)
             summary.bytes_written += write_gzip(out / "runs" / f"{run_id}.{name}.xyz.gz", text)
             region = region_track(h.positions[k])[-1]
             ends.append(REGION_NAMES[region] if region >= 0 else "none")
@@ -242,14 +276,23 @@ def generate(out_dir, runs: int = 200, seed: int = DEFAULT_SEED, temperature: fl
             drift = max(drift, float(np.max(np.abs(total - total[0]))))
         summary.ends[run_id] = (ends[0], ends[1])
         summary.max_drift_ev[run_id] = drift
+        fwd = halves["fwd"]
+        starts_x.append(np.round(fwd.positions[k][0], 4))  # the t = 0 frame as written (4 and 6 decimals)
+        starts_v.append(np.round(fwd.velocities[k][0], 6))
+    if phase is not None:
+        finish_phase_set(summary, ts, decide, np.array(starts_x), np.array(starts_v), out)
     write_record(summary, out / RECORD_NAME)
     (out / MANIFEST_NAME).write_text(manifest_text("ringfork", settings.temperature), encoding="utf-8")
     (out / "basins.toml").write_text(
         basins_toml(REACTANT_A_ABOVE, PRODUCT_A_BELOW, BOND_BELOW, SPECTATOR_ABOVE), encoding="utf-8")
     energies = {k: float(surface.energy(x)) - e_ts for k, x in points.items()}
-    (out / "README.md").write_text(
-        readme_text(energies, -float(modes.wavenumbers[0]), runs, seed, settings.temperature,
-                    summary.report_lines(with_folder=False)), encoding="utf-8")
+    readme = readme_text(energies, -float(modes.wavenumbers[0]), runs, seed, settings.temperature,
+                         summary.report_lines(with_folder=False))
+    if phase is not None:
+        readme += phase_readme(summary, ts, phase)
+    elif velocities:
+        readme += "\nEvery frame also carries the atoms' velocities (Å/fs) in a `vel` column.\n"
+    (out / "README.md").write_text(readme, encoding="utf-8")
     if progress is not None:
         progress(total_steps + 1, total_steps + 1)
     return summary

@@ -29,6 +29,7 @@ class HalfRuns:
     times: list[np.ndarray]  # each (F,) fs elapsed (>= 0)
     potential: list[np.ndarray]  # each (F,) eV
     kinetic: list[np.ndarray]  # each (F,) eV
+    velocities: list[np.ndarray] | None = None  # each (F, N, 3) Å/fs, in the direction of propagation
 
 
 def velocity_verlet(surface: Surface, x0: np.ndarray, v0: np.ndarray, *, dt: float = 0.5,
@@ -52,7 +53,7 @@ def velocity_verlet(surface: Surface, x0: np.ndarray, v0: np.ndarray, *, dt: flo
     def save(step: int) -> None:
         ek = kinetic_energy(v, masses)
         for k, r in enumerate(active):
-            saved[r].append((step * dt, x[k].copy(), e[k], ek[k]))
+            saved[r].append((step * dt, x[k].copy(), e[k], ek[k], v[k].copy()))
 
     save(0)
     for step in range(1, n_steps + 1):
@@ -74,4 +75,5 @@ def velocity_verlet(surface: Surface, x0: np.ndarray, v0: np.ndarray, *, dt: flo
         times=[np.array([s[0] for s in fr]) for fr in saved],
         potential=[np.array([s[2] for s in fr]) for fr in saved],
         kinetic=[np.array([s[3] for s in fr]) for fr in saved],
+        velocities=[np.array([s[4] for s in fr]) for fr in saved],
     )
