@@ -120,3 +120,24 @@ def test_far_start_shows_in_rmsd():
     x[1] += [0.0, 0.8, 0.0]
     a = project_arrays(MODES, x[None], np.zeros((1, 3, 3)))
     assert a["rmsd"][0] > 0.1
+
+
+def test_linear_molecule_projects_without_warnings():
+    # a linear molecule's turn about its own axis is free: the alignment must not warn about it
+    import warnings
+
+    x = np.array([[0.0, 0.0, -1.16], [0.0, 0.0, 0.0], [0.0, 0.0, 1.16]])
+    h = np.zeros((9, 9))
+    for i, j in ((0, 1), (1, 2)):
+        block = 60.0 * np.outer([0, 0, 1.0], [0, 0, 1.0])
+        for a, b, s in ((i, i, 1), (j, j, 1), (i, j, -1), (j, i, -1)):
+            h[3 * a:3 * a + 3, 3 * b:3 * b + 3] += s * block
+    modes = modes_from_hessian(["O", "C", "O"], x, h)
+    assert modes.linear
+    k = int(np.argmax(modes.frequencies_cm1))
+    xs, vs = _along(modes, k, 0.02, 0.001)
+    turn = Rotation.from_rotvec([0.3, 0.2, -0.5])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        a = project_arrays(modes, turn.apply(xs)[None], turn.apply(vs)[None])
+    assert a["Q"][0, k] == pytest.approx(0.02, abs=1e-9) and a["Qdot"][0, k] == pytest.approx(0.001, abs=1e-9)

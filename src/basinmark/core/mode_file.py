@@ -174,8 +174,9 @@ def read_modes(path) -> NormalModes:
         if isinstance(section, dict):
             for key in section:
                 if key not in known:
+                    tables = " and the tables [hessian] or [modes]" if not table else ""
                     raise doc.fail(table, key, f"unknown key; known keys{' in [' + table + ']' if table else ''}: "
-                                               + ", ".join(sorted(known - {'hessian', 'modes'})))
+                                               + ", ".join(sorted(known - {'hessian', 'modes'})) + tables)
     if "format" in d and d["format"] != FORMAT:
         raise doc.fail("", "format", f"is {d['format']!r}; a mode file says format = \"{FORMAT}\"")
     if "version" in d and d["version"] != VERSION:

@@ -20,6 +20,8 @@ run started from the reference: a large value means the run did not start at thi
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pandas as pd
 from scipy.spatial.transform import Rotation
@@ -61,8 +63,11 @@ def align_to_reference(modes: NormalModes, positions, velocities=None):
     rmsd = np.empty(len(x))
     for r in range(len(x)):
         centred = x[r] - (m[:, None] * x[r]).sum(0) / m.sum()
-        # scipy: the rotation R minimising sum w |a - R b|^2, here a = reference, b = this run
-        rot, _ = Rotation.align_vectors(ref, centred, weights=m)
+        # scipy: the rotation R minimising sum w |a - R b|^2, here a = reference, b = this run.  For a linear
+        # molecule the turn about its axis is free; scipy warns so, and any choice gives the same projection
+        with warnings.catch_warnings():
+            warnings.filterwarnings("ignore", message=".*(uniquely|poorly) defined.*")
+            rot, _ = Rotation.align_vectors(ref, centred, weights=m)
         moved = rot.apply(centred)
         out_x[r] = moved + ref_com
         rmsd[r] = float(np.sqrt((m * ((moved - ref) ** 2).sum(1)).sum() / m.sum()))
