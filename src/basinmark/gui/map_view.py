@@ -30,6 +30,7 @@ from basinmark.gui.colours import basin_colour, outcome_colour
 from basinmark.gui.label_table import UNCLASSIFIED, final_label_counts
 
 from basinmark.gui.map_data import (NO_LABEL, _finite, MAX_DRAW_POINTS, PICK_RADIUS_PX, MapAxis, added_monitor_name, map_axes, MapData, decimated_indices, draw_points, grouped_paths, nearest_on_paths, basin_regions, thinning_note)  # noqa: F401  (some re-exported)
+from basinmark.gui.plot_theme import theme_axes, theme_legend
 
 
 class MapCanvas(pg.PlotWidget):
@@ -81,15 +82,9 @@ class MapCanvas(pg.PlotWidget):
     def apply_palette(self) -> None:
         base, text, hl, _mid = self._pal()
         self.setBackground(base)
-        for name in ("left", "bottom"):
-            ax = self.plot_item.getAxis(name)
-            ax.setPen(pg.mkPen(text))
-            ax.setTextPen(pg.mkPen(text))
-        bg = QColor(base)
-        bg.setAlpha(215)
-        self.legend.setBrush(pg.mkBrush(bg))
+        theme_axes(self.plot_item, text)
+        theme_legend(self.legend, base, text, 215)
         self.legend.setPen(pg.mkPen(self.palette().color(QPalette.ColorRole.Mid)))
-        self.legend.setLabelTextColor(text)
         halo = QColor(text)  # an outline in the text colour stands out on either theme, over any path
         halo.setAlpha(210)
         self.halo.setPen(pg.mkPen(halo, width=6))

@@ -24,6 +24,7 @@ from PySide6.QtWidgets import (QCheckBox, QComboBox, QDockWidget, QHBoxLayout, Q
                                QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 from basinmark.gui.colours import outcome_colour
+from basinmark.gui.plot_theme import theme_axes, theme_legend
 
 #: grid of the classifier's regions (cells per side; enough for a smooth-looking boundary at figure sizes)
 GRID = 160
@@ -96,14 +97,8 @@ class OriginsCanvas(pg.PlotWidget):
         pal = self.palette()
         base, text = pal.color(QPalette.ColorRole.Base), pal.color(QPalette.ColorRole.Text)
         self.setBackground(base)
-        for name in ("left", "bottom"):
-            ax = self.plot_item.getAxis(name)
-            ax.setPen(pg.mkPen(text))
-            ax.setTextPen(pg.mkPen(text))
-        bg = QColor(base)
-        bg.setAlpha(215)
-        self.legend.setBrush(pg.mkBrush(bg))
-        self.legend.setLabelTextColor(text)
+        theme_axes(self.plot_item, text)
+        theme_legend(self.legend, base, text, 215)
         self.current.setPen(pg.mkPen(text, width=2))
         if self.line_item is not None:
             self.line_item.setPen(pg.mkPen(text, width=1.5, style=Qt.PenStyle.DashLine))

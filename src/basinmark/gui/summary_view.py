@@ -28,6 +28,7 @@ from basinmark.core.tst import MAX_DDG_KCAL
 from basinmark.core.units import convert_energy
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.label_table import final_label_counts
+from basinmark.gui.plot_theme import theme_axes, theme_legend, warning_colour
 
 UNITS = ("kcal/mol", "kJ/mol")
 HIST_BINS = 20
@@ -284,16 +285,10 @@ class SummaryPanel(QWidget):
         self.plots.setBackground(base)
         for p in self.all_plots:
             self._title(p, p.titleLabel.text)
-            for name in ("left", "bottom"):
-                ax = p.getAxis(name)
-                ax.setPen(pg.mkPen(text))
-                ax.setTextPen(pg.mkPen(text))
+            theme_axes(p, text)
             if p.legend is not None:
-                bg = QColor(base)
-                bg.setAlpha(210)
-                p.legend.setBrush(pg.mkBrush(bg))
-                p.legend.setLabelTextColor(text)
-        warn = QColor("#b3261e") if base.lightness() > 128 else QColor("#ffb4a9")
+                theme_legend(p.legend, base, text, 210)
+        warn = warning_colour(base)
         self.warning_box.set_colour(warn.name())
 
     def _title(self, plot, text: str) -> None:
@@ -701,7 +696,7 @@ class SummaryPanel(QWidget):
         n = conv["n"].to_numpy(float)
         kappa, lo, hi = (conv[c].to_numpy(float) for c in ("fraction_a", "lo", "hi"))
         colour = QColor(self._colour(s.a))
-        ok = self._band(p, n, lo, hi, colour)
+        self._band(p, n, lo, hi, colour)
         self.conv_curve = pg.PlotDataItem(n, kappa, pen=pg.mkPen(colour, width=2), connect="finite",
                                           name=f"observed ({s.confidence_text} band)")
         p.addItem(self.conv_curve)

@@ -20,6 +20,7 @@ from PySide6.QtWidgets import (QComboBox, QDockWidget, QDoubleSpinBox, QFormLayo
 from basinmark.core.rules import BOUNDS, MONITOR_UNITS
 from basinmark.gui.colours import trace_colour
 from basinmark.gui.movie import find_menu
+from basinmark.gui.plot_theme import theme_axes, warning_colour
 
 
 class _SweepWorker(QObject):
@@ -126,11 +127,8 @@ class SweepView(QWidget):
         pal = self.palette()
         base, text = pal.color(QPalette.ColorRole.Base), pal.color(QPalette.ColorRole.Text)
         self.plot.setBackground(base)
-        for name in ("left", "bottom"):
-            ax = self.plot.getAxis(name)
-            ax.setPen(pg.mkPen(text))
-            ax.setTextPen(pg.mkPen(text))
-        warn = QColor("#b3261e") if base.lightness() > 128 else QColor("#ffb4a9")
+        theme_axes(self.plot, text)
+        warn = warning_colour(base)
         self.note.setStyleSheet(f"QLabel#sweepNote {{ color: {warn.name()}; }}")
 
     def changeEvent(self, event) -> None:  # noqa: N802

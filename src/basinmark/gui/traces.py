@@ -25,6 +25,7 @@ from basinmark.core.geometry import measure
 from basinmark.core.model import Trajectory
 from basinmark.core.units import energy_factor
 from basinmark.gui.colours import basin_colour, cursor_colour, threshold_colour, trace_colour
+from basinmark.gui.plot_theme import theme_axes, warning_colour
 
 _KIND = {2: "distance", 3: "angle", 4: "dihedral"}
 
@@ -189,14 +190,11 @@ class TracesView(QWidget):
         base, text = pal.color(QPalette.ColorRole.Base), pal.color(QPalette.ColorRole.Text)
         self.glw.setBackground(base)
         for p in self.plots:
-            for name in ("left", "bottom"):
-                ax = p.getAxis(name)
-                ax.setPen(pg.mkPen(text))
-                ax.setTextPen(pg.mkPen(text))
+            theme_axes(p, text)
         for c in self.cursors:
             c.setPen(pg.mkPen(cursor_colour(), width=2))
             c.setHoverPen(pg.mkPen(cursor_colour(), width=4))
-        warn = QColor("#b3261e") if base.lightness() > 128 else QColor("#ffb4a9")
+        warn = warning_colour(base)
         self.note.setStyleSheet(f"QLabel#traceNote {{ color: {warn.name()}; font-weight: bold; padding: 3px 6px; }}")
 
     def changeEvent(self, event) -> None:  # noqa: N802
@@ -357,7 +355,6 @@ class TracesView(QWidget):
         rules = self._rules
         if rules is None:
             return
-        names = rules.basin_names
         # one line per (plot, value): several basins often share a threshold
         groups: dict[tuple[int, float], list[tuple[str, str, str, str]]] = {}
         for bname, basin in rules.basins.items():
