@@ -69,8 +69,8 @@ def test_numbers_stay_numbers_and_text_is_quoted_in_every_writer(tmp_path):
 # --- export → import into a fresh copy ---------------------------------------------------------------
 
 @pytest.fixture(scope="module")
-def labelled(tmp_path_factory):
-    root = build_set(tmp_path_factory.mktemp("rt") / "twinpath")  # classified, t01 labelled by ines
+def labeled(tmp_path_factory):
+    root = build_set(tmp_path_factory.mktemp("rt") / "twinpath")  # classified, t01 labeled by ines
     steps = [["label", root, "t00", "beta", "--reason", FORMULAS[0], "--as", "ana"],
              ["label", root, "t02", "alpha", "--reason", FORMULAS[1], "--as", "ines"],
              ["label", root, "t03", "excluded", "--reason", FORMULAS[2], "--as", "tomas"],
@@ -92,13 +92,13 @@ def fresh_copy(root, dest):
 
 
 @pytest.mark.parametrize("how", ["file", "stdout"])
-def test_export_imports_as_it_is_into_a_fresh_copy(labelled, tmp_path, capsys, how):
+def test_export_imports_as_it_is_into_a_fresh_copy(labeled, tmp_path, capsys, how):
     out_csv = tmp_path / "labels.csv"
     if how == "file":
-        assert main(["export-labels", str(labelled), "-o", str(out_csv)]) == 0
+        assert main(["export-labels", str(labeled), "-o", str(out_csv)]) == 0
     else:
         capsys.readouterr()
-        assert main(["export-labels", str(labelled), "--format", "csv"]) == 0
+        assert main(["export-labels", str(labeled), "--format", "csv"]) == 0
         out_csv.write_text(capsys.readouterr().out, encoding="utf-8")
     raw = out_csv.read_text(encoding="utf-8")
     # formula cells are neutralised in the file
@@ -106,13 +106,13 @@ def test_export_imports_as_it_is_into_a_fresh_copy(labelled, tmp_path, capsys, h
     assert rows["t00"]["reason"] == "'" + FORMULAS[0] and rows["t02"]["reason"] == "'" + FORMULAS[1]
     assert rows["t05"]["reason"] == "'" + FORMULAS[4] and rows["t06"]["reason"] == "changed my mind"
     assert rows["t07"]["label"] == "" and rows["t07"]["hand_label"] == ""  # undone: automatic only
-    copy = fresh_copy(labelled, tmp_path / "copy")
+    copy = fresh_copy(labeled, tmp_path / "copy")
     capsys.readouterr()
     code = main(["import-labels", str(copy), str(out_csv)])
     out, err = capsys.readouterr()
     assert code == 0, err
     assert "7 labels imported" in out and "carry only an automatic label" in out
-    original, again = labels(labelled), labels(copy)
+    original, again = labels(labeled), labels(copy)
     assert again == original  # every final label, hand label, labeler and reason, FORMULAS restored
     assert again["t00"]["reason"] == FORMULAS[0] and again["t05"]["reason"] == FORMULAS[4]
     with LabelJournal.open(copy / JOURNAL, readonly=True) as j:

@@ -101,13 +101,13 @@ def test_map_labels_come_from_the_journal_when_it_has_them(tmp_path):
     from basinmark.core.rules import load_rules
     from basinmark.core.sets import journal_path
 
-    root = make_toy_set(tmp_path / "labelled", ["left", "right", "left"])
+    root = make_toy_set(tmp_path / "labeled", ["left", "right", "left"])
     tset = open_set(root, use_cache=False)
     rules = load_rules(root / "basins.toml", n_atoms=tset.n_atoms)
     labels, notes = map_labels(tset, rules, journal_path(root))
     assert labels == {"toy-001": "left", "toy-002": "right", "toy-003": "left"}
     assert any("not yet classified" in n for n in notes)
-    with LabelJournal.open(journal_path(root), set_id="labelled", labeler="tester") as j:
+    with LabelJournal.open(journal_path(root), set_id="labeled", labeler="tester") as j:
         j.record("toy-002", "excluded", content_hash=tset["toy-002"].content_hash, reason="bad start")
     labels, notes = map_labels(tset, rules, journal_path(root))
     assert labels == {"toy-002": "excluded"}

@@ -101,3 +101,10 @@ def test_one_spelling_of_labeled_in_what_users_read():
     found = [f"{p.relative_to(SRC)}:{line}: {text!r}" for p in sorted(SRC.rglob("*.py"))
              for line, text in _user_strings(p) if "labelled" in text.lower() or "labelling" in text.lower()]
     assert not found, "\n".join(found)
+
+
+def test_one_spelling_in_output_keys_and_source():
+    """Keys a script reads (``summary --json``) and the source's own words use the same spelling as the screens."""
+    found = [f"{p.relative_to(SRC)}:{n}" for p in sorted(SRC.rglob("*.py"))
+             for n, line in enumerate(p.read_text(encoding="utf-8").splitlines(), 1) if "labelled" in line.lower() or "labelling" in line.lower()]
+    assert not found, "\n".join(found)

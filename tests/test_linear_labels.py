@@ -67,21 +67,21 @@ def synthetic_labels(n: int, seed: int = 7) -> pd.DataFrame:
     auto[::97] = "recrossing"  # some automatic labels the current rules no longer give
     flags = rng.choice(["", "", "energy_drift", "slow_exit"], size=n)
     final = final.astype(object)
-    final[::50] = None  # unlabelled runs
+    final[::50] = None  # unlabeled runs
     return pd.DataFrame({"run": runs, "final_label": final, "auto_label": auto, "hand_label": None,
                          "flags": flags, "data_changed": rng.random(n) < 0.01})
 
 
 def test_in_set_order_touches_each_run_id_a_few_times():
     labels = synthetic_labels(N)
-    # the set holds all but the last 100 labelled runs, plus 100 runs nobody labelled
+    # the set holds all but the last 100 labeled runs, plus 100 runs nobody labeled
     ids = CountingIds(list(labels["run"][: N - 100]) + [f"new{i}" for i in range(100)], budget=10 * N)
     out, notes = in_set_order(labels, ids)
     assert len(out) == N + 100
     assert list(out["run"][: N - 100]) == list(labels["run"][: N - 100])  # the set's order
-    assert list(out["run"][N - 100: N]) == [f"new{i}" for i in range(100)]  # then the unlabelled runs
+    assert list(out["run"][N - 100: N]) == [f"new{i}" for i in range(100)]  # then the unlabeled runs
     assert out["final_label"][N - 100: N].isna().all()
-    assert list(out["run"][N:]) == list(labels["run"][N - 100:])  # then labelled runs missing from the set
+    assert list(out["run"][N:]) == list(labels["run"][N - 100:])  # then labeled runs missing from the set
     assert any("100 labeled runs are not in the set folder" in n for n in notes)
     assert ids.touched <= 10 * N
 

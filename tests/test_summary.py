@@ -32,7 +32,7 @@ def test_summary_numbers_match_stats():
     labels = label_frame({"alpha": 128, "beta": 32, "recrossing": 30, "unfinished": 10, "excluded": 3}, 2)
     s = build_summary(labels, PRODUCTS, "alpha", "beta", ddg=0.30)
     assert (s.a, s.b, s.k_a, s.k_b) == ("alpha", "beta", 128, 32)
-    assert (s.n_runs, s.n_counted, s.n_excluded, s.n_unlabelled) == (205, 200, 3, 2)
+    assert (s.n_runs, s.n_counted, s.n_excluded, s.n_unlabeled) == (205, 200, 3, 2)
     assert s.ratio == stats.ratio_interval(128, 32)
     assert s.tst_ratio == stats.tst_ratio(0.30)
     assert s.effective_ddg == tuple(stats.effective_ddg(v) for v in stats.ratio_interval(128, 32))
@@ -219,7 +219,7 @@ def test_command_reads_final_labels_from_the_journal(set_dir, capsys):
     assert out.startswith("## Summary") and "| alpha | 28 |" in out
 
 
-def test_command_reports_unlabelled_runs_and_bad_choices(set_dir, capsys):
+def test_command_reports_unlabeled_runs_and_bad_choices(set_dir, capsys):
     from basinmark.core.journal import LabelJournal
     root, tset, _ = set_dir
     with LabelJournal.open(root / "basinmark-labels.jsonl", labeler="tester") as j:
@@ -315,7 +315,7 @@ def test_command_end_to_end_on_a_small_written_set(tmp_path, capsys):
 
 
 def test_runs_needed_is_compared_with_the_counted_runs():
-    # 30 a, 30 b, 300 excluded and 100 unlabelled: only 60 runs count, and the sentence must say so.
+    # 30 a, 30 b, 300 excluded and 100 unlabeled: only 60 runs count, and the sentence must say so.
     # n = z^2 p(1-p)/h^2 at p = 0.5, h = 0.05: 1.95996^2 * 0.25 / 0.0025 = 384.1 -> 385 (normal approximation)
     import pandas as pd
     from basinmark.core.summary import build_summary

@@ -497,7 +497,7 @@ class LabelJournal:
 
     def undo(self, run_id: str, *, reason: str = "", labeler: str | None = None) -> dict:
         """Append an undo event that takes back the run's latest label set by a person (hand, import or
-        review), or its latest automatic label when no person has labelled it, and restores what was below."""
+        review), or its latest automatic label when no person has labeled it, and restores what was below."""
         reason = check_reason(reason)
         labeler = check_labeler_name(labeler or self.labeler)
         stack = self._replay.stacks.get(run_id) or []

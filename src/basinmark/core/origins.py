@@ -301,7 +301,7 @@ def analyse(start: StartingConditions, outcome: Mapping[str, str], settings: Set
             include: Sequence[str] | None = None, columns: Sequence[str] | None = None) -> Analysis:
     """What decides the outcome of the runs of ``start``; ``outcome`` maps run ids to final labels.
 
-    Runs labelled with a product are compared (plus labels in ``include``, e.g. ``("recrossing",)``);
+    Runs labeled with a product are compared (plus labels in ``include``, e.g. ``("recrossing",)``);
     ``columns`` limits the coordinates (default: all)."""
     need_sklearn()
     from threadpoolctl import threadpool_limits

@@ -283,7 +283,7 @@ def outcome_table(
 ) -> pd.DataFrame:
     """Count, fraction and interval of each label among the runs that count.
 
-    Runs labelled with one of ``exclude`` and runs without a label are left out of
+    Runs labeled with one of ``exclude`` and runs without a label are left out of
     the denominator (their numbers are in ``table.attrs['n_excluded']`` and
     ``['n_missing']``).  Rows follow ``order`` (labels listed there appear even with
     zero count), then the other labels by falling count.  With three or more rows,

@@ -85,10 +85,10 @@ class Summary:
     tst_ratio: float | None  # None when no ΔΔG‡ was given
     effective_ddg: tuple[float, float, float]  # (ΔΔG, lo, hi) in settings['unit']
     warnings: list[SummaryWarning]  # str subclass: each also names its runs (.run_ids)
-    n_runs: int  # rows given (labelled or not)
+    n_runs: int  # rows given (labeled or not)
     n_counted: int  # runs in the denominator of the fractions
     n_excluded: int
-    n_unlabelled: int
+    n_unlabeled: int
     runs_needed: int | None  # total runs for the share of a among a+b to reach ± half_width
     convergence: pd.DataFrame  # running a : b; with one product, running reactive / (reactive + recrossing)
     settings: dict
@@ -170,7 +170,7 @@ class Summary:
         out = {
             "settings": dict(self.settings),
             "n_runs": self.n_runs, "n_counted": self.n_counted, "n_excluded": self.n_excluded,
-            "n_unlabelled": self.n_unlabelled, "n_reactive": self.n_reactive,
+            "n_unlabeled": self.n_unlabeled, "n_reactive": self.n_reactive,
             "outcomes": [{k: _json_number(v) for k, v in row.items()}
                          for row in self.table.to_dict(orient="records")],
             "ratio": None, "tst_ratio": None, "effective_ddg": None,
@@ -252,7 +252,7 @@ class Summary:
             out.append(self._shares_line())
         target = f"For ±{s['half_width']:g} on the share of {self.a} among {self.a} + {self.b}"
         if self.runs_needed is not None:
-            # runs_needed counts runs that count (labelled, not excluded), so compare like with like
+            # runs_needed counts runs that count (labeled, not excluded), so compare like with like
             still = self.runs_needed - self.n_counted
             tail = (f"{still} more than the {self.n_counted} counted here" if still > 0
                     else f"the {self.n_counted} counted here are enough")
@@ -397,8 +397,8 @@ class Summary:
         parts = [f"{self.n_counted} runs counted"]
         if self.n_excluded:
             parts.append(f"{self.n_excluded} excluded")
-        if self.n_unlabelled:
-            parts.append(f"{self.n_unlabelled} without a label")
+        if self.n_unlabeled:
+            parts.append(f"{self.n_unlabeled} without a label")
         return f"Outcomes of {self.n_runs} runs: " + ", ".join(parts) + "."
 
 
@@ -564,7 +564,7 @@ def build_summary(
     the fractions.  Optional columns add warnings: ``data_changed`` (from the journal) for labels
     set on files that have changed since; ``flags`` (';'-joined, from classification) for counted
     runs that failed the energy check or await a look, using ``hand_label`` when present to tell
-    which ones a person has labelled.
+    which ones a person has labeled.
     """
     if "final_label" not in labels:
         raise SummaryError("the label table has no 'final_label' column")
@@ -652,7 +652,7 @@ def build_summary(
                 "half_width": half_width, "a": a, "b": b}
     return Summary(table=table, products=products, a=a, b=b, k_a=k_a, k_b=k_b, ratio=ratio, tst_ratio=tst_r,
                    effective_ddg=eff, warnings=warnings, n_runs=len(labels), n_counted=n_counted,
-                   n_excluded=n_excluded, n_unlabelled=n_missing, runs_needed=needed, convergence=conv,
+                   n_excluded=n_excluded, n_unlabeled=n_missing, runs_needed=needed, convergence=conv,
                    settings=settings, notes=list(notes), tst=tst, shares=shares, reactive=reactive,
                    experiment=experiment, measured=measured)
 
