@@ -43,3 +43,29 @@ def default_export_folder(settings: QSettings, set_root: str | Path | None) -> P
 def remember_export_folder(settings: QSettings, written: str | Path) -> None:
     """Remember the folder of a file just written, for the next export's dialog."""
     settings.setValue(LAST_FOLDER, str(Path(written).expanduser().resolve().parent))
+
+
+def save_file_dialog(parent, title: str, start: str, filters: str) -> tuple[str, str]:
+    """The platform's save dialog (``(path, chosen filter)``; an empty path when cancelled).
+
+    Every export asks through this one function, so tests replace it (a modal dialog blocks offscreen)."""
+    from PySide6.QtWidgets import QFileDialog
+
+    return QFileDialog.getSaveFileName(parent, title, start, filters)
+
+
+def ask_export_path(window, title: str, default_name: str, filters: str) -> str:
+    """Ask where to write an export, starting in :func:`default_export_folder` with ``default_name``.
+
+    The chosen folder is remembered for the next export (of any kind); a name typed without a suffix takes
+    the chosen filter's.  Returns "" when the person cancelled."""
+    settings = window.settings
+    tset = window.state.tset
+    folder = default_export_folder(settings, tset.root if tset is not None else None)
+    path, chosen = save_file_dialog(window, title, str(folder / default_name), filters)
+    if not path:
+        return ""
+    if not Path(path).suffix:
+        path += chosen.split("*")[-1].rstrip(")").strip() if "*" in chosen else ""
+    remember_export_folder(settings, path)
+    return path

@@ -1,5 +1,7 @@
 """The Export menu: label table, summary, figures and runs to files, each through a file dialog.
 
+Every dialog starts in the last export folder, never inside the set's folder (:mod:`basinmark.gui.export_folder`).
+
 The ``export_*`` functions take a path and do the work (tests and scripts call them directly); the
 menu entries only ask for the path and report the result in the status bar.  Tables and runs are
 written by :mod:`basinmark.core.report`, figures by :mod:`basinmark.gui.figures`.
@@ -11,11 +13,12 @@ from pathlib import Path
 from typing import Callable
 
 from PySide6.QtGui import QAction, QKeySequence
-from PySide6.QtWidgets import QFileDialog, QMainWindow, QMenu, QWidget
+from PySide6.QtWidgets import QMainWindow, QMenu, QWidget
 
 from basinmark.core import report
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.summary import build_summary
+from basinmark.gui.export_folder import ask_export_path
 from basinmark.gui.figures import save_widget
 
 FIGURE_FILTER = "PNG image (*.png);;SVG drawing (*.svg)"
@@ -99,13 +102,8 @@ def export_run_data(state, path: str | Path, energy_unit: str = "kcal/mol") -> P
 # --- the menu --------------------------------------------------------------------------------
 
 def _ask(window: QMainWindow, title: str, default: str, filters: str) -> str:
-    state = window.state
-    folder = Path(state.tset.root) if state.tset is not None else Path.home()
-    path, chosen = QFileDialog.getSaveFileName(window, title, str(folder / default), filters)
-    if path and not Path(path).suffix:
-        ext = chosen.split("*")[-1].rstrip(")").strip() if "*" in chosen else ""
-        path += ext
-    return path
+    # the last export folder, never inside the set's folder (export_folder): exports are not part of the data
+    return ask_export_path(window, title, default, filters)
 
 
 def _run(window: QMainWindow, title: str, default: str, filters: str, work: Callable[[str], Path]) -> Path | None:

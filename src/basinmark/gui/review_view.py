@@ -17,13 +17,14 @@ from pathlib import Path
 import pandas as pd
 from PySide6.QtCore import QEvent, Qt, Signal
 from PySide6.QtGui import QAction, QBrush, QColor, QFont, QKeySequence, QPalette
-from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFileDialog, QFormLayout, QHBoxLayout,
+from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFormLayout, QHBoxLayout,
                                QHeaderView, QLabel, QLineEdit, QPushButton, QTableWidget,
                                QTableWidgetItem, QVBoxLayout, QWidget)
 
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.review import SE_METHOD, Review, compare_labels, current_auto_labels, people, render_markdown
 from basinmark.core.text import printable
+from basinmark.gui.export_folder import ask_export_path
 from basinmark.gui.label_panel import panel_labels
 from basinmark.gui.review_sources import SourcePicker, source_labels
 from basinmark.gui.movie import find_menu
@@ -507,8 +508,13 @@ class ReviewPanel(QWidget):
             self.status.setText("Compare two sources first; there is no review to export.")
             return None
         if path is None:
-            start = Path(self.state.tset.root) / "review.md" if self.state.tset is not None else Path("review.md")
-            path, _ = QFileDialog.getSaveFileName(self, "Export review report", str(start), "Markdown (*.md)")
+            window = getattr(self, "main_window", None)
+            if window is None:
+                self.status.setText("There is no window to ask where to write the report.")
+                return None
+            # the last export folder, never inside the set's folder (export_folder)
+            name = f"{self.state.tset.name}-review.md" if self.state.tset is not None else "review.md"
+            path = ask_export_path(window, "Export review report", name, "Markdown (*.md)")
             if not path:
                 return None
         try:
@@ -524,6 +530,7 @@ def install_review_dock(window) -> QDockWidget:
     """Add the Review dock (tabbed with the traces, hidden at first) and its menu actions."""
     reviewer = getattr(getattr(window, "label_panel", None), "labeler_name", "") or ""
     panel = ReviewPanel(window.state, window, reviewer=reviewer)
+    panel.main_window = window  # for its export dialog (settings, set); window() is the dock when floating
     from basinmark.gui.analysis_area import add_analysis_dock
 
     dock = add_analysis_dock(window, "review", "Review", panel)
