@@ -47,8 +47,27 @@ def _outcomes() -> dict[str, str]:
 
 
 def _traces() -> dict[str, str]:
+    """Every trace line's colour: the monitors' (all the distinct ones) and the three energies'."""
     n = len({colours.trace_colour(i).name() for i in range(64)})
-    return {f"trace{i}": colours.trace_colour(i).name() for i in range(n)}
+    out = {f"trace{i}": colours.trace_colour(i).name() for i in range(n)}
+    out.update({f"E_{k}": colours.energy_colour(k).name() for k in ("potential", "kinetic", "total")})
+    return out
+
+
+def test_there_are_enough_monitor_colours():
+    """The rules' monitors and a dozen added ones each get a colour of their own."""
+    assert colours.DISTINCT_TRACES >= 16
+    assert len({colours.trace_colour(i).name() for i in range(colours.DISTINCT_TRACES)}) == colours.DISTINCT_TRACES
+
+
+def test_every_two_trace_lines_differ():
+    """Monitors and energies (normal vision): no two trace lines can be taken for each other."""
+    traces = _traces()
+    names, lab = list(traces), _lab(list(traces.values()), None)
+    close = [(names[i], names[j], round(_de00(lab[i], lab[j]), 1))
+             for i, j in itertools.combinations(range(len(names)), 2)
+             if _de00(lab[i], lab[j]) < colours.MIN_TRACE_PAIR_DE00]
+    assert not close, f"trace colours closer than ΔE00 {colours.MIN_TRACE_PAIR_DE00}: {close}"
 
 
 def test_the_distance_is_ciede2000():

@@ -24,7 +24,7 @@ from basinmark.core.classify import signed_commit_time
 from basinmark.core.geometry import measure
 from basinmark.core.model import Trajectory
 from basinmark.core.units import energy_factor
-from basinmark.gui.colours import basin_colour, cursor_colour, threshold_colour, trace_colour
+from basinmark.gui.colours import basin_colour, cursor_colour, energy_colour, threshold_colour, trace_colour
 from basinmark.gui.plot_theme import theme_axes, warning_colour
 
 _KIND = {2: "distance", 3: "angle", 4: "dihedral"}
@@ -554,19 +554,18 @@ class TracesView(QWidget):
             return
         scale = 1.0 / energy_factor(self.energy_unit)
         i0 = traj.ts_index
-        colours = {"potential": trace_colour(3), "kinetic": trace_colour(4), "total": trace_colour(5)}
         for key, name in (("potential", "E_pot"), ("kinetic", "E_kin"), ("total", "E_total")):
             e = traj.energies.get(key)
             if e is None:
                 continue
             rel = (e - e[i0]) * scale
             width = 2.4 if key == "total" else 1.4
-            self.curves[name] = self.p_energy.plot(traj.times, rel, pen=pg.mkPen(colours[key], width=width), name=name)
+            self.curves[name] = self.p_energy.plot(traj.times, rel, pen=pg.mkPen(energy_colour(key), width=width), name=name)
             self.curves[name].setVisible(name not in self.hidden)
             self.values[name] = rel
             self.units[name] = self.energy_unit
             if key == "total":  # the same numbers on their own scale (the drift panel)
-                self.drift_curve = self.p_drift.plot(traj.times, rel, pen=pg.mkPen(colours[key], width=1.6),
+                self.drift_curve = self.p_drift.plot(traj.times, rel, pen=pg.mkPen(energy_colour(key), width=1.6),
                                                      name=DRIFT)
                 self.drift_curve.setVisible(name not in self.hidden)
         self.p_drift.setVisible(self.drift_curve is not None)
