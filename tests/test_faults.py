@@ -214,33 +214,44 @@ def test_cli_safety_net_turns_any_oserror_into_a_sentence(monkeypatch, capsys):
 
 # --- the cache -----------------------------------------------------------------------------------
 
-@pytest.mark.parametrize("damage", ["truncated", "not an object", "missing key", "outside the arrays",
+def _signed(entry, obj) -> None:
+    """Write a segment index with a valid checksum line, so that the deeper checks are the ones exercised."""
+    import hashlib
+
+    body = json.dumps(obj)
+    (entry / "index.json").write_text(f"sha256 {hashlib.sha256(body.encode()).hexdigest()}\n{body}")
+
+
+@pytest.mark.parametrize("damage", ["truncated", "edited", "not an object", "missing key", "outside the arrays",
                                     "wrong atoms"])
 def test_a_damaged_cache_index_is_ignored_rebuilt_and_noted(tset, capsys, damage):
-    assert run(["info", tset], capsys)[0] == 0  # makes sure a snapshot exists
-    (entry,) = (tset / CACHE_NAME).glob("set-*")
+    assert run(["info", tset], capsys)[0] == 0  # makes sure the cache holds the set
+    entry = sorted((tset / CACHE_NAME).glob("seg-*"))[0]
     index = entry / "index.json"
-    obj = json.loads(index.read_text())
+    text = index.read_text()
+    obj = json.loads(text.split("\n", 1)[1])
     if damage == "truncated":
-        index.write_text(index.read_text()[:100])
+        index.write_text(text[:100])
+    elif damage == "edited":  # changed by hand, checksum line left as it was
+        index.write_text(text.replace('"problems": [', '"problems": ["edited", ', 1))
     elif damage == "not an object":
-        index.write_text("[1, 2]")
+        _signed(entry, [1, 2])
     elif damage == "missing key":
         del obj["runs"]
-        index.write_text(json.dumps(obj))
+        _signed(entry, obj)
     elif damage == "outside the arrays":
-        obj["runs"][0]["stop"] = 10 ** 6
-        index.write_text(json.dumps(obj))
+        obj["runs"][0]["rows"] = [0, 10 ** 6]
+        _signed(entry, obj)
     else:
-        obj["runs"][1]["numbers"] = [7]
-        index.write_text(json.dumps(obj))
+        obj["runs"][0]["numbers"] = [7]
+        _signed(entry, obj)
     code, out, err = run(["info", tset], capsys)
     assert code == 0 and "Traceback" not in err
     said = out + err  # info lists the set's warnings with its table
     assert f"the cache entry {entry} was damaged" in said and "rebuilt" in said, said
     assert "t07" in out
     # rebuilt: the next open uses a sound entry and says nothing
-    assert entry.is_dir() and json.loads(index.read_text())["runs"][0]["stop"] != 10 ** 6
+    assert entry.is_dir() and json.loads(index.read_text().split("\n", 1)[1])["runs"][0]["rows"][1] < 10 ** 6
     code, out, err = run(["info", tset], capsys)
     assert code == 0 and "damaged" not in out + err
     for argv in (["label", tset, "t03", "beta"], ["export-labels", tset], ["summary", tset]):

@@ -171,8 +171,8 @@ def test_set_snapshot_keeps_failures_and_shares_one_positions_array(tmp_path, mo
     write(tmp_path / "run-3.fwd.xyz", _frames(2, [0.0, 0.5]), format="extxyz")
     first = open_set(tmp_path)
     assert first.run_ids == ["run-1", "run-2"] and len(first.failures) == 1
-    assert list((tmp_path / ".basinmark-cache").glob("set-*"))
-    monkeypatch.setattr(sets_mod, "iter_runs", lambda *a, **k: (_ for _ in ()).throw(AssertionError("parsed")))
+    assert list((tmp_path / ".basinmark-cache").glob("seg-*"))
+    monkeypatch.setattr(sets_mod, "_parsed", lambda *a, **k: (_ for _ in ()).throw(AssertionError("parsed")))
     again = open_set(tmp_path)
     assert again.run_ids == first.run_ids
     assert [str(f) for f in again.failures] == [str(f) for f in first.failures]
@@ -189,17 +189,18 @@ def test_set_snapshot_keeps_failures_and_shares_one_positions_array(tmp_path, mo
     assert again["run-1"].energies.keys() == first["run-1"].energies.keys()
 
 
-def test_snapshot_written_once_even_when_two_opens_race(tmp_path):
+def test_segment_written_once_even_when_two_opens_race(tmp_path):
     from basinmark.core import set_cache
 
     write_run(tmp_path, "run-1")
     tset = open_set(tmp_path, use_cache=False)
     folder = tmp_path / ".basinmark-cache"
-    set_cache.store_snapshot(folder, "k", tset.runs, [])
-    set_cache.store_snapshot(folder, "k", tset.runs, [])  # the second writer finds the entry there
-    assert [p.name for p in folder.iterdir()] == ["set-k"]  # no temporary folder left behind
-    runs, failures = set_cache.load_snapshot(folder, "k")
-    np.testing.assert_array_equal(runs["run-1"].positions, tset["run-1"].positions)
+    runs = list(tset.runs.values())
+    assert set_cache.store_segment(folder, "k", runs, [], {}) > 0
+    assert set_cache.store_segment(folder, "k", runs, [], {}) == 0  # the second writer finds the entry there
+    assert [p.name for p in folder.iterdir()] == ["seg-k"]  # no temporary folder left behind
+    again, failures = set_cache.load_segment(folder, "k")
+    np.testing.assert_array_equal(again[0].positions, tset["run-1"].positions)
 
 
 def test_a_copied_set_names_its_own_files_even_from_the_cache(tmp_path):

@@ -1,42 +1,108 @@
-"""A whole set's parsed arrays in one cache entry, so that reopening an unchanged set is near disk speed.
+"""A set's parsed arrays cached in segments, so that reopening is near disk speed and a few changed files
+cost only their segment.
 
-Measured on the bundled set (200 runs): per-run ``.npz`` entries cost ~0.5 ms each to open (zip and
-header parsing dominate), a quarter of a second for the set; one entry of a few ``.npy`` arrays plus a
-JSON index opens in a few milliseconds.  The entry is named by a hash of every source file's SHA-256,
-the layout and the cache version, so any changed, added or removed file makes a new entry; the stored
-bytes are hashed on every open (cheap: the key), while each run's content hash (of the decompressed
-content and of how it was read, which binds the labels) is computed once when a run is parsed and kept here.  Positions are memory-mapped
-read-only: stored once, shared by all runs as views, and paged in only when a run is looked at.
+The runs of a set are cut into *segments* of about :data:`SEGMENT_BYTES` of stored files each; where a
+segment ends depends only on its runs' ids (a run id whose hash is a multiple of the segment length ends
+one; :func:`segments`), so adding, removing or changing a run leaves the other segments as they were.
+Each segment is one folder ``seg-<key>`` named by a hash of its runs' ids, file names and stored-bytes
+SHA-256 and of the set's layout: a changed file changes the key of its segment only, which is then read
+again from the files and written anew; the others are reused.
+
+A segment holds ``positions.npy`` (float32, every run's frames × atoms rows one after another, so runs of
+any size share it; memory-mapped read-only, each run a view), ``times.npy`` and ``energy_<kind>.npy``
+(float64) and ``index.json``.  What is derived is not stored: times that are evenly spaced are kept as a
+start and a step, and a total energy equal to potential + kinetic is computed again when read.  The index
+starts with a line holding the SHA-256 of the rest, and it keeps a CRC-32 of every run's arrays: a segment
+cut short, edited or otherwise damaged is found out when read, removed, said in a note and rebuilt from the
+run files, never used (tests/test_set_cache.py).  Each run's content hash (of the decompressed content and
+of how it was read, which binds the labels) is computed once when the run is parsed and kept here.
 """
 
 from __future__ import annotations
 
 import hashlib
 import json
+import math
 import os
 import shutil
 import tempfile
+import zlib
 from pathlib import Path
 
 import numpy as np
 
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory
 
-SNAPSHOT_VERSION = "2"  # 2: content hashes of decompressed data and a reading digest per run
+SEGMENT_VERSION = "3"  # 3: segments with checksums; 2 was one snapshot per set plus one .npz per run
+#: stored bytes of run files per segment, roughly: small enough that one changed file costs a fraction of a
+#: second to read again, large enough that a 10,000-run set has some tens of segments, not thousands
+SEGMENT_BYTES = 16 << 20
+MAX_SEGMENT_RUNS = 256
 _ENERGY_KEYS = ("potential", "kinetic", "total")
+_INDEX = "index.json"
 
 
-def snapshot_key(fingerprint: str, plan_runs, hashes: dict[Path, str], failures) -> str:
-    h = hashlib.sha256(f"snapshot {SNAPSHOT_VERSION}\n{fingerprint}\n".encode())
-    for spec in plan_runs:
+# --- which runs go together -------------------------------------------------------------------
+
+def segment_length(mean_run_bytes: float) -> int:
+    """Runs per segment on average: a power of two, so that small changes of the set's mean file size
+    do not move every segment's end."""
+    if mean_run_bytes <= 0:
+        return MAX_SEGMENT_RUNS
+    k = 2 ** round(math.log2(max(1.0, SEGMENT_BYTES / mean_run_bytes)))
+    return int(min(MAX_SEGMENT_RUNS, max(1, k)))
+
+
+def segments(run_ids: list[str], length: int) -> list[list[int]]:
+    """Indices of ``run_ids`` cut into consecutive segments of ``length`` runs on average.
+
+    A segment ends after a run whose id hashes to a multiple of ``length`` (or at 4 × ``length`` runs), so
+    where segments end depends on the run ids alone: a run added or removed changes one segment."""
+    out: list[list[int]] = []
+    current: list[int] = []
+    for i, rid in enumerate(run_ids):
+        current.append(i)
+        if zlib.crc32(rid.encode("utf-8", "surrogatepass")) % length == 0 or len(current) >= 4 * length:
+            out.append(current)
+            current = []
+    if current:
+        out.append(current)
+    return out
+
+
+def segment_key(fingerprint: str, specs, hashes: dict[Path, str]) -> str:
+    """Name of the segment holding ``specs``: changes when any of their stored files (or the layout) does."""
+    h = hashlib.sha256(f"segment {SEGMENT_VERSION}\n{fingerprint}\n".encode())
+    for spec in specs:
         for role in ("backward", "forward", "joined"):
             path = getattr(spec, role)
             if path is not None:
-                h.update(f"{spec.run_id}\t{role}\t{path.name}\t{hashes.get(path, '')}\n".encode())
-    for f in failures:
-        h.update(f"failure\t{f.reason}\n".encode())
-    return h.hexdigest()
+                h.update(f"{spec.run_id}\t{role}\t{path.name}\t{hashes.get(path, '')}\n".encode("utf-8",
+                                                                                                "surrogatepass"))
+    return h.hexdigest()[:32]
 
+
+def has_segments(folder: Path) -> bool:
+    """Whether the cache folder holds any segment (when it holds none, a cold open need not hash files first)."""
+    try:
+        return any(p.name.startswith("seg-") for p in folder.iterdir())
+    except OSError:
+        return False
+
+
+def cache_bytes(folder: Path) -> int:
+    """Bytes on disk of every segment in the cache folder."""
+    total = 0
+    for entry in folder.glob("seg-*"):
+        for f in entry.iterdir():
+            try:
+                total += f.stat().st_size
+            except OSError:
+                pass
+    return total
+
+
+# --- reading ----------------------------------------------------------------------------------
 
 def _rerooted(path: str, old_root: str, root: Path) -> Path:
     p = Path(path)
@@ -48,85 +114,147 @@ _DAMAGE = (OSError, ValueError, KeyError, TypeError, IndexError, AttributeError,
 
 
 class _Damaged(ValueError):
-    """The entry's index does not describe its arrays."""
+    """The entry's index does not describe its arrays, or a checksum does not match."""
 
 
-def load_snapshot(folder: Path, key: str, root: Path | None = None,
-                  notes: list[str] | None = None) -> tuple[dict[str, Trajectory], list[LoadFailure]] | None:
-    """The entry ``key``, with file paths re-rooted at ``root`` (a set may have been moved or copied since).
+def load_segment(folder: Path, key: str, root: Path | None = None, notes: list[str] | None = None,
+                 verify: bool = True) -> tuple[list[Trajectory], list[tuple[str, LoadFailure]]] | None:
+    """The segment ``key`` as (runs in order, [(run id, failure)]), file paths re-rooted at ``root`` (a set
+    may have been moved or copied since).
 
-    None when there is no such entry.  A damaged entry (unreadable index, arrays that do not match it)
-    is removed so that it is rebuilt, and ``notes`` (if given) gets a sentence saying so; it never makes
-    opening the set fail.
+    None when there is no such segment.  A damaged one (index edited or cut short, arrays that do not match
+    it or their checksums) is removed so that it is rebuilt, and ``notes`` gets a sentence saying so; it never
+    makes opening the set fail and its data are never used.
     """
-    entry = folder / f"set-{key}"
+    entry = folder / f"seg-{key}"
     if not entry.is_dir():
         return None
     try:
-        return _read_snapshot(entry, root)
+        return _read_segment(entry, root, verify)
     except _DAMAGE as exc:
         shutil.rmtree(entry, ignore_errors=True)
         if notes is not None:
             why = (f"{exc.args[0]!r} is missing" if isinstance(exc, KeyError) and exc.args
                    else str(exc).splitlines()[0][:120] if str(exc) else type(exc).__name__)
-            notes.append(f"the cache entry {entry} was damaged ({why}); it was ignored and removed, and the "
-                         "set was read from its files (the cache is rebuilt; it is always safe to delete)")
+            notes.append(f"the cache entry {entry} was damaged ({why}); it was ignored and removed, and its runs "
+                         "were read from their files (the cache is rebuilt; it is always safe to delete)")
         return None
 
 
-def _read_snapshot(entry: Path, root: Path | None) -> tuple[dict[str, Trajectory], list[LoadFailure]]:
-    index = json.loads((entry / "index.json").read_text(encoding="utf-8"))
-    if not isinstance(index, dict) or index.get("version") != SNAPSHOT_VERSION:
+def read_index(entry: Path) -> dict:
+    """The segment's index after checking the digest on its first line (raises :class:`_Damaged`)."""
+    raw = (entry / _INDEX).read_bytes()
+    head, sep, body = raw.partition(b"\n")
+    if not sep or not head.startswith(b"sha256 ") or head[7:].decode("ascii", "replace") != hashlib.sha256(
+            body).hexdigest():
+        raise _Damaged("its index does not match its checksum (cut short or edited)")
+    index = json.loads(body.decode("utf-8"))
+    if not isinstance(index, dict) or index.get("version") != SEGMENT_VERSION:
         raise _Damaged("the index is not one of this version")
+    return index
+
+
+def write_index(entry: Path, index: dict) -> None:
+    body = json.dumps(index).encode("utf-8")
+    (entry / _INDEX).write_bytes(b"sha256 " + hashlib.sha256(body).hexdigest().encode() + b"\n" + body)
+
+
+def _crc(*arrays: np.ndarray) -> int:
+    c = 0
+    for a in arrays:
+        c = zlib.crc32(memoryview(np.ascontiguousarray(a)).cast("B"), c)
+    return c
+
+
+def _read_segment(entry: Path, root: Path | None, verify: bool, index: dict | None = None):
+    index = read_index(entry) if index is None else index
     positions = np.load(entry / "positions.npy", mmap_mode="r")
-    times = np.load(entry / "times.npy")
-    energies = {k: np.load(entry / f"energy_{k}.npy") for k in index["energy_keys"]}
-    total = positions.shape[0]
-    if positions.ndim != 3 or positions.shape[2] != 3 or times.shape != (total,) or any(
-            e.shape != (total,) for e in energies.values()):
+    times = np.load(entry / "times.npy", mmap_mode="r")
+    energies = {k: np.load(entry / f"energy_{k}.npy", mmap_mode="r") for k in index["energy_keys"]}
+    rows, frames = positions.shape[0], energies[next(iter(energies))].shape[0] if energies else None
+    if positions.ndim != 2 or positions.shape[1] != 3 or times.ndim != 1 or any(
+            e.shape != (frames,) for e in energies.values()):
         raise _Damaged("the arrays do not match each other")
     old_root = index.get("root", "")
     root = Path(root) if root is not None else Path(old_root or ".")
-    runs: dict[str, Trajectory] = {}
+    runs: list[Trajectory] = []
     for r in index["runs"]:
-        a, b = r["start"], r["stop"]
-        if not (isinstance(a, int) and isinstance(b, int) and 0 <= a < b <= total):
+        a, b = r["rows"]
+        f0, f1 = r["frames"]
+        numbers = np.asarray(r["numbers"], dtype=np.int16)
+        n_atoms = numbers.size
+        if not (isinstance(a, int) and isinstance(b, int) and 0 <= a < b <= rows and n_atoms
+                and (b - a) == (f1 - f0) * n_atoms and (frames is None or 0 <= f0 < f1 <= frames)):
             raise _Damaged(f"run {r.get('run_id')!r} points outside the arrays")
-        numbers = np.asarray(r["numbers"])
-        if numbers.shape != (positions.shape[1],):
-            raise _Damaged(f"run {r.get('run_id')!r} has a wrong number of atoms")
-        ens = {k: energies[k][a:b] for k in r["energies"]}
-        sources = tuple(SourceFile(_rerooted(p, old_root, root), sha, role) for p, sha, role in r["sources"])
-        runs[r["run_id"]] = Trajectory(r["run_id"], numbers, positions[a:b], times[a:b], ens,
-                                       sources=sources, problems=list(r["problems"]),
-                                       metadata={"file_keys": list(r.get("file_keys", []))},
-                                       reading=str(r.get("reading", "")))
-    failures = [LoadFailure(_rerooted(f["path"], old_root, root),
-                            f["reason"].replace(old_root, str(root)) if old_root else f["reason"], f["line"])
+        pos = positions[a:b].reshape(f1 - f0, n_atoms, 3)
+        kind, *t = r["times"]
+        if kind == "step":
+            tt = t[0] + t[1] * np.arange(f1 - f0, dtype=np.float64)
+        else:
+            ta, tb = t
+            if not (0 <= ta < tb <= times.shape[0] and tb - ta == f1 - f0):
+                raise _Damaged(f"run {r.get('run_id')!r} points outside the arrays")
+            tt = times[ta:tb]
+        ens = {k: energies[k][f0:f1] for k in r["energies"]}
+        if verify and _crc(pos, tt, *(ens[k] for k in sorted(ens))) != r["crc"]:
+            raise _Damaged(f"the arrays of run {r['run_id']!r} do not match their checksum")
+        sources = tuple(SourceFile(_rerooted(p, old_root, root), sha, role) for p, sha, role, *_ in r["sources"])
+        runs.append(Trajectory(r["run_id"], numbers, pos, np.asarray(tt), ens, sources=sources,
+                               problems=list(r["problems"]), metadata={"file_keys": list(r.get("file_keys", []))},
+                               reading=str(r.get("reading", ""))))
+    failures = [(f["run_id"], LoadFailure(_rerooted(f["path"], old_root, root),
+                                          f["reason"].replace(old_root, str(root)) if old_root else f["reason"],
+                                          f["line"]))
                 for f in index["failures"]]
     return runs, failures
 
 
-def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures: list[LoadFailure],
-                   root: Path | None = None) -> None:
-    """Write the entry atomically (a temporary folder renamed into place); never raises on I/O trouble."""
-    trajs = list(runs.values())
-    if not trajs:
-        return
-    if len({t.n_atoms for t in trajs}) != 1:
-        return  # runs of different sizes cannot share one positions array; per-run entries serve
+def find_run(folder: Path, spec, stored: dict[Path, str], root: Path | None = None) -> Trajectory | None:
+    """One run from whichever segment holds it with these stored-bytes hashes (checked), or None."""
+    want = [[p.name, stored.get(p, "")] for r in ("backward", "forward", "joined") if (p := getattr(spec, r))]
+    try:
+        entries = list(folder.glob("seg-*"))
+    except OSError:
+        return None
+    for entry in entries:
+        try:
+            index = read_index(entry)
+            for r in index["runs"]:
+                if r["run_id"] == spec.run_id and [[Path(s[0]).name, s[3]] for s in r["sources"]] == want:
+                    runs, _ = _read_segment(entry, root, True, dict(index, runs=[r], failures=[]))
+                    return runs[0]
+        except _DAMAGE:
+            continue
+    return None
+
+
+# --- writing ----------------------------------------------------------------------------------
+
+def _even_step(t: np.ndarray) -> tuple[float, float] | None:
+    """``(start, step)`` when the times are exactly start + step × i (then nothing else is stored)."""
+    n = t.size
+    if n < 2:
+        return (float(t[0]), 0.0) if n else None
+    step = float((t[-1] - t[0]) / (n - 1))
+    if np.array_equal(float(t[0]) + step * np.arange(n, dtype=np.float64), t):
+        return float(t[0]), step
+    return None
+
+
+def store_segment(folder: Path, key: str, runs: list[Trajectory], failures: list[tuple[str, LoadFailure]],
+                  stored: dict[Path, str], root: Path | None = None) -> int:
+    """Write the segment atomically (a temporary folder renamed into place); never raises on I/O trouble.
+
+    ``stored`` gives each source file's stored-bytes SHA-256 (kept so that one run can be found again).
+    Returns the bytes written (0 when nothing was)."""
     tmp = None
     try:
         folder.mkdir(parents=True, exist_ok=True)
-        tmp = Path(tempfile.mkdtemp(dir=folder, prefix=".tmp-set-"))
-        stops = np.cumsum([t.n_frames for t in trajs])
-        starts = stops - np.array([t.n_frames for t in trajs])
-        _save_parts(tmp / "positions.npy", [t.positions for t in trajs], "<f4")
-        _save_parts(tmp / "times.npy", [t.times for t in trajs], "<f8")
-        keys = [k for k in _ENERGY_KEYS if any(k in t.energies for t in trajs)]
-        for k in keys:
-            _save_parts(tmp / f"energy_{k}.npy",
-                        [t.energies.get(k, np.full(t.n_frames, np.nan)) for t in trajs], "<f8")
+        final = folder / f"seg-{key}"
+        if final.exists():
+            return 0
+        tmp = Path(tempfile.mkdtemp(dir=folder, prefix=".tmp-seg-"))
+        keys = [k for k in _ENERGY_KEYS if any(k in _stored_energies(t) for t in runs)]
         base = str(Path(root)) if root is not None else ""
 
         def rel(path: Path) -> str:
@@ -135,45 +263,85 @@ def store_snapshot(folder: Path, key: str, runs: dict[str, Trajectory], failures
             except ValueError:
                 return str(path)
 
-        index = {
-            "version": SNAPSHOT_VERSION,
-            "root": base,
-            "energy_keys": keys,
-            "runs": [{"run_id": t.run_id, "start": int(a), "stop": int(b), "numbers": t.numbers.tolist(),
-                      "energies": [k for k in keys if k in t.energies],
-                      "sources": [[rel(s.path), s.sha256, s.role] for s in t.sources],
-                      "problems": list(t.problems), "file_keys": list(t.metadata.get("file_keys", [])),
-                      "reading": t.reading}
-                     for t, a, b in zip(trajs, starts, stops)],
-            "failures": [{"path": rel(f.path), "reason": f.reason, "line": f.line} for f in failures],
-        }
-        (tmp / "index.json").write_text(json.dumps(index), encoding="utf-8")
-        final = folder / f"set-{key}"
-        if final.exists():
-            return  # another process wrote it first (the temporary folder goes in `finally`)
+        def stat(path: Path) -> list[int]:
+            try:
+                st = path.stat()
+                return [st.st_size, st.st_mtime_ns]
+            except OSError:
+                return [-1, -1]
+
+        entries, time_parts, row, frame, t_at = [], [], 0, 0, 0
+        for t in runs:
+            ens = _stored_energies(t)
+            step = _even_step(t.times)
+            if step is None:
+                times_ref = ["array", t_at, t_at + t.n_frames]
+                time_parts.append(t.times)
+                t_at += t.n_frames
+            else:
+                times_ref = ["step", *step]
+            rows = t.n_frames * t.n_atoms
+            tt = (step[0] + step[1] * np.arange(t.n_frames, dtype=np.float64)) if step else t.times
+            entries.append({
+                "run_id": t.run_id, "rows": [row, row + rows], "frames": [frame, frame + t.n_frames],
+                "numbers": t.numbers.tolist(), "times": times_ref, "energies": sorted(ens),
+                "crc": _crc(np.asarray(t.positions, dtype="<f4"), np.asarray(tt, dtype="<f8"),
+                            *(np.asarray(ens[k], dtype="<f8") for k in sorted(ens))),
+                "sources": [[rel(s.path), s.sha256, s.role, stored.get(s.path, ""), *stat(s.path)]
+                            for s in t.sources],
+                "problems": list(t.problems), "file_keys": list(t.metadata.get("file_keys", [])),
+                "reading": t.reading})
+            row += rows
+            frame += t.n_frames
+        _save_parts(tmp / "positions.npy", [np.asarray(t.positions).reshape(-1, 3) for t in runs], "<f4", (0, 3))
+        _save_parts(tmp / "times.npy", time_parts, "<f8", (0,))
+        for k in keys:
+            _save_parts(tmp / f"energy_{k}.npy",
+                        [_stored_energies(t).get(k, np.full(t.n_frames, np.nan)) for t in runs], "<f8", (0,))
+        index = {"version": SEGMENT_VERSION, "root": base, "energy_keys": keys, "runs": entries,
+                 "failures": [{"run_id": rid, "path": rel(f.path), "reason": f.reason, "line": f.line}
+                              for rid, f in failures]}
+        write_index(tmp, index)
+        size = sum(p.stat().st_size for p in tmp.iterdir())
         os.replace(tmp, final)
         tmp = None
-        _prune(folder, keep=final)
+        return size
     except OSError:
-        pass  # no cache is no failure (e.g. another process wrote the same entry first)
+        return 0  # no cache is no failure (e.g. a full disk, or another process wrote the same entry first)
     finally:
         if tmp is not None:
             shutil.rmtree(tmp, ignore_errors=True)
 
 
-def _save_parts(path: Path, parts: list[np.ndarray], dtype: str) -> None:
+def _stored_energies(t: Trajectory) -> dict[str, np.ndarray]:
+    """The energies worth storing: a total that is exactly potential + kinetic is made again when read."""
+    ens = dict(t.energies)
+    total = ens.get("total")
+    if total is not None and {"potential", "kinetic"} <= ens.keys() and np.array_equal(
+            total, ens["potential"] + ens["kinetic"], equal_nan=True):
+        del ens["total"]
+    return ens
+
+
+def _save_parts(path: Path, parts: list[np.ndarray], dtype: str, empty: tuple) -> None:
     """Write the concatenation of ``parts`` as one ``.npy`` file without building it in memory
-    (the whole set's positions would otherwise be held twice while the entry is written)."""
-    shape = (sum(p.shape[0] for p in parts),) + tuple(parts[0].shape[1:])
+    (the set's positions would otherwise be held twice while the entry is written)."""
+    shape = ((sum(p.shape[0] for p in parts),) + tuple(parts[0].shape[1:])) if parts else empty
     with open(path, "wb") as fh:
         np.lib.format.write_array_header_1_0(fh, {"descr": dtype, "fortran_order": False, "shape": shape})
         for part in parts:
-            fh.write(np.ascontiguousarray(part, dtype=dtype).tobytes())
+            fh.write(memoryview(np.ascontiguousarray(part, dtype=dtype)).cast("B"))
 
 
-def _prune(folder: Path, keep: Path, max_entries: int = 3) -> None:
-    """Keep the newest few set entries; older snapshots of a set that has since changed are dropped."""
-    entries = sorted((p for p in folder.glob("set-*") if p.is_dir() and p != keep),
-                     key=lambda p: p.stat().st_mtime, reverse=True)
-    for old in entries[max_entries - 1:]:
-        shutil.rmtree(old, ignore_errors=True)
+def prune(folder: Path, keep: set[str]) -> None:
+    """Remove segments not in ``keep`` (names ``seg-<key>``), and what older versions of the cache left there
+    (one ``set-<hash>`` snapshot folder per set and one ``.npz`` per run)."""
+    try:
+        items = list(folder.iterdir())
+    except OSError:
+        return
+    for p in items:
+        if p.name.startswith("seg-") and p.name not in keep or p.name.startswith("set-") and p.is_dir():
+            shutil.rmtree(p, ignore_errors=True)
+        elif p.suffix == ".npz" and p.is_file():
+            p.unlink(missing_ok=True)

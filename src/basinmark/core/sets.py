@@ -11,12 +11,10 @@ from __future__ import annotations
 
 import hashlib
 import os
-import re
-import tempfile
 import warnings
 from collections import Counter
 from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor, as_completed
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Callable, Iterator
 
@@ -27,12 +25,12 @@ from basinmark.core.errors import BasinmarkError, SetError, TrajectoryFileError
 from basinmark.core.manifest import SetLayout, load_layout
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory, TrajectorySet
 from basinmark.core.pairing import RunSpec, describe, find_by_names, find_by_patterns
-from basinmark.core.set_cache import load_snapshot, snapshot_key, store_snapshot
+from basinmark.core.set_cache import (find_run, has_segments, load_segment, prune, segment_key, segment_length,
+                                      segments, store_segment)
 
 JOURNAL_NAME = "basinmark-labels.jsonl"
 RULES_NAME = "basins.toml"
 CACHE_NAME = ".basinmark-cache"
-CACHE_VERSION = "2"  # 2: sources carry content hashes of decompressed data, and a reading digest
 #: first frames of the two halves must agree this well (Å) to be the same transition-state point
 TS_MATCH_TOLERANCE = 1e-3
 
@@ -120,6 +118,7 @@ class _Half:
     keys: list = field(default_factory=list)  # numeric comment keys the file carries
     recipe: dict = field(default_factory=dict)  # which key gave which value (part of the run's reading hash)
     content_sha256: str = ""  # of the decompressed file, from the reader's own pass ("" when it gave none)
+    stored_sha256: str = ""  # of the file as stored (the cache key), from the same pass
 
 
 def _read_half(path: Path, layout: SetLayout) -> _Half:
@@ -157,7 +156,7 @@ def _read_half(path: Path, layout: SetLayout) -> _Half:
             energies["kinetic"] = kinetic
             recipe["kinetic_key"] = "(momenta)"
     return _Half(block.numbers, positions, times, energies, list(block.warnings), sorted(block.info), recipe,
-                 getattr(block, "content_sha256", ""))
+                 getattr(block, "content_sha256", ""), block.sha256)
 
 
 def no_energy_note(keys) -> str:
@@ -210,11 +209,14 @@ def _reading(layout: SetLayout, **halves: _Half) -> str:
     return reading_digest({"length_factor": layout.length_factor, **{k: h.recipe for k, h in halves.items()}})
 
 
-def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
+def _join(spec: RunSpec, layout: SetLayout, stored: dict | None = None) -> Trajectory:
+    """The run of ``spec``; ``stored`` (if given) gets each file's stored-bytes SHA-256 from the reader's pass."""
     sha = content_sha256  # of the decompressed content: re-compressing a file keeps its labels
     problems: list[str] = []
     if spec.joined is not None:
         half = _read_half(spec.joined, layout)
+        if stored is not None and half.stored_sha256:
+            stored[spec.joined] = half.stored_sha256
         times = half.times
         if times is None:
             step = layout.step_fs or 1.0
@@ -241,6 +243,8 @@ def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
                           reading=_reading(layout, joined=half))
     bwd = _read_half(spec.backward, layout)
     fwd = _read_half(spec.forward, layout)
+    if stored is not None:
+        stored.update({p: h.stored_sha256 for p, h in ((spec.backward, bwd), (spec.forward, fwd)) if h.stored_sha256})
     if not np.array_equal(bwd.numbers, fwd.numbers):
         if bwd.numbers.size != fwd.numbers.size:
             why = f"{bwd.numbers.size} atoms in the backward half, {fwd.numbers.size} in the forward half"
@@ -288,90 +292,28 @@ def _join(spec: RunSpec, layout: SetLayout) -> Trajectory:
 
 # --- cache -------------------------------------------------------------------------------------
 
-class RunCache:
-    """Joined runs as ``.npz`` files named by a hash of their sources and of the set layout.
-
-    The cache folder is safe to delete at any time.  When the set folder is not writable the
-    cache lives under ``$XDG_CACHE_HOME/basinmark`` (``~/.cache/basinmark``).
-    """
-
-    def __init__(self, root: Path, layout: SetLayout):
-        self.layout = layout
-        self.folder = root / CACHE_NAME
-        if not os.access(root, os.W_OK):
-            base = Path(os.environ.get("XDG_CACHE_HOME", Path.home() / ".cache"))
-            self.folder = base / "basinmark" / hashlib.sha256(str(root.resolve()).encode()).hexdigest()[:16]
-
-    def key(self, spec: RunSpec, hashes: list[tuple[str, str]]) -> str:
-        h = hashlib.sha256(f"{CACHE_VERSION}\n{self.layout.fingerprint}\n{spec.run_id}\n".encode())
-        for role, sha in hashes:
-            h.update(f"{role}:{sha}\n".encode())
-        return h.hexdigest()
-
-    def load(self, spec: RunSpec, stored: list[tuple[str, str]]) -> Trajectory | None:
-        """The cached run for these stored-bytes hashes ``[(role, sha)]``, or None."""
-        path = self.folder / f"{self.key(spec, stored)}.npz"
-        if not path.exists():
-            return None
-        try:
-            with np.load(path, allow_pickle=False) as z:
-                energies = {k[7:]: z[k] for k in z.files if k.startswith("energy_")}
-                problems = [str(p) for p in z["problems"]] if "problems" in z.files else []
-                keys = [str(k) for k in z["file_keys"]] if "file_keys" in z.files else []
-                content = [str(h) for h in z["source_sha"]]
-                roles = [(r, getattr(spec, r)) for r, _ in stored]
-                return Trajectory(spec.run_id, z["numbers"], z["positions"], z["times"], energies,
-                                  sources=tuple(SourceFile(p, sha, r) for sha, (r, p) in zip(content, roles)),
-                                  problems=problems, metadata={"file_keys": keys}, reading=str(z["reading"]))
-        except Exception:  # a damaged cache entry is simply rebuilt
-            return None
-
-    def store(self, spec: RunSpec, traj: Trajectory, stored: list[tuple[str, str]]) -> None:
-        try:
-            self.folder.mkdir(parents=True, exist_ok=True)
-            arrays = {"numbers": traj.numbers, "positions": traj.positions, "times": traj.times,
-                      "problems": np.array(traj.problems, dtype=str),
-                      "file_keys": np.array(traj.metadata.get("file_keys", []), dtype=str),
-                      "source_sha": np.array([s.sha256 for s in traj.sources], dtype=str),
-                      "reading": np.array(traj.reading)}
-            arrays.update({f"energy_{k}": v for k, v in traj.energies.items()})
-            fd, tmp = tempfile.mkstemp(dir=self.folder, suffix=".tmp")
-            try:
-                with os.fdopen(fd, "wb") as fh:
-                    np.savez(fh, **arrays)
-                os.replace(tmp, self.folder / f"{self.key(spec, stored)}.npz")
-            except BaseException:
-                Path(tmp).unlink(missing_ok=True)  # e.g. a full disk: no half-written entry left behind
-                raise
-        except OSError:
-            pass  # no cache is no failure
+def cache_folder(root: Path) -> Path:
+    """Where a set's parsed runs are cached (:mod:`basinmark.core.set_cache`): ``.basinmark-cache`` in the set
+    folder, or under ``$XDG_CACHE_HOME/basinmark`` (``~/.cache/basinmark``) when the set folder is not
+    writable.  Safe to delete at any time."""
+    root = Path(root)
+    if os.access(root, os.W_OK):
+        return root / CACHE_NAME
+    base = Path(os.environ.get("XDG_CACHE_HOME", Path.home() / ".cache"))
+    return base / "basinmark" / hashlib.sha256(str(root.resolve()).encode()).hexdigest()[:16]
 
 
 # --- the public entry points -------------------------------------------------------------------
 
-def _load_one(spec: RunSpec, layout: SetLayout, cache: RunCache | None,
-              hashes: dict[Path, str] | None = None) -> Trajectory:
-    if cache is None:
-        return _join(spec, layout)
-    # the cache is keyed by the stored bytes (cheap to hash on every open); the run carries content hashes
-    stored = [(r, hashes[p] if hashes and p in hashes else _sha256_file(p))
-              for r in ("backward", "forward", "joined") if (p := getattr(spec, r)) is not None]
-    hit = cache.load(spec, stored)
-    if hit is not None:
-        return hit
-    traj = _join(spec, layout)
-    cache.store(spec, traj, stored)
-    return traj
-
-
-def _load_or_fail(spec: RunSpec, layout: SetLayout, cache: RunCache | None,
-                  hashes: dict[Path, str] | None) -> Trajectory | LoadFailure:
-    """:func:`_load_one` with its error made a :class:`LoadFailure` where it happens (in a worker process
-    too: our errors' own arguments do not survive the trip back through pickle, a LoadFailure does)."""
+def _parse_or_fail(spec: RunSpec, layout: SetLayout) -> tuple[Trajectory | LoadFailure, dict[Path, str]]:
+    """The run (or a :class:`LoadFailure` made where the error happens: in a worker process too, our errors'
+    own arguments do not survive the trip back through pickle, a LoadFailure does), and the stored-bytes
+    SHA-256 of each file the reader finished (its own pass: no file is hashed twice)."""
+    stored: dict[Path, str] = {}
     try:
-        return _load_one(spec, layout, cache, hashes)
+        return _join(spec, layout, stored), stored
     except Exception as exc:  # collected, never fatal for the set
-        return _failure(spec, exc)
+        return _failure(spec, exc), stored
 
 
 def _failure(spec: RunSpec, exc: Exception) -> LoadFailure:
@@ -474,36 +416,59 @@ def _safe_sha256(path: Path) -> str | None:
         return None  # reported when the file is read
 
 
-def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = None,
-              cancel: Callable[[], bool] | None = None, hashes: dict[Path, str] | None = None,
-              processes: bool | None = None) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure]]:
-    """Load the runs of a plan in parallel, yielding each as soon as it is ready (any order).
+def _parsed(plan: SetPlan, specs: list[RunSpec], workers: int | None, cancel: Callable[[], bool] | None,
+            processes: bool | None) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure, dict[Path, str]]]:
+    """Parse ``specs`` in parallel, yielding ``(spec, run or failure, stored-bytes hashes)`` as each is ready.
 
     Large sets are parsed in a pool of processes (one per core, or ``workers``), small ones in threads;
     ``processes`` forces either (see :func:`use_processes`).  Cancelling drops the runs not yet started
     and waits only for those under way; the pool never outlives the iteration.
     """
-    cache = RunCache(plan.root, plan.layout) if use_cache else None
-    if use_processes(plan, workers, processes):
+    part = plan if len(specs) == len(plan.runs) else replace(plan, runs=specs)
+    if use_processes(part, workers, processes):
         pool = ProcessPoolExecutor(max_workers=workers or cores(), mp_context=_process_context())
     else:
-        pool = ThreadPoolExecutor(max_workers=_workers(workers, plan), thread_name_prefix="basinmark-load")
+        pool = ThreadPoolExecutor(max_workers=_workers(workers, part), thread_name_prefix="basinmark-load")
     with pool:
-        # each task carries only its own files' hashes (a whole set's table would be pickled per run)
-        futures = {pool.submit(_load_or_fail, spec, plan.layout, cache,
-                               {p: hashes[p] for p in spec.files if p in hashes} if hashes else None): spec
-                   for spec in plan.runs}
+        futures = {pool.submit(_parse_or_fail, spec, plan.layout): spec for spec in specs}
         try:
             for fut in as_completed(futures):
                 spec = futures[fut]
                 try:
-                    yield spec, fut.result()
+                    result, stored = fut.result()
                 except Exception as exc:  # e.g. a worker process killed (out of memory): that run fails
-                    yield spec, _failure(spec, exc)
+                    result, stored = _failure(spec, exc), {}
+                yield spec, result, stored
                 if cancel is not None and cancel():
                     break
         finally:
             pool.shutdown(wait=True, cancel_futures=True)
+
+
+def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = None,
+              cancel: Callable[[], bool] | None = None, hashes: dict[Path, str] | None = None,
+              processes: bool | None = None) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure]]:
+    """Load the runs of a plan in parallel, yielding each as soon as it is ready (any order).
+
+    With ``use_cache`` a run whose files are unchanged (their stored bytes hash as ``hashes`` says, or as
+    hashed here) is taken from the set's cache (for a few runs of a large set); the others are parsed, in a
+    process pool for large sets (see :func:`use_processes`).  Cancelling drops the runs not yet started.
+    """
+    todo = list(plan.runs)
+    if use_cache:
+        folder, root = cache_folder(plan.root), plan.root.resolve()
+        todo = []
+        for spec in plan.runs:
+            stored = {p: (hashes or {}).get(p) or _safe_sha256(p) or "" for p in spec.files}
+            hit = find_run(folder, spec, stored, root) if has_segments(folder) else None
+            if hit is None:
+                todo.append(spec)
+                continue
+            yield spec, hit
+            if cancel is not None and cancel():
+                return
+    for spec, result, _stored in _parsed(plan, todo, workers, cancel, processes):
+        yield spec, result
 
 
 def _single_frame(traj: Trajectory) -> LoadFailure | None:
@@ -610,48 +575,79 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
              on_run: Callable[[Trajectory], None] | None = None, processes: bool | None = None) -> TrajectorySet:
     """Open a set folder: every run that loads, plus a list of what failed and why.
 
-    ``progress(done, total, run_id)`` is called after each run; ``cancel()`` returning True
-    stops loading (the set then holds what was loaded, and says so in ``warnings``);
-    ``on_run(traj)`` sees each run as soon as it is ready.  Large sets are parsed on every core in a
-    process pool; ``processes`` forces it on or off (see :func:`use_processes`).
+    ``progress(done, total, run_id)`` is called after each run (after each cached segment of runs, with
+    ``run_id`` None); ``cancel()`` returning True stops loading (the set then holds what was loaded, and says
+    so in ``warnings``); ``on_run(traj)`` sees each run as soon as it is ready.  Large sets are parsed on
+    every core in a process pool; ``processes`` forces it on or off (see :func:`use_processes`).
+
+    With ``use_cache`` the runs are cached in segments (:mod:`basinmark.core.set_cache`): the segments whose
+    files are unchanged (SHA-256 of the stored bytes) are read from the cache, the others from the files and
+    written to the cache as soon as all their runs are in.  With no segment cached yet, files are not hashed
+    up front: the reader hashes each as it reads it.
     """
     plan = discover(path)
     total = len(plan.runs)
     if progress:
         progress(0, total, None)
-    hashes = key = cache_folder = None
-    cache_notes: list[str] = []
-    if use_cache and total:
-        hashes = hash_files(plan, workers)
-        cache_folder = RunCache(plan.root, plan.layout).folder
-        key = snapshot_key(plan.layout.fingerprint, plan.runs, hashes, plan.failures)
-        hit = load_snapshot(cache_folder, key, plan.root.resolve(), notes=cache_notes)
-        if hit is not None:
-            runs, failed = hit
-            for traj in runs.values():
-                if on_run and _single_frame(traj) is None:
-                    on_run(traj)
-            if progress:
-                progress(total, total, None)
-            return _finish(plan, runs, list(plan.failures) + failed)
+    root = plan.root.resolve()
     loaded: dict[str, Trajectory] = {}
-    failures = list(plan.failures)
+    failed: dict[str, LoadFailure] = {}
+    cache_notes: list[str] = []
+    groups = [list(range(total))] if total else []
+    folder = None
+    hashes: dict[Path, str] = {}
+    todo = groups
     done = 0
-    for spec, result in iter_runs(plan, use_cache=use_cache, workers=workers, cancel=cancel, hashes=hashes,
-                                  processes=processes):
-        done += 1
-        if isinstance(result, LoadFailure):
-            failures.append(result)
-        else:
-            loaded[spec.run_id] = result
-            if on_run and _single_frame(result) is None:
-                on_run(result)
-        if progress:
-            progress(done, total, spec.run_id)
-    order = {spec.run_id: i for i, spec in enumerate(plan.runs)}
-    runs = {rid: loaded[rid] for rid in sorted(loaded, key=order.__getitem__)}
-    if key is not None and done == total:
-        store_snapshot(cache_folder, key, runs, failures[len(plan.failures):], plan.root.resolve())
+    cancelled = False
+
+    def take(traj: Trajectory) -> None:
+        loaded[traj.run_id] = traj
+        if on_run and _single_frame(traj) is None:
+            on_run(traj)
+
+    if use_cache and total:
+        folder = cache_folder(plan.root)
+        groups = segments([s.run_id for s in plan.runs], segment_length(_stored_bytes(plan) / total))
+        todo = groups
+        if has_segments(folder):
+            hashes = hash_files(plan, workers)
+            todo = []
+            for group, hit in zip(groups, _load_segments(plan, groups, hashes, folder, root, cache_notes)):
+                if hit is None:
+                    todo.append(group)
+                    continue
+                runs_hit, failures_hit = hit
+                for traj in runs_hit:
+                    take(traj)
+                failed.update(failures_hit)
+                done += len(group)
+                if progress:
+                    progress(done, total, None)
+                if cancel is not None and cancel():
+                    cancelled = True
+                    break
+    if not cancelled and todo:
+        specs = [plan.runs[i] for g in todo for i in g]
+        group_of = {plan.runs[i].run_id: k for k, g in enumerate(todo) for i in g}
+        waiting = [len(g) for g in todo]
+        stored: dict[Path, str] = {}
+        for spec, result, stored_now in _parsed(plan, specs, workers, cancel, processes):
+            done += 1
+            stored.update(stored_now)
+            if isinstance(result, LoadFailure):
+                failed[spec.run_id] = result
+            else:
+                take(result)
+            if progress:
+                progress(done, total, spec.run_id)
+            k = group_of[spec.run_id]
+            waiting[k] -= 1
+            if folder is not None and waiting[k] == 0:
+                _store_group(plan, todo[k], loaded, failed, stored, hashes, folder, root)
+    runs = {s.run_id: loaded[s.run_id] for s in plan.runs if s.run_id in loaded}
+    failures = list(plan.failures) + [failed[s.run_id] for s in plan.runs if s.run_id in failed]
+    if folder is not None and done == total:
+        prune(folder, keep={f"seg-{_group_key(plan, g, hashes)}" for g in groups})
     tset = _finish(plan, runs, failures)
     tset.warnings.extend(cache_notes)
     if done < total:
@@ -662,3 +658,41 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
                              "run1/fwd.xyz, or joined run-0001.xyz; basinmark-set.toml can name other patterns, "
                              "see docs/set-manifest.md)")
     return tset
+
+
+def _group_key(plan: SetPlan, group: list[int], hashes: dict[Path, str]) -> str:
+    return segment_key(plan.layout.fingerprint, [plan.runs[i] for i in group], hashes)
+
+
+def _load_segments(plan: SetPlan, groups: list[list[int]], hashes: dict[Path, str], folder: Path, root: Path,
+                   notes: list[str]) -> Iterator:
+    """Each group's cached segment (or None), in order; read and checked on every core (the checksums and
+    the reading of the memory-mapped arrays release the GIL)."""
+    def one(group):
+        key = _group_key(plan, group, hashes)
+        hit = load_segment(folder, key, root, notes)
+        if hit is None:
+            return None
+        runs, failures = hit
+        ids = [t.run_id for t in runs] + [rid for rid, _ in failures]
+        if sorted(ids) != sorted(plan.runs[i].run_id for i in group):  # the key names these runs: never expected
+            return None
+        return runs, failures
+
+    with ThreadPoolExecutor(max_workers=cores(), thread_name_prefix="basinmark-cache") as pool:
+        yield from pool.map(one, groups)
+
+
+def _store_group(plan: SetPlan, group: list[int], loaded: dict, failed: dict, stored: dict[Path, str],
+                 hashes: dict[Path, str], folder: Path, root: Path) -> None:
+    """Write one segment whose runs are all in, keyed by the stored-bytes hashes of the very bytes parsed."""
+    specs = [plan.runs[i] for i in group]
+    for spec in specs:
+        for p in spec.files:
+            if p not in stored:  # a file whose reading failed: hashed here (or '' when unreadable)
+                stored[p] = _safe_sha256(p) or ""
+    key = segment_key(plan.layout.fingerprint, specs, stored)
+    for p in (p for spec in specs for p in spec.files):
+        hashes[p] = stored[p]  # what the segment was written under (pruning keeps it)
+    store_segment(folder, key, [loaded[s.run_id] for s in specs if s.run_id in loaded],
+                  [(s.run_id, failed[s.run_id]) for s in specs if s.run_id in failed], stored, root)

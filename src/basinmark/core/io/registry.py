@@ -207,14 +207,16 @@ class ByteStream:
 
     def __iter__(self):
         content = hashlib.sha256()
+        self._plain = False
         try:
             for piece in self._pieces():
-                content.update(piece)
+                if not self._plain:  # a plain file's content is its stored bytes: hashed once, below
+                    content.update(piece)
                 yield piece
             while self._read():  # hash whatever was not decompressed (trailing bytes)
                 pass
             self.sha256 = self._hash.hexdigest()
-            self.content_sha256 = content.hexdigest()
+            self.content_sha256 = self.sha256 if self._plain else content.hexdigest()
         finally:
             self._fh.close()
 
@@ -223,6 +225,7 @@ class ByteStream:
         kind = sniff_compression(data)
         named = split_suffix(self.path)[1]
         if kind is None:
+            self._plain = True
             if named is not None and data:
                 self.warnings.append(f"{self.path.name} is named as {named}-compressed but is not; read it as "
                                      "plain text.")
