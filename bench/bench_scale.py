@@ -3,7 +3,7 @@
 Sets (synthetic coordinates made with numpy, not the demo dynamics; gzipped backward/forward halves):
 
 * 2,000 runs of 12 atoms x 400 frames per half (always);
-* 10,000 runs of 12 atoms x 400 frames (``--large``: about 1.4 GB of files and 10 minutes on 2 cores);
+* 10,000 runs of 12 atoms x 400 frames (``--large``: about 1.4 GB of files; 30 minutes on a busy 2-core machine);
 * 200 runs of 1,000 atoms x 400 frames (``--big-atoms``: about 6 GB of files).
 
 For each set, every timing in a fresh process:
@@ -213,7 +213,7 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--runs", type=int, default=2000, help="runs of the always-run set (default 2000)")
     ap.add_argument("--frames", type=int, default=400)
-    ap.add_argument("--large", action="store_true", help="also the 10,000-run set (about 10 minutes on 2 cores)")
+    ap.add_argument("--large", action="store_true", help="also the 10,000-run set (1.4 GB of files; 30 minutes on a busy 2-core machine)")
     ap.add_argument("--big-atoms", action="store_true", help="also 200 runs of 1,000 atoms (about 6 GB of files)")
     ap.add_argument("--workers", type=int, default=0, help="loader workers (0: the loader's own choice)")
     ap.add_argument("--ase-files", type=int, default=4, help="files read by the ase loop (scaled to all)")
