@@ -3,13 +3,15 @@
 from __future__ import annotations
 
 import os
+import shutil
 from pathlib import Path
 
 import numpy as np
 import pytest
 
+from basinmark.core import sets as sets_mod
 from basinmark.core.quick_open import full_check, quick_open, record_path
-from basinmark.core.sets import discover, open_set
+from basinmark.core.sets import cache_folder, discover, open_set
 
 from gui_fixtures import make_toy_set
 
@@ -86,5 +88,67 @@ def test_a_damaged_record_is_ignored(cached):
     root, _ = cached
     record_path(discover(root)).write_text("{not json")
     assert quick_open(root) is None
-    record_path(discover(root)).write_text('{"version": "1", "key": 3, "files": {}}')
+    record_path(discover(root)).write_text('{"version": "2", "key": 3, "files": {}}')
     assert quick_open(root) is None
+    record_path(discover(root)).write_text('{"version": "2", "key": "k", "files": {"toy-001.bwd.xyz": [1, 2]}}')
+    assert quick_open(root) is None
+
+
+@pytest.fixture
+def one_run_segments(monkeypatch):
+    """Every run in a segment of its own, so that the order in which segments are read can be seen."""
+    monkeypatch.setattr(sets_mod, "segment_length", lambda mean: 1)
+
+
+def test_quick_open_reads_every_segment_and_gives_the_first_run_before_reading_the_others(
+        tmp_path, one_run_segments, monkeypatch):
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+    tset = open_set(root)
+    assert len(list(cache_folder(root).glob("seg-*"))) == len(OUTCOMES)
+    assert full_check(root).recorded
+    events: list[tuple[str, str]] = []
+    real = sets_mod.load_segment
+
+    def logged(folder, key, *a, **k):
+        events.append(("read", key))
+        return real(folder, key, *a, **k)
+
+    monkeypatch.setattr(sets_mod, "load_segment", logged)
+    monkeypatch.setattr(sets_mod, "hash_files", lambda *a, **k: pytest.fail("hashed before showing"))
+    monkeypatch.setattr(sets_mod, "_parse_or_fail", lambda *a: pytest.fail("parsed from the files"))
+    quick = quick_open(root, on_run=lambda t: events.append(("run", t.run_id)))
+    assert quick is not None and quick.tset.run_ids == tset.run_ids
+    # the first run of the table is handed over as soon as its segment is read, before any other is read
+    assert [e[0] for e in events[:2]] == ["read", "run"] and events[1][1] == tset.run_ids[0]
+    assert sorted(rid for kind, rid in events if kind == "run") == sorted(tset.run_ids)
+    assert sum(kind == "read" for kind, _ in events) == len(OUTCOMES)
+
+
+def test_a_missing_segment_means_no_quick_open(tmp_path, one_run_segments):
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+    open_set(root)
+    assert full_check(root).recorded
+    shutil.rmtree(sorted(cache_folder(root).glob("seg-*"))[1])
+    assert quick_open(root) is None
+    open_set(root)  # the usual open writes it again
+    assert quick_open(root) is not None
+
+
+def test_a_damaged_segment_met_by_the_quick_open_is_read_from_its_files(tmp_path, one_run_segments):
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+    fresh = open_set(root, use_cache=False)
+    open_set(root)
+    assert full_check(root).recorded
+    entry = sorted(cache_folder(root).glob("seg-*"))[2]
+    p = entry / "positions.npy"
+    data = bytearray(p.read_bytes())
+    data[-4:] = np.float32(123.0).tobytes()
+    p.write_bytes(bytes(data))
+    seen = []
+    quick = quick_open(root, on_run=lambda t: seen.append(t.run_id))
+    assert quick is not None and sorted(seen) == sorted(fresh.run_ids)  # every run once
+    said = [w for w in quick.tset.warnings if "cache entry" in w]
+    assert len(said) == 1 and "damaged" in said[0] and str(entry) in said[0]
+    for rid in fresh.run_ids:
+        np.testing.assert_array_equal(quick.tset[rid].positions, fresh[rid].positions)
+    assert len(list(cache_folder(root).glob("seg-*"))) == len(OUTCOMES)  # rebuilt

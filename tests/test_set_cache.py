@@ -219,3 +219,19 @@ def test_uneven_times_and_mixed_atom_counts_round_trip(tmp_path):
     np.testing.assert_array_equal(runs[1].positions, other.positions)
     assert set(runs[1].energies) == {"potential"}
     np.testing.assert_array_equal(runs[2].energies["total"], fresh["r001"].energies["total"])
+
+
+def test_runs_taken_one_by_one_read_each_segment_index_once(tmp_path, small_segments, monkeypatch):
+    root = make_set(tmp_path / "s", 8)
+    first = open_set(root)
+    n_segments = len(list((root / CACHE_NAME).glob("seg-*")))
+    assert n_segments > 2
+    reads = []
+    real = set_cache.read_index
+    monkeypatch.setattr(set_cache, "read_index", lambda entry: reads.append(entry) or real(entry))
+    monkeypatch.setattr(sets_mod, "_parse_or_fail", lambda *a: pytest.fail("parsed"))
+    got = {spec.run_id: run for spec, run in sets_mod.iter_runs(sets_mod.discover(root), use_cache=True)}
+    assert sorted(got) == first.run_ids
+    assert len(reads) == n_segments  # not once per run
+    for rid, run in got.items():
+        np.testing.assert_array_equal(run.positions, first[rid].positions)

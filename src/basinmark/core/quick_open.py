@@ -1,15 +1,16 @@
 """Opening a cached set at once: a quick check of its files' sizes and modification times, the full check after.
 
-Reopening from the whole-set snapshot (:mod:`basinmark.core.set_cache`) is keyed by the SHA-256 of every
-stored file, so nothing can be shown before every file is hashed (1.4-2.7 s at 10,000 runs).  Beside the
-snapshot we keep a small record of what the files looked like when it was made: for each file its size,
-modification time (ns) and SHA-256, and the snapshot's key.  :func:`quick_open` compares sizes and times
-only (a ``stat`` per file) and, when they all match, opens the snapshot the record names.
+The set cache (:mod:`basinmark.core.set_cache`) names each segment by the SHA-256 of its runs' stored files,
+so an ordinary reopen hashes every file before it can read a segment (1.4-2.7 s at 10,000 runs).  Beside the
+segments we keep a small record of what the files looked like when they were cached: for each file its size,
+modification time (ns) and SHA-256.  :func:`quick_open` compares sizes and times only (a ``stat`` per file)
+and, when they all match, takes the recorded hashes as the files' and reads the segments they name: the one
+holding the set's first run first (its runs reach ``on_run`` at once), then the others.
 
 A file rewritten with the same size and time passes that check, so the window then runs :func:`full_check`
 in the background: it hashes every file (as a normal open would) and names each file whose content is not
-the content the snapshot was made from.  The record is (re)written by :func:`full_check` whenever the
-snapshot of the files as they are now exists, so the next open can be quick.
+the content the cache was made from.  The record is (re)written by :func:`full_check` whenever every segment
+of the files as they are now exists, so the next open can be quick.
 
 The record is a cache file like the others (safe to delete; a damaged one is ignored).
 """
@@ -24,16 +25,15 @@ from pathlib import Path
 from typing import Callable
 
 from basinmark.core.model import Trajectory, TrajectorySet
-from basinmark.core.set_cache import load_snapshot, snapshot_key
-from basinmark.core.sets import RunCache, SetPlan, _finish, _single_frame, discover, hash_files
+from basinmark.core.sets import SetPlan, group_key, cache_folder, discover, hash_files, open_plan, segment_groups
 
-RECORD_VERSION = "1"
+RECORD_VERSION = "2"  # 2: the segments' files (1 named one whole-set snapshot)
 
 
 def record_path(plan: SetPlan) -> Path:
     """Where the quick-check record of this set (and this way of reading it) lives."""
     tag = hashlib.sha256(f"quick {RECORD_VERSION}\n{plan.layout.fingerprint}\n".encode()).hexdigest()[:16]
-    return RunCache(plan.root, plan.layout).folder / f"quick-{tag}.json"
+    return cache_folder(plan.root) / f"quick-{tag}.json"
 
 
 def _files(plan: SetPlan) -> list[Path]:
@@ -67,11 +67,15 @@ def read_record(plan: SetPlan) -> dict | None:
     if not isinstance(rec, dict) or rec.get("version") != RECORD_VERSION or not isinstance(rec.get("files"), dict) \
             or not isinstance(rec.get("key"), str):
         return None
+    if not all(isinstance(v, list) and len(v) == 3 and isinstance(v[0], int) and isinstance(v[1], int)
+               and isinstance(v[2], str) for v in rec["files"].values()):
+        return None
     return rec
 
 
 def write_record(plan: SetPlan, key: str, stats: dict[str, tuple[int, int]], hashes: dict[Path, str]) -> bool:
-    """Record the files (size, time, SHA-256) the snapshot ``key`` was made from; False when not written."""
+    """Record the files (size, time, SHA-256) the segments (named together ``key``) were made from; False when
+    not written."""
     files = {}
     for p in _files(plan):
         name = _name(plan, p)
@@ -89,9 +93,23 @@ def write_record(plan: SetPlan, key: str, stats: dict[str, tuple[int, int]], has
     return True
 
 
+def set_key(plan: SetPlan, hashes: dict[Path, str]) -> str:
+    """One name for the cached segments of the files with these stored-bytes hashes (in the set's order)."""
+    h = hashlib.sha256(f"segments {RECORD_VERSION}\n".encode())
+    for group in segment_groups(plan):
+        h.update(group_key(plan, group, hashes).encode() + b"\n")
+    return h.hexdigest()
+
+
+def _all_cached(plan: SetPlan, hashes: dict[Path, str]) -> bool:
+    """Whether every segment of the files with these hashes is in the cache (a folder each: one ``stat``)."""
+    folder = cache_folder(plan.root)
+    return all((folder / f"seg-{group_key(plan, g, hashes)}").is_dir() for g in segment_groups(plan))
+
+
 @dataclass
 class QuickOpen:
-    """A set opened from its snapshot after the quick check, and what the full check compares against."""
+    """A set opened from its cache after the quick check, and what the full check compares against."""
 
     tset: TrajectorySet
     plan: SetPlan
@@ -99,10 +117,14 @@ class QuickOpen:
     record: dict
 
 
-def quick_open(path: str | Path, *, on_run: Callable[[Trajectory], None] | None = None) -> QuickOpen | None:
-    """The set from its snapshot when every file has the size and time recorded with it, else None.
+def quick_open(path: str | Path, *, on_run: Callable[[Trajectory], None] | None = None,
+               progress=None, cancel: Callable[[], bool] | None = None) -> QuickOpen | None:
+    """The set from its cache when every file has the size and time recorded with it, else None.
 
-    None also when there is no record or snapshot (the caller then opens the set the usual way)."""
+    None also when there is no record or a segment named by it is missing (the caller then opens the set the
+    usual way).  The segment holding the set's first run is read first and its runs reach ``on_run`` at once;
+    ``progress`` and ``cancel`` as for :func:`basinmark.core.sets.open_set`.  A segment found damaged while
+    it is read is removed and its runs are read from their files (said in the set's warnings)."""
     plan = discover(path)
     if not plan.runs:
         return None
@@ -114,23 +136,17 @@ def quick_open(path: str | Path, *, on_run: Callable[[Trajectory], None] | None 
         return None
     if any(tuple(rec["files"][name][:2]) != st for name, st in stats.items()):
         return None
-    notes: list[str] = []
-    hit = load_snapshot(RunCache(plan.root, plan.layout).folder, rec["key"], plan.root.resolve(), notes=notes)
-    if hit is None:
+    hashes = {p: rec["files"][_name(plan, p)][2] for p in _files(plan)}
+    if not _all_cached(plan, hashes):
         return None
-    runs, failed = hit
-    if on_run is not None:
-        for traj in runs.values():
-            if _single_frame(traj) is None:
-                on_run(traj)
-    tset = _finish(plan, runs, list(plan.failures) + failed)
+    tset = open_plan(plan, known_hashes=hashes, on_run=on_run, progress=progress, cancel=cancel)
     tset.metadata["opened_by_quick_check"] = True
     return QuickOpen(tset, plan, rec["key"], rec)
 
 
 @dataclass
 class FullCheck:
-    """What the full check found: files whose content differs from the snapshot shown (empty when none)."""
+    """What the full check found: files whose content differs from the cache shown (empty when none)."""
 
     changed: list[str] = field(default_factory=list)
     checked: int = 0
@@ -151,7 +167,7 @@ def full_check(path_or_plan: str | Path | SetPlan, shown: QuickOpen | None = Non
     """Hash every file; name those whose content is not the one ``shown`` was made from; record the files.
 
     ``shown``: the quick open to check (None after an ordinary open: nothing to compare, only the record is
-    written so that the next open can be quick).  The record is written only when the snapshot of the files
+    written so that the next open can be quick).  The record is written only when every segment of the files
     as they are now exists and no file moved while it was hashed."""
     plan = shown.plan if shown is not None else (
         path_or_plan if isinstance(path_or_plan, SetPlan) else discover(path_or_plan))
@@ -170,7 +186,6 @@ def full_check(path_or_plan: str | Path | SetPlan, shown: QuickOpen | None = Non
     after = file_stats(plan)
     if after != before:
         return out
-    key = snapshot_key(plan.layout.fingerprint, plan.runs, hashes, plan.failures)
-    if (RunCache(plan.root, plan.layout).folder / f"set-{key}").is_dir():
-        out.recorded = write_record(plan, key, before, hashes)
+    if _all_cached(plan, hashes):
+        out.recorded = write_record(plan, set_key(plan, hashes), before, hashes)
     return out

@@ -209,23 +209,46 @@ def _read_segment(entry: Path, root: Path | None, verify: bool, index: dict | No
     return runs, failures
 
 
-def find_run(folder: Path, spec, stored: dict[Path, str], root: Path | None = None) -> Trajectory | None:
-    """One run from whichever segment holds it with these stored-bytes hashes (checked), or None."""
-    want = [[p.name, stored.get(p, "")] for r in ("backward", "forward", "joined") if (p := getattr(spec, r))]
+def _want(spec, stored: dict[Path, str]) -> tuple:
+    """What identifies a cached run: its id and each file's name and stored-bytes SHA-256, in role order."""
+    return (spec.run_id,) + tuple((p.name, stored.get(p, "")) for r in ("backward", "forward", "joined")
+                                  if (p := getattr(spec, r)) is not None)
+
+
+def cached_runs(folder: Path) -> dict[tuple, tuple[Path, dict, dict]]:
+    """Every run the cache folder holds, by (run id, (file name, stored-bytes SHA-256) per file), with its
+    segment folder, that segment's index and its entry there.  Each index is read (and checked) once; a
+    damaged one is skipped (an open of the set removes and rebuilds it)."""
+    table: dict[tuple, tuple[Path, dict, dict]] = {}
     try:
-        entries = list(folder.glob("seg-*"))
+        entries = [p for p in folder.iterdir() if p.name.startswith("seg-")]
     except OSError:
-        return None
+        return table
     for entry in entries:
         try:
             index = read_index(entry)
             for r in index["runs"]:
-                if r["run_id"] == spec.run_id and [[Path(s[0]).name, s[3]] for s in r["sources"]] == want:
-                    runs, _ = _read_segment(entry, root, True, dict(index, runs=[r], failures=[]))
-                    return runs[0]
+                table[(r["run_id"],) + tuple((Path(s[0]).name, s[3]) for s in r["sources"])] = (entry, index, r)
         except _DAMAGE:
             continue
-    return None
+    return table
+
+
+def find_run(folder: Path, spec, stored: dict[Path, str], root: Path | None = None,
+             table: dict | None = None) -> Trajectory | None:
+    """One run from whichever segment holds it with these stored-bytes hashes (checked), or None.
+
+    ``table``: :func:`cached_runs` of the folder, made once by a caller looking up many runs (without it every
+    segment's index is read for this one run)."""
+    hit = (cached_runs(folder) if table is None else table).get(_want(spec, stored))
+    if hit is None:
+        return None
+    entry, index, r = hit
+    try:
+        runs, _ = _read_segment(entry, root, True, dict(index, runs=[r], failures=[]))
+    except _DAMAGE:
+        return None
+    return runs[0]
 
 
 # --- writing ----------------------------------------------------------------------------------

@@ -25,8 +25,8 @@ from basinmark.core.errors import BasinmarkError, SetError, TrajectoryFileError
 from basinmark.core.manifest import SetLayout, load_layout
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory, TrajectorySet
 from basinmark.core.pairing import RunSpec, describe, find_by_names, find_by_patterns
-from basinmark.core.set_cache import (find_run, has_segments, load_segment, prune, segment_key, segment_length,
-                                      segments, store_segment)
+from basinmark.core.set_cache import (cached_runs, find_run, has_segments, load_segment, prune, segment_key,
+                                      segment_length, segments, store_segment)
 
 JOURNAL_NAME = "basinmark-labels.jsonl"
 RULES_NAME = "basins.toml"
@@ -455,12 +455,14 @@ def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = No
     process pool for large sets (see :func:`use_processes`).  Cancelling drops the runs not yet started.
     """
     todo = list(plan.runs)
-    if use_cache:
-        folder, root = cache_folder(plan.root), plan.root.resolve()
+    folder = cache_folder(plan.root)
+    table = cached_runs(folder) if use_cache else {}  # every segment's index read once, not once per run
+    if table:
+        root = plan.root.resolve()
         todo = []
         for spec in plan.runs:
             stored = {p: (hashes or {}).get(p) or _safe_sha256(p) or "" for p in spec.files}
-            hit = find_run(folder, spec, stored, root) if has_segments(folder) else None
+            hit = find_run(folder, spec, stored, root, table)
             if hit is None:
                 todo.append(spec)
                 continue
@@ -585,7 +587,30 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
     written to the cache as soon as all their runs are in.  With no segment cached yet, files are not hashed
     up front: the reader hashes each as it reads it.
     """
-    plan = discover(path)
+    return open_plan(discover(path), progress=progress, use_cache=use_cache, workers=workers, cancel=cancel,
+                     on_run=on_run, processes=processes)
+
+
+def segment_groups(plan: SetPlan) -> list[list[int]]:
+    """The plan's runs (indices in its order) cut into the cache's segments (see :func:`set_cache.segments`)."""
+    total = len(plan.runs)
+    if not total:
+        return []
+    return segments([s.run_id for s in plan.runs], segment_length(_stored_bytes(plan) / total))
+
+
+def open_plan(plan: SetPlan, *, progress: Progress | None = None, use_cache: bool = True,
+              workers: int | None = None, cancel: Callable[[], bool] | None = None,
+              on_run: Callable[[Trajectory], None] | None = None, processes: bool | None = None,
+              known_hashes: dict[Path, str] | None = None) -> TrajectorySet:
+    """:func:`open_set` of a plan already found.
+
+    ``known_hashes``: the stored-bytes SHA-256 of every file, already known (the quick check's record, see
+    :mod:`basinmark.core.quick_open`): the files are then not hashed before the cached segments are read.
+    The segment holding the
+    plan's first run is read before the others and its runs reach ``on_run`` at once: the window shows the
+    first run of its table without waiting for the rest of the set.
+    """
     total = len(plan.runs)
     if progress:
         progress(0, total, None)
@@ -607,10 +632,10 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
 
     if use_cache and total:
         folder = cache_folder(plan.root)
-        groups = segments([s.run_id for s in plan.runs], segment_length(_stored_bytes(plan) / total))
+        groups = segment_groups(plan)
         todo = groups
-        if has_segments(folder):
-            hashes = hash_files(plan, workers)
+        if known_hashes is not None or has_segments(folder):
+            hashes = dict(known_hashes) if known_hashes is not None else hash_files(plan, workers)
             todo = []
             for group, hit in zip(groups, _load_segments(plan, groups, hashes, folder, root, cache_notes)):
                 if hit is None:
@@ -647,7 +672,7 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
     runs = {s.run_id: loaded[s.run_id] for s in plan.runs if s.run_id in loaded}
     failures = list(plan.failures) + [failed[s.run_id] for s in plan.runs if s.run_id in failed]
     if folder is not None and done == total:
-        prune(folder, keep={f"seg-{_group_key(plan, g, hashes)}" for g in groups})
+        prune(folder, keep={f"seg-{group_key(plan, g, hashes)}" for g in groups})
     tset = _finish(plan, runs, failures)
     tset.warnings.extend(cache_notes)
     if done < total:
@@ -660,16 +685,18 @@ def open_set(path: str | Path, *, progress: Progress | None = None, use_cache: b
     return tset
 
 
-def _group_key(plan: SetPlan, group: list[int], hashes: dict[Path, str]) -> str:
+def group_key(plan: SetPlan, group: list[int], hashes: dict[Path, str]) -> str:
+    """Name of the cache segment of the runs ``group`` (indices into the plan) with these stored-bytes hashes."""
     return segment_key(plan.layout.fingerprint, [plan.runs[i] for i in group], hashes)
 
 
 def _load_segments(plan: SetPlan, groups: list[list[int]], hashes: dict[Path, str], folder: Path, root: Path,
                    notes: list[str]) -> Iterator:
-    """Each group's cached segment (or None), in order; read and checked on every core (the checksums and
-    the reading of the memory-mapped arrays release the GIL)."""
+    """Each group's cached segment (or None), in order: the first alone (it holds the plan's first run, which
+    the window shows first), then the others on every core (the checksums and the reading of the memory-mapped
+    arrays release the GIL)."""
     def one(group):
-        key = _group_key(plan, group, hashes)
+        key = group_key(plan, group, hashes)
         hit = load_segment(folder, key, root, notes)
         if hit is None:
             return None
@@ -679,8 +706,12 @@ def _load_segments(plan: SetPlan, groups: list[list[int]], hashes: dict[Path, st
             return None
         return runs, failures
 
-    with ThreadPoolExecutor(max_workers=cores(), thread_name_prefix="basinmark-cache") as pool:
-        yield from pool.map(one, groups)
+    if not groups:
+        return
+    yield one(groups[0])
+    if len(groups) > 1:
+        with ThreadPoolExecutor(max_workers=cores(), thread_name_prefix="basinmark-cache") as pool:
+            yield from pool.map(one, groups[1:])
 
 
 def _store_group(plan: SetPlan, group: list[int], loaded: dict, failed: dict, stored: dict[Path, str],
