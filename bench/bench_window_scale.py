@@ -28,7 +28,9 @@ import shutil
 import subprocess
 import sys
 import tempfile
+import threading
 import time
+from collections import Counter
 from pathlib import Path
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
@@ -114,6 +116,47 @@ class GcPauses:
 
 
 GC = GcPauses()
+
+
+class Sampler(threading.Thread):
+    """``--why``: samples the GUI thread's Python stack every few ms, so that each long gap can be put down to the
+    code that ran in it (the samples that fall inside the gap, counted per function, callers included)."""
+
+    def __init__(self, every_s: float = 0.004) -> None:
+        super().__init__(daemon=True)
+        self.main = threading.main_thread().ident
+        self.every = every_s
+        self.samples: list[tuple[float, tuple[str, ...]]] = []
+        self.stop = threading.Event()
+
+    def run(self) -> None:
+        while not self.stop.wait(self.every):
+            frame = sys._current_frames().get(self.main)
+            stack = []
+            while frame is not None:
+                code = frame.f_code
+                stack.append(f"{Path(code.co_filename).name}:{code.co_name}")
+                frame = frame.f_back
+            self.samples.append((time.perf_counter(), tuple(stack)))
+
+    def report(self, gaps: list[tuple[float, float]], t0: float, longer_than_s: float = 0.1, top: int = 12) -> None:
+        """For each gap longer than ``longer_than_s``: the functions seen most in it (inclusive counts)."""
+        for gap, when in sorted(gaps, reverse=True)[:6]:
+            if gap <= longer_than_s:
+                break
+            end = t0 + when
+            inside = [st for t, st in self.samples if end - gap <= t <= end]
+            counts: Counter = Counter()
+            for st in inside:
+                counts.update(set(st))
+            print(f"    gap of {gap * 1000:.0f} ms ending at {when:.2f} s, {len(inside)} samples:")
+            for name, n in counts.most_common(60)[:top * 3]:
+                if "bench_window_scale" in name or name.endswith(":run_until") or "<module>" in name:
+                    continue
+                print(f"      {n:4d}  {name}")
+
+
+SAMPLER: Sampler | None = None
 
 
 class Watch:
@@ -211,6 +254,9 @@ def window_open(app, root: Path, tmp: Path, use_cache: bool, with_map: bool) -> 
         out["checked"] = time.perf_counter() - t0
     watch.run_until(lambda: time.perf_counter() - t0 > out["loaded"] + 1.0)  # a second of calm after
     out["gap"] = watch.longest()
+    if SAMPLER is not None:
+        print(f"  ({'cache' if use_cache else 'cold'} open) what the window's thread did in its longest gaps:")
+        SAMPLER.report(watch.gaps, watch.t0)
     if with_map:
         panel = win.map_panel
         watch.reset()
@@ -227,6 +273,9 @@ def window_open(app, root: Path, tmp: Path, use_cache: bool, with_map: bool) -> 
         out["map_note"] = panel.note.text()
         watch.run_until(lambda: time.perf_counter() - t1 > out["map"] + 0.5)
         out["map_gap"] = watch.longest()
+        if SAMPLER is not None:
+            print("  (map) what the window's thread did in its longest gaps:")
+            SAMPLER.report(watch.gaps, watch.t0)
     win.close()
     win.deleteLater()
     watch.run_until(lambda: True)
@@ -238,7 +287,15 @@ def main() -> None:
     ap.add_argument("--runs", type=int, default=2000)
     ap.add_argument("--frames", type=int, default=400)
     ap.add_argument("--keep", metavar="DIR", help="generate into DIR (kept) or reuse the set already there")
+    ap.add_argument("--why", action="store_true",
+                    help="sample the window thread's stack and print what ran in each gap longer than 100 ms")
+    ap.add_argument("--no-reference", action="store_true",
+                    help="skip the core's own opens in child processes (the references; minutes at 10,000 runs)")
     args = ap.parse_args()
+    if args.why:
+        global SAMPLER
+        SAMPLER = Sampler()
+        SAMPLER.start()
     tmp = Path(tempfile.mkdtemp(prefix="basinmark-window-"))
     root = Path(args.keep) if args.keep else tmp / "scale-set"
     try:
@@ -251,7 +308,7 @@ def main() -> None:
             p = root / extra
             shutil.rmtree(p, ignore_errors=True) if p.is_dir() else p.unlink(missing_ok=True)
         print(f"load average at start: {load()}")
-        core_cold = _core_open(root, cache=False)
+        core_cold = float("nan") if args.no_reference else _core_open(root, cache=False)
         print(f"reference: core open_set without cache {core_cold:.2f} s   load {load()}")
 
         from basinmark.gui.app import make_app
@@ -271,8 +328,8 @@ def main() -> None:
         print(_fmt("longest gap while the map is built", gap, TARGET_GAP_MS / 1000, "target 100 ms"))
         print(_fmt("longest garbage collection so far", GC.longest, TARGET_GAP_MS / 1000, "target 100 ms"))
 
-        core_write = _core_open(root, cache=True)   # writes the cache
-        core_again = _core_open(root, cache=True)   # reads it
+        core_write = _core_open(root, cache=True)   # writes the cache (needed for the open from the cache)
+        core_again = float("nan") if args.no_reference else _core_open(root, cache=True)   # reads it
         check_s, recorded = _child(FULL_CHECK, str(root))
         print(f"reference: core open_set first open {core_write:.2f} s (writes the cache), "
               f"reopen {core_again:.2f} s; full check of the files alone {float(check_s):.2f} s "

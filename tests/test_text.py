@@ -62,6 +62,15 @@ def test_printable_shows_nothing_hidden_and_leaves_plain_text_alone(text):
     assert "\n" not in shown and "\x1b" not in shown
 
 
+def test_printable_ascii_shortcut_agrees_with_the_character_rules():
+    """The quick path for printable ASCII leaves alone exactly the ASCII characters is_hidden lets through (the
+    C0 controls and DEL are Unicode category Cc, from the Unicode Character Database via unicodedata)."""
+    for code in range(128):
+        ch = chr(code)
+        assert (printable(ch) == ch) == (not is_hidden(ch)), repr(ch)
+        assert (printable("ab" + ch + "cd") == "ab" + ch + "cd") == (not is_hidden(ch)), repr(ch)
+
+
 def test_printable_escapes():
     assert printable("a\nb\tc\x1b[0m\u202ed") == "a\\nb\\tc\\x1b[0m\\u202ed"
     assert printable(None) == "" and printable(3) == "3"

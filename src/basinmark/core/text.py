@@ -56,6 +56,8 @@ def printable(value: object) -> str:
     The one function every table, list and label of the program uses for text that came from a file.
     """
     text = "" if value is None else str(value)
+    if text.isascii() and text.isprintable():  # no hidden character is printable ASCII: the usual case, one C pass
+        return text
     if not any(is_hidden(c) for c in text):  # the common case, kept cheap
         return text
     out = []

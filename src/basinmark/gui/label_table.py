@@ -69,9 +69,37 @@ def _column(frame: pd.DataFrame | None, name: str, index: pd.Index) -> pd.Series
 
 
 def _texts(values: pd.Series) -> np.ndarray:
-    """:func:`_text` of every value (None and NaN become "")."""
-    return np.array(["" if v is None or (isinstance(v, float) and v != v) or v is pd.NA else str(v)
-                     for v in values.tolist()], dtype=object)
+    """:func:`_text` of every value (None, NaN and NA become ""), a whole column at once."""
+    values = values.astype(object)
+    missing = values.isna().to_numpy()
+    out = values.to_numpy(dtype=object, copy=True)
+    out[missing] = ""
+    kept = out[~missing]
+    if kept.size and not _all_str(kept):
+        out[~missing] = kept.astype(str).astype(object)
+    return out
+
+
+def _all_str(values: np.ndarray) -> bool:
+    """Every value is already a ``str`` (the usual case: then nothing is converted)."""
+    return bool(pd.api.types.infer_dtype(values, skipna=False) == "string")
+
+
+def _flags(values: pd.Series) -> np.ndarray:
+    """:func:`_flag` of every value, a whole column at once (None, NaN and NA are False)."""
+    values = values.astype(object)
+    out = values.to_numpy(dtype=object, copy=True)
+    out[values.isna().to_numpy()] = False
+    return out.astype(bool)
+
+
+def _printables(texts: np.ndarray, rows: np.ndarray) -> np.ndarray:
+    """``texts`` shown as they are (:func:`printable`) where ``rows`` holds, "" elsewhere; only those rows are looked
+    at (a call per row of 10,000 runs was a cost of every label refresh)."""
+    out = np.full(texts.size, "", dtype=object)
+    for i in np.flatnonzero(rows).tolist():
+        out[i] = printable(texts[i])
+    return out
 
 
 def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | None,
@@ -79,7 +107,7 @@ def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | Non
     """One row per run id, in the given order, with the LABEL_COLUMNS; ``notes``: each run's note (run → text).
 
     Built a column at a time (a dict per run cost 0.7 s of the window's turn at 2,000 runs, profiled)."""
-    index = pd.Index([str(r) for r in run_ids])
+    index = pd.Index(np.asarray(run_ids, dtype=object).astype(str).astype(object) if len(run_ids) else [])
     if not len(index):
         return pd.DataFrame(columns=LABEL_COLUMNS)
     cls = _by_run(classification, index)
@@ -98,13 +126,19 @@ def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | Non
 
     def own_text(name: str) -> np.ndarray:
         # free text from the journal, shown as it is (an older file's line breaks or overrides escaped)
-        return np.array([printable(t) if h else "" for t, h in zip(_texts(j(name)).tolist(), has_hand.tolist())],
-                        dtype=object)
+        return _printables(_texts(j(name)), has_hand)
 
     def number(name: str) -> np.ndarray:
         return pd.to_numeric(c(name), errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
 
-    changed = np.array([_flag(v) for v in j("data_changed").tolist()], dtype=bool)
+    changed = _flags(j("data_changed"))
+    note = np.full(len(index), "", dtype=object)
+    if notes:  # a loop over the notes, not over the runs (run ids are unique in a set)
+        at = dict(zip(index.tolist(), range(len(index))))
+        for run, text in notes.items():
+            i = at.get(str(run))
+            if i is not None:
+                note[i] = printable(_text(text))
     return pd.DataFrame({
         "run": np.array(index, dtype=object),
         "auto_label": auto,
@@ -118,7 +152,7 @@ def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | Non
         "reason": own_text("reason"),
         "data_changed": changed,
         # free text beside the labels (never a label)
-        "note": np.array([printable(_text(notes.get(r))) if notes else "" for r in index], dtype=object),
+        "note": note,
     }, columns=LABEL_COLUMNS)
 
 

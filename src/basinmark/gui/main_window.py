@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import os
 from pathlib import Path
 
@@ -570,8 +571,9 @@ class MainWindow(QMainWindow):
             self.statusBar().showMessage(self._messages["error"], 10000)
             self.load_failed.emit(self._messages["error"])
             return
-        # the set, its journal and the rules each change the label table: it is rebuilt once, at the end
-        with self.state.labels_batch():
+        # the set, its journal and the rules each change the label table and the traces: each is rebuilt once, at
+        # the end; the map of a new set is measured and drawn in a turn of the event loop of its own, after this one
+        with self.state.labels_batch(), self.traces.held(), self._map_held(not result.get("rules_only")):
             if not result.get("rules_only"):
                 keep = self.state.run_id if self.state.run_id != getattr(self, "_auto_run", "") else ""
                 self.state.set_set(tset)
@@ -623,6 +625,11 @@ class MainWindow(QMainWindow):
         if not result.get("rules_only") and (focus is None or focus is self or not self.isAncestorOf(focus)):
             self.run_table.view.setFocus(Qt.FocusReason.OtherFocusReason)
         (self.rules_applied if result.get("rules_only") else self.set_loaded).emit()
+
+    def _map_held(self, hold: bool):
+        """The map panel's :meth:`~basinmark.gui.map_view.MapPanel.held` when there is one and ``hold``, else nothing."""
+        panel = getattr(self, "map_panel", None)
+        return panel.held() if hold and panel is not None else contextlib.nullcontext()
 
     @property
     def files_checking(self) -> bool:

@@ -136,6 +136,13 @@ class MapData:
             memo[max_points] = (keep, run_of)
         return memo[max_points]
 
+    def pick_index(self, build: bool = True) -> "PathIndex | None":
+        """The :class:`PathIndex` of these paths (built on the first call with ``build``; None before that)."""
+        got = self.__dict__.get("_pick_index")
+        if got is None and build:
+            got = self.__dict__["_pick_index"] = PathIndex(self)
+        return got
+
     @property
     def n_runs(self) -> int:
         return len(self.run_ids)
@@ -251,6 +258,96 @@ def nearest_on_paths(data: MapData, px: float, py: float, sx: float, sy: float,
         idx, dist = i_pt, math.sqrt(float(pt_d2[i_pt]))
     r = int(run_of[idx])
     return r, int(idx - data.starts[r]), dist
+
+
+#: paths with fewer points than this are picked by :func:`nearest_on_paths` over every segment (a few ms); larger
+#: ones through a :class:`PathIndex` (our own threshold: 2e5 points take ~10 ms vectorised on one core)
+INDEX_FROM_POINTS = 200_000
+
+
+class PathIndex:
+    """Picking on every frame of many runs without looking at every frame: the full-resolution points in a k-d tree
+    (:class:`scipy.spatial.cKDTree`) on the plane scaled to the data's range.
+
+    A click at (px, py) with ``sx``/``sy`` data units per pixel asks the tree for the points near enough that a
+    segment of at most ``cap`` (scaled units) passing within ``radius_px`` must end among them; those segments
+    (and the few longer ones, kept aside, e.g. a dihedral wrapping round) are measured exactly as
+    :func:`nearest_on_paths` measures every segment.  Built once per map data, in the map's worker thread (a tree of
+    8e6 points builds in ~1 s with the GIL released).
+    """
+
+    def __init__(self, data: "MapData") -> None:
+        from scipy.spatial import cKDTree
+
+        self.data = data
+        rng = data.finite_range()
+        x0, x1, y0, y1 = rng if rng is not None else (0.0, 1.0, 0.0, 1.0)
+        self.wx = (x1 - x0) or 1.0
+        self.wy = (y1 - y0) or 1.0
+        self.x0, self.y0 = x0, y0
+        u = (data.x - x0) / self.wx
+        v = (data.y - y0) / self.wy
+        ok = np.isfinite(u) & np.isfinite(v)
+        lengths = data.ends - data.starts
+        run_of = np.repeat(np.arange(data.n_runs), lengths)
+        self.run_of = run_of
+        self.ok = ok
+        seg_ok = ok[:-1] & ok[1:] & (run_of[:-1] == run_of[1:]) if ok.size > 1 else np.zeros(0, bool)
+        with np.errstate(invalid="ignore"):
+            seg_len = np.hypot(np.diff(u), np.diff(v)) if ok.size > 1 else np.zeros(0)
+        good = seg_len[seg_ok]
+        # the longest 1 % of segments are measured every time, so the search radius stays small for the others
+        self.cap = float(np.quantile(good, 0.99)) if good.size else 0.0
+        self.seg_ok = seg_ok
+        self.long = np.flatnonzero(seg_ok & (seg_len > self.cap))
+        self.points = np.flatnonzero(ok)
+        self.tree = cKDTree(np.column_stack([u[self.points], v[self.points]]), balanced_tree=False,
+                            compact_nodes=False)
+
+    def nearest(self, px: float, py: float, sx: float, sy: float,
+                radius_px: float = PICK_RADIUS_PX) -> tuple[int, int, float] | None:
+        """(run index, frame index, distance in pixels) of the path nearest to (px, py) when it passes within
+        ``radius_px``, else None; the same answer as :func:`nearest_on_paths` within that radius."""
+        if self.points.size == 0 or not (sx > 0 and sy > 0):
+            return None
+        a, b = self.wx / sx, self.wy / sy  # pixels per scaled unit along x and y
+        reach = (radius_px + self.cap * max(a, b) / 2.0) / min(a, b)
+        near = self.points[self.tree.query_ball_point(((px - self.x0) / self.wx, (py - self.y0) / self.wy), reach)]
+        n_seg = self.seg_ok.size
+        starts = np.concatenate([near, near - 1, self.long])
+        starts = np.unique(starts[(starts >= 0) & (starts < n_seg)])
+        starts = starts[self.seg_ok[starts]]
+        hit = _nearest_among(self.data, starts, np.asarray(near, dtype=np.intp), px, py, sx, sy)
+        return hit if hit is not None and hit[2] <= radius_px else None
+
+
+def _nearest_among(data: "MapData", seg_starts: np.ndarray, points: np.ndarray, px: float, py: float,
+                   sx: float, sy: float) -> tuple[int, int, float] | None:
+    """The nearest of the given segments (i -> i + 1, by first index) and points, in screen pixels (the rule of
+    :func:`nearest_on_paths`: a segment wins a tie with a point; the nearer end of the segment is the frame)."""
+    best: tuple[float, int] | None = None
+    if seg_starts.size:
+        ax, ay = (data.x[seg_starts] - px) / sx, (data.y[seg_starts] - py) / sy
+        bx, by = (data.x[seg_starts + 1] - px) / sx, (data.y[seg_starts + 1] - py) / sy
+        dx, dy = bx - ax, by - ay
+        len2 = dx * dx + dy * dy
+        with np.errstate(invalid="ignore", divide="ignore"):
+            t = np.clip(-(ax * dx + ay * dy) / np.where(len2 > 0, len2, 1.0), 0.0, 1.0)
+        cx, cy = ax + t * dx, ay + t * dy
+        d2 = cx * cx + cy * cy
+        k = int(np.argmin(d2))
+        best = (float(d2[k]), int(seg_starts[k]) + (1 if t[k] > 0.5 else 0))
+    if points.size:
+        x, y = (data.x[points] - px) / sx, (data.y[points] - py) / sy
+        p2 = x * x + y * y
+        k = int(np.argmin(p2))
+        if best is None or p2[k] < best[0]:
+            best = (float(p2[k]), int(points[k]))
+    if best is None:
+        return None
+    idx = best[1]
+    r = int(np.searchsorted(data.ends, idx, side="right"))
+    return r, int(idx - data.starts[r]), math.sqrt(best[0])
 
 
 @dataclass(frozen=True)

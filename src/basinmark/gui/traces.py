@@ -12,7 +12,8 @@ values come from the classification, added monitors from core.geometry.
 from __future__ import annotations
 
 import html
-from typing import Any, Sequence
+from contextlib import contextmanager
+from typing import Any, Iterator, Sequence
 
 import numpy as np
 import pyqtgraph as pg
@@ -103,6 +104,9 @@ class TracesView(QWidget):
         self._threshold_items: list[tuple[Any, pg.InfiniteLine]] = []   # (plot, line) of each threshold
         self._mark_items: list[tuple[Any, Any, int]] = []               # (plot, label, side) of each time mark
         self._label_texts: dict[int, list[str]] = {}                    # label id -> its texts, longest first
+        self.redraws = 0          # how many times every item was rebuilt (a load draws once: tests count it)
+        self._held = 0            # inside held(): redraw() waits for the end
+        self._pending: bool | None = None   # keep_view of the redraw waiting (None: none waits)
         self._layout_timer = QTimer(self)
         self._layout_timer.setSingleShot(True)
         self._layout_timer.setInterval(25)
@@ -219,8 +223,25 @@ class TracesView(QWidget):
         self._user = [tuple(m) for m in user_monitors]
         self.redraw(keep_view=True)
 
+    @contextmanager
+    def held(self) -> Iterator[None]:
+        """Several changes (run, rules, monitors) that each redraw the traces draw them once, at the end (the turn
+        that ends a load changed all three and rebuilt every plot item three times)."""
+        self._held += 1
+        try:
+            yield
+        finally:
+            self._held -= 1
+            if not self._held and self._pending is not None:
+                keep, self._pending = self._pending, None
+                self.redraw(keep_view=keep)
+
     def redraw(self, keep_view: bool = False) -> None:
         """Rebuild every item; ``keep_view`` keeps the zoom (else the whole run is shown)."""
+        if self._held:  # the view is kept only when every change held back would have kept it
+            self._pending = keep_view if self._pending is None else (self._pending and keep_view)
+            return
+        self.redraws += 1
         for p in self.plots:
             for item in list(p.listDataItems()):
                 p.removeItem(item)

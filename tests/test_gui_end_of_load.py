@@ -1,0 +1,135 @@
+"""The turn of the window's event loop that ends a load does each piece of work once: the traces are drawn once,
+progress reaches the window in a few signals rather than one per run, and the work in that turn does not grow
+with the number of runs beyond what whole-column (numpy/pandas) operations cost.  Work is counted, never timed
+(timings are in bench/bench_window_scale.py)."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+import pytest
+from PySide6.QtCore import QSettings
+
+from gui_fixtures import make_toy_set, toy_set
+
+pytestmark = pytest.mark.gui
+
+OUTCOMES = ["left", "right", "recrossing", "unfinished"]
+
+
+def _window(qtbot, tmp_path: Path, extras: bool = False):
+    from basinmark.gui.main_window import MainWindow
+
+    win = MainWindow(QSettings(str(tmp_path / "s.ini"), QSettings.Format.IniFormat))
+    if extras:
+        from basinmark.gui.app import install_extras
+
+        install_extras(win)
+    qtbot.addWidget(win)
+    win.show()
+    return win
+
+
+def test_traces_are_drawn_once_when_a_load_ends(qtbot, tmp_path, monkeypatch):
+    """Set, journal, rules and monitors all change at the end of a load: the traces are rebuilt once, not once
+    per change (three times before)."""
+    from basinmark.gui.main_window import MainWindow
+    from basinmark.gui.traces import TracesView
+
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES * 2)
+    inside = {"on": False}
+    draws: list[int] = []
+    real_draw, real_loaded = TracesView._draw_monitors, MainWindow._on_loaded
+
+    def counting_draw(self):
+        if inside["on"] and self is win.traces:
+            draws.append(1)
+        return real_draw(self)
+
+    def loaded(self, result):
+        inside["on"] = True
+        try:
+            return real_loaded(self, result)
+        finally:
+            inside["on"] = False
+
+    monkeypatch.setattr(TracesView, "_draw_monitors", counting_draw)
+    monkeypatch.setattr(MainWindow, "_on_loaded", loaded)
+    win = _window(qtbot, tmp_path)
+    win.open_set(root, use_cache=False)
+    qtbot.waitUntil(lambda: not win.busy, timeout=20000)
+    assert win.state.rules is not None and win.state.traj is not None
+    assert len(draws) == 1
+    # what is drawn is the final state: the run shown with its rules' thresholds
+    assert win.traces.threshold_lines
+    win.close()
+
+
+def test_progress_reaches_the_window_in_a_few_signals(qtbot, tmp_path, monkeypatch):
+    """Thousands of runs reported by the core become a handful of progress signals, the last one complete."""
+    from basinmark.core import sets
+    from basinmark.core.model import TrajectorySet
+    from basinmark.gui.loader import SetLoader
+
+    root = tmp_path / "many"
+    root.mkdir()
+
+    def fake_open(path, *, progress=None, on_run=None, **_kw):
+        for i in range(5000):
+            progress(i + 1, 5000, f"run-{i}")
+        return TrajectorySet(Path(path), {}, metadata={"name": "many"})
+
+    monkeypatch.setattr(sets, "open_set", fake_open)
+    loader = SetLoader(root, use_cache=False)
+    seen: list[tuple[str, int, int]] = []
+    loader.progress.connect(lambda phase, done, total: seen.append((phase, done, total)))
+    loader.run()  # in this thread: the signal is delivered at once
+    loading = [s for s in seen if s[0] == "Loading"]
+    assert 1 <= len(loading) <= 50
+    assert loading[0] == ("Loading", 1, 5000) and loading[-1] == ("Loading", 5000, 5000)
+
+
+def _profiled_end_of_load(qtbot, tmp_path: Path, n: int) -> int:
+    """Python calls (both Python and C functions, so per-element loops count) in the turn that ends the load of an
+    in-memory set of ``n`` runs, with every panel installed."""
+    from basinmark.core.model import TrajectorySet
+    from basinmark.core.sets import rules_path
+    from basinmark.gui.loader import classify_with_rules
+
+    root = tmp_path / f"set{n}"
+    tset = toy_set(root, (OUTCOMES * n)[:n])
+    result = {"path": root, "tset": tset, "error": "", "cancelled": False, "quick": None, "use_cache": False,
+              **classify_with_rules(tset, rules_path(root))}
+    win = _window(qtbot, tmp_path / f"w{n}", extras=True)
+    win.state.set_set(TrajectorySet(root, {}, metadata={"name": root.name}))
+    win._busy(True, "Loading")
+    win.state.add_runs(list(tset))
+    win.run_table.list_arrived_runs()
+    calls = [0]
+
+    def count(_frame, event, _arg):
+        if event in ("call", "c_call"):
+            calls[0] += 1
+
+    sys.setprofile(count)
+    try:
+        win._on_loaded(result)
+    finally:
+        sys.setprofile(None)
+    assert len(win.state.labels) == n and win.run_table.proxy.rowCount() == n
+    win.close()
+    return calls[0]
+
+
+def test_end_of_load_work_does_not_grow_per_run(qtbot, tmp_path):
+    """Reference: the same turn for 50 runs.  For 500 runs it may cost more calls only by a small amount per run
+    (whole-column work calls a function per column, not per row; what is left is reading each run's kept content
+    hash, two calls); a per-row Python loop anywhere in the turn (a dict per row, a call per cell, a map measured
+    in the turn, a redraw per change) adds several calls per run each (60 per run before)."""
+    (tmp_path / "a").mkdir()
+    (tmp_path / "b").mkdir()
+    small = _profiled_end_of_load(qtbot, tmp_path / "a", 50)
+    large = _profiled_end_of_load(qtbot, tmp_path / "b", 500)
+    per_run = (large - small) / 450
+    assert per_run < 3, f"{small} calls for 50 runs, {large} for 500: {per_run:.1f} more per run"

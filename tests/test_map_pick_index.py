@@ -1,0 +1,71 @@
+"""Picking on the map through the k-d tree (map_data.PathIndex) gives what a brute-force numpy search over every
+segment gives (map_data.nearest_on_paths, itself checked against a plain loop in test_gui_map.py), for random
+walks with gaps, single-frame runs, long jumps and axes of very different scales."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from basinmark.gui.map_data import MapAxis, MapData, PathIndex, nearest_on_paths
+
+
+def _walks(rng: np.random.Generator, n_runs: int, aspect: float) -> MapData:
+    lengths = rng.integers(1, 120, size=n_runs)
+    lengths[rng.random(n_runs) < 0.05] = 1          # some runs of one frame
+    ends = np.cumsum(lengths)
+    n = int(ends[-1])
+    steps = rng.normal(scale=0.05, size=(n, 2))
+    jumps = rng.random(n) < 0.003                    # a few long jumps (as a dihedral wrapping round)
+    steps[jumps] *= 200.0
+    xy = np.cumsum(steps, axis=0)
+    xy[:, 1] *= aspect
+    xy[rng.random(n) < 0.01] = np.nan               # frames whose monitor could not be measured
+    return MapData([f"r{i}" for i in range(n_runs)], xy[:, 0].copy(), xy[:, 1].copy(), ends - lengths, ends,
+                   MapAxis("a", (1, 2)), MapAxis("b", (1, 3)))
+
+
+@settings(max_examples=25, deadline=None)
+@given(st.integers(0, 10_000), st.sampled_from([1.0, 0.01, 50.0]), st.floats(0.3, 30.0))
+def test_index_finds_what_every_segment_search_finds(seed, aspect, zoom):
+    rng = np.random.default_rng(seed)
+    data = _walks(rng, 60, aspect)
+    index = PathIndex(data)
+    fx, fy = np.isfinite(data.x), np.isfinite(data.y)
+    span_x = np.ptp(data.x[fx]) or 1.0
+    span_y = np.ptp(data.y[fy]) or 1.0
+    sx, sy = span_x / (800 * zoom), span_y / (600 * zoom * rng.uniform(0.2, 5.0))  # any aspect on screen
+    radius = 8.0
+    for _ in range(40):
+        if rng.random() < 0.5:   # on or near a path, else anywhere
+            k = int(rng.choice(np.flatnonzero(fx & fy)))
+            px, py = data.x[k] + rng.normal(scale=6 * sx), data.y[k] + rng.normal(scale=6 * sy)
+        else:
+            px = rng.uniform(np.nanmin(data.x), np.nanmax(data.x))
+            py = rng.uniform(np.nanmin(data.y), np.nanmax(data.y))
+        brute = nearest_on_paths(data, px, py, sx, sy)
+        got = index.nearest(px, py, sx, sy, radius)
+        if brute is None or brute[2] > radius:
+            assert got is None
+            continue
+        assert got is not None
+        assert got[2] == pytest.approx(brute[2], rel=1e-9, abs=1e-9)
+        if (got[0], got[1]) != (brute[0], brute[1]):   # only a tie may pick another frame
+            frame = data.starts[got[0]] + got[1]
+            d = np.hypot((data.x[frame] - px) / sx, (data.y[frame] - py) / sy)
+            assert d <= radius + 1.0
+
+
+def test_index_of_paths_without_any_finite_point_picks_nothing():
+    data = MapData(["r0"], np.full(5, np.nan), np.full(5, np.nan), np.array([0]), np.array([5]),
+                   MapAxis("a", (1, 2)), MapAxis("b", (1, 3)))
+    assert PathIndex(data).nearest(0.0, 0.0, 0.01, 0.01) is None
+
+
+def test_index_is_built_once_per_data():
+    data = _walks(np.random.default_rng(1), 10, 1.0)
+    assert data.pick_index(build=False) is None
+    first = data.pick_index()
+    assert data.pick_index() is first and data.pick_index(build=False) is first
