@@ -7,7 +7,7 @@ place.  The offscreen platform has no window frame, so the whole 1366×768 is th
 from __future__ import annotations
 
 import pytest
-from PySide6.QtCore import QRect, QSettings
+from PySide6.QtCore import QRect, QSettings, Qt
 from PySide6.QtWidgets import QApplication
 
 from basinmark.gui.app import install_extras
@@ -118,3 +118,89 @@ def test_reset_layout_puts_every_panel_back(win, qtbot):
     assert not win.docks["summary"].isVisible() and not win.docks["summary"].isFloating()
     assert win.docks["runs"].isVisible() and win.docks["traces"].isVisible()
     _fits(win)
+
+
+# --- the sample set, with hand labels, every analysis view in turn -----------------------------------------
+
+#: every view that opens as a tab of the analysis area (the map and origins as well)
+ALL_VIEWS = ("summary", "review", "rules", "sensitivity", "origins", "map")
+#: hand labels that differ from the automatic outcome: enough for two-digit counts in the filter buttons
+N_HAND = 12
+
+
+def _hand_label_with_keys(win, qtbot, n: int) -> None:
+    """Label ``n`` alpha runs beta with the number key, from the run table, as a person does."""
+    from PySide6.QtTest import QTest
+
+    win.set_labeler("kim")
+    win.actions_["ask_reason"].setChecked(False)
+    win.actions_["auto_advance"].setChecked(False)
+    labels = win.state.labels
+    alpha = [r for r, a in zip(labels["run"], labels["auto_label"]) if a == "alpha"][:n]
+    products = list(win.state.rules.products)
+    key = getattr(Qt.Key, f"Key_{products.index('beta') + 1}")
+    view = win.run_table.view
+    for run in alpha:
+        win.run_table.go_to(run)
+        view.setFocus()
+        QTest.keyClick(view, key)
+    _settle(qtbot)
+    hand = win.state.labels.set_index("run")["hand_label"]
+    assert all(hand[r] == "beta" for r in alpha), "the number key did not label the runs"
+
+
+def test_sample_set_with_hand_labels_fits_with_every_view(qtbot, tmp_path):
+    """The bundled sample set, a dozen hand labels, then Summary, Review, Rules, Sensitivity, Origins and the
+    map in turn: the window's minimum size stays within 1366×768, the table shows 10 rows, the status bar is on
+    the screen, and no analysis view scrolls sideways."""
+    import shutil
+
+    from basinmark.gui.app import bundled_sample_set
+
+    root = tmp_path / "ringfork"
+    shutil.copytree(bundled_sample_set(), root, ignore=shutil.ignore_patterns(".basinmark-cache", "basinmark-labels.*"))
+    w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(w)
+    install_extras(w)
+    w.show()
+    qtbot.waitExposed(w)
+    fit_on_screen(w)
+    with qtbot.waitSignal(w.set_loaded, timeout=60000):
+        w.open_set(root, use_cache=False)
+    _settle(qtbot)
+    _hand_label_with_keys(w, qtbot, N_HAND)
+    assert w.run_table.filter_counts()["disagree"] >= 10
+    fit_on_screen(w)
+    _settle(qtbot)
+    _fits(w)
+    for view in ALL_VIEWS:
+        dock = w.docks[view]
+        dock.show()
+        dock.raise_()
+        _settle(qtbot)
+        fit_on_screen(w)
+        _settle(qtbot)
+        assert dock.isVisible() and not dock.visibleRegion().isEmpty(), f"{view} is not in front"
+        _fits(w)
+        _no_sideways_scrolling(dock, view)
+        # dragged narrower (the molecule wider), the view still fits its width
+        w.resizeDocks([dock], [380], Qt.Orientation.Horizontal)
+        _settle(qtbot)
+        assert dock.width() <= 400
+        _fits(w)
+        _no_sideways_scrolling(dock, view)
+        dock.hide()
+    w.close()
+
+
+def _no_sideways_scrolling(dock, view: str) -> None:
+    """The view's content fits the width its dock gives it: no horizontal scroll bar in its scroll area."""
+    from PySide6.QtWidgets import QScrollArea
+
+    area = dock.widget()
+    if not isinstance(area, QScrollArea):
+        return   # (the map fills its dock itself: its minimum width is part of the window's, checked above)
+    inner = area.widget()
+    need = max(inner.minimumSizeHint().width(), inner.minimumWidth())
+    assert need <= area.viewport().width(), f"{view} needs {need} px, gets {area.viewport().width()}"
+    assert not area.horizontalScrollBar().isVisible(), f"{view} scrolls sideways"

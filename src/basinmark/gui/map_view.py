@@ -28,6 +28,7 @@ from PySide6.QtWidgets import (QComboBox, QDockWidget, QGraphicsRectItem, QHBoxL
                                QVBoxLayout, QWidget)
 
 from basinmark.gui.colours import basin_colour, outcome_colour
+from basinmark.gui.flow_layout import flow_row
 from basinmark.gui.label_table import UNCLASSIFIED, final_label_counts
 
 from basinmark.gui.map_data import (NO_LABEL, _finite, MAX_DRAW_POINTS, PICK_RADIUS_PX, MapAxis, added_monitor_name, map_axes, MapData, decimated_indices, draw_points, grouped_paths, nearest_on_paths, basin_regions, thinning_note, INDEX_FROM_POINTS)  # noqa: F401  (some re-exported)
@@ -304,23 +305,28 @@ class MapPanel(QWidget):
         self._later.timeout.connect(self.refresh)
         lay = QVBoxLayout(self)
         lay.setContentsMargins(4, 4, 4, 4)
-        row = QHBoxLayout()
         self.x_combo = QComboBox(self)
         self.y_combo = QComboBox(self)
-        for combo, which in ((self.x_combo, "horizontal"), (self.y_combo, "vertical")):
+        pairs = []
+        for combo, which, text in ((self.x_combo, "horizontal", "&x:"), (self.y_combo, "vertical", "&y:")):
             combo.setToolTip(f"Monitor on the {which} axis (the rules' monitors and the ones you added)")
-            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToContents)
-        lx = QLabel("&x:", self)
-        lx.setBuddy(self.x_combo)
-        ly = QLabel("&y:", self)
-        ly.setBuddy(self.y_combo)
-        for w in (lx, self.x_combo, ly, self.y_combo):
-            row.addWidget(w)
-        row.addStretch(1)
+            # a long monitor name is cut short in the closed box (the list shows it whole) rather than widen the
+            # map, and with it the whole window, past a laptop screen
+            combo.setSizeAdjustPolicy(QComboBox.SizeAdjustPolicy.AdjustToMinimumContentsLengthWithIcon)
+            combo.setMinimumContentsLength(14)
+            pair = QWidget(self)
+            pl = QHBoxLayout(pair)
+            pl.setContentsMargins(0, 0, 0, 0)
+            label = QLabel(text, pair)
+            label.setBuddy(combo)
+            pl.addWidget(label)
+            pl.addWidget(combo)
+            pairs.append(pair)
         self.hint = QLabel("Click a path to open that run", self)
         self.hint.setEnabled(False)
-        row.addWidget(self.hint)
-        lay.addLayout(row)
+        self.hint.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        # the axis choosers and the hint wrap onto further rows in a narrow dock
+        lay.addWidget(flow_row(self, [*pairs, (self.hint, True)], h_spacing=8, v_spacing=2))
         self.note = QLabel(self)
         self.note.setWordWrap(True)
         self.note.setVisible(False)

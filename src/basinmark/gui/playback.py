@@ -7,6 +7,7 @@ from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QSlider, QToolButton, QVBoxLayout, QWidget
 
 from basinmark.core.classify import signed_commit_time
+from basinmark.gui.flow_layout import flow_row
 from basinmark.gui.icons import icon
 from basinmark.gui.state import AppState
 
@@ -140,29 +141,41 @@ class PlaybackBar(QWidget):
         # dragging the slider leaves the focus in the viewer, where the number keys label the run shown
         self.slider.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         outer.addWidget(self.slider)
-        lay = QHBoxLayout()
-        outer.addLayout(lay)
+        # three groups (moving, jumping to marks, time and speed) that wrap onto two rows when the centre is
+        # narrow: one row of them once set the window's smallest width past a laptop screen's
         self.buttons: dict[str, QToolButton] = {}
-        for name in ("jump_start", "skip_back", "step_back", "play_pause", "step_forward", "skip_forward",
-                     "jump_end", "jump_ts", "jump_commit", "loop"):
-            if name in actions:
-                b = QToolButton(self)
-                b.setDefaultAction(actions[name])
-                b.setAutoRaise(True)
-                lay.addWidget(b)
-                self.buttons[name] = b
-        lay.addStretch(1)
-        self.time_label = QLabel("–", self)
+        groups = []
+        for names in (("jump_start", "skip_back", "step_back", "play_pause", "step_forward", "skip_forward",
+                       "jump_end"), ("jump_ts", "jump_commit", "loop")):
+            group = QWidget(self)
+            gl = QHBoxLayout(group)
+            gl.setContentsMargins(0, 0, 0, 0)
+            gl.setSpacing(0)
+            for name in names:
+                if name in actions:
+                    b = QToolButton(group)
+                    b.setDefaultAction(actions[name])
+                    b.setAutoRaise(True)
+                    gl.addWidget(b)
+                    self.buttons[name] = b
+            groups.append(group)
+        when = QWidget(self)
+        wl = QHBoxLayout(when)
+        wl.setContentsMargins(0, 0, 0, 0)
+        wl.addStretch(1)
+        self.time_label = QLabel("–", when)
         self.time_label.setMinimumWidth(120)
         self.time_label.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-        lay.addWidget(self.time_label)
-        self.speed_box = QComboBox(self)
+        wl.addWidget(self.time_label)
+        self.speed_box = QComboBox(when)
         for s in SPEEDS:
             self.speed_box.addItem(f"{s:g}×", s)
         self.speed_box.setCurrentIndex(SPEEDS.index(1.0))
         self.speed_box.setToolTip("Playback speed ([ slower, ] faster)")
         self.speed_box.setFocusPolicy(Qt.FocusPolicy.NoFocus)
-        lay.addWidget(self.speed_box)
+        wl.addWidget(self.speed_box)
+        self.controls = flow_row(self, [*groups, (when, True)], h_spacing=8, v_spacing=0)
+        outer.addWidget(self.controls)
         self.slider.valueChanged.connect(state.set_frame)
         self.speed_box.currentIndexChanged.connect(lambda i: controller.set_speed(self.speed_box.itemData(i)))
         controller.speed_changed.connect(self._on_speed)

@@ -24,6 +24,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFormL
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.review import SE_METHOD, Review, compare_labels, current_auto_labels, people, render_markdown
 from basinmark.core.text import printable
+from basinmark.gui.flow_layout import flow_row
 from basinmark.gui.export_folder import ask_export_path
 from basinmark.gui.label_panel import panel_labels
 from basinmark.gui.review_sources import SourcePicker, source_labels
@@ -161,7 +162,6 @@ class ReviewPanel(QWidget):
         self.reviewer.setToolTip("Recorded as the reviewer of every decision")
         dec.addRow("Reviewer", self.reviewer)
         lay.addLayout(dec)
-        brow = QHBoxLayout()
         self.take_a = QPushButton("Take A", self)
         self.take_a.setToolTip("Decide for A's label (A)")
         self.take_b = QPushButton("Take B", self)
@@ -172,10 +172,9 @@ class ReviewPanel(QWidget):
         self.decide_button.setToolTip("Record the label chosen on the left")
         self.complete_button = QPushButton("Record Review Complete", self)
         self.complete_button.setToolTip("Write a 'review complete' event with this review's summary")
-        for w in (self.take_a, self.take_b, self.choice, self.decide_button, self.complete_button):
-            brow.addWidget(w)
-        brow.addStretch(1)
-        lay.addLayout(brow)
+        # the decision buttons wrap onto a second row in a narrow dock (one row scrolled the view sideways)
+        lay.addWidget(flow_row(self, (self.take_a, self.take_b, self.choice, self.decide_button,
+                                      self.complete_button)))
         self.status = QLabel(self)
         self.status.setWordWrap(True)
         lay.addWidget(self.status)

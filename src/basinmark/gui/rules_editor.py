@@ -117,6 +117,13 @@ class Reclassifier(QObject):
             self.thread.join(timeout)
 
 
+def _heading(html: str, parent: QWidget) -> QLabel:
+    """A section heading that wraps in a narrow dock (on one line it scrolled the editor sideways)."""
+    label = QLabel(html, parent)
+    label.setWordWrap(True)
+    return label
+
+
 class RulesEditor(QWidget):
     """Edit the rules of the open set; valid edits re-classify it in the background."""
 
@@ -158,8 +165,8 @@ class RulesEditor(QWidget):
         top.addRow("Dwell", self.dwell)
         lay.addLayout(top)
 
-        lay.addWidget(QLabel("<b>Monitors</b> (atoms numbered from 1: two = distance in Å, three = angle, "
-                             "four = dihedral, in degrees)", self))
+        lay.addWidget(_heading("<b>Monitors</b> (atoms numbered from 1: two = distance in Å, three = angle, "
+                               "four = dihedral, in degrees)", self))
         self.monitors = QTableWidget(0, 3, self)
         self.monitors.setHorizontalHeaderLabels(["name", "atoms", "kind"])
         self.monitors.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Stretch)
@@ -176,7 +183,7 @@ class RulesEditor(QWidget):
         row.addStretch(1)
         lay.addLayout(row)
 
-        lay.addWidget(QLabel("<b>Basins</b> (all conditions of a basin must hold)", self))
+        lay.addWidget(_heading("<b>Basins</b> (all conditions of a basin must hold)", self))
         self.conditions = QTableWidget(0, 4, self)
         self.conditions.setHorizontalHeaderLabels(["basin", "monitor", "condition", "value(s)"])
         self.conditions.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.Stretch)
@@ -198,7 +205,7 @@ class RulesEditor(QWidget):
         row.addStretch(1)
         lay.addLayout(row)
 
-        lay.addWidget(QLabel("<b>Flags</b> (0 switches a check off)", self))
+        lay.addWidget(_heading("<b>Flags</b> (0 switches a check off)", self))
         flags = QFormLayout()
         self.late = self._limit_spin(" fs", "A commit later than this after t = 0 is flagged")
         flags.addRow("Late commit after", self.late)

@@ -27,6 +27,7 @@ from basinmark.core.classify import signed_commit_time
 from basinmark.core.labels import FIXED_LABELS
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.label_table import LABEL_COLUMNS, final_label_counts
+from basinmark.gui.flow_layout import FlowLayout
 from basinmark.gui.state import AppState
 
 #: (column in the labels table, header shown)
@@ -844,8 +845,9 @@ class RunTable(QWidget):
         self.proxy.setSourceModel(self.model)
         lay = QVBoxLayout(self)
         lay.setContentsMargins(2, 2, 2, 2)
-        bar = QHBoxLayout()
-        bar.setSpacing(2)
+        # the quick filters wrap onto a second row in a narrow table (their counts grow with the labels: one row
+        # of them once set the whole window's smallest width past a laptop screen's)
+        bar = FlowLayout(None, 2, 0)
         self.filter_group = QButtonGroup(self)
         self.filter_group.setExclusive(True)
         self.filter_buttons: dict[str, QToolButton] = {}
@@ -860,9 +862,7 @@ class RunTable(QWidget):
             self.filter_group.addButton(b)
             self.filter_buttons[key] = b
             bar.addWidget(b)
-        bar.addStretch(1)
         self.filter_buttons["all"].setChecked(True)
-        lay.addLayout(bar)
         # search: runs whose id, labels, flags, labeler, reason or note contain the text (search_runs)
         self.search = QLineEdit(self)
         self.search.setObjectName("runSearch")
@@ -873,7 +873,14 @@ class RunTable(QWidget):
         self.search.textChanged.connect(self._search_changed)
         self.search.returnPressed.connect(lambda: self.view.setFocus(Qt.FocusReason.OtherFocusReason))
         self._mode_before_search = ""    # the quick filter to go back to when the search is cleared
-        lay.addWidget(self.search)
+        # the search shares the filters' flow: in a table a little too narrow for all six filters, the last
+        # filter moves beside the search instead of taking a row of its own
+        bar.addWidget(self.search, stretch=True)
+        self.search.setMinimumWidth(160)
+        self.filter_row = QWidget(self)
+        self.filter_row.setObjectName("filterRow")
+        self.filter_row.setLayout(bar)
+        lay.addWidget(self.filter_row)
         # "showing only these runs" (show_only_runs): a caption naming why, and a way back to every run
         only = QHBoxLayout()
         self.only_caption = QLabel(self)

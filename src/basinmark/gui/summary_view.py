@@ -16,7 +16,7 @@ import pandas as pd
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QColor, QPalette
-from PySide6.QtWidgets import (QAbstractItemView, QCheckBox, QComboBox, QDockWidget, QDoubleSpinBox, QFrame,
+from PySide6.QtWidgets import (QAbstractItemView, QBoxLayout, QCheckBox, QComboBox, QDockWidget, QDoubleSpinBox, QFrame,
                                QGridLayout, QHBoxLayout, QHeaderView, QLabel, QMainWindow, QPushButton, QSplitter,
                                QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
@@ -27,6 +27,7 @@ from basinmark.core.timing import (COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, co
 from basinmark.core.tst import MAX_DDG_KCAL
 from basinmark.core.units import convert_energy
 from basinmark.gui.colours import outcome_colour
+from basinmark.gui.flow_layout import flow_row
 from basinmark.gui.label_table import final_label_counts
 from basinmark.gui.plot_theme import theme_axes, theme_legend, warning_colour
 
@@ -137,7 +138,6 @@ class SummaryPanel(QWidget):
     def _build(self) -> None:
         outer = QVBoxLayout(self)
         outer.setContentsMargins(4, 4, 4, 4)
-        controls = QHBoxLayout()
         self.tst_box = QCheckBox("Compare with &TST:", self)
         self.tst_box.setToolTip("Show the product ratio transition state theory predicts from a ΔΔG‡")
         self.ddg = QDoubleSpinBox(self)
@@ -188,12 +188,24 @@ class SummaryPanel(QWidget):
         at = QLabel("at", self)
         need = QLabel("&Runs needed for:", self)
         need.setBuddy(self.half_width)
-        for w in (ratio, self.a_combo, colon, self.b_combo, self.tst_box, self.ddg, self.tst_for, self.major_combo,
-                  self.tst_over, self.minor_combo, self.tst_barriers, self.unit, at, self.temperature,
-                  need, self.half_width):
-            controls.addWidget(w)
-        controls.addStretch(1)
-        outer.addLayout(controls)
+        # the settings wrap onto further rows in a narrow view (on one row they needed 1150 px and the view
+        # scrolled sideways at 1366×768); words stay beside the box they are about
+        def group(*widgets) -> QWidget:
+            holder = QWidget(self)
+            hl = QHBoxLayout(holder)
+            hl.setContentsMargins(0, 0, 0, 0)
+            hl.setSpacing(4)
+            for w in widgets:
+                w.setParent(holder)
+                hl.addWidget(w)
+            return holder
+
+        self._pair_groups = (group(self.tst_for, self.major_combo), group(self.tst_over, self.minor_combo))
+        self.controls = flow_row(self, (group(ratio, self.a_combo, colon, self.b_combo), self.tst_box, self.ddg,
+                                        *self._pair_groups, self.tst_barriers,
+                                        group(self.unit, at, self.temperature), group(need, self.half_width)),
+                                 h_spacing=10, v_spacing=2)
+        outer.addWidget(self.controls)
 
         self.warning_box = WarningBox(self)
         self.warning_box.show_runs.connect(self.show_runs)
@@ -203,8 +215,9 @@ class SummaryPanel(QWidget):
 
         split = QSplitter(Qt.Orientation.Vertical, self)
         top = QWidget(split)
-        tl = QHBoxLayout(top)
+        tl = QBoxLayout(QBoxLayout.Direction.LeftToRight, top)
         tl.setContentsMargins(0, 0, 0, 0)
+        self._top_layout = tl
         self.table = QTableWidget(0, 5, top)
         self.table.setHorizontalHeaderLabels(["outcome", "runs", "fraction", "95 % interval", "all at once"])
         self.table.verticalHeader().setVisible(False)
@@ -262,7 +275,10 @@ class SummaryPanel(QWidget):
         top.setMinimumHeight(120)
         self.plots.setMinimumHeight(260)
         self.split = split
+        self._top = top
+        self._narrow: bool | None = None
         outer.addWidget(split, 1)
+        self._arrange(False)
 
         self.tst_box.toggled.connect(lambda _on: self._tst_enabled())
         self.major_combo.currentIndexChanged.connect(lambda _i: self.refresh())
@@ -274,6 +290,65 @@ class SummaryPanel(QWidget):
         self.half_width.valueChanged.connect(lambda _v: self.refresh())
         self.a_combo.currentIndexChanged.connect(lambda _i: self.refresh())
         self.b_combo.currentIndexChanged.connect(lambda _i: self.refresh())
+
+    # --- narrow and wide ------------------------------------------------------------------------
+    #: below this width (px) the tables stack above the text and the four plots stack in one column: side by
+    #: side they were cut off at the right in the analysis area of a 1366×768 window
+    NARROW_PX = 700
+    #: each plot's height when the plots stack (the view then scrolls down, never sideways)
+    STACKED_PLOT_PX = 210
+
+    def resizeEvent(self, event) -> None:  # noqa: N802
+        super().resizeEvent(event)
+        self._arrange(event.size().width() < self.NARROW_PX)
+        self._fit_top()
+
+    @staticmethod
+    def _table_height(table: QTableWidget) -> int:
+        """Height showing every row of ``table`` (header, frame and a sideways bar included)."""
+        h = table.horizontalHeader().height() + 2 * table.frameWidth()
+        h += sum(table.rowHeight(r) for r in range(table.rowCount()))
+        if table.horizontalHeader().length() > table.viewport().width():
+            h += table.horizontalScrollBar().sizeHint().height()
+        return h
+
+    def _fit_top(self) -> None:
+        """Narrow: the tables show all their rows and the text all its lines (the view scrolls down instead)."""
+        if not self._narrow:
+            return
+        tables = [t for t in (self.table, self.shares_table) if not t.isHidden()]
+        for t in tables:
+            t.setMinimumHeight(self._table_height(t))
+        spacing = self._top_layout.spacing()
+        need = sum(t.minimumHeight() + spacing for t in tables) + self.lines.heightForWidth(max(1, self.width() - 8))
+        self._top.setMinimumHeight(max(120, need))
+
+    def _arrange(self, narrow: bool) -> None:
+        """Tables beside the text and plots two by two (wide), or everything in one column (narrow)."""
+        if narrow == self._narrow:
+            return
+        self._narrow = narrow
+        self._top_layout.setDirection(QBoxLayout.Direction.TopToBottom if narrow
+                                      else QBoxLayout.Direction.LeftToRight)
+        ci = self.plots.ci
+        for p in self.all_plots:
+            if p in ci.items:
+                ci.removeItem(p)
+        cells = ((0, 0), (1, 0), (2, 0), (3, 0)) if narrow else ((0, 0), (0, 1), (1, 0), (1, 1))
+        for p, (row, col) in zip(self.all_plots, cells):
+            ci.addItem(p, row=row, col=col)
+        self.plots.setMinimumHeight(4 * self.STACKED_PLOT_PX if narrow else 260)
+        if not narrow:
+            for t in (self.table, self.shares_table):
+                t.setMinimumHeight(0)
+            self._top.setMinimumHeight(120)
+        self.split.setSizes([330, 4 * self.STACKED_PLOT_PX] if narrow else [190, 600])
+        self._fit_top()
+
+    @property
+    def narrow(self) -> bool:
+        """The one-column arrangement is in use."""
+        return bool(self._narrow)
 
     @property
     def all_plots(self) -> tuple:
@@ -316,6 +391,8 @@ class SummaryPanel(QWidget):
         for w in (self.ddg, self.major_combo, self.minor_combo, self.tst_for, self.tst_over):
             w.setVisible(not barriers)
             w.setEnabled(on)
+        for g in self._pair_groups:
+            g.setVisible(not barriers)
         self.tst_barriers.setVisible(barriers)
         self.tst_barriers.setEnabled(on)
 
@@ -567,6 +644,7 @@ class SummaryPanel(QWidget):
         text = [s._headline()] + [f"Note: {n}" for n in s.notes] + s.lines()  # the core's own sentences
         self.lines.setText("\n\n".join(text))
         self.warning_box.set_warnings(s.warnings)
+        self._fit_top()
         self._draw_outcomes(s)
         self._draw_convergence(s)
         self._draw_hist(self.p_commit, self.commit_hist, "commit_time")

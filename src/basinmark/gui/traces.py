@@ -340,7 +340,8 @@ class TracesView(QWidget):
             value = "—" if not np.isfinite(v) else f"{v:+.{digits}f}" if unit not in ("Å", "°") else f"{v:.{digits}f}"
             energies |= name.startswith("E_")
             shown = "Δ" + name if name.startswith("E_") else name  # energies are relative to t = 0, as plotted
-            rows.append(f"{html.escape(shown)} = {value}&nbsp;{html.escape(unit)}")
+            # (a word joiner after the slash: "kcal/mol" was broken over two lines in the narrow readout)
+            rows.append(f"{html.escape(shown)} = {value}&nbsp;{html.escape(unit).replace('/', '/&#8288;')}")
         if energies:
             rows.append("<small>ΔE: E − E(t=0)</small>")
         self.readout.setText("<br>".join(rows))
