@@ -204,3 +204,11 @@ def _no_sideways_scrolling(dock, view: str) -> None:
     need = max(inner.minimumSizeHint().width(), inner.minimumWidth())
     assert need <= area.viewport().width(), f"{view} needs {need} px, gets {area.viewport().width()}"
     assert not area.horizontalScrollBar().isVisible(), f"{view} scrolls sideways"
+    # a plot never scrolls: what it cannot fit (a long title, plots side by side) is cut off at the right
+    import pyqtgraph as pg
+
+    for gv in inner.findChildren(pg.GraphicsView):
+        centre = gv.centralWidget
+        if gv.isVisible() and centre is not None:
+            least = centre.effectiveSizeHint(Qt.SizeHint.MinimumSize).width()
+            assert least <= gv.viewport().width() + 1, f"{view}: plots need {least:.0f} px, get {gv.viewport().width()}"

@@ -49,6 +49,29 @@ def short_caption(warning: str, limit: int = 80) -> str:
     return first if len(first) <= limit else first[:limit - 1].rstrip() + "…"
 
 
+def wrap_title(text: str, limit: int = 36) -> str:
+    """``text`` on lines of at most about ``limit`` characters joined by ``<br>`` (a plot title is rich text):
+    broken first before a parenthesis and after a semicolon, then between words."""
+    text = str(text).replace("<br>", " ")
+    if len(text) <= limit:
+        return text
+    parts = re.split(r" (?=\()|(?<=;) ", text)
+    lines: list[str] = []
+    for part in parts:
+        if lines and len(lines[-1]) + 1 + len(part) <= limit:
+            lines[-1] += " " + part
+            continue
+        line = ""
+        for word in part.split(" "):
+            if line and len(line) + 1 + len(word) > limit:
+                lines.append(line)
+                line = word
+            else:
+                line = f"{line} {word}" if line else word
+        lines.append(line)
+    return "<br>".join(lines)
+
+
 class WarningBox(QFrame):
     """The summary's warnings, one line each, with a button that lists the runs a warning names."""
 
@@ -277,8 +300,10 @@ class SummaryPanel(QWidget):
         self.split = split
         self._top = top
         self._narrow: bool | None = None
+        self._narrow_plots: bool | None = None
         outer.addWidget(split, 1)
         self._arrange(False)
+        self._arrange_plots(False)
 
         self.tst_box.toggled.connect(lambda _on: self._tst_enabled())
         self.major_combo.currentIndexChanged.connect(lambda _i: self.refresh())
@@ -295,12 +320,15 @@ class SummaryPanel(QWidget):
     #: below this width (px) the tables stack above the text and the four plots stack in one column: side by
     #: side they were cut off at the right in the analysis area of a 1366×768 window
     NARROW_PX = 700
+    #: below this width (px) the plots stack in one column (two plots side by side need about 650 px)
+    NARROW_PLOTS_PX = 700
     #: each plot's height when the plots stack (the view then scrolls down, never sideways)
     STACKED_PLOT_PX = 210
 
     def resizeEvent(self, event) -> None:  # noqa: N802
         super().resizeEvent(event)
         self._arrange(event.size().width() < self.NARROW_PX)
+        self._arrange_plots(event.size().width() < self.NARROW_PLOTS_PX)
         self._fit_top()
 
     @staticmethod
@@ -313,15 +341,25 @@ class SummaryPanel(QWidget):
         return h
 
     def _fit_top(self) -> None:
-        """Narrow: the tables show all their rows and the text all its lines (the view scrolls down instead)."""
+        """Narrow: the tables show all their rows and the text all its lines, the plots below them (the view
+        scrolls down instead of sideways)."""
+        tables = (self.table, self.shares_table)
         if not self._narrow:
+            for t in tables:
+                t.setMinimumHeight(0)
+                t.setMaximumHeight(16777215)
             return
-        tables = [t for t in (self.table, self.shares_table) if not t.isHidden()]
-        for t in tables:
-            t.setMinimumHeight(self._table_height(t))
+        shown = [t for t in tables if not t.isHidden()]
+        for t in shown:
+            t.setFixedHeight(self._table_height(t))
         spacing = self._top_layout.spacing()
-        need = sum(t.minimumHeight() + spacing for t in tables) + self.lines.heightForWidth(max(1, self.width() - 8))
-        self._top.setMinimumHeight(max(120, need))
+        width = self._top.width() if self._top.width() > 50 else self.width() - 8
+        need = sum(t.height() + spacing for t in shown) + self.lines.heightForWidth(max(1, width))
+        need = max(120, need)
+        self._top.setMinimumHeight(need)
+        sizes = self.split.sizes()
+        if len(sizes) == 2 and sizes[0] != need:
+            self.split.setSizes([need, max(self.plots.minimumHeight(), sum(sizes) - need)])
 
     def _arrange(self, narrow: bool) -> None:
         """Tables beside the text and plots two by two (wide), or everything in one column (narrow)."""
@@ -330,6 +368,15 @@ class SummaryPanel(QWidget):
         self._narrow = narrow
         self._top_layout.setDirection(QBoxLayout.Direction.TopToBottom if narrow
                                       else QBoxLayout.Direction.LeftToRight)
+        if not narrow:
+            self._top.setMinimumHeight(120)
+        self._fit_top()
+
+    def _arrange_plots(self, narrow: bool) -> None:
+        """The four plots two by two, or (narrow) one above the other."""
+        if narrow == self._narrow_plots:
+            return
+        self._narrow_plots = narrow
         ci = self.plots.ci
         for p in self.all_plots:
             if p in ci.items:
@@ -338,17 +385,12 @@ class SummaryPanel(QWidget):
         for p, (row, col) in zip(self.all_plots, cells):
             ci.addItem(p, row=row, col=col)
         self.plots.setMinimumHeight(4 * self.STACKED_PLOT_PX if narrow else 260)
-        if not narrow:
-            for t in (self.table, self.shares_table):
-                t.setMinimumHeight(0)
-            self._top.setMinimumHeight(120)
         self.split.setSizes([330, 4 * self.STACKED_PLOT_PX] if narrow else [190, 600])
-        self._fit_top()
 
     @property
     def narrow(self) -> bool:
-        """The one-column arrangement is in use."""
-        return bool(self._narrow)
+        """The plots stand in one column (the view is narrow)."""
+        return bool(self._narrow_plots)
 
     @property
     def all_plots(self) -> tuple:
@@ -367,7 +409,9 @@ class SummaryPanel(QWidget):
         self.warning_box.set_colour(warn.name())
 
     def _title(self, plot, text: str) -> None:
-        plot.setTitle(text, color=self.palette().color(QPalette.ColorRole.Text), size="10pt")
+        # wrapped: a plot is never narrower than its title, and a long one-line title cut the plots off at the
+        # right in a narrow analysis area
+        plot.setTitle(wrap_title(text), color=self.palette().color(QPalette.ColorRole.Text), size="10pt")
 
     def changeEvent(self, event) -> None:  # noqa: N802
         if event.type() == event.Type.PaletteChange and hasattr(self, "plots"):
