@@ -9,6 +9,7 @@ rate of change of the B–C distance at t = 0.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -113,3 +114,38 @@ def write_toy_set(folder: Path, n: int = 40, seed: int = 1, decide=by_rate_bc, v
                 lines.append(f"{s} {p[0]:.6f} {p[1]:.6f} {p[2]:.6f}{extra}")
         (folder / "runs" / f"{rid}.xyz").write_text("\n".join(lines) + "\n", encoding="ascii")
     return outcome
+
+
+# --- a set made by the demo generator, whose outcome follows one mode's starting phase ----------------------
+
+#: enough runs for the claim (accuracy > 0.95 with the rarest product well above the too-few-runs limit), few
+#: frames (100 fs halves) to keep it to seconds
+PHASE_DEMO_RUNS = 160
+PHASE_DEMO_ARGS = ["--max-time", "100", "--seed", "7"]
+
+
+@dataclass
+class PhaseDemo:
+    root: Path
+    runs: int
+    mode: int  # the deciding mode, numbered from 1 as people see it
+    outcomes: "pd.Series"  # the rules' classification, by run
+
+
+def make_phase_demo(folder: Path, runs: int = PHASE_DEMO_RUNS) -> PhaseDemo:
+    """``basinmark make-demo FOLDER --phase-decides`` (through the CLI) and what the generator says decides."""
+    import pandas as pd
+
+    from basinmark.cli import main
+    from basinmark.core.classify import classify_set
+    from basinmark.core.rules import load_rules
+    from basinmark.core.sets import open_set, rules_path
+
+    root = Path(folder) / "phase"
+    assert main(["make-demo", str(root), "--runs", str(runs), "--phase-decides"] + PHASE_DEMO_ARGS) == 0
+    record = pd.read_csv(root / "generator-record.csv")
+    modes = set(record["decide_mode"])
+    assert len(modes) == 1
+    tset = open_set(root, use_cache=False)
+    table = classify_set(tset, load_rules(rules_path(root), n_atoms=tset.n_atoms))
+    return PhaseDemo(root, runs, int(modes.pop()), table.set_index("run")["outcome"])

@@ -38,8 +38,11 @@ def test_origins_writes_png_csv_and_json(toy_root, tmp_path, capsys):
     assert data["importance"][0]["coordinate"] == "dr_bc/dt [angstrom/fs]"
     assert data["permutation_test"]["permutations"] == 19
     assert len(data["runs"]) == 40 and data["sentence"].startswith("The outcome is decided mostly by")
+    assert data["regularisation"]["C"] == "chosen by inner cross-validation"
+    assert len(data["regularisation"]["chosen_C"]) == 5 and data["settings"]["inner_folds"] == 3
     printed = capsys.readouterr()
     assert "decided mostly by the rate of change of r_bc" in printed.out
+    assert "chosen in every training fold by an inner 3-fold cross-validation" in printed.out
     assert "not yet classified" in printed.err  # outcomes from an in-memory classification: said so
 
 
@@ -48,8 +51,10 @@ def test_origins_svg_and_chosen_axes_and_bad_axis(toy_root, tmp_path, capsys):
     out = tmp_path / "o.svg"
     assert main(["origins", str(root), "-o", str(out), "--x", "r_ab [angstrom]", "--y", "r_cd [angstrom]",
                  "--permutations", "3", "--repeats", "1", "-q", "--csv", str(tmp_path / "t.csv"),
-                 "--json", str(tmp_path / "a.json")]) == 0
+                 "--json", str(tmp_path / "a.json"), "--fixed-c", "0.5"]) == 0
     assert out.read_text(encoding="utf-8").lstrip().startswith("<?xml")
+    fixed = json.loads((tmp_path / "a.json").read_text(encoding="utf-8"))["regularisation"]
+    assert fixed["C"] == 0.5 and set(fixed["chosen_C"]) == {0.5} and "fixed" in fixed["sentence"]
     assert (tmp_path / "t.csv").is_file() and (tmp_path / "a.json").is_file()
     code = main(["origins", str(root), "-o", str(tmp_path / "x.png"), "--x", "nope", "--permutations", "3",
                  "--repeats", "1", "-q"])

@@ -14,7 +14,7 @@ from basinmark.gui.origins_view import install_origins_dock
 
 pytestmark = pytest.mark.gui
 
-QUICK = Settings(n_repeats=1, n_permutations=19, importance_repeats=2)
+QUICK = Settings(n_repeats=1, n_permutations=19, importance_repeats=2, C=1.0)  # fixed C: no inner folds
 
 
 @pytest.fixture

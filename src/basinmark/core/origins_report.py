@@ -18,6 +18,7 @@ import pandas as pd
 
 from basinmark.core.atomic_write import write_text_atomic
 from basinmark.core.csv_safe import csv_text
+from basinmark.core.origins import C_GRID
 
 
 def _num(v):
@@ -49,6 +50,12 @@ def analysis_dict(a) -> dict:
         "classified": a.classified,
         "predictable": a.predictable,
         "classifier": "logistic regression on standardised coordinates (scikit-learn)",
+        "regularisation": {"penalty": s.penalty, "C": "chosen by inner cross-validation" if s.C is None else s.C,
+                           "inner_folds": s.inner_splits if s.C is None else None,
+                           "C_grid": [float(c) for c in C_GRID] if s.C is None else None,
+                           "chosen_C": [_num(c) for c in a.chosen_C],
+                           "chosen_C_median": _num(float(np.median(a.chosen_C))) if a.chosen_C else None,
+                           "sentence": a.regularisation()},
         "accuracy": {"value": _num(a.accuracy), "standard_error": _num(a.accuracy_se),
                      "interval": [_num(x) for x in a.accuracy_interval],
                      "per_repeat": [_num(x) for x in a.accuracy_repeats]},
@@ -64,7 +71,7 @@ def analysis_dict(a) -> dict:
         "notes": [str(n) for n in a.notes],
         "settings": {"folds": s.n_splits, "repeats": s.n_repeats, "permutations": s.n_permutations,
                      "importance_shuffles": s.importance_repeats, "seed": s.seed, "confidence": s.confidence,
-                     "C": s.C},
+                     "C": s.C, "penalty": s.penalty, "inner_folds": s.inner_splits},
     }
 
 

@@ -166,10 +166,7 @@ class OriginsCanvas(pg.PlotWidget):
         a = self.analysis
         if not a.classified or len(a.classes) < 2 or self.axes[0] == self.axes[1]:
             return
-        from basinmark.core.origins import boundary_accuracy
-
-        model = a.boundary_model(self.axes)
-        self.boundary_accuracy = boundary_accuracy(a, self.axes)
+        model, self.boundary_accuracy = a.boundary(self.axes)  # the default pair was fitted by the worker
         xs, ys, proba = boundary_grid(model, xv, yv, a.classes)
         index = np.argmax(proba, axis=-1)
         rgba = np.zeros(index.shape + (4,), np.ubyte)
