@@ -248,7 +248,7 @@ def test_command_rechecks_flags_and_stale_automatic_labels(set_dir, capsys):
     assert code == 0
     assert "3 of 46 automatic labels in the journal differ from what the current rules give" in out
     assert "2 counted runs failed the energy check" in out and "1 of them kept by hand" in out
-    assert "1 counted run flagged for a look (late_commit 1, several_visits 1) has no hand label yet" in out
+    assert "1 counted run flagged for a look (late commit 1, several visits 1) has no hand label yet" in out
     # the counts still come from the journal: run-000 and run-001 are alpha there
     assert "alpha : beta = 3.00" in out
     calls.clear()
@@ -262,7 +262,7 @@ def test_energy_check_warning_in_the_fallback_path(set_dir, capsys):
         t.metadata["flags"] = "energy_drift;short_run"
     code, out, _ = run_cli(["summary", str(root)], capsys)
     assert "4 counted runs failed the energy check" in out and "none of them looked at by hand" in out
-    assert "short_run 4" in out
+    assert "short run 4" in out
 
 
 # --- end to end: real files, real set loading, classification and journal ----------------

@@ -49,6 +49,11 @@ from basinmark.core.rules import Rules, RulesError
 from basinmark.core.timing import _TOL_FS, COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, formation_pair  # noqa: F401
 
 FLAG_NAMES = ("late_commit", "several_visits", "conflicting_basins", "energy_drift", "short_run", "data_changed")
+
+
+def flag_words(flags: str | None) -> str:
+    """``late_commit;several_visits`` as people read it: ``late commit, several visits``."""
+    return ", ".join(f.strip().replace("_", " ") for f in (flags or "").split(";") if f.strip())
 TABLE_COLUMNS = ["run", "outcome", "backward_basin", "forward_basin",
                  "product_end", "product_first_arrival_fs", "product_final_entry_fs",
                  "reactant_end", "reactant_first_arrival_fs", "reactant_final_entry_fs",

@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from basinmark.core import stats
+from basinmark.core.classify import flag_words
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.tst import Experiment, TSTEstimate
 from basinmark.core.units import ENERGY_UNITS, convert_energy
@@ -466,7 +467,7 @@ def flag_warnings(labels: pd.DataFrame) -> list[SummaryWarning]:
     if tally:
         waiting = counted & ~by_hand & flags.apply(lambda f: bool(set(f.split(";")) & set(tally)))
         n = int(waiting.sum())
-        listed = ", ".join(f"{name} {k}" for name, k in sorted(tally.items()))
+        listed = ", ".join(f"{flag_words(name)} {k}" for name, k in sorted(tally.items()))
         out.append(SummaryWarning(f"{n} counted run{'s' if n != 1 else ''} flagged for a look ({listed}) "
                                   f"{'have' if n != 1 else 'has'} no hand label yet.", runs[waiting.to_numpy()]))
     return out

@@ -319,7 +319,7 @@ class LabelPanel(QWidget):
         if row.get("data_changed"):
             extra = "<br><b>The run's files changed since it was labeled.</b>"
         if row.get("flags"):
-            from basinmark.gui.run_table import flag_words
+            from basinmark.core.classify import flag_words
 
             extra += f"<br>flags: {escape(flag_words(row['flags']))}"
         self.current.setText(f"automatic: {escape(row['auto_label'] or '—')}; "

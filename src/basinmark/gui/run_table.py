@@ -23,7 +23,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QButtonGroup, QFrame, QHBoxLay
                                QSizePolicy, QStyle, QTableView, QToolButton, QVBoxLayout, QWidget)
 
 from basinmark.core import stats
-from basinmark.core.classify import signed_commit_time
+from basinmark.core.classify import flag_words, signed_commit_time
 from basinmark.core.labels import FIXED_LABELS
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.label_table import LABEL_COLUMNS, final_label_counts
@@ -102,11 +102,6 @@ def filter_counts(df: pd.DataFrame) -> dict[str, int]:
     if not len(df):
         return {k: 0 for k, _t, _tip in FILTERS}
     return {k: int(m.sum()) for k, m in filter_masks(df).items()}
-
-
-def flag_words(flags: str | None) -> str:
-    """``late_commit;several_visits`` as people read it: ``late commit, several visits``."""
-    return ", ".join(f.strip().replace("_", " ") for f in (flags or "").split(";") if f.strip())
 
 
 _NOTE_ROLES = (Qt.ItemDataRole.DecorationRole, Qt.ItemDataRole.ToolTipRole)
