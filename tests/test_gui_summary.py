@@ -224,3 +224,44 @@ def test_hidden_summary_waits_and_catches_up(win, tmp_path):
     assert "| left | 6 |" in md and not panel.stale  # an export brings it up to date first
     win.docks["summary"].show()
     assert _shown_table(panel)["left"][0] == 6
+
+
+def test_narrow_summary_stacks_its_plots_and_the_wheel_scrolls_past_them(win, qtbot):
+    """In a narrow dock the plots stand in one column (the view scrolls down, never sideways); a plain wheel over
+    a plot scrolls the view instead of zooming the plot, Ctrl+wheel still zooms."""
+    from PySide6.QtCore import QPoint, QPointF, Qt
+    from PySide6.QtGui import QWheelEvent
+    from PySide6.QtWidgets import QApplication
+
+    dock = win.docks["summary"]
+    panel = win.summary_panel
+    dock.raise_()
+    win.resizeDocks([dock], [380], Qt.Orientation.Horizontal)
+    for _ in range(3):
+        QApplication.processEvents()
+        qtbot.wait(20)
+    area = dock.widget()
+    assert panel.narrow and panel.width() < panel.NARROW_PLOTS_PX
+    cols = {c for p in panel.all_plots for _r, c in panel.plots.ci.items[p]}
+    assert cols == {0}, "the plots should stand in one column"
+    assert not area.horizontalScrollBar().isVisible()
+    bar = area.verticalScrollBar()
+    assert bar.maximum() > 0, "the stacked plots should make the view scroll down"
+    bar.setValue(0)
+    before = panel.p_out.viewRange()
+    vp = panel.plots.viewport()
+    at = QPointF(vp.width() / 2, 40)
+
+    def wheel(mods):
+        ev = QWheelEvent(at, QPointF(vp.mapToGlobal(QPoint(int(at.x()), int(at.y())))), QPoint(0, 0), QPoint(0, -120),
+                         Qt.MouseButton.NoButton, mods, Qt.ScrollPhase.NoScrollPhase, False)
+        QApplication.sendEvent(vp, ev)
+
+    wheel(Qt.KeyboardModifier.NoModifier)
+    assert bar.value() > 0, "a plain wheel over the plots did not scroll the view"
+    assert panel.p_out.viewRange() == before, "a plain wheel zoomed the plot"
+    # Ctrl+wheel over the middle of the first plot zooms it
+    centre = panel.p_out.vb.sceneBoundingRect().center()
+    at = QPointF(panel.plots.mapFromScene(centre))
+    wheel(Qt.KeyboardModifier.ControlModifier)
+    assert panel.p_out.viewRange() != before, "Ctrl+wheel should zoom the plot"

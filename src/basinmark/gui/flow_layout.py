@@ -120,11 +120,30 @@ class FlowLayout(QLayout):
         return y - self._v - inner.y() + m.top() + m.bottom() if y > inner.y() else m.top() + m.bottom()
 
 
+class FlowRow(QWidget):
+    """A widget around a :class:`FlowLayout` that never gets less height than its rows need at its width.
+
+    (Box layouts ask an item's height for its width only while there is room; squeezed, they would give it one
+    row's height and cut the others off.)"""
+
+    def resizeEvent(self, event) -> None:  # noqa: N802
+        super().resizeEvent(event)
+        lay = self.layout()
+        if lay is not None:
+            need = lay.heightForWidth(event.size().width())
+            if need != self.minimumHeight():
+                self.setMinimumHeight(need)
+
+    def setLayout(self, layout) -> None:  # noqa: N802
+        super().setLayout(layout)
+        self.flow = layout
+
+
 def flow_row(parent: QWidget, widgets, h_spacing: int = 4, v_spacing: int = 2) -> QWidget:
-    """A widget holding ``widgets`` in a :class:`FlowLayout` (a widget, so box layouts ask its height for width).
+    """A :class:`FlowRow` holding ``widgets`` in a :class:`FlowLayout`.
 
     An entry ``(widget, True)`` stretches to fill its row."""
-    holder = QWidget(parent)
+    holder = FlowRow(parent)
     flow = FlowLayout(holder, h_spacing, v_spacing)
     for w in widgets:
         if isinstance(w, tuple):

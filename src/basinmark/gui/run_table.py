@@ -27,7 +27,7 @@ from basinmark.core.classify import flag_words, signed_commit_time
 from basinmark.core.labels import FIXED_LABELS
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.label_table import LABEL_COLUMNS, final_label_counts
-from basinmark.gui.flow_layout import FlowLayout
+from basinmark.gui.flow_layout import FlowLayout, FlowRow
 from basinmark.gui.state import AppState
 
 #: (column in the labels table, header shown)
@@ -872,7 +872,7 @@ class RunTable(QWidget):
         # filter moves beside the search instead of taking a row of its own
         bar.addWidget(self.search, stretch=True)
         self.search.setMinimumWidth(160)
-        self.filter_row = QWidget(self)
+        self.filter_row = FlowRow(self)
         self.filter_row.setObjectName("filterRow")
         self.filter_row.setLayout(bar)
         lay.addWidget(self.filter_row)

@@ -14,11 +14,12 @@ import re
 import numpy as np
 import pandas as pd
 import pyqtgraph as pg
-from PySide6.QtCore import Qt, Signal
+from PySide6.QtCore import QEvent, Qt, Signal
 from PySide6.QtGui import QColor, QPalette
-from PySide6.QtWidgets import (QAbstractItemView, QBoxLayout, QCheckBox, QComboBox, QDockWidget, QDoubleSpinBox, QFrame,
-                               QGridLayout, QHBoxLayout, QHeaderView, QLabel, QMainWindow, QPushButton, QSplitter,
-                               QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QAbstractItemView, QAbstractScrollArea, QApplication, QBoxLayout, QCheckBox, QComboBox,
+                               QDockWidget, QDoubleSpinBox, QFrame, QGridLayout, QHBoxLayout, QHeaderView, QLabel,
+                               QMainWindow, QPushButton, QSplitter, QTableWidget, QTableWidgetItem, QVBoxLayout,
+                               QWidget)
 
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.summary import Summary, build_summary, run_ids_of
@@ -290,6 +291,8 @@ class SummaryPanel(QWidget):
                 p.getAxis(name).enableAutoSIPrefix(False)  # fractions and counts read as they are
         for p in (self.p_commit, self.p_conv, self.p_gap):
             p.addLegend(offset=(-8, 8), labelTextSize="8pt")
+        # the wheel scrolls the view (the plots stand in one column when narrow); Ctrl+wheel zooms a plot
+        self.plots.viewport().installEventFilter(self)
         split.addWidget(top)
         split.addWidget(self.plots)
         split.setStretchFactor(0, 0)
@@ -315,6 +318,18 @@ class SummaryPanel(QWidget):
         self.half_width.valueChanged.connect(lambda _v: self.refresh())
         self.a_combo.currentIndexChanged.connect(lambda _i: self.refresh())
         self.b_combo.currentIndexChanged.connect(lambda _i: self.refresh())
+
+    def eventFilter(self, watched, event) -> bool:  # noqa: N802
+        """A plain wheel over the plots scrolls the view around them instead of zooming a plot."""
+        if (event.type() == QEvent.Type.Wheel and watched is self.plots.viewport()
+                and not event.modifiers() & Qt.KeyboardModifier.ControlModifier):
+            area = self.parentWidget()
+            while area is not None and not isinstance(area, QAbstractScrollArea):
+                area = area.parentWidget()
+            if area is not None:
+                QApplication.sendEvent(area.verticalScrollBar(), event)
+                return True
+        return super().eventFilter(watched, event)
 
     # --- narrow and wide ------------------------------------------------------------------------
     #: below this width (px) the tables stack above the text and the four plots stack in one column: side by
