@@ -18,6 +18,7 @@ run, each of their sub-folders.  Every decision is returned as a sentence: what 
 
 from __future__ import annotations
 
+import os
 import re
 from collections import Counter, defaultdict
 from dataclasses import dataclass, field
@@ -104,11 +105,17 @@ def _folders(root: Path, names) -> list[Path]:
     return seen
 
 
-def _listing(folder: Path) -> list[Path]:
+def _listing(folder: Path) -> list[tuple[Path, bool, bool]]:
+    """(path, is a file, is a folder) of each entry not hidden, by name: one ``scandir``, whose entries know
+    their type without a ``stat`` each (measured: half of finding the runs of 2,000 runs went to sorting
+    paths and to one ``stat`` per file)."""
     try:
-        return sorted(p for p in folder.iterdir() if not p.name.startswith("."))
+        with os.scandir(folder) as it:
+            items = [(e.name, e.is_file(), e.is_dir()) for e in it if not e.name.startswith(".")]
     except OSError:
         return []
+    items.sort()
+    return [(folder / name, is_file, is_dir) for name, is_file, is_dir in items]
 
 
 @dataclass
@@ -124,11 +131,11 @@ def find_by_names(root: Path, folders) -> Pairing:
     bases = _folders(root, folders)
     candidates: list[tuple[Path, Path]] = []  # (folder, file)
     for base in bases:
-        for entry in _listing(base):
-            if entry.is_file():
+        for entry, is_file, is_dir in _listing(base):
+            if is_file:
                 candidates.append((base, entry))
-            elif entry.is_dir() and entry.name not in _SKIP_FOLDERS and entry not in bases:
-                candidates.extend((entry, f) for f in _listing(entry) if f.is_file())
+            elif is_dir and entry.name not in _SKIP_FOLDERS and entry not in bases:
+                candidates.extend((entry, f) for f, f_is_file, _ in _listing(entry) if f_is_file)
     groups: dict[tuple[Path, str, str], _Group] = {}
     for folder, path in candidates:
         split = split_name(path.name)
@@ -250,11 +257,11 @@ def find_by_patterns(root: Path, layout) -> Pairing:
     ids: dict[tuple, str] = {}
     for base in bases:
         entries: list[tuple[str, Path]] = []
-        for entry in _listing(base):
-            if entry.is_file():
+        for entry, is_file, is_dir in _listing(base):
+            if is_file:
                 entries.append((entry.name, entry))
-            elif entry.is_dir() and entry.name not in _SKIP_FOLDERS and layout.nested:
-                entries.extend((f"{entry.name}/{f.name}", f) for f in _listing(entry) if f.is_file())
+            elif is_dir and entry.name not in _SKIP_FOLDERS and layout.nested:
+                entries.extend((f"{entry.name}/{f.name}", f) for f, f_is_file, _ in _listing(entry) if f_is_file)
         for rel, path in entries:
             hit = layout.role_of(rel)
             if hit is None:

@@ -40,20 +40,29 @@ def _files(plan: SetPlan) -> list[Path]:
     return [p for spec in plan.runs for p in spec.files]
 
 
+def _named(plan: SetPlan) -> list[tuple[Path, str]]:
+    """Every file of the plan with its name: the path below the set folder, else the whole path.
+
+    Cut from the path's text (what ``Path.relative_to`` gives, which cost a quarter of a quick open's time
+    before its first run at 2,000 runs, measured)."""
+    prefix = str(plan.root).rstrip(os.sep) + os.sep
+    cut = len(prefix)
+    return [(p, s[cut:] if (s := str(p)).startswith(prefix) else s) for p in _files(plan)]
+
+
 def _name(plan: SetPlan, path: Path) -> str:
-    try:
-        return str(Path(path).relative_to(plan.root))
-    except ValueError:
-        return str(path)
+    prefix = str(plan.root).rstrip(os.sep) + os.sep
+    s = str(path)
+    return s[len(prefix):] if s.startswith(prefix) else s
 
 
-def file_stats(plan: SetPlan) -> dict[str, tuple[int, int]] | None:
+def file_stats(plan: SetPlan, named: list[tuple[Path, str]] | None = None) -> dict[str, tuple[int, int]] | None:
     """(size, modification time in ns) of every file of the plan, by name; None when one cannot be read."""
     out = {}
     try:
-        for p in _files(plan):
+        for p, name in (_named(plan) if named is None else named):
             st = os.stat(p)
-            out[_name(plan, p)] = (int(st.st_size), int(st.st_mtime_ns))
+            out[name] = (st.st_size, st.st_mtime_ns)
     except OSError:
         return None
     return out
@@ -131,12 +140,16 @@ def quick_open(path: str | Path, *, on_run: Callable[[Trajectory], None] | None 
     rec = read_record(plan)
     if rec is None:
         return None
-    stats = file_stats(plan)
-    if stats is None or set(stats) != set(rec["files"]):
+    named = _named(plan)
+    stats = file_stats(plan, named)
+    files = rec["files"]
+    if stats is None or len(stats) != len(files):
         return None
-    if any(tuple(rec["files"][name][:2]) != st for name, st in stats.items()):
-        return None
-    hashes = {p: rec["files"][_name(plan, p)][2] for p in _files(plan)}
+    for name, (size, mtime) in stats.items():
+        got = files.get(name)
+        if got is None or got[0] != size or got[1] != mtime:
+            return None
+    hashes = {p: files[name][2] for p, name in named}
     if not _all_cached(plan, hashes):
         return None
     tset = open_plan(plan, known_hashes=hashes, on_run=on_run, progress=progress, cancel=cancel)
