@@ -40,22 +40,27 @@ def test_traces_are_drawn_once_when_a_load_ends(qtbot, tmp_path, monkeypatch):
     root = make_toy_set(tmp_path / "toyset", OUTCOMES * 2)
     inside = {"on": False}
     draws: list[int] = []
-    real_draw, real_loaded = TracesView._draw_monitors, MainWindow._on_loaded
+    real_draw = TracesView._draw_monitors
 
     def counting_draw(self):
         if inside["on"] and self is win.traces:
             draws.append(1)
         return real_draw(self)
 
-    def loaded(self, result):
-        inside["on"] = True
-        try:
-            return real_loaded(self, result)
-        finally:
-            inside["on"] = False
+    def counted(real):
+        def run(self, *args):
+            inside["on"] = True
+            try:
+                return real(self, *args)
+            finally:
+                inside["on"] = False
+        return run
 
     monkeypatch.setattr(TracesView, "_draw_monitors", counting_draw)
-    monkeypatch.setattr(MainWindow, "_on_loaded", loaded)
+    # the turns that end a load (the second exists only once the work was split in two)
+    monkeypatch.setattr(MainWindow, "_on_loaded", counted(MainWindow._on_loaded))
+    if hasattr(MainWindow, "_end_load"):
+        monkeypatch.setattr(MainWindow, "_end_load", counted(MainWindow._end_load))
     win = _window(qtbot, tmp_path)
     win.open_set(root, use_cache=False)
     qtbot.waitUntil(lambda: not win.busy, timeout=20000)
@@ -90,9 +95,9 @@ def test_progress_reaches_the_window_in_a_few_signals(qtbot, tmp_path, monkeypat
     assert loading[0] == ("Loading", 1, 5000) and loading[-1] == ("Loading", 5000, 5000)
 
 
-def _profiled_end_of_load(qtbot, tmp_path: Path, n: int) -> int:
-    """Python calls (both Python and C functions, so per-element loops count) in the turn that ends the load of an
-    in-memory set of ``n`` runs, with every panel installed."""
+def _profiled_end_of_load(qtbot, tmp_path: Path, n: int) -> list[int]:
+    """Python calls (both Python and C functions, so per-element loops count) in each turn of the event loop that
+    ends the load of an in-memory set of ``n`` runs, with every panel installed."""
     from basinmark.core.model import TrajectorySet
     from basinmark.core.sets import rules_path
     from basinmark.gui.loader import classify_with_rules
@@ -112,24 +117,39 @@ def _profiled_end_of_load(qtbot, tmp_path: Path, n: int) -> int:
         if event in ("call", "c_call"):
             calls[0] += 1
 
-    sys.setprofile(count)
-    try:
-        win._on_loaded(result)
-    finally:
-        sys.setprofile(None)
-    assert len(win.state.labels) == n and win.run_table.proxy.rowCount() == n
+    turns = []
+    for turn in (lambda: win._on_loaded(result), getattr(win, "_end_load", None)):
+        if turn is None:
+            continue
+        calls[0] = 0
+        sys.setprofile(count)
+        try:
+            turn()
+        finally:
+            sys.setprofile(None)
+        turns.append(calls[0])
+    assert len(win.state.labels) == n and win.run_table.proxy.rowCount() == n and not win.busy
     win.close()
-    return calls[0]
+    return turns
 
 
 def test_end_of_load_work_does_not_grow_per_run(qtbot, tmp_path):
-    """Reference: the same turn for 50 runs.  For 500 runs it may cost more calls only by a small amount per run
+    """Reference: the same turns for 50 runs.  For 500 runs each may cost more calls only by a small amount per run
     (whole-column work calls a function per column, not per row; what is left is reading each run's kept content
-    hash, two calls); a per-row Python loop anywhere in the turn (a dict per row, a call per cell, a map measured
+    hash, two calls); a per-row Python loop anywhere in a turn (a dict per row, a call per cell, a map measured
     in the turn, a redraw per change) adds several calls per run each (60 per run before)."""
     (tmp_path / "a").mkdir()
     (tmp_path / "b").mkdir()
     small = _profiled_end_of_load(qtbot, tmp_path / "a", 50)
     large = _profiled_end_of_load(qtbot, tmp_path / "b", 500)
-    per_run = (large - small) / 450
-    assert per_run < 3, f"{small} calls for 50 runs, {large} for 500: {per_run:.1f} more per run"
+    for turn, (s, g) in enumerate(zip(small, large)):
+        per_run = (g - s) / 450
+        assert per_run < 3, f"turn {turn + 1}: {s} calls for 50 runs, {g} for 500: {per_run:.1f} more per run"
+
+
+def test_end_of_load_is_split_in_turns_each_smaller_than_the_whole(qtbot, tmp_path):
+    """The set, journal and rules go in one turn, the label table and its views in the next: neither turn does
+    most of the work of the two (one turn did all of it before)."""
+    (tmp_path / "c").mkdir()
+    turns = _profiled_end_of_load(qtbot, tmp_path / "c", 300)
+    assert len(turns) == 2 and max(turns) < 0.8 * sum(turns), turns

@@ -6,7 +6,7 @@ import contextlib
 import os
 from pathlib import Path
 
-from PySide6.QtCore import QByteArray, QSettings, QSize, Qt, Signal
+from PySide6.QtCore import QByteArray, QSettings, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, QMainWindow, QMenu, QMenuBar, QMessageBox,
                                QProgressBar, QToolBar, QToolButton, QVBoxLayout, QWidget)
@@ -87,6 +87,11 @@ class MainWindow(QMainWindow):
         self.playback_bar = PlaybackBar(self.state, self.playback, self.actions_, self)
         self.banner = Banner(self)
         self.goto_dialog: GotoRunDialog | None = None
+        self._ending = None   # (result, holds) between the two turns that end a load (_on_loaded, _end_load)
+        self._end_timer = QTimer(self)
+        self._end_timer.setSingleShot(True)
+        self._end_timer.setInterval(0)
+        self._end_timer.timeout.connect(self._end_load)
         self._build_layout()
         self._build_menus()
         self._build_status()
@@ -440,6 +445,11 @@ class MainWindow(QMainWindow):
         if not self.keep_or_drop_rules("opening another set"):
             self.statusBar().showMessage("Not opened: the rule changes are still unsaved.", 6000)
             return
+        if self._ending is not None:  # a load ending: what it held back is let go, the rest dropped
+            _result, hold = self._ending
+            self._ending = None
+            self._end_timer.stop()
+            hold.close()
         if self.job is not None:
             self.job.cancel()
             self.job.wait(5000)
@@ -554,57 +564,83 @@ class MainWindow(QMainWindow):
             self.run_table.set_load_progress(done, total)
 
     def _on_loaded(self, result: dict) -> None:
-        self.job = None
-        self._busy(False)
-        if result.get("error"):
-            self._messages["error"] = f"Could not open the set: {result['error']}"
+        """The worker's result, in two turns of the event loop: this one puts the set, its journal and the rules
+        in place (the traces drawn once); the next rebuilds the label table and every view of it, then ends the
+        job (:meth:`_end_load`).  Each turn stays short on a large set; the window is busy until the second."""
+        if result.get("error") or (not result.get("rules_only") and not result.get("cancelled")
+                                   and holds_no_runs(result["tset"])):
+            self.job = None
+            self._busy(False)
+            if result.get("error"):
+                self._messages["error"] = f"Could not open the set: {result['error']}"
+            else:
+                # not a set: no journal, head, lock or cache is written into the folder, and it is not remembered
+                self._messages["error"] = not_a_set_message(result["tset"].root, result["tset"].left_out)
             self._show_banner()
             self.statusBar().showMessage(self._messages["error"], 10000)
-            self.load_failed.emit(result["error"])
+            self.load_failed.emit(result["error"] or self._messages["error"])
             return
         self._messages.pop("error", None)
         tset = result["tset"]
-        if not result.get("rules_only") and not result.get("cancelled") and holds_no_runs(tset):
-            # not a set: no journal, head, lock or cache is written into the folder, and it is not remembered
-            self._messages["error"] = not_a_set_message(tset.root, tset.left_out)
-            self._show_banner()
-            self.statusBar().showMessage(self._messages["error"], 10000)
-            self.load_failed.emit(self._messages["error"])
+        # the set, its journal and the rules each change the label table and the traces: the traces are drawn once,
+        # at the end of this turn; the label table is rebuilt once, in the next; the map of a new set is measured
+        # and drawn after that, in a turn of its own
+        hold = contextlib.ExitStack()
+        hold.enter_context(self._map_held(not result.get("rules_only")))
+        hold.enter_context(self.state.labels_batch())
+        try:
+            with self.traces.held():
+                if not result.get("rules_only"):
+                    keep = self.state.run_id if self.state.run_id != getattr(self, "_auto_run", "") else ""
+                    self.state.set_set(tset)
+                    if keep and keep in tset:
+                        self.state.set_run(keep)
+                    elif not self.molecule.user_moved:
+                        self.molecule.reset_view()  # oriented on the set's first run, not on whichever loaded first
+                    self._remember(tset.root)
+                    said = list(tset.warnings)
+                    if tset.left_out or not tset.metadata.get("pairing_plain", True):
+                        # runs found by a naming convention guessed from the files, or files left out: said out loud
+                        said.insert(0, "Runs found: " + "; ".join(tset.notes) + "." if tset.notes else "No runs found.")
+                        if tset.left_out:
+                            n = len(tset.left_out)
+                            said.insert(1, f"{n} file{'s' if n != 1 else ''} left out, not runs: "
+                                           + "; ".join(_short_reason(f) for f in tset.left_out[:3])
+                                           + (" …" if n > 3 else "") + ".")
+                    if said:
+                        self._messages["set"] = " ".join(said)
+                    self._open_journal(tset, result.get("rules"))
+                if result.get("rules_error"):
+                    self._messages["rules"] = result["rules_error"]
+                else:
+                    self._messages.pop("rules", None)
+                if not (result.get("rules_only") and result.get("rules") is None):
+                    self.state.set_rules(result.get("rules"), result.get("classification"),
+                                         result.get("rules_error", ""))
+        except BaseException:
+            self.job = None
+            self._busy(False)
+            hold.close()
+            raise
+        self._ending = (result, hold)
+        self._end_timer.start()
+
+    def _end_load(self) -> None:
+        """The second turn of :meth:`_on_loaded`: the label table and its views, then the rest, then not busy."""
+        if self._ending is None:
             return
-        # the set, its journal and the rules each change the label table and the traces: each is rebuilt once, at
-        # the end; the map of a new set is measured and drawn in a turn of the event loop of its own, after this one
-        with self.state.labels_batch(), self.traces.held(), self._map_held(not result.get("rules_only")):
-            if not result.get("rules_only"):
-                keep = self.state.run_id if self.state.run_id != getattr(self, "_auto_run", "") else ""
-                self.state.set_set(tset)
-                if keep and keep in tset:
-                    self.state.set_run(keep)
-                elif not self.molecule.user_moved:
-                    self.molecule.reset_view()  # oriented on the set's first run, not on whichever loaded first
-                self._remember(tset.root)
-                said = list(tset.warnings)
-                if tset.left_out or not tset.metadata.get("pairing_plain", True):
-                    # runs found by a naming convention guessed from the files, or files left out: said out loud
-                    said.insert(0, "Runs found: " + "; ".join(tset.notes) + "." if tset.notes else "No runs found.")
-                    if tset.left_out:
-                        n = len(tset.left_out)
-                        said.insert(1, f"{n} file{'s' if n != 1 else ''} left out, not runs: "
-                                       + "; ".join(_short_reason(f) for f in tset.left_out[:3])
-                                       + (" …" if n > 3 else "") + ".")
-                if said:
-                    self._messages["set"] = " ".join(said)
-                self._open_journal(tset, result.get("rules"))
-            if result.get("rules_error"):
-                self._messages["rules"] = result["rules_error"]
-            else:
-                self._messages.pop("rules", None)
-            if result.get("rules_only") and result.get("rules") is None:
-                # other rules failed to load or classify: keep the ones in use, and say so
-                self._messages["rules"] = (result.get("rules_error", "") + " The rules in use are unchanged.").strip()
-                self._show_banner()
-                self.rules_applied.emit()
-                return
-            self.state.set_rules(result.get("rules"), result.get("classification"), result.get("rules_error", ""))
+        result, hold = self._ending
+        self._ending = None
+        self.job = None
+        self._busy(False)
+        hold.close()   # the label table is rebuilt here, once; the map is refreshed in a later turn
+        tset = result["tset"]
+        if result.get("rules_only") and result.get("rules") is None:
+            # other rules failed to load or classify: keep the ones in use, and say so
+            self._messages["rules"] = (result.get("rules_error", "") + " The rules in use are unchanged.").strip()
+            self._show_banner()
+            self.rules_applied.emit()
+            return
         journal = self.state.journal
         if journal is not None and not journal.readonly and result.get("rules") is not None:
             journal.allowed = all_labels(result["rules"])

@@ -940,7 +940,9 @@ class RunTable(QWidget):
 
     # --- data ------------------------------------------------------------------------------
     def _on_arrived(self) -> None:
-        if not self._arrivals.isActive():
+        if self.model.n_rows == 0:  # the first runs of a set are listed at once: that is what a person waits for
+            self.list_arrived_runs()
+        elif not self._arrivals.isActive():
             self._arrivals.start()
 
     def set_load_progress(self, done: int, total: int) -> None:
