@@ -946,8 +946,11 @@ class RunTable(QWidget):
             self._arrivals.start()
 
     def set_load_progress(self, done: int, total: int) -> None:
-        """How many runs the loading set has in all (for the count so far)."""
+        """How many runs the loading set has in all (for the count so far, said again when it changes)."""
+        changed = int(total) != self._load_total
         self._load_total = int(total)
+        if changed and self.model.n_rows and self.listing_arrivals:
+            self._update_arrival_counts()
 
     @property
     def listing_arrivals(self) -> bool:
