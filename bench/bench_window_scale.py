@@ -17,7 +17,10 @@ process, without and with the cache, against "fully loaded"; the targets of issu
 first rows <= 1 s, from the cache first run <= 0.5 s, map <= 300 ms after the data is ready) against the
 rest.  The machine's load average is printed: on a shared machine the numbers move with it.
 
-    QT_QPA_PLATFORM=offscreen .venv/bin/python bench/bench_window_scale.py [--runs 2000] [--keep DIR]
+``--why`` samples the window thread's Python stack every 4 ms and prints, for each gap longer than 100 ms, the
+functions seen most in it (callers included); ``--no-reference`` skips the core's own opens (minutes at 10,000 runs).
+
+    QT_QPA_PLATFORM=offscreen .venv/bin/python bench/bench_window_scale.py [--runs 2000] [--keep DIR] [--why]
 """
 
 from __future__ import annotations
