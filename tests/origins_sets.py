@@ -149,3 +149,30 @@ def make_phase_demo(folder: Path, runs: int = PHASE_DEMO_RUNS) -> PhaseDemo:
     tset = open_set(root, use_cache=False)
     table = classify_set(tset, load_rules(rules_path(root), n_atoms=tset.n_atoms))
     return PhaseDemo(root, runs, int(modes.pop()), table.set_index("run")["outcome"])
+
+
+def displace_start(folder: Path, run: str, dy: float = 2.0) -> None:
+    """Move the hydrogen of ``run`` (written by :func:`write_toy_set`) by ``dy`` Å in every frame: a run that was
+    not started at the others' transition state."""
+    path = Path(folder) / "runs" / f"{run}.xyz"
+    lines = []
+    for line in path.read_text(encoding="ascii").splitlines():
+        parts = line.split()
+        if parts and parts[0] == "H":
+            parts[2] = f"{float(parts[2]) + dy:.6f}"
+            line = " ".join(parts)
+        lines.append(line)
+    path.write_text("\n".join(lines) + "\n", encoding="ascii")
+
+
+#: 18 runs of seed 4: 8 alpha and 10 beta, so the rarest outcome has fewer than 10 runs (too few to mean much)
+#: but more than the 5 folds (a classifier is still made)
+FEW_RUNS = dict(n=18, seed=4)
+
+
+def write_doubtful_set(folder: Path) -> dict[str, str]:
+    """A set every honesty warning applies to: no velocity column (velocities estimated), one run started 2 Å
+    away (not one transition state), and fewer than 10 runs of the rarer product."""
+    outcome = write_toy_set(folder, velocities=None, **FEW_RUNS)
+    displace_start(folder, "run-002")
+    return outcome

@@ -7,7 +7,7 @@ import json
 import numpy as np
 import pandas as pd
 import pytest
-from origins_sets import write_toy_set
+from origins_sets import write_doubtful_set, write_toy_set
 from PIL import Image
 
 from basinmark.cli import main
@@ -81,3 +81,34 @@ def test_boundary_lines_lie_on_the_classifier_decision_boundary():
     scale = np.ptp(model.decision_function(X))
     assert np.max(np.abs(margin)) < 1e-3 * scale  # linear interpolation of a near-linear margin: nearly exact
     assert pts[:, 0].min() < xs[10] and pts[:, 0].max() > xs[-10] or np.ptp(pts[:, 1]) > 0.8 * np.ptp(ys)
+
+
+def test_every_honesty_warning_is_printed_and_written(tmp_path, capsys):
+    root = tmp_path / "doubtful"
+    write_doubtful_set(root)  # no velocity column, one run started 2 Å away, 8 runs of the rarer product
+    out = tmp_path / "o.png"
+    assert main(["origins", str(root), "-o", str(out), "--permutations", "19", "--repeats", "1", "--fixed-c", "1",
+                 "-q", "--no-cache"]) == 0
+    printed = capsys.readouterr().out
+    warnings = json.loads(out.with_suffix(".json").read_text(encoding="utf-8"))["warnings"]
+    for start in ("Too few runs for the classifier to mean much: the rarest outcome has",
+                  "Starting velocities were estimated, not read: 18 of 18 runs",
+                  "The runs were not all started at one transition state: 1 of 18"):
+        assert any(w.startswith(start) for w in warnings), start
+        assert f"warning: {start}" in printed
+    assert "run-002" in next(w for w in warnings if "one transition state" in w)
+    table = pd.read_csv(out.with_suffix(".csv"))
+    assert set(table["velocity_source"]) != {"file velocities"}
+    assert table.set_index("run").loc["run-002", "ts_rmsd [angstrom]"] > 0.5
+
+
+def test_too_few_runs_for_any_classifier_is_said_and_fails(tmp_path, capsys):
+    root = tmp_path / "tiny"
+    write_toy_set(root, n=8, seed=1)  # fewer runs of the rarer product than the 5 folds
+    out = tmp_path / "o.png"
+    assert main(["origins", str(root), "-o", str(out), "--permutations", "19", "--repeats", "1", "-q",
+                 "--no-cache"]) == 1
+    printed = capsys.readouterr().out
+    assert "The outcome was not analysed: Too few runs for the classifier to mean anything" in printed
+    assert "warning: Too few runs for the classifier to mean anything" in printed
+    assert out.is_file()  # the map of the points is still drawn, without a boundary

@@ -6,13 +6,15 @@ alone; clicking a point asks for that run.  The CLI (``basinmark origins``) rend
 
 :class:`OriginsPanel` adds the plain-language result, its warnings, the table of coordinates ranked by
 importance (with each outcome's mean ± sd) and a chooser of the transition state's mode file.  The analysis
-(reading the t = 0 frames, cross-validation and permutations: seconds) runs on a worker thread; the window
-stays usable meanwhile and the result is taken on the GUI thread.
+(reading the t = 0 frames, nested cross-validation and permutations: seconds to minutes) runs on a worker
+thread; the window stays usable meanwhile, a bar shows the fits done of the total, and Cancel stops it within
+one fit, leaving the previous result on screen.  The result is taken on the GUI thread.
 """
 
 from __future__ import annotations
 
 import concurrent.futures as cf
+import threading
 from pathlib import Path
 from typing import Callable, Sequence
 
@@ -20,8 +22,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QPalette
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QDockWidget, QHBoxLayout, QLabel, QMainWindow, QPushButton,
-                               QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QDockWidget, QHBoxLayout, QLabel, QMainWindow, QProgressBar,
+                               QPushButton, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.plot_theme import theme_axes, theme_legend
@@ -219,15 +221,26 @@ def load_modes(path: str):
     return read_modes(path)
 
 
-def run_analysis(tset, rules, labels: dict, modes_path: str | None, include, settings):
-    """Everything the panel shows, computed off the GUI thread: (analysis, starting conditions)."""
-    from basinmark.core.origins import analyse
+def run_analysis(tset, rules, labels: dict, modes_path: str | None, include, settings,
+                 progress: Callable[[int, int, str], None] | None = None,
+                 cancelled: Callable[[], bool] | None = None):
+    """Everything the panel shows, computed off the GUI thread: (analysis, starting conditions).
+
+    ``progress(done, total, stage)`` hears of every run read and every fit; when ``cancelled()`` turns true the
+    work stops with :class:`basinmark.core.origins.AnalysisCancelled`."""
+    from basinmark.core.origins import AnalysisCancelled, analyse
     from basinmark.core.origins_start import starting_conditions
 
-    start = starting_conditions(tset, rules.monitor_indices() if rules is not None else {})
+    def reading(done: int, total: int) -> None:
+        if progress is not None:
+            progress(done, total, "reading the starting conditions")
+        if cancelled is not None and cancelled():
+            raise AnalysisCancelled()
+
+    start = starting_conditions(tset, rules.monitor_indices() if rules is not None else {}, progress=reading)
     if modes_path:
         start = start.with_modes(load_modes(modes_path))
-    return analyse(start, labels, settings, include=include), start
+    return analyse(start, labels, settings, include=include, progress=progress, cancelled=cancelled), start
 
 
 class OriginsPanel(QWidget):
@@ -246,13 +259,20 @@ class OriginsPanel(QWidget):
         self.start = None
         self.error = ""
         self.stale = True
+        #: "" or what the last run ended as when it gave no result ("cancelled")
+        self.status = ""
         self._future: cf.Future | None = None
+        self._cancel = threading.Event()  # this run's; a new one for every run
+        self._closing = threading.Event()  # the panel's: set when its window closes or it is destroyed
+        #: (done, total, stage) written by the worker, read by the poll on the GUI thread
+        self._progress: tuple[int, int, str] = (0, 0, "")
         self._pool = cf.ThreadPoolExecutor(max_workers=1, thread_name_prefix="origins")
         self._poll = QTimer(self)
         self._poll.setInterval(50)
         self._poll.timeout.connect(self._take_result)
-        pool = self._pool  # not self: the panel is gone when this runs
-        self.destroyed.connect(lambda *_a: pool.shutdown(wait=False, cancel_futures=True))
+        pool, closing = self._pool, self._closing  # not self: the panel is gone when this runs
+        # a worker left running would keep the process alive at exit (concurrent.futures joins its threads)
+        self.destroyed.connect(lambda *_a: (closing.set(), pool.shutdown(wait=False, cancel_futures=True)))
         self._build()
         state.labels_changed.connect(self.mark_stale)
         state.rules_changed.connect(self.mark_stale)
@@ -303,6 +323,22 @@ class OriginsPanel(QWidget):
         axes.addWidget(QLabel("y:", self))
         axes.addWidget(self.y_combo, 1)
         lay.addLayout(axes)
+        busy = QHBoxLayout()
+        self.progress_bar = QProgressBar(self)
+        self.progress_bar.setObjectName("originsProgress")
+        self.progress_bar.setTextVisible(True)
+        self.progress_label = QLabel("", self)
+        self.progress_label.setObjectName("originsProgressText")
+        self.progress_label.setWordWrap(True)
+        self.cancel_button = QPushButton("Cancel", self)
+        self.cancel_button.setObjectName("originsCancel")
+        self.cancel_button.setToolTip("Stop the analysis; the previous result stays on screen")
+        self.cancel_button.clicked.connect(self.cancel)
+        busy.addWidget(self.progress_bar, 1)
+        busy.addWidget(self.cancel_button)
+        lay.addLayout(busy)
+        lay.addWidget(self.progress_label)
+        self._show_busy(False)
         self.canvas = OriginsCanvas(self)
         self.canvas.title_in_plot = False
         self.canvas.setMinimumHeight(260)
@@ -317,17 +353,33 @@ class OriginsPanel(QWidget):
         self.table.verticalHeader().hide()
         self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
         lay.addWidget(self.table, 2)
+        self.method_label = QLabel("", self)
+        self.method_label.setObjectName("originsMethod")
+        self.method_label.setWordWrap(True)
+        self.method_label.setEnabled(False)  # the palette's quieter text: how, not what
+        lay.addWidget(self.method_label)
 
     # --- computing ----------------------------------------------------------------------------
     def mark_stale(self, *_args) -> None:
         self.stale = True
-        if self.isVisible():
+        if self.isVisible() and self.status != "cancelled":  # after a Cancel, only Analyse Again starts anew
             self.refresh()
 
     def showEvent(self, event) -> None:  # noqa: N802
         super().showEvent(event)
-        if self.stale:
+        if self.stale and self.status != "cancelled":
             self.refresh()
+
+    def window_closing(self) -> None:
+        """The window closed: stop the running analysis (nothing would show its result)."""
+        self._closing.set()
+        self._cancel.set()
+
+    def eventFilter(self, watched, event) -> bool:  # noqa: N802
+        if event.type() == event.Type.Close and watched is self.window():
+            # after the window's own handler has run: it may refuse to close (unsaved rules)
+            QTimer.singleShot(0, self, lambda: None if self.window().isVisible() else self.window_closing())
+        return False
 
     def labels(self) -> dict[str, str]:
         lab = self.state.labels
@@ -357,23 +409,74 @@ class OriginsPanel(QWidget):
             self._show_text("No run has a label yet: classify the runs (rules) or label them to compare outcomes.")
             return
         include = ("recrossing",) if self.recross_box.isChecked() else None
-        self.sentence.setText("Analysing the starting conditions…")
+        if self.analysis is None:
+            self.sentence.setText("Analysing the starting conditions…")
+        self.status = ""
+        self._cancel = threading.Event()
+        self._progress = (0, 0, "starting")
+        cancel, closing = self._cancel, self._closing
+
+        def cancelled() -> bool:  # on the worker thread
+            return cancel.is_set() or closing.is_set()
+
+        def progress(done: int, total: int, stage: str) -> None:  # on the worker thread: only store
+            self._progress = (int(done), int(total), str(stage))
+
         self._future = self._pool.submit(self.compute, st.tset, st.rules, labels, self.modes_path or None, include,
-                                         self.settings)
+                                         self.settings, progress, cancelled)
+        self._show_busy(True)
         self._poll.start()
+
+    def cancel(self) -> None:
+        """Stop the running analysis (it ends within one fit); the previous result stays."""
+        if self._future is None:
+            return
+        self._cancel.set()
+        self.cancel_button.setEnabled(False)
+        self.progress_label.setText("Cancelling…")
+
+    def _show_busy(self, busy: bool) -> None:
+        for w in (self.progress_bar, self.cancel_button, self.progress_label):
+            w.setVisible(busy)
+        self.cancel_button.setEnabled(busy)
+        if busy:
+            self.progress_bar.setRange(0, 0)  # busy until the first count arrives
+            self.progress_label.setText("Analysing the starting conditions…")
+
+    def _show_progress(self) -> None:
+        done, total, stage = self._progress
+        if total <= 0 or self._cancel.is_set():
+            return
+        self.progress_bar.setRange(0, total)
+        self.progress_bar.setValue(min(done, total))
+        what = "runs read" if stage.startswith("reading") else "fits"
+        self.progress_bar.setFormat(f"%v of %m {what}")
+        self.progress_label.setText(stage[:1].upper() + stage[1:] + "…")
 
     def _take_result(self) -> None:
         fut = self._future
-        if fut is None or not fut.done():
+        if fut is None:
             return
+        if not fut.done():
+            self._show_progress()
+            return
+        from basinmark.core.errors import BasinmarkError
+        from basinmark.core.origins import AnalysisCancelled
+
         self._poll.stop()
         self._future = None
+        self._show_busy(False)
         self.error = ""
         try:
             self.analysis, self.start = fut.result()
+        except AnalysisCancelled:
+            # the previous result (if any) stays; the next change or Analyse Again starts afresh
+            self.status = "cancelled"
+            self.stale = True
+            self._show()
+            self.updated.emit()
+            return
         except Exception as exc:  # a BasinmarkError is a sentence for people; anything else is said too
-            from basinmark.core.errors import BasinmarkError
-
             self.analysis, self.start = None, None
             self.error = str(exc) if isinstance(exc, BasinmarkError) else f"{type(exc).__name__}: {exc}"
         if self.stale and self.isVisible():  # something changed while it ran
@@ -392,6 +495,7 @@ class OriginsPanel(QWidget):
         self.analysis = None
         self.sentence.setText(text)
         self.warning_label.setText("")
+        self.method_label.setText("")
         self.canvas.set_analysis(None)
         self.caption.setText("")
         self.table.setRowCount(0)
@@ -403,13 +507,26 @@ class OriginsPanel(QWidget):
 
     def _show(self) -> None:
         a = self.analysis
+        cancelled = self.status == "cancelled"
         if a is None:
-            self.sentence.setText(f"The analysis failed: {self.error}" if self.error else "")
+            if cancelled:
+                text = "The analysis was cancelled before it ended; Analyse Again starts it anew."
+            else:
+                text = f"The analysis failed: {self.error}" if self.error else ""
+            self.sentence.setText(text)
             self.warning_label.setText("")
             self.canvas.set_analysis(None)
             self.table.setRowCount(0)
+            self.method_label.setText("")
+            return
+        if cancelled:
+            # said above the previous result, which stays as it was
+            self.progress_label.setText("The analysis was cancelled before it ended; the result below is the "
+                                        "previous one. Analyse Again starts it anew.")
+            self.progress_label.setVisible(True)
             return
         self.sentence.setText(a.sentence)
+        self.method_label.setText(a.regularisation() if a.classified else "")
         self.warning_label.setText("\n".join(f"⚠ {w}" for w in a.warnings))
         self.warning_label.setVisible(bool(a.warnings))
         names = [f.name for f in a.features]
@@ -472,10 +589,12 @@ class OriginsPanel(QWidget):
 
     def set_modes(self, path: str | None) -> None:
         self.modes_path = str(path or "")
+        self.status = ""  # a new mode file is a new request, after a Cancel too
         self.modes_label.setText(Path(path).name if path else "no mode file")
         self.mark_stale()
 
     def closeEvent(self, event) -> None:  # noqa: N802
+        self.window_closing()
         self._poll.stop()
         self._pool.shutdown(wait=False, cancel_futures=True)
         super().closeEvent(event)
@@ -490,6 +609,7 @@ def install_origins_dock(window: QMainWindow) -> QDockWidget:
     from basinmark.gui.map_view import _menu
 
     panel = OriginsPanel(window.state, window)
+    window.installEventFilter(panel)  # its Close stops a running analysis
     dock = add_analysis_dock(window, "origins", "Origins", panel)
     window.origins_panel = panel
     act = dock.toggleViewAction()
