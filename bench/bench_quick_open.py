@@ -20,16 +20,14 @@ estimated from a smaller set; the estimate is printed as such, never as a measur
 from __future__ import annotations
 
 import argparse
-import os
 import shutil
-import subprocess
 import sys
 import tempfile
 import time
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from bench_scale import generate, load  # noqa: E402  (the same generated set as the scale benchmark)
+from bench_scale import _child, generate, load  # noqa: E402  (the same generated set as the scale benchmark)
 
 PREPARE = r"""
 import sys
@@ -78,14 +76,6 @@ t0 = time.perf_counter()
 tset = open_set(sys.argv[1], on_run=on_run)
 print(first[0] - t0, time.perf_counter() - t0)
 """
-
-
-def _child(code: str, *args: str) -> list[str]:
-    env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1] / "src"))
-    out = subprocess.run([sys.executable, "-c", code, *args], capture_output=True, text=True, env=env)
-    if out.returncode:
-        raise SystemExit(out.stderr)
-    return out.stdout.split()
 
 
 def main() -> None:

@@ -28,7 +28,6 @@ from __future__ import annotations
 import argparse
 import os
 import shutil
-import subprocess
 import sys
 import tempfile
 import threading
@@ -39,7 +38,7 @@ from pathlib import Path
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-from bench_scale import generate, load  # noqa: E402
+from bench_scale import _child, generate, load  # noqa: E402
 
 TARGET_GAP_MS = 100.0
 TARGET_FIRST_ROWS_S = 1.0
@@ -85,14 +84,6 @@ t0 = time.perf_counter()
 tset = open_set(sys.argv[1], use_cache=sys.argv[2] == "1")
 print(time.perf_counter() - t0, len(tset))
 """
-
-
-def _child(code: str, *args: str) -> list[str]:
-    env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1] / "src"))
-    out = subprocess.run([sys.executable, "-c", code, *args], capture_output=True, text=True, env=env)
-    if out.returncode:
-        raise SystemExit(out.stderr)
-    return out.stdout.split()
 
 
 def _core_open(root: Path, cache: bool) -> float:
