@@ -22,17 +22,22 @@ VIEWS = ("summary", "review", "rules", "sensitivity")
 OUTCOMES = ["left", "right", "recrossing", "unfinished"] * 4
 
 
-@pytest.fixture
-def win(qtbot, tmp_path):
-    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+def _window_on(root, qtbot, tmp_path, timeout: int) -> MainWindow:
+    """A shown window fitted to the screen with the set at ``root`` opened (read from its files)."""
     w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
     qtbot.addWidget(w)
     install_extras(w)
     w.show()
     qtbot.waitExposed(w)
     fit_on_screen(w)
-    with qtbot.waitSignal(w.set_loaded, timeout=20000):
+    with qtbot.waitSignal(w.set_loaded, timeout=timeout):
         w.open_set(root, use_cache=False)
+    return w
+
+
+@pytest.fixture
+def win(qtbot, tmp_path):
+    w = _window_on(make_toy_set(tmp_path / "toyset", OUTCOMES), qtbot, tmp_path, timeout=20000)
     yield w
     w.close()
 
@@ -159,14 +164,7 @@ def test_sample_set_with_hand_labels_fits_with_every_view(qtbot, tmp_path):
 
     root = tmp_path / "ringfork"
     shutil.copytree(bundled_sample_set(), root, ignore=shutil.ignore_patterns(".basinmark-cache", "basinmark-labels.*"))
-    w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(w)
-    install_extras(w)
-    w.show()
-    qtbot.waitExposed(w)
-    fit_on_screen(w)
-    with qtbot.waitSignal(w.set_loaded, timeout=60000):
-        w.open_set(root, use_cache=False)
+    w = _window_on(root, qtbot, tmp_path, timeout=60000)
     _settle(qtbot)
     _hand_label_with_keys(w, qtbot, N_HAND)
     assert w.run_table.filter_counts()["disagree"] >= 10

@@ -37,21 +37,10 @@ def journal_notes(journal, labeler: str = "") -> dict[str, str]:
     return {str(r): str(n) for r, n in zip(table["run"], table["note"]) if n}
 
 
-def _num(value) -> float:
-    return float("nan") if value is None or pd.isna(value) else float(value)
-
-
 def _text(value) -> str:
     if value is None or (isinstance(value, float) and pd.isna(value)):
         return ""
     return str(value)
-
-
-def _flag(value) -> bool:
-    """True/False from a nullable boolean (pandas NA and None count as False)."""
-    if value is None or value is pd.NA or (isinstance(value, float) and pd.isna(value)):
-        return False
-    return bool(value)
 
 
 def _by_run(frame: pd.DataFrame | None, index: pd.Index) -> pd.DataFrame | None:
