@@ -57,6 +57,11 @@ def _hidden_by_caller(label) -> bool:
     return not label.isVisibleTo(label.parentItem()) and not getattr(label, "hidden_by_layout", False)
 
 
+#: how close (scene pixels) a predicted label rectangle may come to changing its verdict (inside the plot, clear
+#: of the others) before it is measured for real; arithmetic on the same numbers is off by ~1e-12 px
+_NEAR = 1e-3
+
+
 def _fractions(start: float, stop: float, n: int) -> list[float]:
     return list(np.linspace(start, stop, n))
 
@@ -466,19 +471,73 @@ class TracesView(QWidget):
 
     @staticmethod
     def _place(label, texts, anchors, fractions, box, placed) -> bool:
+        """The first (text, anchor, fraction) whose rectangle lies inside ``box`` and clear of ``placed``, in the
+        order tried; else the label is hidden.  ``placed`` gets the rectangle (with a margin).
+
+        A label's scene rectangle moves linearly with its fraction along the line (pyqtgraph puts it at
+        ``p1 + f (p2 - p1)`` and only translates the text), so one measurement per text and anchor plus the step
+        per unit of fraction (measured once) give every candidate's rectangle by arithmetic.  Trying each
+        candidate through Qt (a move and a measurement each, up to 150 per label) was most of the time it took to
+        show a run.  A candidate whose verdict lies within :data:`_NEAR` pixels of changing is measured for real,
+        and the one kept always is, so the placements are those of trying every candidate through Qt
+        (tests/test_gui_trace_label_speed.py compares them)."""
         label.setVisible(True)
         label.hidden_by_layout = False
+        f = np.asarray(fractions, dtype=float)
+        bx0, by0, bx1, by1 = box.left(), box.top(), box.right(), box.bottom()
+        if placed:
+            q = np.array([(r.left(), r.top(), r.right(), r.bottom()) for r in placed], dtype=float)
+        else:
+            q = np.zeros((0, 4))
+        step = None   # the rectangle's movement (x, y) per unit of fraction: the same for every text and anchor
+
+        def fits(r) -> bool:
+            return box.contains(r) and not any(r.intersects(p) for p in placed)
+
         for text in texts:
             if label.format != text:
                 label.setFormat(text)
             for anchor in anchors:
                 label.anchors = [anchor, anchor]
-                for f in fractions:
-                    label.setPosition(f)
+                label.setPosition(f[0])
+                r0 = label.sceneBoundingRect()
+                if fits(r0):
+                    placed.append(r0.adjusted(-2, -1, 2, 1))
+                    return True
+                if f.size < 2:
+                    continue
+                if step is None:
+                    label.setPosition(f[-1])
+                    r1 = label.sceneBoundingRect()
+                    span = f[-1] - f[0]
+                    step = ((r1.left() - r0.left()) / span, (r1.top() - r0.top()) / span)
+                sx, sy = step
+                w, h = r0.width(), r0.height()
+                left = r0.left() + (f - f[0]) * sx
+                top = r0.top() + (f - f[0]) * sy
+                right, bottom = left + w, top + h
+                # QRectF.contains: every edge inside or on the box's; QRectF.intersects: an overlap of positive
+                # width and height (rectangles that only touch do not intersect)
+                inside = np.minimum.reduce([left - bx0, bx1 - right, top - by0, by1 - bottom])
+                if q.size:
+                    overlap = np.minimum.reduce([q[:, 2][None] - left[:, None], right[:, None] - q[:, 0][None],
+                                                 q[:, 3][None] - top[:, None], bottom[:, None] - q[:, 1][None]])
+                    clash = overlap.max(axis=1)   # the deepest overlap with any placed label
+                    near_clash = (np.abs(overlap) <= _NEAR).any(axis=1)
+                else:
+                    clash = np.full(f.size, -np.inf)
+                    near_clash = np.zeros(f.size, dtype=bool)
+                near = (np.abs(inside) <= _NEAR) | near_clash | (w <= 0) | (h <= 0)
+                surely_not = ~near & ((inside < 0) | (clash > 0))
+                surely_not[0] = True   # measured above
+                for i in np.flatnonzero(~surely_not):
+                    label.setPosition(f[i])
                     r = label.sceneBoundingRect()
-                    if box.contains(r) and not any(r.intersects(q) for q in placed):
+                    if fits(r):
                         placed.append(r.adjusted(-2, -1, 2, 1))
                         return True
+        label.anchors = [anchors[-1], anchors[-1]]
+        label.setPosition(f[-1])
         label.setFormat(texts[0])
         _hide(label)
         return False
