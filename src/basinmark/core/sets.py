@@ -13,7 +13,8 @@ import hashlib
 import os
 import warnings
 from collections import Counter
-from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor, as_completed
+from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor, as_completed, wait
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Callable, Iterator
@@ -417,32 +418,149 @@ def _safe_sha256(path: Path) -> str | None:
 
 
 def _parsed(plan: SetPlan, specs: list[RunSpec], workers: int | None, cancel: Callable[[], bool] | None,
-            processes: bool | None) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure, dict[Path, str]]]:
+            processes: bool | None, work=None) -> Iterator[tuple[RunSpec, Trajectory | LoadFailure, dict[Path, str]]]:
     """Parse ``specs`` in parallel, yielding ``(spec, run or failure, stored-bytes hashes)`` as each is ready.
 
-    Large sets are parsed in a pool of processes (one per core, or ``workers``), small ones in threads;
-    ``processes`` forces either (see :func:`use_processes`).  Cancelling drops the runs not yet started
-    and waits only for those under way; the pool never outlives the iteration.
+    Large sets are parsed in a pool of processes (one per core, or ``workers``; several runs per task, see
+    :func:`_tasks`), small ones in threads; ``processes`` forces either (see :func:`use_processes`).
+    Cancelling drops the runs not yet started and waits only for those under way; the pool never outlives the
+    iteration.  ``work(spec, layout)`` replaces :func:`_parse_or_fail` in the worker processes (tests).
     """
     part = plan if len(specs) == len(plan.runs) else replace(plan, runs=specs)
     if use_processes(part, workers, processes):
-        pool = ProcessPoolExecutor(max_workers=workers or cores(), mp_context=_process_context())
-    else:
-        pool = ThreadPoolExecutor(max_workers=_workers(workers, part), thread_name_prefix="basinmark-load")
-    with pool:
+        yield from _in_processes(plan.layout, specs, workers or cores(), cancel, work)
+        return
+    with ThreadPoolExecutor(max_workers=_workers(workers, part), thread_name_prefix="basinmark-load") as pool:
         futures = {pool.submit(_parse_or_fail, spec, plan.layout): spec for spec in specs}
         try:
             for fut in as_completed(futures):
                 spec = futures[fut]
                 try:
                     result, stored = fut.result()
-                except Exception as exc:  # e.g. a worker process killed (out of memory): that run fails
+                except Exception as exc:  # never expected in a thread: _parse_or_fail catches everything
                     result, stored = _failure(spec, exc), {}
                 yield spec, result, stored
                 if cancel is not None and cancel():
                     break
         finally:
             pool.shutdown(wait=True, cancel_futures=True)
+
+
+# --- the process pool ---------------------------------------------------------------------------
+
+#: at most this many runs per task of the process pool.  One task per run cost the parent process about 1 ms of
+#: CPU per run in hand-offs (futures, wake-ups, the layout pickled with every task) on a 2-core machine where the
+#: workers need both cores (measured on 3,000 runs of 12 atoms x 2 x 400 frames: one run per task 8.7 s, 16 per
+#: task 6.9 s, the workers' own time 6.6 s); 16 runs are about 70 ms of work, so progress still moves in small
+#: steps and a cancel waits for little more than the tasks under way
+BATCH_RUNS = 16
+#: ... and at least this many tasks per worker, so that the last tasks do not leave a core idle for long
+TASKS_PER_WORKER = 8
+#: after this many pool failures (a worker killed) the rest is read one run per task by a single worker
+MAX_POOL_BREAKS = 3
+
+
+def _tasks(specs: list[RunSpec], workers: int) -> list[list[RunSpec]]:
+    """``specs`` cut into the pool's tasks, in order: one run per worker first (the first runs come back soon
+    after the pool starts), then tasks doubling in size up to :data:`BATCH_RUNS` runs (fewer on small sets)."""
+    n = len(specs)
+    size = max(1, min(BATCH_RUNS, n // (workers * TASKS_PER_WORKER)))
+    tasks: list[list[RunSpec]] = []
+    i, step = 0, 1
+    while i < n:
+        for _ in range(workers):
+            if i >= n:
+                break
+            tasks.append(specs[i:i + step])
+            i += step
+        step = min(size, 2 * step)
+    return tasks
+
+
+def _parse_batch(specs: list[RunSpec], layout: SetLayout, work=None) -> list:
+    """One task of the process pool: each run read on its own (a failure is that run's alone)."""
+    work = work or _parse_or_fail
+    return [work(spec, layout) for spec in specs]
+
+
+def _stopped_worker(spec: RunSpec) -> LoadFailure:
+    path = spec.files[0] if spec.files else Path(spec.run_id)
+    return LoadFailure(path, f"{path}: the process reading run {spec.run_id} stopped before it finished (it was "
+                             "killed, perhaps by the system for lack of memory); the run was tried again on its "
+                             "own and stopped it again, so it is left out — check its files' size and content")
+
+
+class _Cancelled(Exception):
+    pass
+
+
+def _pool_pass(layout: SetLayout, tasks: list[list[RunSpec]], n_workers: int, cancel, work, out: list) -> Iterator:
+    """Run ``tasks`` in one process pool, yielding each run as its task comes back; the tasks left unfinished
+    when a worker process died are appended to ``out`` in the order they were given.  Raises _Cancelled."""
+    pool = ProcessPoolExecutor(max_workers=n_workers, mp_context=_process_context())
+    try:
+        futures = [pool.submit(_parse_batch, task, layout, work) for task in tasks]
+        index = {fut: i for i, fut in enumerate(futures)}
+        taken: set[int] = set()
+        broken = False
+        for fut in as_completed(futures):
+            i = index[fut]
+            try:
+                results = fut.result()
+            except BrokenProcessPool:
+                broken = True
+                break
+            except Exception as exc:  # the task could not be sent or its results not returned (e.g. pickling)
+                results = [(_failure(spec, exc), {}) for spec in tasks[i]]
+            taken.add(i)
+            for spec, (result, stored) in zip(tasks[i], results):
+                yield spec, result, stored
+                if cancel is not None and cancel():
+                    raise _Cancelled
+        if broken:
+            wait(futures)  # every task is settled once the pool has noticed the dead worker
+            for i, fut in enumerate(futures):
+                if i in taken:
+                    continue
+                if fut.exception() is None:  # finished before the worker died
+                    for spec, (result, stored) in zip(tasks[i], fut.result()):
+                        yield spec, result, stored
+                else:
+                    out.append(tasks[i])
+    finally:
+        pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _in_processes(layout: SetLayout, specs: list[RunSpec], n_workers: int, cancel, work) -> Iterator:
+    """The runs of ``specs`` parsed in a process pool, several per task, yielded as each task comes back.
+
+    A worker process that dies (killed for lack of memory, say) breaks the pool: the tasks not yet started go to
+    a new pool, while the runs of those that may have been under way (the first unfinished ones: a pool starts
+    its tasks in order) are read again one at a time by a single worker, so the run that kills its worker again
+    is known and fails alone, with a plain message, and its batch-mates load."""
+    tasks = _tasks(specs, n_workers)
+    breaks = 0
+    try:
+        while tasks:
+            left: list[list[RunSpec]] = []
+            if breaks < MAX_POOL_BREAKS:
+                yield from _pool_pass(layout, tasks, n_workers, cancel, work, left)
+                if not left:
+                    return
+                breaks += 1
+                under_way = 2 * n_workers + 1  # running, plus those already queued for the workers
+                suspects, tasks = left[:under_way], left[under_way:]
+            else:
+                suspects, tasks = tasks, []
+            singles = [[spec] for task in suspects for spec in task]
+            while singles:
+                again: list[list[RunSpec]] = []
+                yield from _pool_pass(layout, singles, 1, cancel, work, again)
+                if again:  # one worker takes its tasks in order: the first unfinished one killed it
+                    yield again[0][0], _stopped_worker(again[0][0]), {}
+                singles = again[1:]
+    except _Cancelled:
+        return
 
 
 def iter_runs(plan: SetPlan, *, use_cache: bool = True, workers: int | None = None,
