@@ -50,7 +50,22 @@ class _Column:
     start: int  # first token index within an atom line
 
 
+_LAYOUTS: dict[str, list[_Column]] = {}
+
+
 def _layout(props: str | None, path: Path, line: int) -> list[_Column]:
+    """The atom lines' columns from a ``Properties=`` value (remembered: the files of a set repeat it)."""
+    cols = _LAYOUTS.get(props) if props is not None else None
+    if cols is None:
+        cols = _read_layout(props, path, line)
+        if props is not None:
+            if len(_LAYOUTS) >= 64:
+                _LAYOUTS.clear()
+            _LAYOUTS[props] = cols
+    return list(cols)
+
+
+def _read_layout(props: str | None, path: Path, line: int) -> list[_Column]:
     if props is None:
         return [_Column("species", "S", 1, 0), _Column("pos", "R", 3, 1)]
     parts = props.split(":")
@@ -246,7 +261,7 @@ def _fixed_number(cm: np.ndarray, a: int, end: int, classes: str) -> np.ndarray:
     elif decimals:
         value /= _POW10[decimals]
     if negative is not None:
-        np.negative(value, out=value, where=negative)
+        value *= np.where(negative, -1.0, 1.0)  # (np.negative with where=, or boolean indexing: 7 x slower, measured)
     return value
 
 
@@ -278,6 +293,21 @@ def _parse_fixed(block: bytes, n_lines: int, cols: list[_Column]) -> dict[str, n
     out: dict[str, np.ndarray] = {}
     for c in cols:
         fields = []
+        if c.kind != "S" and c.count > 1:
+            spans = [(starts[t], ends[t]) for t in range(c.start, c.start + c.count)]
+            classes = {_column_classes(cmin[a:b], cmax[a:b]) for a, b in spans}
+            if len(classes) == 1:
+                # the fields of this column are laid out alike (x, y, z written by one format): converted as one
+                # field over all their lines, a third of the numpy calls (measured: 0.35 -> 0.15 ms per half of
+                # 400 frames x 12 atoms); the values are the same, each number still converted on its own
+                kind = classes.pop()
+                if c.kind == "I" and ("." in kind or "e" in kind):
+                    raise _Slow  # not whole numbers: the general path says where
+                width = spans[0][1] - spans[0][0]
+                joint = np.concatenate([cm[a:b] for a, b in spans], axis=1)
+                values = _fixed_number(joint, 0, width, kind)
+                out[c.name] = values.reshape(c.count, n_lines).T
+                continue
         for t in range(c.start, c.start + c.count):
             a, b = starts[t], ends[t]
             if c.kind == "S":
