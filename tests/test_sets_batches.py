@@ -3,7 +3,9 @@ killed worker), progress monotone, cancel within a task or so."""
 
 from __future__ import annotations
 
+import concurrent.futures as cf
 import os
+import threading
 
 import numpy as np
 import pytest
@@ -80,7 +82,8 @@ def test_batched_pool_gives_the_runs_one_by_one_reading_gives(batch_set, big_tas
     assert progress == list(range(N_RUNS + 1))  # one step per run, never backwards
 
 
-def test_a_killed_worker_fails_only_the_run_that_kills_it(batch_set, big_tasks):
+def test_a_killed_worker_fails_only_the_run_that_kills_it(batch_set, big_tasks, monkeypatch):
+    monkeypatch.setattr(sets_mod, "LOCAL_RUNS_MAX", 0)  # every run read in a worker (none here while it starts)
     plan = discover(batch_set)
     got = {spec.run_id: result for spec, result, _ in _parsed(plan, plan.runs, 2, None, True, work=dies_on_run_12)}
     assert sorted(got) == [s.run_id for s in plan.runs]  # every run answered exactly once
@@ -101,3 +104,28 @@ def test_cancel_in_the_middle_of_batches_stops_soon(batch_set, big_tasks):
                     on_run=lambda t: seen.append(t.run_id), cancel=lambda: len(seen) >= 5)
     assert 5 <= len(tset) < N_RUNS - 1  # stopped where asked, not at the end of the set
     assert any("cancelled" in w for w in tset.warnings)
+
+
+def test_the_first_runs_are_read_here_while_the_pool_starts(batch_set, monkeypatch):
+    gate = threading.Event()
+
+    class SlowStart(cf.ProcessPoolExecutor):
+        """A pool whose start waits until the test lets it (as the forkserver's imports make it wait)."""
+
+        def __init__(self, *a, **k):
+            gate.wait(60)
+            super().__init__(*a, **k)
+
+    monkeypatch.setattr(sets_mod, "ProcessPoolExecutor", SlowStart)
+    plan = discover(batch_set)
+    it = _parsed(plan, plan.runs, 2, None, True)
+    first = next(it)
+    assert first[0].run_id == "run-0001" and not gate.is_set()  # read before any worker existed
+    second = next(it)
+    assert second[0].run_id == "run-0002"  # the pool still starting: the next run is read here too
+    gate.set()
+    rest = list(it)
+    ids = [spec.run_id for spec, _, _ in [first, second] + rest]
+    assert sorted(ids) == [s.run_id for s in plan.runs]  # every run once, the rest from the pool
+    alone = open_set(batch_set, use_cache=False, processes=False, workers=1)
+    np.testing.assert_array_equal(first[1].positions, alone["run-0001"].positions)
