@@ -59,6 +59,7 @@ class SetPlan:
     notes: list[str] = field(default_factory=list)  # how the runs were found, one sentence per convention
     conventions: dict = field(default_factory=dict)  # convention -> runs found by it (see pairing.describe)
     plain: bool = True  # the set follows this project's own naming or the manifest's patterns
+    listing: str = ""  # digest of the names that can make runs (pairing.listing_digest)
 
 
 def discover(root: str | Path) -> SetPlan:
@@ -74,7 +75,7 @@ def discover(root: str | Path) -> SetPlan:
     else:
         pairing = find_by_names(root, layout.folders)
     return SetPlan(root, layout, pairing.runs, [], pairing.left_out, pairing.notes, pairing.conventions,
-                   plain=pairing.plain)
+                   plain=pairing.plain, listing=pairing.listing)
 
 
 # --- reading and joining ---------------------------------------------------------------------

@@ -75,10 +75,11 @@ class SetLoader(QObject):
                "error": "", "cancelled": False, "quick": None, "use_cache": self.use_cache}
         try:
             quick = None
+            changes: list[str] = []  # runs added or removed since the set was last opened (said in its warnings)
             if self.use_cache:
                 from basinmark.core.quick_open import quick_open
 
-                quick = quick_open(self.path, on_run=self.arrived.append)
+                quick = quick_open(self.path, on_run=self.arrived.append, changes=changes)
             if quick is not None:
                 tset = quick.tset
                 out["quick"] = quick
@@ -87,6 +88,7 @@ class SetLoader(QObject):
                 tset = open_set(self.path, use_cache=self.use_cache, cancel=self._cancel.is_set,
                                 progress=lambda d, t, _r: progress("Loading", d, t),
                                 on_run=self.arrived.append)
+            tset.warnings.extend(changes)
             out["tset"] = tset
             out["cancelled"] = self.cancelled
             rules_file = self.rules_file or rules_path(tset.root)
