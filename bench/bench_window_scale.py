@@ -7,7 +7,9 @@ installed) in this process's event loop while a 2 ms heartbeat timer records the
 * cold open (no cache): first rows listed, first run on screen, fully loaded and classified, and the
   longest gap between event-loop turns from the click until 1 s after loading ends;
 * the map of every run brought to the front once the data is ready: time until its paths are drawn,
-  and the longest gap meanwhile;
+  and the longest gap meanwhile; then a click on a path at once (answered when the pick index is ready), a zoom,
+  a pan and a resize of the window, each until the map shows the new view, with the longest gap meanwhile;
+* one hand label (the number key on the table, no reason asked) and its undo: the time of that turn;
 * open from the cache (written by an open in between, its files recorded by a full check in a child
   process, as the window's own background check does after any open): first rows, first run on screen,
   the longest gap, and the background check of the files ending.
@@ -34,6 +36,8 @@ import threading
 import time
 from collections import Counter
 from pathlib import Path
+
+import numpy as np
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 sys.path.insert(0, str(Path(__file__).resolve().parent))
@@ -258,7 +262,7 @@ def window_open(app, root: Path, tmp: Path, use_cache: bool, with_map: bool) -> 
         win.findChild(type(win.actions()[0]), "action_show_map").trigger()
 
         def drawn() -> bool:
-            return panel.canvas.data is not None and bool(panel.canvas.curves) and not getattr(panel, "busy", False)
+            return panel.canvas.data is not None and panel.canvas.drawn() and not getattr(panel, "busy", False)
 
         watch.run_until(drawn)
         win.map_panel.canvas.repaint()
@@ -270,9 +274,91 @@ def window_open(app, root: Path, tmp: Path, use_cache: bool, with_map: bool) -> 
         if SAMPLER is not None:
             print("  (map) what the window's thread did in its longest gaps:")
             SAMPLER.report(watch.gaps, watch.t0)
+        out.update(map_moves(win, watch))
+        out.update(hand_label(win, watch))
     win.close()
     win.deleteLater()
     watch.run_until(lambda: True)
+    return out
+
+
+def map_moves(win, watch: Watch) -> dict:
+    """A click on a path, then zoom, pan and resize of the map: how long until each shows, the longest gap."""
+    from PySide6.QtCore import QPoint, Qt
+    from PySide6.QtTest import QTest
+
+    canvas = win.map_panel.canvas
+    out: dict = {}
+    watch.reset()
+    data = canvas.data
+    want = data.run_ids[len(data.run_ids) // 2]
+    x, y = data.run_xy(want)
+    k = int(np.flatnonzero(np.isfinite(x) & np.isfinite(y))[len(x) // 2])
+    picked: list = []
+    canvas.run_picked.connect(lambda r, f: picked.append((r, f)))
+    pos = canvas.mapFromScene(canvas.view_point(float(x[k]), float(y[k])))
+    t0 = time.perf_counter()
+    QTest.mouseClick(canvas.viewport(), Qt.MouseButton.LeftButton, pos=QPoint(pos.x(), pos.y()))
+    watch.run_until(lambda: bool(picked), timeout_s=60)
+    out["click_s"] = time.perf_counter() - t0
+    out["click_hit"] = False
+    if picked:  # where many paths cross, the nearest may be another run: it must pass within a pixel or two
+        from basinmark.gui.map_data import MapData, nearest_on_paths
+
+        px, py = canvas.plot_item.vb.mapSceneToView(canvas.mapToScene(pos)).toTuple()
+        sx, sy = canvas.plot_item.vb.viewPixelSize()
+        gx, gy = data.run_xy(picked[0][0])
+        one = MapData([picked[0][0]], gx, gy, np.array([0]), np.array([gx.size]), data.x_axis, data.y_axis)
+        hit = nearest_on_paths(one, px, py, sx, sy)
+        out["click_hit"] = hit is not None and hit[2] <= 2.0
+    vb = canvas.plot_item.vb
+    steps = []
+    for name, act in (("zoom", lambda: vb.scaleBy((0.5, 0.5))), ("pan", lambda: vb.translateBy(
+            x=vb.viewRect().width() * 0.3)), ("resize", lambda: win.resize(win.width() - 200, win.height() - 120))):
+        t0 = time.perf_counter()
+        act()
+        watch.run_until(lambda: time.perf_counter() - t0 > 0.02)   # the change reaches the view
+        watch.run_until(canvas.drawn, timeout_s=60)
+        steps.append((name, time.perf_counter() - t0))
+    watch.run_until(lambda: time.perf_counter() - t0 > 0.3)
+    out["moves"] = steps
+    out["moves_gap"] = watch.longest()
+    if SAMPLER is not None:
+        print("  (map click, zoom, pan, resize) what the window's thread did in its longest gaps:")
+        SAMPLER.report(watch.gaps, watch.t0)
+    return out
+
+
+def hand_label(win, watch: Watch) -> dict:
+    """The number key 1 on the run table (the label saved at once), then undo: each turn's length."""
+    from PySide6.QtCore import Qt
+    from PySide6.QtTest import QTest
+
+    out: dict = {}
+    panel = win.label_panel
+    getattr(win, "set_labeler", panel.set_labeler)("bench")
+    act = getattr(win, "actions_", {}).get("ask_reason")
+    if act is not None:
+        act.setChecked(False)
+    watch.run_until(lambda: True)
+    view = win.run_table.view
+    view.setFocus()
+    run = win.state.run_id
+    watch.reset()
+    t0 = time.perf_counter()
+    QTest.keyClick(view, Qt.Key.Key_1)
+    out["label_s"] = time.perf_counter() - t0
+    row = win.state.label_row(run) or {}
+    out["label_saved"] = bool(row.get("hand_label"))
+    watch.run_until(lambda: time.perf_counter() - t0 > 0.5)
+    t0 = time.perf_counter()
+    panel.undo()
+    out["undo_s"] = time.perf_counter() - t0
+    watch.run_until(lambda: time.perf_counter() - t0 > 0.5)
+    out["label_gap"] = watch.longest()
+    if SAMPLER is not None:
+        print("  (hand label and undo) what the window's thread did in its longest gaps:")
+        SAMPLER.report(watch.gaps, watch.t0)
     return out
 
 
@@ -320,6 +406,16 @@ def main() -> None:
         print(_fmt(f"map of {cold['map_runs']} runs drawn", cold["map"], TARGET_MAP_MS / 1000, "target 300 ms")
               + (f"   ({cold['map_note']})" if cold["map_note"] else ""))
         print(_fmt("longest gap while the map is built", gap, TARGET_GAP_MS / 1000, "target 100 ms"))
+        print(_fmt("click on a path answered", cold["click_s"], TARGET_MAP_MS / 1000, "target 300 ms")
+              + ("" if cold["click_hit"] else "   (the run picked does NOT pass under the click)"))
+        for name, took in cold["moves"]:
+            print(_fmt(f"map {name}: new view drawn", took, TARGET_MAP_MS / 1000, "target 300 ms"))
+        print(_fmt("longest gap in click, zoom, pan, resize", cold["moves_gap"][0], TARGET_GAP_MS / 1000,
+                   "target 100 ms"))
+        print(_fmt("one hand label (number key)", cold["label_s"], TARGET_GAP_MS / 1000, "target 100 ms")
+              + ("" if cold["label_saved"] else "   (NOT saved)"))
+        print(_fmt("its undo", cold["undo_s"], TARGET_GAP_MS / 1000, "target 100 ms"))
+        print(_fmt("longest gap around label and undo", cold["label_gap"][0], TARGET_GAP_MS / 1000, "target 100 ms"))
         print(_fmt("longest garbage collection so far", GC.longest, TARGET_GAP_MS / 1000, "target 100 ms"))
 
         core_write = _core_open(root, cache=True)   # writes the cache (needed for the open from the cache)

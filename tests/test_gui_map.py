@@ -261,3 +261,19 @@ def test_a_basin_across_180_degrees_is_two_rectangles():
                         '[basins.cis]\nw = { between = [-30, 30] }\n[basins.trans]\nw = { between = [150, -150] }\n')
     trans = [r for r in basin_regions(rules, "w", "d") if r.basin == "trans"]
     assert sorted((r.x0, r.x1) for r in trans) == [(-180.0, -150.0), (150.0, 180.0)]
+
+
+@given(st.lists(st.integers(0, 300), min_size=1, max_size=10), st.integers(1, 60))
+def test_decimation_is_every_stride_th_frame_plus_the_last(lengths, max_points):
+    """Reference: a plain loop per run (frames 0, s, 2s, ... and the last, s = ceil(length / (max_points - 1)))."""
+    lengths = np.asarray(lengths)
+    ends = np.cumsum(lengths)
+    starts = ends - lengths
+    want, want_runs = [], []
+    for r, (s0, n) in enumerate(zip(starts, lengths)):
+        stride = max(1, int(np.ceil(n / max(1, max_points - 1))))
+        local = sorted(set(range(0, n, stride)) | ({n - 1} if n else set()))
+        want += [int(s0) + i for i in local]
+        want_runs += [r] * len(local)
+    keep, runs = decimated_indices(starts, ends, max_points, with_runs=True)
+    assert keep.tolist() == want and runs.tolist() == want_runs

@@ -11,7 +11,10 @@ Pieces, from data to screen:
   screen pixels), so a click lands on the run that is really under the cursor;
 * :class:`MapCanvas` draws it (shaded basin regions, one curve per label, a legend with counts, the
   current run on top with a marker at the current frame); :class:`MapPanel` adds the axis choosers
-  and follows the window's :class:`~basinmark.gui.state.AppState`.
+  and follows the window's :class:`~basinmark.gui.state.AppState`;
+* with many points the paths are one picture drawn in a worker thread instead of curves
+  (:class:`~basinmark.gui.map_layer.PathLayer`), and a click that comes before the pick index of a large map
+  is ready waits for it (built in a thread) instead of building it on the window's thread.
 """
 
 from __future__ import annotations
@@ -30,6 +33,7 @@ from PySide6.QtWidgets import (QComboBox, QDockWidget, QGraphicsRectItem, QHBoxL
 from basinmark.gui.colours import basin_colour, outcome_colour
 from basinmark.gui.flow_layout import flow_row
 from basinmark.gui.label_table import UNCLASSIFIED, final_label_counts
+from basinmark.gui.map_layer import PathGroup, PathLayer
 
 from basinmark.gui.map_data import (NO_LABEL, _finite, MAX_DRAW_POINTS, PICK_RADIUS_PX, MapAxis, added_monitor_name, map_axes, MapData, decimated_indices, draw_points, grouped_paths, nearest_on_paths, basin_regions, thinning_note, INDEX_FROM_POINTS)  # noqa: F401  (some re-exported)
 from basinmark.gui.plot_theme import theme_axes, theme_legend
@@ -39,6 +43,13 @@ class MapCanvas(pg.PlotWidget):
     """The map's plot: basin regions, one curve per label, the current run and frame."""
 
     run_picked = Signal(str, int)  # run id, frame index
+    index_ready = Signal(object)   # the MapData whose pick index a thread has built
+    pick_waiting = Signal(bool)    # a click waits for the pick index (True), or no longer (False)
+
+    #: drawn points from which the paths are one picture drawn in a worker thread (gui/map_layer.py) instead of
+    #: curve items, whose stroking on the window's thread costs ~100 ms per 25,000 points of the 10,000-run
+    #: benchmark set on every first paint, zoom and resize (measured); our own choice
+    PICTURE_FROM_POINTS = 20_000
 
     def __init__(self, parent: QWidget | None = None, max_points: int = MAX_DRAW_POINTS) -> None:
         super().__init__(parent)
@@ -49,6 +60,10 @@ class MapCanvas(pg.PlotWidget):
         self.products: list[str] = []
         self.rules: Any = None
         self.curves: dict[str, pg.PlotCurveItem] = {}
+        self.layer: PathLayer | None = None   # the paths as one picture (large maps), else None
+        self._layer_version = 0
+        self._pending_click: tuple | None = None
+        self._indexing: MapData | None = None
         self.counts: dict[str, int] = {}
         self.region_items: list[QGraphicsRectItem] = []
         self.region_texts: list[pg.TextItem] = []
@@ -73,6 +88,8 @@ class MapCanvas(pg.PlotWidget):
         for item in (self.halo, self.highlight):  # redrawn only when the run changes, not per frame
             item.setCacheMode(item.CacheMode.DeviceCoordinateCache)
         self.scene().sigMouseClicked.connect(self._clicked)
+        self.plot_item.vb.sigTransformChanged.connect(self._view_changed)
+        self.index_ready.connect(self._on_index_ready)
         self.apply_palette()
 
     # --- look -----------------------------------------------------------------------------
@@ -94,7 +111,7 @@ class MapCanvas(pg.PlotWidget):
         self.marker.setBrush(pg.mkBrush(hl))
         if self.data is not None:
             self._draw_regions()
-            self._draw_curves()
+            self._draw_curves(keep_picture=True)
             self._draw_current()
 
     def changeEvent(self, event) -> None:  # noqa: N802
@@ -124,9 +141,12 @@ class MapCanvas(pg.PlotWidget):
         self._draw_regions()
         self._draw_curves(groups)
         self._current_xy = None
+        self._pending_click = None
         self._draw_current()
         pi.enableAutoRange()
         pi.autoRange()
+        if self.layer is not None:
+            self.layer.request()   # the view may already have had this range (no change signal)
 
     def set_labels(self, labels: Mapping[str, str]) -> None:
         """Other final labels: the curves are regrouped (the monitor values stay)."""
@@ -134,7 +154,7 @@ class MapCanvas(pg.PlotWidget):
         if labels == self.labels:
             return
         self.labels = labels
-        self._draw_curves()
+        self._draw_curves(keep_picture=True)
         self._draw_current()
 
     def _draw_regions(self) -> None:
@@ -181,34 +201,75 @@ class MapCanvas(pg.PlotWidget):
         known = list(self.products) + ["recrossing", "unfinished", "ambiguous", "excluded"]
         return sorted(names, key=lambda n: (known.index(n) if n in known else len(known), n == NO_LABEL, n))
 
-    def _draw_curves(self, groups: dict | None = None) -> None:
+    def _drop_layer(self) -> None:
+        if self.layer is not None:
+            self.layer.stop()
+            self.plot_item.removeItem(self.layer)
+            self.layer = None
+
+    def _draw_curves(self, groups: dict | None = None, keep_picture: bool = False) -> None:
+        """One curve per label, or (many points) one picture of all; ``keep_picture``: same data, so the picture
+        shown stays until the new one comes (labels or colours changed)."""
         for c in self.curves.values():
             self.plot_item.removeItem(c)
         self.legend.clear()
         self.curves, self.counts = {}, {}
         if self.data is None:
+            self._drop_layer()
             return
         if groups is None:
             groups = grouped_paths(self.data, self.labels, self.max_points)
+        order = self._legend_order(list(groups))
+        drawn = sum(int(np.count_nonzero(np.isfinite(groups[label][0]))) for label in order)
+        picture = drawn >= self.PICTURE_FROM_POINTS
+        if not (picture and keep_picture):
+            self._drop_layer()
+        parts: list[PathGroup] = []
         # the legend counts runs as the run table does (one function); paths not drawn are said
         totals = final_label_counts(("" if v == NO_LABEL else v for v in self.labels.values()), self.products)
-        for z, label in enumerate(self._legend_order(list(groups))):
+        for z, label in enumerate(order):
             x, y, n = groups[label]
             colour = QColor(self.label_colour(label))
             colour.setAlpha(150)
-            # thin, many and overlapping: no antialiasing (about 100 ms less to draw 1.4e5 points at 900x700, bench_map)
-            curve = pg.PlotCurveItem(x, y, connect="finite", pen=pg.mkPen(colour, width=1), antialias=False)
-            curve.setZValue(z)
-            # cached as a pixmap: moving the current-frame marker then repaints no path
-            curve.setCacheMode(curve.CacheMode.DeviceCoordinateCache)
-            self.plot_item.addItem(curve)
-            self.curves[label] = curve
+            if picture:
+                parts.append(PathGroup(label, x, y, QColor(colour)))
+            else:
+                # thin, many and overlapping: no antialiasing (about 100 ms less to draw 1.4e5 points at 900x700,
+                # bench_map)
+                curve = pg.PlotCurveItem(x, y, connect="finite", pen=pg.mkPen(colour, width=1), antialias=False)
+                curve.setZValue(z)
+                # cached as a pixmap: moving the current-frame marker then repaints no path
+                curve.setCacheMode(curve.CacheMode.DeviceCoordinateCache)
+                self.plot_item.addItem(curve)
+                self.curves[label] = curve
             self.counts[label] = n
             shown = QColor(colour)
             shown.setAlpha(255)
             total = totals.get(UNCLASSIFIED if label == NO_LABEL else label, n)
             self.legend.addItem(pg.PlotDataItem(pen=pg.mkPen(shown, width=3)),
                                 f"{label} ({total})" if n == total else f"{label} ({n} of {total} drawn)")
+        if picture:
+            self._layer_version += 1
+            if self.layer is not None:
+                self.layer.set_groups(parts, self._layer_version)
+            else:
+                self.layer = PathLayer(parts, self.data.finite_range(), self._layer_version)
+                self.plot_item.addItem(self.layer)
+                self.layer.request()
+
+    def label_colours(self) -> dict[str, QColor]:
+        """The colour each label's paths are drawn in (with their transparency), curves or picture alike."""
+        if self.layer is not None:
+            return {g.label: QColor(g.colour) for g in self.layer.groups}
+        return {label: QColor(c.opts["pen"].color()) for label, c in self.curves.items()}
+
+    def drawn(self) -> bool:
+        """Everything asked for is on screen: the curves, or a picture of the view as it is now."""
+        return self.data is not None and (self.layer is None or self.layer.shows_current_view())
+
+    def _view_changed(self, *_args) -> None:
+        if self.layer is not None:
+            self.layer.view_changed()
 
     def set_current(self, run_id: str, frame: int = 0) -> None:
         self.current_run = run_id or ""
@@ -249,19 +310,24 @@ class MapCanvas(pg.PlotWidget):
         return self.plot_item.vb.mapViewToScene(pg.Point(x, y))
 
     def pick_at(self, x: float, y: float, radius_px: float = PICK_RADIUS_PX) -> tuple[str, int] | None:
-        """The run (and frame) whose full path passes within ``radius_px`` of data point (x, y)."""
-        if self.data is None:
-            return None
+        """The run (and frame) whose full path passes within ``radius_px`` of data point (x, y).
+
+        On a large map this builds the pick index when it is not there yet (tests, benchmarks); a click never
+        does: it waits for a thread to build it (:meth:`_clicked`)."""
         sx, sy = self.plot_item.vb.viewPixelSize()
-        if not (sx > 0 and sy > 0):
+        return self._pick(self.data, x, y, sx, sy, radius_px)
+
+    def _pick(self, data: MapData | None, x: float, y: float, sx: float, sy: float,
+              radius_px: float = PICK_RADIUS_PX) -> tuple[str, int] | None:
+        if data is None or not (sx > 0 and sy > 0):
             return None
-        if self.data.x.size < INDEX_FROM_POINTS:
-            hit = nearest_on_paths(self.data, x, y, sx, sy)
-        else:  # many frames: through the k-d tree the map's worker built (at once here when it has not yet)
-            hit = self.data.pick_index().nearest(x, y, sx, sy, radius_px)
+        if data.x.size < INDEX_FROM_POINTS:
+            hit = nearest_on_paths(data, x, y, sx, sy)
+        else:  # many frames: through the k-d tree
+            hit = data.pick_index().nearest(x, y, sx, sy, radius_px)
         if hit is None or hit[2] > radius_px:
             return None
-        return self.data.run_ids[hit[0]], hit[1]
+        return data.run_ids[hit[0]], hit[1]
 
     def _clicked(self, ev) -> None:
         if ev.button() != Qt.MouseButton.LeftButton or ev.double():
@@ -270,7 +336,43 @@ class MapCanvas(pg.PlotWidget):
         if not vb.sceneBoundingRect().contains(ev.scenePos()):
             return
         p = vb.mapSceneToView(ev.scenePos())
+        data = self.data
+        if data is not None and data.x.size >= INDEX_FROM_POINTS and data.pick_index(build=False) is None:
+            # the k-d tree of a large map takes about a second: a thread builds it, the click is answered then
+            sx, sy = vb.viewPixelSize()
+            self._pending_click = (data, p.x(), p.y(), sx, sy)
+            self.pick_waiting.emit(True)
+            self._build_index(data)
+            return
         hit = self.pick_at(p.x(), p.y())
+        if hit is not None:
+            self.run_picked.emit(*hit)
+
+    def _build_index(self, data: MapData) -> None:
+        if self._indexing is data:
+            return   # under way (a thread waits for the map's worker, which builds it after drawing)
+        self._indexing = data
+
+        def work() -> None:
+            try:
+                data.pick_index()
+            except Exception:  # noqa: BLE001 -- the click is then answered "nothing there" (see _on_index_ready)
+                pass
+            try:
+                self.index_ready.emit(data)
+            except RuntimeError:  # the canvas was closed meanwhile
+                pass
+
+        threading.Thread(target=work, name="basinmark-map-index", daemon=True).start()
+
+    def _on_index_ready(self, data: MapData) -> None:
+        if self._indexing is data:
+            self._indexing = None
+        pending, self._pending_click = self._pending_click, None
+        self.pick_waiting.emit(False)
+        if pending is None or pending[0] is not data or data is not self.data or data.pick_index(build=False) is None:
+            return   # the map changed meanwhile, or the index could not be built
+        hit = self._pick(data, *pending[1:])
         if hit is not None:
             self.run_picked.emit(*hit)
 
@@ -322,7 +424,7 @@ class MapPanel(QWidget):
             pl.addWidget(label)
             pl.addWidget(combo)
             pairs.append(pair)
-        self.hint = QLabel("Click a path to open that run", self)
+        self.hint = QLabel(self.HINT, self)
         self.hint.setEnabled(False)
         self.hint.setAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         # the axis choosers and the hint wrap onto further rows in a narrow dock
@@ -338,6 +440,7 @@ class MapPanel(QWidget):
         self.x_combo.currentIndexChanged.connect(self._axis_chosen)
         self.y_combo.currentIndexChanged.connect(self._axis_chosen)
         self.canvas.run_picked.connect(self._picked)
+        self.canvas.pick_waiting.connect(self._pick_waiting)
         st = state
         st.set_changed.connect(self._on_set)
         st.rules_changed.connect(self._on_axes)
@@ -498,6 +601,12 @@ class MapPanel(QWidget):
         if now != labels:  # labels changed while the worker measured
             self.canvas.set_labels(now)
         self.canvas.set_current(st.run_id, st.frame)
+
+    HINT = "Click a path to open that run"
+
+    def _pick_waiting(self, waiting: bool) -> None:
+        self.hint.setText("Finding the run under the click (preparing every frame for picking)…" if waiting
+                          else self.HINT)
 
     def _picked(self, run_id: str, frame: int) -> None:
         self.state.set_run(run_id)
