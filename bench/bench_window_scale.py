@@ -105,6 +105,9 @@ class GcPauses:
         self.longest = 0.0
         gc.callbacks.append(self._cb)
 
+    def reset(self) -> None:
+        self.longest = 0.0
+
     def _cb(self, phase: str, _info: dict) -> None:
         now = time.perf_counter()
         if phase == "start":
@@ -229,6 +232,7 @@ def window_open(app, root: Path, tmp: Path, use_cache: bool, with_map: bool) -> 
     watch.run_until(lambda: True)
     out: dict = {}
     watch.reset()
+    GC.reset()
     t0 = time.perf_counter()
     win.open_set(root, use_cache=use_cache)
 
@@ -276,9 +280,14 @@ def window_open(app, root: Path, tmp: Path, use_cache: bool, with_map: bool) -> 
             SAMPLER.report(watch.gaps, watch.t0)
         out.update(map_moves(win, watch))
         out.update(hand_label(win, watch))
+    out["gc"] = GC.longest
     win.close()
     win.deleteLater()
     watch.run_until(lambda: True)
+    import gc
+
+    gc.unfreeze()   # the window and its set are gone: collected here, between the measured opens (as on quitting)
+    gc.collect()
     return out
 
 
@@ -416,7 +425,7 @@ def main() -> None:
               + ("" if cold["label_saved"] else "   (NOT saved)"))
         print(_fmt("its undo", cold["undo_s"], TARGET_GAP_MS / 1000, "target 100 ms"))
         print(_fmt("longest gap around label and undo", cold["label_gap"][0], TARGET_GAP_MS / 1000, "target 100 ms"))
-        print(_fmt("longest garbage collection so far", GC.longest, TARGET_GAP_MS / 1000, "target 100 ms"))
+        print(_fmt("longest garbage collection in this open", cold["gc"], TARGET_GAP_MS / 1000, "target 100 ms"))
 
         core_write = _core_open(root, cache=True)   # writes the cache (needed for the open from the cache)
         core_again = float("nan") if args.no_reference else _core_open(root, cache=True)   # reads it
@@ -433,7 +442,7 @@ def main() -> None:
             print(_fmt("files checked in the background", cached["checked"], core_again, "core reopen from the cache"))
         gap, when = cached["gap"]
         print(_fmt("longest event-loop gap", gap, TARGET_GAP_MS / 1000, "target 100 ms") + f"   (at {when:.1f} s)")
-        print(_fmt("longest garbage collection so far", GC.longest, TARGET_GAP_MS / 1000, "target 100 ms"))
+        print(_fmt("longest garbage collection in this open", cached["gc"], TARGET_GAP_MS / 1000, "target 100 ms"))
     finally:
         shutil.rmtree(tmp, ignore_errors=True)
 

@@ -39,4 +39,5 @@ def _no_automatic_gc():
 def _collect_between_tests():
     gc.disable()  # again: a library switching it back on must not reopen the hang
     yield
+    gc.unfreeze()  # what a window froze (src/basinmark/gui/gc_guard.py) is collected too
     gc.collect()

@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import codecs
 import contextlib
+import gc
 import os
 from pathlib import Path
 
-from PySide6.QtCore import QByteArray, QSettings, QSize, Qt, QTimer, Signal
+from PySide6.QtCore import QByteArray, QObject, QSettings, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, QMainWindow, QMenu, QMenuBar, QMessageBox,
                                QProgressBar, QToolBar, QToolButton, QVBoxLayout, QWidget)
@@ -23,6 +25,7 @@ from basinmark.gui import labeler as labeler_dialog
 from basinmark.gui.actions import build_actions, viewer_actions
 from basinmark.gui import journal_elsewhere
 from basinmark.gui.dialogs import FailuresDialog, ShortcutsDialog
+from basinmark.gui.gc_guard import freeze_survivors, thaw
 from basinmark.gui.goto_run import GotoRunDialog
 from basinmark.gui.icons import icon
 from basinmark.gui.label_panel import Banner, LabelPanel
@@ -36,11 +39,42 @@ from basinmark.gui.traces import TracesView
 
 MAX_RECENT = 8
 
+# the journal's head file is read as ASCII when a set opens: Python imports that codec on first use, and every
+# import in the window's process goes through PySide6's import hook, which reads the module's source (~10 ms in
+# the turn that shows a loaded set, bench/bench_window_scale.py --why); looked up once here instead
+codecs.lookup("ascii")
+
 #: the version of the saved dock layout (QMainWindow.saveState's version number, also kept as
 #: ``window/layout_version``).  Raise it whenever the first layout changes enough that a layout saved by an
 #: older version would undo it: such a layout is then ignored once (version 1: the 1366×768 layout with
 #: the analysis views as tabs beside the traces; older versions saved version 0 and no key).
 LAYOUT_VERSION = 1
+
+
+class AfterPaint:
+    """Calls ``fn`` two turns of the event loop from :meth:`start`, so that the paint of what this turn changed has
+    a turn of its own: Qt paints at the start of a turn, before that turn's timers, so work scheduled for the next
+    turn ran right after the paint it followed, as one long turn (seen as one gap by bench/bench_window_scale.py)."""
+
+    def __init__(self, fn, parent: QObject) -> None:
+        self._hop = QTimer(parent)
+        self._call = QTimer(parent)
+        for timer in (self._hop, self._call):
+            timer.setSingleShot(True)
+            timer.setInterval(0)
+        self._hop.timeout.connect(self._call.start)
+        self._call.timeout.connect(fn)
+
+    def start(self) -> None:
+        self._call.stop()
+        self._hop.start()
+
+    def stop(self) -> None:
+        self._hop.stop()
+        self._call.stop()
+
+    def isActive(self) -> bool:  # noqa: N802  (as QTimer's)
+        return self._hop.isActive() or self._call.isActive()
 
 
 def _short_reason(failure) -> str:
@@ -88,10 +122,8 @@ class MainWindow(QMainWindow):
         self.banner = Banner(self)
         self.goto_dialog: GotoRunDialog | None = None
         self._ending = None   # (result, holds) between the two turns that end a load (_on_loaded, _end_load)
-        self._end_timer = QTimer(self)
-        self._end_timer.setSingleShot(True)
-        self._end_timer.setInterval(0)
-        self._end_timer.timeout.connect(self._end_load)
+        self._end_timer = AfterPaint(self._end_load, self)
+        self._first_timer = AfterPaint(self._show_first_run, self)   # the first run that arrives is shown apart
         self._build_layout()
         self._build_menus()
         self._build_status()
@@ -99,6 +131,7 @@ class MainWindow(QMainWindow):
         self._connect()
         self._init_labeler()
         self.restore_layout()
+        freeze_survivors()   # the window and its libraries: never walked by a full collection (gui/gc_guard.py)
 
     # --- construction ---------------------------------------------------------------------
     def _slots(self) -> dict:
@@ -420,6 +453,7 @@ class MainWindow(QMainWindow):
                 check.wait(10000)   # its thread must end before the window (its parent) is destroyed
         self.save_settings()
         self.state.set_journal(None)
+        gc.unfreeze()   # what this window froze is the collector's again (collected with everything else later)
         super().closeEvent(event)
 
     # --- opening ----------------------------------------------------------------------------
@@ -454,6 +488,7 @@ class MainWindow(QMainWindow):
             self.job.cancel()
             self.job.wait(5000)
             self.job = None
+        self._first_timer.stop()
         if self.file_check is not None:
             self.file_check.cancel()   # it ends on its own; its finding is about the set being left
             self._left_checks = [c for c in self._left_checks if c.thread.isRunning()] + [self.file_check]
@@ -464,7 +499,12 @@ class MainWindow(QMainWindow):
         self.statusBar().clearMessage()  # a passing message ("Undone …") belongs to the set it was about
         self._show_banner()
         path = Path(path).expanduser()
+        leaving = self.state.tset is not None and len(self.state.tset) > 0
         self.state.set_set(TrajectorySet(path, {}, metadata={"name": path.name}))
+        if leaving:
+            # the set left is let go: its objects (frozen as they arrived) and their cycles are collected now, once,
+            # before the new set's runs arrive (gui/gc_guard.py)
+            thaw()
         self.setWindowTitle(f"{path.name} — basinmark")
         job = LoadJob(SetLoader(path, rules_file, use_cache=use_cache), self)
         job.progress.connect(self._on_progress)
@@ -476,10 +516,21 @@ class MainWindow(QMainWindow):
         job.start()
 
     def _on_first_runs(self, trajs) -> None:
-        shown = self.state.run_id
-        self.state.add_runs(trajs)   # a batch (gui/loader.LoadJob takes them every ARRIVALS_MS)
-        if not shown and self.state.run_id:
-            self._auto_run = self.state.run_id
+        # a batch (gui/loader.LoadJob takes them every ARRIVALS_MS), listed in this turn; the first run is drawn
+        # in the next, so that listing rows and drawing a run (traces, molecule, each with its paint) are two
+        # turns of the event loop rather than one long one
+        self.state.add_runs(trajs, show_first=False)
+        if not self.state.run_id and not self._first_timer.isActive():
+            self._first_timer.start()
+        freeze_survivors(collect_young=False)   # the runs so far: left out of later full collections (gc_guard.py)
+
+    def _show_first_run(self) -> None:
+        """The set's first run arrived in the turn before: show it, unless a run is shown by now."""
+        tset = self.state.tset
+        if self.state.run_id or tset is None or not len(tset):
+            return
+        self.state.set_run(next(iter(tset.runs)))
+        self._auto_run = self.state.run_id
 
     def move_threshold(self, targets: list, value: float) -> bool:
         """Set one threshold (of every listed basin condition) and classify the set again."""
@@ -660,6 +711,7 @@ class MainWindow(QMainWindow):
         focus = QApplication.focusWidget()
         if not result.get("rules_only") and (focus is None or focus is self or not self.isAncestorOf(focus)):
             self.run_table.view.setFocus(Qt.FocusReason.OtherFocusReason)
+        freeze_survivors()   # the set, its classification and label table (gui/gc_guard.py)
         (self.rules_applied if result.get("rules_only") else self.set_loaded).emit()
 
     def _map_held(self, hold: bool):
@@ -681,6 +733,10 @@ class MainWindow(QMainWindow):
         job.start()
 
     def _on_files_checked(self, job: LoadJob, found) -> None:
+        # the job (a child of the window) holds the quick open and so the whole set it was about: let it go
+        if job in self._left_checks:
+            self._left_checks.remove(job)
+        job.deleteLater()
         if job is not self.file_check:
             return  # about a set no longer open
         self.file_check = None

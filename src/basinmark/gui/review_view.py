@@ -22,7 +22,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFormL
                                QTableWidgetItem, QVBoxLayout, QWidget)
 
 from basinmark.core.errors import BasinmarkError
-from basinmark.core.review import SE_METHOD, Review, compare_labels, current_auto_labels, people, render_markdown
+from basinmark.core.review import SE_METHOD, Review, compare_labels, people, render_markdown
 from basinmark.core.text import printable
 from basinmark.gui.flow_layout import flow_row
 from basinmark.gui.export_folder import ask_export_path
@@ -84,6 +84,16 @@ class QueueTable(QTableWidget):
             event.accept()
             return
         super().keyPressEvent(event)
+
+
+def _auto_count(classification: pd.DataFrame) -> int:
+    """How many runs :func:`~basinmark.core.review.current_auto_labels` gives a label (those with an outcome),
+    without building their reasons: the sources are listed again in the turn that shows a loaded set, and
+    the reasons' text of 10,000 runs made that turn longer (bench/bench_window_scale.py --why)."""
+    if classification is None or not len(classification) or "outcome" not in classification:
+        return 0
+    outcome = classification["outcome"]
+    return int((outcome.notna() & (outcome.astype(str) != "")).sum())
 
 
 class ReviewPanel(QWidget):
@@ -212,7 +222,7 @@ class ReviewPanel(QWidget):
         for name in names:
             entries.append((("person", name), f"{name} — {runs(len(j.labels(name)))}"))
         if cls is not None:
-            entries.append((("auto_now", ""), f"automatic, current rules — {runs(len(current_auto_labels(cls)))}"))
+            entries.append((("auto_now", ""), f"automatic, current rules — {runs(_auto_count(cls))}"))
         if j is not None:
             entries.append((("auto", ""), f"automatic, recorded in the journal — {runs(len(j.labels('auto')))}"))
             entries.append((("final", ""), f"final labels (hand, else recorded automatic) — "

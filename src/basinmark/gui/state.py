@@ -81,15 +81,15 @@ class AppState(QObject):
         """A run arrived while the set is still loading (shown at once if nothing is shown yet)."""
         self.add_runs([traj])
 
-    def add_runs(self, trajs) -> None:
+    def add_runs(self, trajs, show_first: bool = True) -> None:
         """Runs that arrived while the set is still loading, one signal for the batch (the first is shown at once
-        if nothing is shown yet)."""
+        if nothing is shown yet, unless ``show_first`` is false: the window shows it in a turn of its own)."""
         if self.tset is None or not trajs:
             return
         for traj in trajs:
             self.tset.runs[traj.run_id] = traj
         self.runs_arrived.emit()
-        if not self.run_id:
+        if show_first and not self.run_id:
             self.set_run(trajs[0].run_id)
 
     def set_run(self, run_id: str) -> None:
