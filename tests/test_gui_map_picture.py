@@ -246,10 +246,16 @@ def test_a_click_before_the_pick_index_waits_for_a_thread(win, qtbot, monkeypatc
     built_in = []
     real = map_data.PathIndex
 
+    searched_in = []
+
     class Spy(real):
         def __init__(self, data):
             built_in.append(threading.current_thread())
             super().__init__(data)
+
+        def nearest(self, *args, **kw):
+            searched_in.append(threading.current_thread())
+            return super().nearest(*args, **kw)
 
     monkeypatch.setattr(map_data, "PathIndex", Spy)
     canvas = win.map_panel.canvas
@@ -263,8 +269,17 @@ def test_a_click_before_the_pick_index_waits_for_a_thread(win, qtbot, monkeypatc
         assert win.state.run_id == "toy-001"   # answered later, not in the click's turn
         assert "preparing" in win.map_panel.hint.text()
     assert built_in and threading.main_thread() not in built_in
+    assert searched_in and threading.main_thread() not in searched_in   # the search too (it can be long)
     assert win.state.run_id == "toy-002" and win.state.frame == k
-    assert win.map_panel.hint.text() == win.map_panel.HINT
+    # a second click, the index now there: still answered by a thread, at once
+    win.state.set_run("toy-003")
+    k1 = k + 4
+    pos = canvas.mapFromScene(canvas.view_point(float(x[k1]), float(y[k1])))
+    with qtbot.waitSignal(canvas.run_picked, timeout=20000):
+        qtbot.mouseClick(canvas.viewport(), Qt.MouseButton.LeftButton, pos=QPoint(pos.x(), pos.y()))
+        assert win.map_panel.hint.text() == win.map_panel.HINT   # nothing to prepare
+    assert len(built_in) == 1 and threading.main_thread() not in searched_in
+    assert win.state.run_id == "toy-002" and win.state.frame == k1
 
 
 def test_export_of_a_picture_map(win, tmp_path):

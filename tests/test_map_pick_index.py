@@ -69,3 +69,22 @@ def test_index_is_built_once_per_data():
     assert data.pick_index(build=False) is None
     first = data.pick_index()
     assert data.pick_index() is first and data.pick_index(build=False) is first
+
+
+@pytest.mark.parametrize("piece", [1, 2, 7, 64])
+def test_index_built_in_small_pieces_is_the_same(piece, monkeypatch):
+    """Built a few points per numpy call (as large maps are, to keep the window's thread free): the same
+    segments, long ones, points and answers as built whole."""
+    data = _walks(np.random.default_rng(5), 30, 1.0)
+    whole = PathIndex(data)
+    monkeypatch.setattr(PathIndex, "PIECE", piece)
+    pieces = PathIndex(data)
+    assert np.array_equal(pieces.seg_ok, whole.seg_ok) and np.array_equal(pieces.points, whole.points)
+    assert pieces.cap == whole.cap and np.array_equal(pieces.long, whole.long)
+    np.testing.assert_array_equal(pieces.tree.data, whole.tree.data)
+    rng = np.random.default_rng(6)
+    for _ in range(30):
+        k = int(rng.integers(0, data.x.size))
+        px, py = data.x[k] + rng.normal(scale=0.03), data.y[k] + rng.normal(scale=0.03)
+        if np.isfinite(px) and np.isfinite(py):
+            assert pieces.nearest(px, py, 0.005, 0.005) == whole.nearest(px, py, 0.005, 0.005)

@@ -606,9 +606,10 @@ class LabelJournal:
             return j._recovered
 
     # --- reading --------------------------------------------------------------------------
-    def state(self, current_hashes: Mapping[str, str] | None = None) -> pd.DataFrame:
-        """Current labels, one row per labeled run (columns: see ``journal_replay.STATE_COLUMNS``)."""
-        return self._replay.state(current_hashes)
+    def state(self, current_hashes: Mapping[str, str] | None = None, runs: Iterable[str] | None = None) -> pd.DataFrame:
+        """Current labels, one row per labeled run (columns: see ``journal_replay.STATE_COLUMNS``); with ``runs``, only
+        those of them that have labels (the window updates the rows of a hand label without replaying every run)."""
+        return self._replay.state(current_hashes, runs)
 
     def history(self, run_id: str) -> pd.DataFrame:
         """Every label, undo and note event of one run, oldest first (a note's text is in ``reason``)."""

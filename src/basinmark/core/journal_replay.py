@@ -114,9 +114,10 @@ class Replay:
         ev = self.final_event(run)
         return None if ev is None else ev["label"]
 
-    def state(self, current_hashes: Mapping[str, str] | None = None) -> pd.DataFrame:
+    def state(self, current_hashes: Mapping[str, str] | None = None, runs=None) -> pd.DataFrame:
         rows = []
-        for run, stack in self.stacks.items():
+        stacks = self.stacks.items() if runs is None else ((r, self.stacks[r]) for r in runs if r in self.stacks)
+        for run, stack in stacks:
             auto = self._latest(stack, hand=False)
             hand = self._latest(stack, hand=True)
             final = hand or auto

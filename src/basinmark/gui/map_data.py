@@ -290,6 +290,10 @@ class PathIndex:
     8e6 points builds in ~1 s with the GIL released).
     """
 
+    #: elements per numpy call while building: a call over all 8e6 points holds Python's lock for 50-100 ms (some numpy
+    #: operations do not release it), which the window's thread then waits for; pieces keep each hold short
+    PIECE = 1 << 19
+
     def __init__(self, data: "MapData") -> None:
         from scipy.spatial import cKDTree
 
@@ -299,24 +303,38 @@ class PathIndex:
         self.wx = (x1 - x0) or 1.0
         self.wy = (y1 - y0) or 1.0
         self.x0, self.y0 = x0, y0
-        u = (data.x - x0) / self.wx
-        v = (data.y - y0) / self.wy
-        ok = np.isfinite(u) & np.isfinite(v)
-        lengths = data.ends - data.starts
-        run_of = np.repeat(np.arange(data.n_runs), lengths)
-        self.run_of = run_of
-        self.ok = ok
-        seg_ok = ok[:-1] & ok[1:] & (run_of[:-1] == run_of[1:]) if ok.size > 1 else np.zeros(0, bool)
-        with np.errstate(invalid="ignore"):
-            seg_len = np.hypot(np.diff(u), np.diff(v)) if ok.size > 1 else np.zeros(0)
-        good = seg_len[seg_ok]
+        n = data.x.size
+        step = self.PIECE
+        ends = np.asarray(data.ends)
+        seg_ok_parts, seg_len_parts, point_parts, uv_parts = [], [], [], []
+        for s in range(0, n, step):
+            e = min(n, s + step + 1)   # one point more: the segment across the piece's end
+            u = (data.x[s:e] - x0) / self.wx
+            v = (data.y[s:e] - y0) / self.wy
+            ok = np.isfinite(u) & np.isfinite(v)
+            run_of = np.searchsorted(ends, np.arange(s, e), side="right")
+            m = min(step, e - s)   # points (and segments starting) in this piece
+            if e - s > 1:
+                seg_ok = ok[:-1] & ok[1:] & (run_of[:-1] == run_of[1:])
+                with np.errstate(invalid="ignore"):
+                    seg_len = np.hypot(np.diff(u), np.diff(v))
+                seg_ok_parts.append(seg_ok[:m])
+                seg_len_parts.append(seg_len[:m])
+            pts = np.flatnonzero(ok[:m])
+            point_parts.append(pts + s)
+            uv_parts.append(np.column_stack([u[pts], v[pts]]))
+        seg_ok = np.concatenate(seg_ok_parts)[:max(0, n - 1)] if seg_ok_parts else np.zeros(0, bool)
+        seg_len = np.concatenate(seg_len_parts)[:max(0, n - 1)] if seg_len_parts else np.zeros(0)
         # the longest 1 % of segments are measured every time, so the search radius stays small for the others
+        # (from a sample of at most ~1e6 segments: the cap only decides which segments go aside, never an answer)
+        good = seg_len[seg_ok][::max(1, seg_ok.size // 1_000_000)]
         self.cap = float(np.quantile(good, 0.99)) if good.size else 0.0
         self.seg_ok = seg_ok
-        self.long = np.flatnonzero(seg_ok & (seg_len > self.cap))
-        self.points = np.flatnonzero(ok)
-        self.tree = cKDTree(np.column_stack([u[self.points], v[self.points]]), balanced_tree=False,
-                            compact_nodes=False)
+        self.long = np.concatenate([np.flatnonzero(seg_ok[i:i + step] & (seg_len[i:i + step] > self.cap)) + i
+                                    for i in range(0, seg_ok.size, step)] or [np.zeros(0, np.intp)])
+        self.points = np.concatenate(point_parts) if point_parts else np.zeros(0, np.intp)
+        uv = np.concatenate(uv_parts) if uv_parts else np.zeros((0, 2))
+        self.tree = cKDTree(uv, balanced_tree=False, compact_nodes=False)
 
     def nearest(self, px: float, py: float, sx: float, sy: float,
                 radius_px: float = PICK_RADIUS_PX) -> tuple[int, int, float] | None:
@@ -326,12 +344,17 @@ class PathIndex:
             return None
         a, b = self.wx / sx, self.wy / sy  # pixels per scaled unit along x and y
         reach = (radius_px + self.cap * max(a, b) / 2.0) / min(a, b)
-        near = self.points[self.tree.query_ball_point(((px - self.x0) / self.wx, (py - self.y0) / self.wy), reach)]
+        near = self.points[np.asarray(self.tree.query_ball_point(
+            ((px - self.x0) / self.wx, (py - self.y0) / self.wy), reach), dtype=np.intp)]
         n_seg = self.seg_ok.size
-        starts = np.concatenate([near, near - 1, self.long])
-        starts = np.unique(starts[(starts >= 0) & (starts < n_seg)])
-        starts = starts[self.seg_ok[starts]]
-        hit = _nearest_among(self.data, starts, np.asarray(near, dtype=np.intp), px, py, sx, sy)
+        # segments starting at a near point or just before it, and the long ones: marked, not sorted (where many
+        # long segments crowd the plane a click finds ~1e6 near points; np.unique of them took ~0.9 s)
+        mark = np.zeros(n_seg + 1, dtype=bool)
+        mark[near] = True
+        mark[near[near > 0] - 1] = True
+        mark[self.long] = True
+        starts = np.flatnonzero(mark[:n_seg] & self.seg_ok)
+        hit = _nearest_among(self.data, starts, near, px, py, sx, sy)
         return hit if hit is not None and hit[2] <= radius_px else None
 
 

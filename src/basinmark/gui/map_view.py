@@ -43,7 +43,7 @@ class MapCanvas(pg.PlotWidget):
     """The map's plot: basin regions, one curve per label, the current run and frame."""
 
     run_picked = Signal(str, int)  # run id, frame index
-    index_ready = Signal(object)   # the MapData whose pick index a thread has built
+    picked_later = Signal(object, int, object)   # MapData, click number, (run id, frame) or None: from a thread
     pick_waiting = Signal(bool)    # a click waits for the pick index (True), or no longer (False)
 
     #: drawn points from which the paths are one picture drawn in a worker thread (gui/map_layer.py) instead of
@@ -62,8 +62,7 @@ class MapCanvas(pg.PlotWidget):
         self.curves: dict[str, pg.PlotCurveItem] = {}
         self.layer: PathLayer | None = None   # the paths as one picture (large maps), else None
         self._layer_version = 0
-        self._pending_click: tuple | None = None
-        self._indexing: MapData | None = None
+        self._clicks = 0   # clicks on a large map, answered by a thread: only the latest one counts
         self.counts: dict[str, int] = {}
         self.region_items: list[QGraphicsRectItem] = []
         self.region_texts: list[pg.TextItem] = []
@@ -89,7 +88,7 @@ class MapCanvas(pg.PlotWidget):
             item.setCacheMode(item.CacheMode.DeviceCoordinateCache)
         self.scene().sigMouseClicked.connect(self._clicked)
         self.plot_item.vb.sigTransformChanged.connect(self._view_changed)
-        self.index_ready.connect(self._on_index_ready)
+        self.picked_later.connect(self._on_picked_later)
         self.apply_palette()
 
     # --- look -----------------------------------------------------------------------------
@@ -141,7 +140,7 @@ class MapCanvas(pg.PlotWidget):
         self._draw_regions()
         self._draw_curves(groups)
         self._current_xy = None
-        self._pending_click = None
+        self._clicks += 1   # a click on the old map is not answered any more
         self._draw_current()
         pi.enableAutoRange()
         pi.autoRange()
@@ -337,43 +336,35 @@ class MapCanvas(pg.PlotWidget):
             return
         p = vb.mapSceneToView(ev.scenePos())
         data = self.data
-        if data is not None and data.x.size >= INDEX_FROM_POINTS and data.pick_index(build=False) is None:
-            # the k-d tree of a large map takes about a second: a thread builds it, the click is answered then
+        if data is not None and data.x.size >= INDEX_FROM_POINTS:
+            # a large map: a thread finds the run (building the k-d tree first when it is not there yet, ~1 s at
+            # 10,000 runs; a search near many long segments measured up to ~1 s too) and the answer comes later
             sx, sy = vb.viewPixelSize()
-            self._pending_click = (data, p.x(), p.y(), sx, sy)
-            self.pick_waiting.emit(True)
-            self._build_index(data)
+            self._clicks += 1
+            if data.pick_index(build=False) is None:
+                self.pick_waiting.emit(True)
+            threading.Thread(target=self._pick_in_thread, args=(data, self._clicks, p.x(), p.y(), sx, sy),
+                             name="basinmark-map-pick", daemon=True).start()
             return
         hit = self.pick_at(p.x(), p.y())
         if hit is not None:
             self.run_picked.emit(*hit)
 
-    def _build_index(self, data: MapData) -> None:
-        if self._indexing is data:
-            return   # under way (a thread waits for the map's worker, which builds it after drawing)
-        self._indexing = data
+    def _pick_in_thread(self, data: MapData, number: int, x: float, y: float, sx: float, sy: float) -> None:
+        try:
+            hit = self._pick(data, x, y, sx, sy)
+        except Exception:  # noqa: BLE001 -- answered as "nothing there"
+            hit = None
+        try:
+            self.picked_later.emit(data, number, hit)
+        except RuntimeError:  # the canvas was closed meanwhile
+            pass
 
-        def work() -> None:
-            try:
-                data.pick_index()
-            except Exception:  # noqa: BLE001 -- the click is then answered "nothing there" (see _on_index_ready)
-                pass
-            try:
-                self.index_ready.emit(data)
-            except RuntimeError:  # the canvas was closed meanwhile
-                pass
-
-        threading.Thread(target=work, name="basinmark-map-index", daemon=True).start()
-
-    def _on_index_ready(self, data: MapData) -> None:
-        if self._indexing is data:
-            self._indexing = None
-        pending, self._pending_click = self._pending_click, None
+    def _on_picked_later(self, data: MapData, number: int, hit) -> None:
+        if number != self._clicks:
+            return   # a newer click (or other data) came meanwhile
         self.pick_waiting.emit(False)
-        if pending is None or pending[0] is not data or data is not self.data or data.pick_index(build=False) is None:
-            return   # the map changed meanwhile, or the index could not be built
-        hit = self._pick(data, *pending[1:])
-        if hit is not None:
+        if data is self.data and hit is not None:
             self.run_picked.emit(*hit)
 
 
@@ -509,7 +500,15 @@ class MapPanel(QWidget):
         if self._held or not self.isVisible():
             self.stale = True
         elif self.canvas.data is not None:
-            self.canvas.set_labels(self.final_labels())
+            delta = getattr(self.state, "labels_delta", None)
+            if delta is not None and self.canvas.labels:   # a few rows changed (a hand label): only theirs
+                labels = dict(self.canvas.labels)
+                for run in delta:
+                    final = (self.state.label_row(run) or {}).get("final_label")
+                    labels[run] = final if isinstance(final, str) and final else NO_LABEL
+                self.canvas.set_labels(labels)
+            else:
+                self.canvas.set_labels(self.final_labels())
 
     def _message(self, text: str) -> None:
         self.note.setText(text)
