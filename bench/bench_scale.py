@@ -128,7 +128,8 @@ from basinmark.core.journal import LabelJournal
 from basinmark.core.sets import journal_path, open_set
 tset = open_set(sys.argv[1])
 path = journal_path(tset.root)
-path.unlink(missing_ok=True)
+for p in (path, path.with_name(path.name + ".head"), path.with_name(path.name + ".lock")):
+    p.unlink(missing_ok=True)
 with LabelJournal.open(path, labeler="bench") as j:
     j.record_batch([{"run_id": rid, "label": ("amber", "teal")[i % 3 == 0], "content_hash": h}
                     for i, (rid, h) in enumerate(tset.content_hashes().items())], source="hand", labeler="bench")
@@ -178,7 +179,9 @@ def bench_set(root: Path, runs: int, frames: int, atoms: int, workers: int, ase_
         size = generate(root, runs, frames, atoms)
         print(f"generated {runs} runs ({2 * runs} gzipped halves, {atoms} atoms x {frames} frames, "
               f"{size / 1e6:.0f} MB) in {time.perf_counter() - t0:.1f} s")
-    for p in (root / ".basinmark-cache", root / "basinmark-labels.jsonl"):
+    # the journal goes with its head and lock files (a head left behind makes a new journal look cut short)
+    for p in (root / ".basinmark-cache", root / "basinmark-labels.jsonl", root / "basinmark-labels.jsonl.head",
+              root / "basinmark-labels.jsonl.lock"):
         shutil.rmtree(p, ignore_errors=True) if p.is_dir() else p.unlink(missing_ok=True)
     n = cores()
     print(f"--- {runs} runs x {atoms} atoms x {frames} frames per half; cores: {n}; load average {load()}")

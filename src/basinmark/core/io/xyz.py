@@ -29,7 +29,7 @@ from basinmark.core.io.atom_columns import _parse_fixed  # noqa: F401  (tests re
 from basinmark.core.io.atom_columns import _AXES, _NUMBER, _Column, _layout, _parse_tokens, _Slow
 from basinmark.core.io.comment_keys import Comments, parse_comments
 from basinmark.core.io.comment_keys import merge as merge_comments
-from basinmark.core.io.registry import RAW_PIECE, ByteStream, FrameBlock
+from basinmark.core.io.registry import RAW_PIECE, ByteStream, FrameBlock, as_path
 
 
 # ---------------------------------------------------------------------------------------------
@@ -531,7 +531,7 @@ def read_xyz(path: str | Path, *, dtype=np.float32, chunk_bytes: int = CHUNK_BYT
     The file is streamed: decompressed and parsed piece by piece, so that memory holds the results
     and one piece of text at a time, never the whole text.
     """
-    path = Path(path)
+    path = as_path(path)
     stream = ByteStream(path, min(RAW_PIECE, chunk_bytes))
     try:
         reader = _FrameReader(path, dtype, True, chunk_bytes, comment_format)
