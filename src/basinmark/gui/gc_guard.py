@@ -37,16 +37,15 @@ def collect_now() -> int:
     return gc.collect()
 
 
-def freeze_survivors(collect_young: bool = True) -> int:
+def freeze_survivors(collect_young: bool = True) -> None:
     """Leave every object alive now out of later collections (freezing moves a list head), after collecting the
     two younger generations so that short-lived garbage is not frozen -- unless ``collect_young`` is false (runs
     arriving while a cold open parses: the young generations then hold everything allocated since the last
     batch, and collecting them was itself a pause; what little of it is cyclic garbage waits for :func:`thaw`).
-    Returns how many objects are frozen in all."""
+    (Nothing is returned: ``gc.get_freeze_count`` walks every frozen object, 30 ms with 2,000 runs.)"""
     if collect_young:
         gc.collect(1)
     gc.freeze()
-    return gc.get_freeze_count()
 
 
 def thaw() -> int:
