@@ -72,6 +72,7 @@ class FrameBlock:
 #: compression suffix -> name
 COMPRESSION_SUFFIXES = {".gz": "gzip", ".bz2": "bzip2", ".xz": "xz"}
 _MAGIC = ((b"\x1f\x8b", "gzip"), (b"BZh", "bzip2"), (b"\xfd7zXZ\x00", "xz"))
+_LONGEST_MAGIC = max(len(magic) for magic, _ in _MAGIC)
 
 #: format suffix -> "module:function" (resolved lazily, so readers may import this module)
 READERS: dict[str, str] = {
@@ -236,6 +237,11 @@ class ByteStream:
 
     def _pieces(self):
         data = self._read()
+        while len(data) < _LONGEST_MAGIC:  # a read smaller than a signature: sniff the whole signature
+            more = self._read()
+            if not more:
+                break
+            data += more
         kind = sniff_compression(data)
         named = split_suffix(self.path)[1]
         if kind is None:
@@ -265,11 +271,18 @@ class ByteStream:
                 self.produced += len(out)
                 yield out
             if d.eof:
-                rest = d.unused_data + data
+                # all input past the end of the member is in unused_data (zlib leaves a copy of it in
+                # unconsumed_tail when the output was limited: adding both doubled bytes and broke the next member)
+                rest = d.unused_data
                 if kind == "gzip":
                     rest = rest.lstrip(b"\x00")  # padding after a gzip member is allowed
-                if not rest:
-                    rest = self._read()
+                # the next member's first bytes may straddle two reads: sniff only a whole signature (a member
+                # starting a byte before the end of a read was taken for trailing garbage and dropped)
+                while len(rest) < _LONGEST_MAGIC:
+                    more = self._read()
+                    if not more:
+                        break
+                    rest += more
                     if kind == "gzip":
                         rest = rest.lstrip(b"\x00")
                 if not rest or sniff_compression(rest) != kind:
