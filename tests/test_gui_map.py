@@ -277,3 +277,14 @@ def test_decimation_is_every_stride_th_frame_plus_the_last(lengths, max_points):
         want_runs += [r] * len(local)
     keep, runs = decimated_indices(starts, ends, max_points, with_runs=True)
     assert keep.tolist() == want and runs.tolist() == want_runs
+
+
+@pytest.mark.parametrize("x, y, want", [
+    ([1.0, np.nan, 3.0], [2.0, 5.0, np.nan], (1.0, 3.0, 2.0, 5.0)),
+    ([np.inf, 1.0, -2.0], [0.5, -np.inf, 4.0], (-2.0, 1.0, 0.5, 4.0)),   # infinities are not in the range
+    ([np.nan, np.nan, np.nan], [1.0, 2.0, 3.0], None),
+])
+def test_finite_range_skips_nan_and_infinity(x, y, want):
+    d = MapData(["r"], np.array(x), np.array(y), np.array([0]), np.array([3]), MapAxis("a", (1, 2)),
+                MapAxis("b", (1, 3)))
+    assert d.finite_range() == want

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import math
 import threading
+import warnings
 from dataclasses import dataclass
 from typing import Any, Mapping, Sequence
 
@@ -118,8 +119,19 @@ class MapData:
         """(x min, x max, y min, y max) over finite values (computed once), or None when there are none."""
         got = getattr(self, "_range", False)
         if got is False:
-            fx, fy = self.x[np.isfinite(self.x)], self.y[np.isfinite(self.y)]
-            got = (float(fx.min()), float(fx.max()), float(fy.min()), float(fy.max())) if fx.size and fy.size else None
+            got = None
+            if self.x.size and self.y.size:
+                # NaN-skipping minimum and maximum read the arrays once (copying the finite values out took ~0.4 s
+                # of the map's worker at 10,000 runs); an infinity or no value at all falls back to that copy
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore", RuntimeWarning)   # all NaN: said by the fallback (None)
+                    quick = (np.nanmin(self.x), np.nanmax(self.x), np.nanmin(self.y), np.nanmax(self.y))
+                if np.isfinite(quick).all():
+                    got = tuple(float(v) for v in quick)
+                else:
+                    fx, fy = self.x[np.isfinite(self.x)], self.y[np.isfinite(self.y)]
+                    if fx.size and fy.size:
+                        got = (float(fx.min()), float(fx.max()), float(fy.min()), float(fy.max()))
             self._range = got
         return got
 

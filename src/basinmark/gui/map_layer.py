@@ -20,6 +20,7 @@ Qt drawing call holds Python's lock for its whole length, so a long call in any 
 from __future__ import annotations
 
 import threading
+import time
 from dataclasses import dataclass
 from typing import Callable, Sequence
 
@@ -130,6 +131,7 @@ def render_paths(groups: Sequence[PathGroup], key: ViewKey, cancelled: Callable[
                     if cancelled():
                         return None
                     painter.drawPath(pg.functions.arrayToQPath(px[s:e], py[s:e], connect="finite"))
+                    time.sleep(0)   # hand Python's lock to the window's thread now if it waits (not in up to 5 ms)
             finally:
                 painter.end()
             over.setOpacity(alpha)
