@@ -27,6 +27,7 @@ from basinmark.core.errors import BasinmarkError, SetError, TrajectoryFileError
 from basinmark.core.manifest import SetLayout, load_layout
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory, TrajectorySet
 from basinmark.core.pairing import RunSpec, describe, find_by_names, find_by_patterns
+from basinmark.core.process_context import worker_context
 from basinmark.core.set_cache import (cached_runs, find_run, has_segments, load_segment, prune, segment_key,
                                       segment_length, segments, store_segment)
 
@@ -391,15 +392,8 @@ def use_processes(plan: SetPlan, workers: int | None = None, processes: bool | N
 
 
 def _process_context():
-    """Workers forked from a small server process that has imported the readers once (not from the caller,
-    which may be a window with threads of its own, where forking is unsafe); spawned where there is none."""
-    import multiprocessing as mp
-
-    if "forkserver" in mp.get_all_start_methods():
-        ctx = mp.get_context("forkserver")
-        ctx.set_forkserver_preload(["basinmark.core.sets", "basinmark.core.io"])
-        return ctx
-    return mp.get_context("spawn")
+    """See :func:`basinmark.core.process_context.worker_context` (the caller's script never runs in a worker)."""
+    return worker_context(["basinmark.core.sets", "basinmark.core.io"])
 
 
 def hash_files(plan: SetPlan, workers: int | None = None) -> dict[Path, str]:

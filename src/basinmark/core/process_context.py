@@ -1,0 +1,79 @@
+"""The multiprocessing context of the loader's process pool: workers that never run the caller's script.
+
+The standard library's forkserver and spawn workers import the caller's main script again (as ``__mp_main__``)
+so that functions defined there can be unpickled.  basinmark's workers run only basinmark's own functions, and a
+chemist's plain script that opens a set at its top level (no ``if __name__ == "__main__":`` guard) would
+otherwise run again in every worker: its side effects repeated, and its own open of the set starting a pool
+inside a worker, which the standard library refuses, so every worker died and the open failed
+(tests/test_sets_script.py).  The standard library offers no option for this, hence the narrow hook below:
+while one of *our* workers is being started (a flag of the starting thread), the preparation data sent to the
+child leaves out the main module; every other process, of this program or of the caller's, is untouched.
+"""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+import threading
+from multiprocessing import context as mp_context
+from multiprocessing import spawn
+
+_starting = threading.local()
+_MAIN_KEYS = ("init_main_from_path", "init_main_from_name")
+_lock = threading.Lock()
+
+
+def _install_hook() -> None:
+    """Wrap ``multiprocessing.spawn.get_preparation_data`` once: without our flag it is the original."""
+    with _lock:
+        if getattr(spawn.get_preparation_data, "_basinmark", False):
+            return
+        original = spawn.get_preparation_data
+
+        def get_preparation_data(name):
+            data = original(name)
+            if getattr(_starting, "active", False):
+                for key in _MAIN_KEYS:
+                    data.pop(key, None)
+            return data
+
+        get_preparation_data._basinmark = True
+        spawn.get_preparation_data = get_preparation_data
+
+
+def _popen_without_main(base_popen, process_obj):
+    _install_hook()
+    _starting.active = True
+    try:
+        return base_popen(process_obj)
+    finally:
+        _starting.active = False
+
+
+class _ForkServerWorker(mp_context.ForkServerProcess if hasattr(mp_context, "ForkServerProcess") else object):
+    @staticmethod
+    def _Popen(process_obj):
+        from multiprocessing.popen_forkserver import Popen
+        return _popen_without_main(Popen, process_obj)
+
+
+class _SpawnWorker(mp_context.SpawnProcess):
+    @staticmethod
+    def _Popen(process_obj):
+        if mp_context.sys.platform == "win32":  # pragma: no cover - Windows
+            from multiprocessing.popen_spawn_win32 import Popen
+        else:
+            from multiprocessing.popen_spawn_posix import Popen
+        return _popen_without_main(Popen, process_obj)
+
+
+def worker_context(preload: list[str]):
+    """Workers forked from a small server process that has imported ``preload`` once (not from the caller,
+    which may be a window with threads of its own, where forking is unsafe); spawned where there is none.
+    Either way the caller's main script is not imported in them."""
+    if "forkserver" in mp.get_all_start_methods():
+        base = mp.get_context("forkserver")
+        ctx = type("BasinmarkForkServerContext", (type(base),), {"Process": _ForkServerWorker})()
+        ctx.set_forkserver_preload(preload)
+        return ctx
+    base = mp.get_context("spawn")
+    return type("BasinmarkSpawnContext", (type(base),), {"Process": _SpawnWorker})()
