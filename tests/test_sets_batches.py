@@ -12,6 +12,7 @@ import pytest
 
 from basinmark.core import sets as sets_mod
 from basinmark.core.model import LoadFailure
+from basinmark.core.process_context import WORKER_NICE
 from basinmark.core.sets import _parsed, _tasks, discover, open_set
 
 from tests.test_sets import write_run
@@ -129,3 +130,22 @@ def test_the_first_runs_are_read_here_while_the_pool_starts(batch_set, monkeypat
     assert sorted(ids) == [s.run_id for s in plan.runs]  # every run once, the rest from the pool
     alone = open_set(batch_set, use_cache=False, processes=False, workers=1)
     np.testing.assert_array_equal(first[1].positions, alone["run-0001"].positions)
+
+
+def reports_priority(spec, layout):
+    """A worker's answer: its scheduling priority, as a failure's reason."""
+    return LoadFailure(spec.files[0], f"nice {os.nice(0)}"), {}
+
+
+@pytest.mark.skipif(not hasattr(os, "nice"), reason="no os.nice on this system")
+def test_workers_yield_the_processor_to_the_caller(batch_set):
+    """The pool's workers run at a lower priority than the caller (a window's thread keeps its share of a core
+    while every core parses); the runs the caller reads itself while the pool starts are real runs."""
+    plan = discover(batch_set)
+    mine = os.nice(0)
+    want = min(19, mine + WORKER_NICE)
+    seen = [result.reason for _, result, _ in _parsed(plan, plan.runs, 2, None, True, work=reports_priority)
+            if isinstance(result, LoadFailure) and result.reason.startswith("nice ")]
+    assert seen, "no run was read by a worker"
+    assert set(seen) == {f"nice {want}"}
+    assert os.nice(0) == mine  # the caller's own priority is untouched

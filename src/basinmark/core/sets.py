@@ -27,7 +27,7 @@ from basinmark.core.errors import BasinmarkError, SetError, TrajectoryFileError
 from basinmark.core.manifest import SetLayout, load_layout
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory, TrajectorySet
 from basinmark.core.pairing import RunSpec, describe, find_by_names, find_by_patterns
-from basinmark.core.process_context import worker_context
+from basinmark.core.process_context import lower_priority, worker_context
 from basinmark.core.set_cache import (cached_runs, find_run, has_segments, load_segment, prune, segment_key,
                                       segment_length, segments, store_segment)
 
@@ -509,7 +509,8 @@ def _start_pool(layout: SetLayout, specs: list[RunSpec], n_workers: int, cancel)
 
     def start() -> None:
         try:
-            box["pool"] = ProcessPoolExecutor(max_workers=n_workers, mp_context=_process_context())
+            box["pool"] = ProcessPoolExecutor(max_workers=n_workers, mp_context=_process_context(),
+                                              initializer=lower_priority)
             box["pool"].submit(_ready).result()
         except BaseException as exc:  # handed to the caller's thread below
             box["error"] = exc
@@ -545,7 +546,8 @@ def _pool_pass(layout: SetLayout, tasks: list[list[RunSpec]], n_workers: int, ca
     tasks left unfinished when a worker process died are appended to ``out`` in the order they were given.
     Raises _Cancelled."""
     if pool is None:
-        pool = ProcessPoolExecutor(max_workers=n_workers, mp_context=_process_context())
+        pool = ProcessPoolExecutor(max_workers=n_workers, mp_context=_process_context(),
+                                              initializer=lower_priority)
     try:
         futures = [pool.submit(_parse_batch, task, layout, work) for task in tasks]
         index = {fut: i for i, fut in enumerate(futures)}
