@@ -32,6 +32,13 @@ from PySide6.QtGui import QColor, QImage, QPainter, QPaintEngine, QPen
 #: points drawn per Qt call in the worker: ~1-3 ms of opaque stroking each, the longest the worker holds Python's lock
 #: (our own choice, measured at 10,000 runs: 5,000 cost no more in all than 20,000)
 CHUNK_POINTS = 5_000
+#: the worker pauses ``YIELD_S`` once it has drawn for ``YIELD_EVERY_S``: with only ``sleep(0)`` between pieces it took
+#: Python's lock straight back before the window's thread could, and a hand label with the map shown (the picture
+#: drawn again) left the window 145-189 ms without a turn.  Measured at 10,000 runs on 2 cores (the label of
+#: bench/bench_window_scale.py, two runs each): a 1 ms pause after every piece 40-46 ms but the map drawn in 341-364 ms
+#: (231-255 ms without pauses); a 1 ms pause every 8 ms 51-77 ms, map 332-340 ms; every 4 ms 52-71 ms, map 247-311 ms
+YIELD_S = 0.001
+YIELD_EVERY_S = 0.004
 
 
 @dataclass(frozen=True)
@@ -109,6 +116,7 @@ def render_paths(groups: Sequence[PathGroup], key: ViewKey, cancelled: Callable[
         return out
     layer = QImage(w, h, QImage.Format.Format_ARGB32_Premultiplied)
     over = QPainter(out)
+    held_since = time.perf_counter()
     try:
         for group in groups:
             if cancelled():
@@ -131,7 +139,11 @@ def render_paths(groups: Sequence[PathGroup], key: ViewKey, cancelled: Callable[
                     if cancelled():
                         return None
                     painter.drawPath(pg.functions.arrayToQPath(px[s:e], py[s:e], connect="finite"))
-                    time.sleep(0)   # hand Python's lock to the window's thread now if it waits (not in up to 5 ms)
+                    if time.perf_counter() - held_since >= YIELD_EVERY_S:
+                        time.sleep(YIELD_S)   # Python's lock to the window's thread, which may be waiting for it
+                        held_since = time.perf_counter()
+                    else:
+                        time.sleep(0)
             finally:
                 painter.end()
             over.setOpacity(alpha)
