@@ -306,6 +306,12 @@ class LabelPanel(QWidget):
             self.note.setText(self.shown_note(self.shown_run))
         self.note.setEnabled(bool(self.shown_run) and not st.readonly)
         row = st.label_row() if self.shown_run else None
+        if st.traj is not None and row is None and st.loading:
+            self.current.setText("The set is still loading: this run's outcome and labels show, and it can be "
+                                 "labeled, once loading has finished.")
+            self.current.setToolTip("")
+            self._show_pending()
+            return
         if st.traj is None or row is None:
             self.current.setText("No run selected: choose one in the run table." if st.tset is not None and len(st.tset)
                                  else "No run open")

@@ -106,6 +106,7 @@ class MainWindow(QMainWindow):
         self.failure_dialog: FailuresDialog | None = None
         self.init_offer = None  # the offer to propose rules, for a folder without any
         self._messages: dict[str, str] = {}
+        self._load_total = 0   # runs of the set being loaded (its progress' total), 0 before it is known
         self._default_state: QByteArray | None = None
         self.setWindowTitle("basinmark")
         self.setAcceptDrops(True)
@@ -265,8 +266,8 @@ class MainWindow(QMainWindow):
         self.status_where = QLabel(self)
         self.status_counts = QLabel(self)
         self.progress = QProgressBar(self)
-        self.progress.setMaximumWidth(220)
         self.progress.setTextVisible(True)
+        self._fit_progress("Loading 00000/00000")
         self.progress.setVisible(False)
         self.cancel_button = QToolButton(self)
         self.cancel_button.setIcon(icon("cancel"))
@@ -308,6 +309,7 @@ class MainWindow(QMainWindow):
         self.molecule.picks_changed.connect(st.set_picks)
         st.picks_changed.connect(self.molecule.set_picks)
         st.picks_changed.connect(lambda _p: self._update_status())
+        st.runs_arrived.connect(self._update_status)
         self.molecule.monitor_requested.connect(st.add_monitor)
         self.traces.time_scrubbed.connect(self._on_scrub)
         self.traces.threshold_moved.connect(self.move_threshold)
@@ -598,6 +600,8 @@ class MainWindow(QMainWindow):
 
     def _busy(self, on: bool, phase: str = "") -> None:
         self.state.loading = on
+        if on and phase == "Loading":
+            self._load_total = 0
         if phase == "Loading" or not on:  # no key means a label until the set's rules are read
             self.label_panel.set_loading(on)
             self._fill_labels_menu()
@@ -607,12 +611,23 @@ class MainWindow(QMainWindow):
             self.progress.setRange(0, 0)
             self.progress.setFormat(f"{phase}…")
 
+    def _fit_progress(self, text: str) -> None:
+        """The progress bar at least as wide as ``text`` on one line (at 1366 px its text wrapped and overlapped)."""
+        need = self.progress.fontMetrics().horizontalAdvance(text) + 24
+        if need > self.progress.minimumWidth():
+            self.progress.setMinimumWidth(need)
+            self.progress.setMaximumWidth(max(need, 220))
+
     def _on_progress(self, phase: str, done: int, total: int) -> None:
         self.progress.setRange(0, max(total, 1))
         self.progress.setValue(done)
         self.progress.setFormat(f"{phase} %v/%m")
+        self._fit_progress(self.progress.text())
         if phase == "Loading":
             self.run_table.set_load_progress(done, total)
+            if total != self._load_total:
+                self._load_total = total
+                self._update_status()
 
     def _on_loaded(self, result: dict) -> None:
         """The worker's result, in two turns of the event loop: this one puts the set, its journal and the rules
@@ -849,7 +864,11 @@ class MainWindow(QMainWindow):
         st = self.state
         parts = []
         if st.tset is not None:
-            parts.append(f"set {st.tset.name} ({len(st.tset)} runs)")
+            n = len(st.tset)
+            if st.loading and self._load_total > n:   # still arriving: so far, of how many
+                parts.append(f"set {st.tset.name} ({n:,} of {self._load_total:,} runs loaded)")
+            else:
+                parts.append(f"set {st.tset.name} ({n:,} runs)")
         traj = st.traj
         if traj is not None:
             parts.append(f"run {st.run_id}")
