@@ -307,8 +307,7 @@ class LabelPanel(QWidget):
         self.note.setEnabled(bool(self.shown_run) and not st.readonly)
         row = st.label_row() if self.shown_run else None
         if st.traj is not None and row is None and st.loading:
-            self.current.setText("The set is still loading: this run's outcome and labels show, and it can be "
-                                 "labeled, once loading has finished.")
+            self.current.setText("The set is still loading: this run's outcome and labels show once it has loaded.")
             self.current.setToolTip("")
             self._show_pending()
             return

@@ -880,7 +880,7 @@ class MainWindow(QMainWindow):
             parts.append("picked " + "-".join(map(str, st.picked)))
         self.status_where.setText("   ·   ".join(parts))
         counts = self.run_table.outcome_counts() if len(st.labels) else {}
-        self.status_counts.setText("  ".join(f"{k}: {v}" for k, v in counts.items()))
+        self.status_counts.setText("  ".join(f"{k}: {v:,}" for k, v in counts.items()))
 
     def _after_label(self, _run_id: str, _label: str) -> None:
         if not self.actions_["auto_advance"].isChecked():

@@ -1096,8 +1096,8 @@ class RunTable(QWidget):
         self.count_bar.set_counts(counts, products)
         n = len(self.state.labels)
         hand = int((self.state.labels["hand_label"] != "").sum()) if n else 0
-        parts = [f"{k} {v}" for k, v in counts.items()]
-        self.count_label.setText(f"{n} runs, {hand} labeled by hand" + (": " + " · ".join(parts) if parts else ""))
+        parts = [f"{k} {v:,}" for k, v in counts.items()]
+        self.count_label.setText(f"{n:,} runs, {hand:,} labeled by hand" + (": " + " · ".join(parts) if parts else ""))
         warnings = stats.reliability_warnings({k: v for k, v in counts.items() if k != "unclassified"}, products) \
             if products and n else []
         more = f" (+{len(warnings) - 1} more: hover to read)" if len(warnings) > 1 else ""
@@ -1106,7 +1106,7 @@ class RunTable(QWidget):
         self.warning_label.setVisible(bool(warnings))
         fcounts = self.filter_counts()
         for key, text, _tip in FILTERS:
-            self.filter_buttons[key].setText(f"{text} {fcounts.get(key, 0)}")
+            self.filter_buttons[key].setText(f"{text} {fcounts.get(key, 0):,}")
         self._update_empty()
 
     def _update_arrival_counts(self) -> None:
