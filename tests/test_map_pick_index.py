@@ -1,4 +1,4 @@
-"""Picking on the map through the k-d tree (map_data.PathIndex) gives what a brute-force numpy search over every
+"""Picking on the map through the boxes of path pieces (map_data.PathIndex) gives what a brute-force numpy search over every
 segment gives (map_data.nearest_on_paths, itself checked against a plain loop in test_gui_map.py), for random
 walks with gaps, single-frame runs, long jumps and axes of very different scales."""
 
@@ -28,11 +28,11 @@ def _walks(rng: np.random.Generator, n_runs: int, aspect: float) -> MapData:
 
 
 @settings(max_examples=25, deadline=None)
-@given(st.integers(0, 10_000), st.sampled_from([1.0, 0.01, 50.0]), st.floats(0.3, 30.0))
-def test_index_finds_what_every_segment_search_finds(seed, aspect, zoom):
+@given(st.integers(0, 10_000), st.sampled_from([1.0, 0.01, 50.0]), st.floats(0.3, 30.0), st.sampled_from([1, 3, 32]))
+def test_index_finds_what_every_segment_search_finds(seed, aspect, zoom, chunk):
     rng = np.random.default_rng(seed)
     data = _walks(rng, 60, aspect)
-    index = PathIndex(data)
+    index = PathIndex(data) if chunk == PathIndex.CHUNK else type("Sized", (PathIndex,), {"CHUNK": chunk})(data)
     fx, fy = np.isfinite(data.x), np.isfinite(data.y)
     span_x = np.ptp(data.x[fx]) or 1.0
     span_y = np.ptp(data.y[fy]) or 1.0
@@ -71,17 +71,17 @@ def test_index_is_built_once_per_data():
     assert data.pick_index() is first and data.pick_index(build=False) is first
 
 
-@pytest.mark.parametrize("piece", [1, 2, 7, 64])
-def test_index_built_in_small_pieces_is_the_same(piece, monkeypatch):
+@pytest.mark.parametrize("piece,chunk", [(1, 32), (2, 4), (7, 3), (64, 32), (100, 1)])
+def test_index_built_in_small_pieces_is_the_same(piece, chunk, monkeypatch):
     """Built a few points per numpy call (as large maps are, to keep the window's thread free): the same
-    segments, long ones, points and answers as built whole."""
+    segments, boxes and answers as built whole."""
     data = _walks(np.random.default_rng(5), 30, 1.0)
+    monkeypatch.setattr(PathIndex, "CHUNK", chunk)
     whole = PathIndex(data)
     monkeypatch.setattr(PathIndex, "PIECE", piece)
     pieces = PathIndex(data)
-    assert np.array_equal(pieces.seg_ok, whole.seg_ok) and np.array_equal(pieces.points, whole.points)
-    assert pieces.cap == whole.cap and np.array_equal(pieces.long, whole.long)
-    np.testing.assert_array_equal(pieces.tree.data, whole.tree.data)
+    assert np.array_equal(pieces.seg_ok, whole.seg_ok)
+    np.testing.assert_array_equal(pieces.boxes, whole.boxes)
     rng = np.random.default_rng(6)
     for _ in range(30):
         k = int(rng.integers(0, data.x.size))
