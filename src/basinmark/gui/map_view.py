@@ -74,6 +74,8 @@ class MapCanvas(pg.PlotWidget):
         # shaded basins already give the eye its bearings
         self.plot_item.showGrid(x=False, y=False)
         self.plot_item.setMenuEnabled(False)
+        for side in ("left", "bottom"):   # the monitor's own unit (Å, °) on its axis, never an SI-prefixed one
+            self.plot_item.getAxis(side).enableAutoSIPrefix(False)
         self.legend = self.plot_item.addLegend(offset=(-10, 10), labelTextSize="9pt")
         self.halo = pg.PlotCurveItem(connect="finite")
         self.highlight = pg.PlotCurveItem(connect="finite")

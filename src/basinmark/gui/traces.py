@@ -170,6 +170,11 @@ class TracesView(QWidget):
         self.p_band.getAxis("left").setWidth(0)
         for p in self.plots:
             p.showGrid(x=p is not self.p_band, y=p is not self.p_band, alpha=0.18)
+            # the units named are the units shown: no automatic SI prefix ("time (kfs)" for a run of a few ps), and
+            # no label text laid out again at every change of range (a QTextDocument per axis; seen at the end of a
+            # load of 10,000 runs, tests/test_gui_trace_axes.py)
+            for side in ("left", "bottom"):
+                p.getAxis(side).enableAutoSIPrefix(False)
             p.getAxis("left").setWidth(58)
             if p is not self.p_dist:
                 p.setXLink(self.p_dist)
