@@ -89,6 +89,9 @@ class SetLoader(QObject):
                                 progress=lambda d, t, _r: progress("Loading", d, t),
                                 on_run=self.arrived.append)
             tset.warnings.extend(changes)
+            # every run's content hash is worked out here, off the window's thread, also when no rules classify the
+            # runs (classification asks for them first): the label table built when the load ends asks for all
+            tset.content_hashes()
             out["tset"] = tset
             out["cancelled"] = self.cancelled
             rules_file = self.rules_file or rules_path(tset.root)
