@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import multiprocessing as mp
 import os
+import sys
 import threading
 from multiprocessing import context as mp_context
 from multiprocessing import spawn
@@ -60,7 +61,7 @@ class _ForkServerWorker(mp_context.ForkServerProcess if hasattr(mp_context, "For
 class _SpawnWorker(mp_context.SpawnProcess):
     @staticmethod
     def _Popen(process_obj):
-        if mp_context.sys.platform == "win32":  # pragma: no cover - Windows
+        if sys.platform == "win32":  # pragma: no cover - Windows
             from multiprocessing.popen_spawn_win32 import Popen
         else:
             from multiprocessing.popen_spawn_posix import Popen

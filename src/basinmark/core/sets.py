@@ -391,9 +391,12 @@ def use_processes(plan: SetPlan, workers: int | None = None, processes: bool | N
     return _stored_bytes(plan) >= PROCESSES_FROM_BYTES
 
 
-def _process_context():
-    """See :func:`basinmark.core.process_context.worker_context` (the caller's script never runs in a worker)."""
-    return worker_context(["basinmark.core.sets", "basinmark.core.io"])
+def _new_pool(n_workers: int) -> ProcessPoolExecutor:
+    """A process pool of our workers (:mod:`basinmark.core.process_context`: the readers preloaded, never the
+    caller's script, a lower priority than the caller)."""
+    return ProcessPoolExecutor(max_workers=n_workers, mp_context=worker_context(["basinmark.core.sets",
+                                                                                   "basinmark.core.io"]),
+                               initializer=lower_priority)
 
 
 def hash_files(plan: SetPlan, workers: int | None = None) -> dict[Path, str]:
@@ -509,8 +512,7 @@ def _start_pool(layout: SetLayout, specs: list[RunSpec], n_workers: int, cancel)
 
     def start() -> None:
         try:
-            box["pool"] = ProcessPoolExecutor(max_workers=n_workers, mp_context=_process_context(),
-                                              initializer=lower_priority)
+            box["pool"] = _new_pool(n_workers)
             box["pool"].submit(_ready).result()
         except BaseException as exc:  # handed to the caller's thread below
             box["error"] = exc
@@ -546,8 +548,7 @@ def _pool_pass(layout: SetLayout, tasks: list[list[RunSpec]], n_workers: int, ca
     tasks left unfinished when a worker process died are appended to ``out`` in the order they were given.
     Raises _Cancelled."""
     if pool is None:
-        pool = ProcessPoolExecutor(max_workers=n_workers, mp_context=_process_context(),
-                                              initializer=lower_priority)
+        pool = _new_pool(n_workers)
     try:
         futures = [pool.submit(_parse_batch, task, layout, work) for task in tasks]
         index = {fut: i for i, fut in enumerate(futures)}
