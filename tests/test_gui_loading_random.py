@@ -59,6 +59,12 @@ def _check(win, chosen: str | None) -> None:
     arrived = list(tset.runs)
     listed = win.run_table.model.column("run").tolist()[:win.run_table.model.n_rows]
     assert listed == arrived[:len(listed)], "rows listed out of arrival order"
+    # the status bar counts the runs loaded so far against the set's total while they arrive, all of them after
+    status = win.status_where.text()
+    if st.loading and len(arrived) < N_RUNS:
+        assert f"({len(arrived)} of {N_RUNS} runs loaded)" in status, status
+    elif not win.busy:
+        assert f"({len(arrived)} runs)" in status, status
     if not st.run_id:
         assert not win.traces._traj and win.label_panel.shown_run == ""
         return
