@@ -36,6 +36,7 @@ from basinmark.gui.label_table import UNCLASSIFIED, final_label_counts
 from basinmark.gui.map_layer import PathGroup, PathLayer
 
 from basinmark.gui.map_data import (NO_LABEL, _finite, MAX_DRAW_POINTS, PICK_RADIUS_PX, MapAxis, added_monitor_name, map_axes, MapData, decimated_indices, draw_points, grouped_paths, nearest_on_paths, basin_regions, thinning_note, INDEX_FROM_POINTS)  # noqa: F401  (some re-exported)
+from basinmark.gui.kept_axis import kept_axes
 from basinmark.gui.plot_theme import theme_axes, theme_legend
 
 
@@ -52,7 +53,7 @@ class MapCanvas(pg.PlotWidget):
     PICTURE_FROM_POINTS = 20_000
 
     def __init__(self, parent: QWidget | None = None, max_points: int = MAX_DRAW_POINTS) -> None:
-        super().__init__(parent)
+        super().__init__(parent, axisItems=kept_axes())
         self.setObjectName("mapCanvas")
         self.max_points = max_points
         self.data: MapData | None = None

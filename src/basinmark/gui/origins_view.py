@@ -26,6 +26,7 @@ from PySide6.QtWidgets import (QCheckBox, QComboBox, QDockWidget, QHBoxLayout, Q
                                QPushButton, QTableWidget, QTableWidgetItem, QVBoxLayout, QWidget)
 
 from basinmark.gui.colours import outcome_colour
+from basinmark.gui.kept_axis import kept_axes
 from basinmark.gui.plot_theme import theme_axes, theme_legend
 
 #: grid of the classifier's regions (cells per side; enough for a smooth-looking boundary at figure sizes)
@@ -73,7 +74,7 @@ class OriginsCanvas(pg.PlotWidget):
     run_picked = Signal(str)
 
     def __init__(self, parent: QWidget | None = None) -> None:
-        super().__init__(parent)
+        super().__init__(parent, axisItems=kept_axes())
         self.setObjectName("originsCanvas")
         self.plot_item = self.getPlotItem()
         self.plot_item.setMenuEnabled(False)

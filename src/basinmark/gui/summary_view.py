@@ -30,6 +30,7 @@ from basinmark.core.units import convert_energy
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.flow_layout import flow_row
 from basinmark.gui.label_table import final_label_counts
+from basinmark.gui.kept_axis import kept_axes
 from basinmark.gui.plot_theme import theme_axes, theme_legend, warning_colour
 
 UNITS = ("kcal/mol", "kJ/mol")
@@ -272,11 +273,11 @@ class SummaryPanel(QWidget):
         tl.addWidget(self.lines, 3)
         self.plots = pg.GraphicsLayoutWidget(split)
         self.plots.setObjectName("summaryPlots")
-        self.p_out = self.plots.addPlot(row=0, col=0, title="Outcomes")
-        self.p_conv = self.plots.addPlot(row=0, col=1, title="Convergence")
-        self.p_commit = self.plots.addPlot(row=1, col=0,
+        self.p_out = self.plots.addPlot(row=0, col=0, title="Outcomes", axisItems=kept_axes())
+        self.p_conv = self.plots.addPlot(row=0, col=1, title="Convergence", axisItems=kept_axes())
+        self.p_commit = self.plots.addPlot(row=1, col=0, axisItems=kept_axes(),
                                            title=f"Commit times ({COMMIT_DEFINITIONS[DEFAULT_COMMIT_COLUMN]})")
-        self.p_gap = self.plots.addPlot(row=1, col=1, title="Bond-formation time gap")
+        self.p_gap = self.plots.addPlot(row=1, col=1, title="Bond-formation time gap", axisItems=kept_axes())
         self.p_out.setLabel("left", "fraction of counted runs")
         self.p_conv.setLabel("bottom", "runs so far")
         self.p_commit.setLabel("bottom", "|t| from the TS", units="fs")

@@ -20,6 +20,7 @@ from PySide6.QtWidgets import (QComboBox, QDockWidget, QDoubleSpinBox, QFormLayo
 from basinmark.core.rules import BOUNDS, MONITOR_UNITS
 from basinmark.gui.colours import trace_colour
 from basinmark.gui.movie import find_menu
+from basinmark.gui.kept_axis import kept_axes
 from basinmark.gui.plot_theme import theme_axes, warning_colour
 
 
@@ -102,7 +103,7 @@ class SweepView(QWidget):
         self.run_button = QPushButton("Run Sweep", self)
         self.run_button.setToolTip("Classify the set at every value and plot the ratio (in the background)")
         lay.addWidget(self.run_button, 0, Qt.AlignmentFlag.AlignLeft)
-        self.plot = pg.PlotWidget(self)
+        self.plot = pg.PlotWidget(self, axisItems=kept_axes())
         self.plot.showGrid(x=True, y=True, alpha=0.2)
         self.plot.setMinimumHeight(220)
         lay.addWidget(self.plot, 1)

@@ -26,6 +26,7 @@ from basinmark.core.geometry import measure
 from basinmark.core.model import Trajectory
 from basinmark.core.units import energy_factor
 from basinmark.gui.colours import basin_colour, cursor_colour, energy_colour, threshold_colour, trace_colour
+from basinmark.gui.kept_axis import kept_axes
 from basinmark.gui.plot_theme import theme_axes, warning_colour
 
 _KIND = {2: "distance", 3: "angle", 4: "dihedral"}
@@ -156,13 +157,13 @@ class TracesView(QWidget):
         self.readout.setFixedWidth(150)  # narrow: the plots keep the width on a laptop screen
         row.addWidget(self.readout)
         self.readout.setVisible(readout)
-        self.p_dist = self.glw.addPlot(row=0, col=0)
-        self.p_angle = self.glw.addPlot(row=1, col=0)
-        self.p_band = self.glw.addPlot(row=2, col=0)
-        self.p_energy = self.glw.addPlot(row=3, col=0)
+        self.p_dist = self.glw.addPlot(row=0, col=0, axisItems=kept_axes())
+        self.p_angle = self.glw.addPlot(row=1, col=0, axisItems=kept_axes())
+        self.p_band = self.glw.addPlot(row=2, col=0, axisItems=kept_axes())
+        self.p_energy = self.glw.addPlot(row=3, col=0, axisItems=kept_axes())
         # the total energy's deviation from t = 0 on its own axis: a drift of a few kcal/mol stays visible
         # beside kinetic and potential swings of hundreds
-        self.p_drift = self.glw.addPlot(row=4, col=0)
+        self.p_drift = self.glw.addPlot(row=4, col=0, axisItems=kept_axes())
         self.plots = (self.p_dist, self.p_angle, self.p_band, self.p_energy, self.p_drift)
         self.p_dist.setLabel("left", "distance", units="Å")
         self.p_angle.setLabel("left", "angle", units="°")
