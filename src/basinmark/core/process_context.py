@@ -75,12 +75,55 @@ class _SpawnWorker(mp_context.SpawnProcess):
 WORKER_NICE = 5
 
 
-def lower_priority() -> None:
-    """The pool's initializer: this worker yields the processor to the caller's threads when both want it."""
+def lower_priority(caller: int | None = None) -> None:
+    """The pool's initializer: this worker yields the processor to the caller's threads when both want it, and
+    ends when the caller (process id ``caller``) ends (:func:`end_with`)."""
     try:
         os.nice(WORKER_NICE)
     except (AttributeError, OSError):  # no nice on this system, or not allowed: the same priority is fine
         pass
+    if caller is not None:
+        end_with(caller)
+
+
+#: how often (s) a worker looks whether its caller still runs, where the system cannot tell it at once
+CALLER_POLL_S = 0.5
+
+
+def end_with(caller: int) -> None:
+    """End this worker when process ``caller`` ends, from a watching thread.
+
+    The standard library's workers wait for their next task for ever, so a window killed or crashed during a load
+    left its workers (and their fork server) running (tests/test_pool_orphans.py).  On Linux the thread sleeps on a
+    process descriptor of the caller, which becomes readable when the caller ends; elsewhere it looks every
+    :data:`CALLER_POLL_S`.  The worker then ends at once: its results have nobody to go to."""
+    def watch() -> None:
+        try:
+            fd = os.pidfd_open(caller)
+        except (AttributeError, OSError):
+            fd = None
+        if fd is not None:
+            import select
+
+            select.select([fd], [], [])
+        else:
+            import time
+
+            while _running(caller):
+                time.sleep(CALLER_POLL_S)
+        os._exit(0)
+
+    threading.Thread(target=watch, name="basinmark-caller-watch", daemon=True).start()
+
+
+def _running(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except OSError:  # exists, but ours to signal or not: still running
+        return True
+    return True
 
 
 def worker_context(preload: list[str]):
