@@ -34,7 +34,8 @@ from typing import Callable
 from basinmark.core.manifest import load_layout
 from basinmark.core.model import LoadFailure, Trajectory, TrajectorySet
 from basinmark.core.pairing import RunSpec, listing_digest
-from basinmark.core.sets import SetPlan, group_key, cache_folder, discover, hash_files, open_plan, segment_groups
+from basinmark.core.sets import (SetPlan, cache_folder, discover, group_key, hash_files, open_plan, segment_groups,
+                                 use_processes)
 
 RECORD_VERSION = "3"  # 3: with the plan and its names' digest; 2: the segments' files (1: one whole-set snapshot)
 
@@ -281,7 +282,7 @@ def full_check(path_or_plan: str | Path | SetPlan, shown: QuickOpen | None = Non
     before = file_stats(plan)
     if before is None or (cancel is not None and cancel()):
         return out
-    hashes = hash_files(plan)
+    hashes = hash_files(plan, processes=use_processes(plan))   # not in threads: the window is in use
     if shown is not None:
         recorded = shown.record["files"]
         out.changed = sorted(name for p in _files(plan)
