@@ -315,13 +315,16 @@ class RunTableModel(QAbstractTableModel):
     def data(self, index: QModelIndex, role=Qt.ItemDataRole.DisplayRole) -> Any:
         if not index.isValid():
             return None
-        r = index.row()
-        if index.column() == 0 and role in _NOTE_ROLES and self._c["note"][r]:
+        return self.cell(index.row(), index.column(), role)
+
+    def cell(self, r: int, column: int, role=Qt.ItemDataRole.DisplayRole) -> Any:
+        """What :meth:`data` gives for row ``r``, ``column`` and ``role`` (asked directly by the filter proxy)."""
+        if column == 0 and role in _NOTE_ROLES and self._c["note"][r]:
             # the run's note: a mark beside its id, the text on hover
             shown = note_cell(self.row(r), role, self.extra_note)
             if shown is not None:
                 return shown
-        key = COLUMNS[index.column()][0]
+        key = COLUMNS[column][0]
         value = _plain(self._c[key][r])
         if role == Qt.ItemDataRole.DisplayRole:
             if key == "product_final_entry_fs":  # on the run's time axis: negative at the backward end
@@ -374,6 +377,9 @@ def _blank_columns(run_ids) -> dict[str, np.ndarray]:
 
 
 _NUMBER_COLUMNS = frozenset({"product_final_entry_fs", "product_first_arrival_fs"})
+
+#: the flags of every cell of the table (what QAbstractTableModel gives): selectable, enabled, no children
+_CELL_FLAGS = Qt.ItemFlag.ItemIsSelectable | Qt.ItemFlag.ItemIsEnabled | Qt.ItemFlag.ItemNeverHasChildren
 
 
 def _columns_of(df: pd.DataFrame) -> dict[str, np.ndarray]:
@@ -483,6 +489,36 @@ class RunFilterProxy(QAbstractProxyModel):
             if p >= 0:
                 self.dataChanged.emit(self.index(int(p), top_left.column()),
                                       self.index(int(p), bottom_right.column()), roles)
+
+    def data(self, index: QModelIndex, role=Qt.ItemDataRole.DisplayRole) -> Any:
+        """The source row's cell, asked of the source model in Python.  (The base class maps the index through
+        :meth:`mapToSource`, whose source index calls back into Python twice: each call from Qt into Python waits
+        for Python's lock, which a busy loader thread holds, and a repaint of the table made ~4 such calls per
+        cell and role.)"""
+        r = index.row()
+        model = self.sourceModel()
+        if model is None or not 0 <= r < self._rows.size or not index.isValid():
+            return None
+        return model.cell(int(self._rows[r]), index.column(), role)
+
+    def multiData(self, index: QModelIndex, roles) -> None:  # noqa: N802
+        """Every role a cell is painted with, filled in one call from Qt (the item delegate asks seven roles per
+        cell at once; answered role by role, each was a call from Qt into Python waiting for Python's lock)."""
+        r = index.row()
+        model = self.sourceModel()
+        if model is None or not 0 <= r < self._rows.size or not index.isValid():
+            for item in roles:
+                item.clearData()
+            return
+        source_row, column = int(self._rows[r]), index.column()
+        for item in roles:
+            item.setData(model.cell(source_row, column, item.role()))
+
+    def flags(self, index: QModelIndex):
+        """Enabled and selectable (the source's own flags, without mapping the index through Python twice)."""
+        if not index.isValid():
+            return Qt.ItemFlag.NoItemFlags
+        return _CELL_FLAGS
 
     def mapToSource(self, proxy_index: QModelIndex) -> QModelIndex:  # noqa: N802
         if not proxy_index.isValid() or self.sourceModel() is None:
