@@ -9,11 +9,13 @@ little more than hashing its files.  Failures are collected, never fatal.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import os
 import threading
 import warnings
 from collections import Counter
+from contextvars import ContextVar
 from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor, as_completed, wait
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field, replace
@@ -526,6 +528,24 @@ def _ready() -> bool:
 
 #: at most this many runs are read by the calling process itself while the pool starts
 LOCAL_RUNS_MAX = 256
+#: ... and this many in a load started within :func:`beside_a_window`
+WINDOW_LOCAL_RUNS = 1
+_local_runs: ContextVar[int | None] = ContextVar("basinmark_local_runs", default=None)
+
+
+@contextlib.contextmanager
+def beside_a_window():
+    """Loads started in this block (in this thread) leave the parsing to the pool once the first run is read here.
+
+    For a process that also draws a window: parsing in one of its threads holds Python's lock, and every call from
+    Qt into Python waits for it, so the window's first paints came slowly while the pool started (the longest gap of
+    a cold open of 10,000 runs, at its start: 197-221 ms reading up to :data:`LOCAL_RUNS_MAX` runs here, 87-121 ms
+    reading one, measured twice each).  The first run still comes at once, and the load takes as long."""
+    token = _local_runs.set(WINDOW_LOCAL_RUNS)
+    try:
+        yield
+    finally:
+        _local_runs.reset(token)
 
 
 def _start_pool(layout: SetLayout, specs: list[RunSpec], n_workers: int, cancel) -> Iterator:
@@ -534,7 +554,7 @@ def _start_pool(layout: SetLayout, specs: list[RunSpec], n_workers: int, cancel)
 
     The pool's first worker waits for the forkserver to import the readers (0.47 s measured at 10,000 runs, on
     the way to the window's first rows); this process would sit idle that long.  It reads at least the first
-    run, and more until a worker has answered (at most :data:`LOCAL_RUNS_MAX`)."""
+    run, and more until a worker has answered (at most :data:`LOCAL_RUNS_MAX`; see :func:`beside_a_window`)."""
     box: dict = {}
 
     def start() -> None:
@@ -547,7 +567,8 @@ def _start_pool(layout: SetLayout, specs: list[RunSpec], n_workers: int, cancel)
     thread = threading.Thread(target=start, name="basinmark-pool-start", daemon=True)
     thread.start()
     i = 0
-    limit = min(LOCAL_RUNS_MAX, len(specs) - 1)
+    cap = _local_runs.get()
+    limit = min(LOCAL_RUNS_MAX if cap is None else cap, len(specs) - 1)
     try:
         while i < limit and (i == 0 or thread.is_alive()):
             spec = specs[i]

@@ -68,7 +68,7 @@ class SetLoader(QObject):
         return self._cancel.is_set()
 
     def run(self) -> None:
-        from basinmark.core.sets import open_set, rules_path
+        from basinmark.core.sets import beside_a_window, open_set, rules_path
 
         progress = ProgressThrottle(self.progress.emit)
         out = {"path": self.path, "tset": None, "rules": None, "classification": None, "rules_error": "",
@@ -76,18 +76,19 @@ class SetLoader(QObject):
         try:
             quick = None
             changes: list[str] = []  # runs added or removed since the set was last opened (said in its warnings)
-            if self.use_cache:
-                from basinmark.core.quick_open import quick_open
+            with beside_a_window():   # the pool parses: a parse in this thread slows the window's paints
+                if self.use_cache:
+                    from basinmark.core.quick_open import quick_open
 
-                quick = quick_open(self.path, on_run=self.arrived.append, changes=changes)
-            if quick is not None:
-                tset = quick.tset
-                out["quick"] = quick
-                progress("Loading", len(tset), len(tset))
-            else:
-                tset = open_set(self.path, use_cache=self.use_cache, cancel=self._cancel.is_set,
-                                progress=lambda d, t, _r: progress("Loading", d, t),
-                                on_run=self.arrived.append)
+                    quick = quick_open(self.path, on_run=self.arrived.append, changes=changes)
+                if quick is not None:
+                    tset = quick.tset
+                    out["quick"] = quick
+                    progress("Loading", len(tset), len(tset))
+                else:
+                    tset = open_set(self.path, use_cache=self.use_cache, cancel=self._cancel.is_set,
+                                    progress=lambda d, t, _r: progress("Loading", d, t),
+                                    on_run=self.arrived.append)
             tset.warnings.extend(changes)
             # every run's content hash is worked out here, off the window's thread, also when no rules classify the
             # runs (classification asks for them first): the label table built when the load ends asks for all
