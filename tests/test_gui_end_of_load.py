@@ -59,8 +59,9 @@ def test_traces_are_drawn_once_when_a_load_ends(qtbot, tmp_path, monkeypatch):
     monkeypatch.setattr(TracesView, "_draw_monitors", counting_draw)
     # the turns that end a load (the second exists only once the work was split in two)
     monkeypatch.setattr(MainWindow, "_on_loaded", counted(MainWindow._on_loaded))
-    if hasattr(MainWindow, "_end_load"):
-        monkeypatch.setattr(MainWindow, "_end_load", counted(MainWindow._end_load))
+    for name in ("_draw_traces", "_end_load"):
+        if hasattr(MainWindow, name):
+            monkeypatch.setattr(MainWindow, name, counted(getattr(MainWindow, name)))
     win = _window(qtbot, tmp_path)
     win.open_set(root, use_cache=False)
     qtbot.waitUntil(lambda: not win.busy, timeout=20000)
@@ -118,7 +119,7 @@ def _profiled_end_of_load(qtbot, tmp_path: Path, n: int) -> list[int]:
             calls[0] += 1
 
     turns = []
-    for turn in (lambda: win._on_loaded(result), getattr(win, "_end_load", None)):
+    for turn in (lambda: win._on_loaded(result), getattr(win, "_draw_traces", None), getattr(win, "_end_load", None)):
         if turn is None:
             continue
         calls[0] = 0
@@ -148,8 +149,102 @@ def test_end_of_load_work_does_not_grow_per_run(qtbot, tmp_path):
 
 
 def test_end_of_load_is_split_in_turns_each_smaller_than_the_whole(qtbot, tmp_path):
-    """The set, journal and rules go in one turn, the label table and its views in the next: neither turn does
-    most of the work of the two (one turn did all of it before)."""
+    """The set, journal and rules go in one turn, the traces in the next, the label table and its views in a third:
+    no turn does most of the work of the three (one turn did all of it before)."""
     (tmp_path / "c").mkdir()
     turns = _profiled_end_of_load(qtbot, tmp_path / "c", 300)
-    assert len(turns) == 2 and max(turns) < 0.8 * sum(turns), turns
+    assert len(turns) == 3 and max(turns) < 0.8 * sum(turns), turns
+
+
+def test_the_traces_are_drawn_in_a_turn_of_their_own(qtbot, tmp_path, monkeypatch):
+    """Drawing the traces of the run shown, and the paint that follows, made the first turn that ends a load the
+    longest one of a 10,000-run open (115-144 ms with the paint, bench/bench_window_scale.py): they get a turn of
+    their own, after the set, journal and rules are in place and painted, before the label table."""
+    from basinmark.gui.main_window import MainWindow
+    from basinmark.gui.traces import TracesView
+
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES * 2)
+    where: list[str] = []
+    turn = {"now": ""}
+    real_draw = TracesView._draw_monitors
+
+    def counting_draw(self):
+        if self is win.traces:
+            where.append(turn["now"])
+        return real_draw(self)
+
+    def named(name):
+        real = getattr(MainWindow, name)
+
+        def run(self, *args):
+            turn["now"] = name
+            try:
+                return real(self, *args)
+            finally:
+                turn["now"] = ""
+        return run
+
+    monkeypatch.setattr(TracesView, "_draw_monitors", counting_draw)
+    for name in ("_on_loaded", "_draw_traces", "_end_load", "_finish_load"):
+        monkeypatch.setattr(MainWindow, name, named(name))
+    win = _window(qtbot, tmp_path)
+    win.open_set(root, use_cache=False)
+    qtbot.waitUntil(lambda: not win.busy, timeout=20000)
+    ending = [w for w in where if w]
+    assert ending == ["_draw_traces"], where
+    assert win.traces.threshold_lines and win.state.traj is not None
+    win.close()
+
+
+def test_a_new_open_between_the_turns_lets_the_traces_go(qtbot, tmp_path):
+    """Another set opened after the first turn that ends a load (the traces still held back) starts cleanly: the
+    traces are let go, and the new set's run is drawn."""
+    from basinmark.gui.main_window import MainWindow
+
+    first = make_toy_set(tmp_path / "one", OUTCOMES)
+    second = make_toy_set(tmp_path / "two", OUTCOMES[::-1] * 2)
+    win = _window(qtbot, tmp_path)
+    real = MainWindow._on_loaded
+    opened = {"again": False}
+
+    def then_open_again(result):
+        real(win, result)
+        if not opened["again"]:
+            opened["again"] = True
+            win.open_set(second, use_cache=False)   # before the traces' turn
+
+    win.job = None
+    win._on_loaded = then_open_again   # the job connects to this bound attribute
+    win.open_set(first, use_cache=False)
+    qtbot.waitUntil(lambda: opened["again"] and not win.busy and win.state.tset is not None
+                    and win.state.tset.root == second, timeout=30000)
+    assert not win.traces._held
+    assert win.state.traj is not None and win.traces.curves
+    win.close()
+
+
+def test_the_banner_is_in_place_before_the_traces_are_drawn(qtbot, tmp_path, monkeypatch):
+    """The banner over the window (here: a file left out of the set) is shown in the first turn that ends a load,
+    so the traces are laid out and drawn once at their final size.  Shown in the last turn, it pushed every panel
+    down: the traces were laid out and drawn again, their axes too (a 55 ms paint at 10,000 runs)."""
+    from basinmark.gui.main_window import MainWindow
+
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES * 2)
+    (root / "ts-guess.xyz").write_text("3\nsingle geometry\nC 0 0 0\nH 0 0 1.1\nH 0 1.1 0\n")
+    seen = {}
+    real = MainWindow._draw_traces
+
+    def draw(self):
+        seen["banner"] = (self.banner.isVisible(), self.banner.text() if hasattr(self.banner, "text") else "")
+        real(self)
+        seen["size"] = self.traces.size().toTuple()
+
+    monkeypatch.setattr(MainWindow, "_draw_traces", draw)
+    win = _window(qtbot, tmp_path)
+    win.open_set(root, use_cache=False)
+    qtbot.waitUntil(lambda: not win.busy, timeout=20000)
+    qtbot.wait(50)
+    assert win.banner.isVisible(), "the set's note (a file left out) is not shown"
+    assert seen["banner"] == (True, win.banner.text() if hasattr(win.banner, "text") else "")
+    assert seen["size"] == win.traces.size().toTuple()
+    win.close()
