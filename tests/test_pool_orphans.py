@@ -68,3 +68,33 @@ def test_workers_end_when_their_program_is_killed_mid_task(tmp_path):
     for p in left:
         os.kill(p, 9)
     assert not left, f"workers {left} still running after their program died"
+
+
+def test_without_process_descriptors_the_worker_looks_every_half_second(tmp_path):
+    """Where the system has no process descriptors (other than Linux), the watching thread asks after the caller
+    every CALLER_POLL_S; the worker ends soon after the caller."""
+    script = tmp_path / "watch.py"
+    script.write_text(textwrap.dedent("""
+        import os, subprocess, sys, threading, time
+        del os.pidfd_open   # as on a system without them
+        from basinmark.core import process_context
+        caller = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(0.5)"])
+        threading.Thread(target=caller.wait, daemon=True).start()   # reaped when it ends, as a shell would
+        process_context.end_with(caller.pid)
+        time.sleep(20)
+        print("still here")
+    """))
+    env = dict(os.environ, PYTHONPATH=str(REPO / "src"))
+    started = time.monotonic()
+    done = subprocess.run([sys.executable, str(script)], env=env, timeout=60, capture_output=True, text=True)
+    assert done.returncode == 0 and "still here" not in done.stdout, done.stderr
+    assert time.monotonic() - started < 15
+
+
+def test_running_tells_a_live_process_from_an_ended_one():
+    from basinmark.core.process_context import _running
+
+    assert _running(os.getpid())
+    ended = subprocess.Popen([sys.executable, "-c", "pass"])
+    ended.wait()
+    assert not _running(ended.pid)

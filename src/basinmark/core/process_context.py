@@ -96,7 +96,11 @@ def end_with(caller: int) -> None:
     The standard library's workers wait for their next task for ever, so a window killed or crashed during a load
     left its workers (and their fork server) running (tests/test_pool_orphans.py).  On Linux the thread sleeps on a
     process descriptor of the caller, which becomes readable when the caller ends; elsewhere it looks every
-    :data:`CALLER_POLL_S`.  The worker then ends at once: its results have nobody to go to."""
+    :data:`CALLER_POLL_S`.  The worker then ends at once: its results have nobody to go to.  Not on Windows, where
+    ``os.kill(pid, 0)`` would end the caller instead of asking after it."""
+    if sys.platform == "win32":  # pragma: no cover - Windows
+        return
+
     def watch() -> None:
         try:
             fd = os.pidfd_open(caller)
