@@ -66,8 +66,8 @@ def _unexplained(kept: np.ndarray, fresh: np.ndarray, tolerance: int = 40) -> in
     return int((best > tolerance).sum())
 
 
-@pytest.fixture
-def traces(qtbot):
+def _shown_traces(qtbot) -> TracesView:
+    """The traces of a small run, shown and settled."""
     view = TracesView()
     qtbot.addWidget(view)
     view.resize(700, 600)
@@ -75,6 +75,11 @@ def traces(qtbot):
     view.set_run(stretched_ethylene(), user_monitors=[(1, 2), (3, 1, 4)])
     _repaint(view)
     return view
+
+
+@pytest.fixture
+def traces(qtbot):
+    return _shown_traces(qtbot)
 
 
 def test_an_unchanged_axis_is_not_drawn_again(traces):
@@ -115,12 +120,7 @@ def test_a_kept_axis_has_the_pixels_of_one_drawn_anew(qtbot, monkeypatch, edge, 
 
     if edge is not None:
         monkeypatch.setattr(kept_axis, "EDGE_PX", edge)
-    view = TracesView()
-    qtbot.addWidget(view)
-    view.resize(700, 600)
-    view.show()
-    view.set_run(stretched_ethylene(), user_monitors=[(1, 2), (3, 1, 4)])
-    _repaint(view)
+    view = _shown_traces(qtbot)
     view.set_run(stretched_ethylene(n_frames=61, dt=40.0), user_monitors=[(1, 2)])
     _repaint(view)
     kept = _grey(view.glw.grab().toImage())
