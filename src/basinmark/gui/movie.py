@@ -190,10 +190,13 @@ class MovieRenderer:
         # the movie draws the legend and the mark names itself (laid out so that nothing overlaps); the
         # threshold lines keep their colour but drop their text, which would cover the curves
         tr.legend.setVisible(False)
-        for line in tr.threshold_lines:
+        # the mark names too: hidden here, by the caller, so that the traces' own label layout leaves them hidden
+        # (it re-places only labels it hid itself)
+        for line in [*tr.threshold_lines, *tr.marks.values()]:
             label = getattr(line, "label", None)
             if label is not None:
                 label.setVisible(False)
+                label.hidden_by_layout = False
         self.legend = self._legend_entries(fm)
         legend_bottom = max([r.bottom() for _n, r, _p in self.legend], default=top) + 2
         # the strip of mark names: rows are counted with a first layout of the plots (the time axis
