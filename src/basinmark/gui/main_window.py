@@ -132,10 +132,10 @@ class MainWindow(QMainWindow):
         self.playback_bar = PlaybackBar(self.state, self.playback, self.actions_, self)
         self.banner = Banner(self)
         self.goto_dialog: GotoRunDialog | None = None
-        self._ending = None   # (result, holds) between the two turns that end a load (_on_loaded, _end_load)
+        self._ending = None   # (result, hold, traces' hold) between the first and third turns that end a load
         self._traces_timer = AfterPaint(self._draw_traces, self)
         self._end_timer = AfterPaint(self._end_load, self)
-        self._finishing: dict | None = None   # a load's result between the second and third turn of its end
+        self._finishing: dict | None = None   # a load's result between the third and fourth turns of its end
         self._finish_timer = AfterPaint(self._finish_load, self)
         self._first_timer = AfterPaint(self._show_first_run, self)   # the first run that arrives is shown apart
         self._build_layout()
@@ -737,8 +737,8 @@ class MainWindow(QMainWindow):
         self._finish_timer.start()
 
     def _finish_load(self) -> None:
-        """The third turn: not busy any more, the banner, offers, the background check of the files, ``set_loaded``.
-        (At 10,000 runs the second and third turns together took 100-200 ms: one gap over the 100 ms target.)"""
+        """The fourth turn: not busy any more, offers, the background check of the files, ``set_loaded``.  (At
+        10,000 runs the label table and this work together took 100-200 ms: one gap over the 100 ms target.)"""
         result = self._finishing
         if result is None:
             return

@@ -490,29 +490,32 @@ class RunFilterProxy(QAbstractProxyModel):
                 self.dataChanged.emit(self.index(int(p), top_left.column()),
                                       self.index(int(p), bottom_right.column()), roles)
 
+    def _source_row(self, index: QModelIndex) -> int | None:
+        """The source row behind a proxy index, found in Python (None: no such row, or no source)."""
+        r = index.row()
+        if self.sourceModel() is None or not 0 <= r < self._rows.size or not index.isValid():
+            return None
+        return int(self._rows[r])
+
     def data(self, index: QModelIndex, role=Qt.ItemDataRole.DisplayRole) -> Any:
         """The source row's cell, asked of the source model in Python.  (The base class maps the index through
         :meth:`mapToSource`, whose source index calls back into Python twice: each call from Qt into Python waits
         for Python's lock, which a busy loader thread holds, and a repaint of the table made ~4 such calls per
         cell and role.)"""
-        r = index.row()
-        model = self.sourceModel()
-        if model is None or not 0 <= r < self._rows.size or not index.isValid():
-            return None
-        return model.cell(int(self._rows[r]), index.column(), role)
+        row = self._source_row(index)
+        return None if row is None else self.sourceModel().cell(row, index.column(), role)
 
     def multiData(self, index: QModelIndex, roles) -> None:  # noqa: N802
         """Every role a cell is painted with, filled in one call from Qt (the item delegate asks seven roles per
         cell at once; answered role by role, each was a call from Qt into Python waiting for Python's lock)."""
-        r = index.row()
-        model = self.sourceModel()
-        if model is None or not 0 <= r < self._rows.size or not index.isValid():
+        row = self._source_row(index)
+        if row is None:
             for item in roles:
                 item.clearData()
             return
-        source_row, column = int(self._rows[r]), index.column()
+        model, column = self.sourceModel(), index.column()
         for item in roles:
-            item.setData(model.cell(source_row, column, item.role()))
+            item.setData(model.cell(row, column, item.role()))
 
     def flags(self, index: QModelIndex):
         """Enabled and selectable (the source's own flags, without mapping the index through Python twice)."""
