@@ -93,6 +93,7 @@ def test_render_paths_matches_qpainter_strokes_of_the_same_paths():
         y = np.concatenate([np.append(data.y[data.starts[i]:data.ends[i]], np.nan) for i in runs])
         groups.append(PathGroup(label, x, y, colours[label]))
     got = render_paths(groups, key, chunk=25)   # many pieces: cut between runs and inside them
+    stroked = render_paths(groups, key, chunk=25, by_path=True)
     want = QImage(300, 240, QImage.Format.Format_ARGB32_Premultiplied)
     want.fill(0)
     p = QPainter(want)
@@ -105,12 +106,29 @@ def test_render_paths_matches_qpainter_strokes_of_the_same_paths():
         py = (0.5 + 4.5 - g.y) * (240 / 4.5)
         p.drawPath(pg.functions.arrayToQPath(px, py, connect="finite"))
     p.end()
-    a, b = _array(got), _array(want)
-    alpha_a = np.frombuffer(got.constBits(), np.uint8).reshape(240, 300, 4)[:, :, 3]
+    b = _array(want)
     alpha_b = np.frombuffer(want.constBits(), np.uint8).reshape(240, 300, 4)[:, :, 3]
     assert (alpha_b > 0).sum() > 500
-    assert np.array_equal(alpha_a > 0, alpha_b > 0)
-    assert np.abs(a - b).max() <= 2 and np.abs(alpha_a.astype(int) - alpha_b).max() <= 2
+    # stroked as paths: the same pixels as the reference
+    s_ = _array(stroked)
+    alpha_s = np.frombuffer(stroked.constBits(), np.uint8).reshape(240, 300, 4)[:, :, 3]
+    assert np.array_equal(alpha_s > 0, alpha_b > 0)
+    assert np.abs(s_ - b).max() <= 2 and np.abs(alpha_s.astype(int) - alpha_b).max() <= 2
+    # drawn as line segments (the default, faster): every pixel of the reference, plus at most the one pixel at a
+    # vertex that a stroked path leaves out where its segments meet
+    a = _array(got)
+    alpha_a = np.frombuffer(got.constBits(), np.uint8).reshape(240, 300, 4)[:, :, 3]
+    assert not ((alpha_b > 0) & (alpha_a == 0)).any()
+    extra = np.argwhere((alpha_a > 0) & (alpha_b == 0))   # (row, column)
+    vx = np.concatenate([(g.x - 0.5) * (300 / 3.0) for g in groups])
+    vy = np.concatenate([(0.5 + 4.5 - g.y) * (240 / 4.5) for g in groups])
+    vx, vy = vx[np.isfinite(vx)], vy[np.isfinite(vy)]
+    if extra.size:
+        reach = np.maximum(np.abs(extra[:, 1, None] + 0.5 - vx[None]), np.abs(extra[:, 0, None] + 0.5 - vy[None]))
+        assert (reach.min(axis=1) <= 1.5).all()
+    assert len(extra) <= vx.size
+    both = (alpha_a > 0) & (alpha_b > 0)
+    assert np.abs(a - b)[both].max() <= 2 and np.abs(alpha_a.astype(int) - alpha_b)[both].max() <= 2
 
 
 @pytest.mark.parametrize("limit", [1, 3, 7, 50])
@@ -152,6 +170,42 @@ def test_pan_and_zoom_draw_a_new_picture_for_the_new_view(qtbot):
     canvas.resize(300, 260)   # resize
     qtbot.waitUntil(lambda: canvas.layer.renders > n and canvas.drawn(), timeout=10000)
     assert vb.width() <= canvas.layer.image.width() <= vb.width() + 2
+
+
+def test_one_step_after_a_quiet_spell_is_drawn_at_once(qtbot, monkeypatch):
+    """A single zoom, pan or resize (a wheel click, the panel shown) is drawn at the end of its turn, not after the
+    settle delay that a drag's many steps wait for (at 10,000 runs that delay was a fifth of the map's 300 ms)."""
+    monkeypatch.setattr(map_layer.PathLayer, "SETTLE_MS", 5000)   # far longer than the test waits
+    data, labels = _zigzags()
+    canvas = _canvas(qtbot, data, labels, picture=True)
+    layer = canvas.layer
+    layer._last_change = float("-inf")   # a quiet spell since the first picture
+    n = layer.renders
+    canvas.plot_item.vb.setRange(QRectF(1.5, 2.0, 1.0, 1.5), padding=0)   # one zoom (several signals, one turn)
+    qtbot.waitUntil(lambda: layer.renders > n and canvas.drawn(), timeout=3000)
+    assert layer.shows_current_view()
+
+
+def test_a_burst_of_steps_asks_for_one_picture_then_one_when_it_settles(qtbot, monkeypatch):
+    """A drag: the first step of a quiet spell may be drawn at once, the later ones wait until the view settles; never a
+    picture per step."""
+    monkeypatch.setattr(map_layer.PathLayer, "SETTLE_MS", 300)
+    data, labels = _zigzags()
+    canvas = _canvas(qtbot, data, labels, picture=True)
+    layer = canvas.layer
+    layer._last_change = float("-inf")
+    asked = []
+    real = layer._renderer.request
+    monkeypatch.setattr(layer._renderer, "request", lambda groups, key: asked.append(key) or real(groups, key))
+    vb = canvas.plot_item.vb
+    for _ in range(12):   # steps 20 ms apart: one drag
+        vb.translateBy(x=0.02)
+        qtbot.wait(20)
+    # the steps just after the quiet spell at most (FOLLOW_MS); the rest wait for the view to settle
+    assert len(asked) <= 1 + map_layer.PathLayer.FOLLOW_MS // 20
+    during = len(asked)
+    qtbot.waitUntil(lambda: canvas.drawn(), timeout=5000)
+    assert during + 1 <= len(asked) <= during + 2 and asked[-1] == layer.current_key()
 
 
 def test_only_the_newest_view_is_drawn():

@@ -26,19 +26,47 @@ from typing import Callable, Sequence
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QPointF, QRectF, QTimer, Signal
+from PySide6.QtCore import QLineF, QPointF, QRectF, QTimer, Signal
 from PySide6.QtGui import QColor, QImage, QPainter, QPaintEngine, QPen
 
 #: points drawn per Qt call in the worker: ~1-3 ms of opaque stroking each, the longest the worker holds Python's lock
 #: (our own choice, measured at 10,000 runs: 5,000 cost no more in all than 20,000)
 CHUNK_POINTS = 5_000
-#: the worker pauses ``YIELD_S`` once it has drawn for ``YIELD_EVERY_S``: with only ``sleep(0)`` between pieces it took
-#: Python's lock straight back before the window's thread could, and a hand label with the map shown (the picture
-#: drawn again) left the window 145-189 ms without a turn.  Measured at 10,000 runs on 2 cores (the label of
-#: bench/bench_window_scale.py, two runs each): a 1 ms pause after every piece 40-46 ms but the map drawn in 341-364 ms
-#: (231-255 ms without pauses); a 1 ms pause every 8 ms 51-77 ms, map 332-340 ms; every 4 ms 52-71 ms, map 247-311 ms
-YIELD_S = 0.001
-YIELD_EVERY_S = 0.004
+#: between pieces the worker only offers Python's lock (``sleep(0)``).  It used to pause 1 ms after every 4 ms of
+#: drawing: with the default 5 ms switch interval, ``sleep(0)`` alone took the lock straight back before the window's
+#: thread could (a hand label with the map shown left the window 145-189 ms without a turn).  The window now switches
+#: threads every 1 ms (``main_window.SWITCH_INTERVAL_S``), so a waiting window thread gets the lock within a piece
+#: either way, and the pauses only made the picture later: at 10,000 runs (bench_window_scale's map steps, four
+#: paired runs on 2 cores) the map showed in 184-305 ms without them against 245-337 ms with them, zooms in 253-358
+#: against 307-543 ms, and the longest gap around a hand label was 86-108 against 78-125 ms.
+
+
+try:   # the array of line segments that pyqtgraph's own curves hand to QPainter.drawLines
+    from pyqtgraph.Qt.internals import PrimitiveArray as _Segments
+except ImportError:  # pragma: no cover -- a pyqtgraph without it: paths stroked instead (slower, same picture)
+    _Segments = None
+
+
+def _draw_piece(painter: QPainter, px: np.ndarray, py: np.ndarray, segments) -> None:
+    """The finite segments of one piece of paths: as line segments (``drawLines``) when ``segments`` (a reused
+    array) is given, else as a path.  Segments rather than a path: 88 against 142 ms for 10,000 runs of 40 points
+    at 1100 x 700 (opaque, 1-pixel cosmetic pen, no antialiasing; measured here).  The pictures differ only at the
+    ends of paths: a stroked path leaves out its last pixel, a segment does not."""
+    if segments is None:
+        painter.drawPath(pg.functions.arrayToQPath(px, py, connect="finite"))
+        return
+    ok = np.isfinite(px) & np.isfinite(py)
+    both = ok[:-1] & ok[1:]
+    n = int(np.count_nonzero(both))
+    if not n:
+        return
+    segments.resize(n)
+    m = segments.ndarray()
+    m[:, 0] = px[:-1][both]
+    m[:, 1] = py[:-1][both]
+    m[:, 2] = px[1:][both]
+    m[:, 3] = py[1:][both]
+    painter.drawLines(*segments.drawargs())
 
 
 @dataclass(frozen=True)
@@ -104,9 +132,10 @@ def _chunks(x: np.ndarray, limit: int) -> list[tuple[int, int]]:
 
 
 def render_paths(groups: Sequence[PathGroup], key: ViewKey, cancelled: Callable[[], bool] = lambda: False,
-                 chunk: int = CHUNK_POINTS) -> QImage | None:
+                 chunk: int = CHUNK_POINTS, by_path: bool = False) -> QImage | None:
     """A transparent picture of ``key``'s size with ``groups`` drawn in order (see the module's note); None when
-    ``cancelled()`` turned true meanwhile.  Any thread (Qt allows painting on a QImage off the GUI thread)."""
+    ``cancelled()`` turned true meanwhile.  Any thread (Qt allows painting on a QImage off the GUI thread).
+    ``by_path`` strokes each piece as a path (the slower way, kept for comparison: tests)."""
     dpr = key.dpr
     w, h = max(1, round(key.width * dpr)), max(1, round(key.height * dpr))
     out = QImage(w, h, QImage.Format.Format_ARGB32_Premultiplied)
@@ -115,8 +144,8 @@ def render_paths(groups: Sequence[PathGroup], key: ViewKey, cancelled: Callable[
     if not (np.isfinite([sx, ox, sy, oy]).all() and sx and sy):
         return out
     layer = QImage(w, h, QImage.Format.Format_ARGB32_Premultiplied)
+    segments = _Segments(QLineF, 4) if _Segments is not None and not by_path else None
     over = QPainter(out)
-    held_since = time.perf_counter()
     try:
         for group in groups:
             if cancelled():
@@ -138,12 +167,8 @@ def render_paths(groups: Sequence[PathGroup], key: ViewKey, cancelled: Callable[
                 for s, e in _chunks(px, chunk):
                     if cancelled():
                         return None
-                    painter.drawPath(pg.functions.arrayToQPath(px[s:e], py[s:e], connect="finite"))
-                    if time.perf_counter() - held_since >= YIELD_EVERY_S:
-                        time.sleep(YIELD_S)   # Python's lock to the window's thread, which may be waiting for it
-                        held_since = time.perf_counter()
-                    else:
-                        time.sleep(0)
+                    _draw_piece(painter, px[s:e], py[s:e], segments)
+                    time.sleep(0)   # Python's lock offered to the window's thread, which may be waiting for it
             finally:
                 painter.end()
             over.setOpacity(alpha)
@@ -215,8 +240,13 @@ class PathLayer(pg.GraphicsObject):
     the data's range (what auto-range fits)."""
 
     delivered = Signal(int, object, object)   # generation, ViewKey, QImage (queued from the worker thread)
-    #: wait this long after the last pan/zoom/resize step before drawing again (the old picture is shown scaled)
+    #: wait this long after the last pan/zoom/resize step before drawing again (the old picture is shown scaled) ...
     SETTLE_MS = 60
+    #: ... except for the changes within this long of the first after a quiet spell: those are drawn at the end of
+    #: their turn (a wheel click, the panel shown, and the view's own follow-up when the axes' tick labels change
+    #: width, 9 ms later in tests/test_gui_map_picture.py).  Waiting for them to settle was 60 of the ~330 ms a
+    #: 10,000-run map took to show (bench_window_scale).  A drag's later steps still wait.
+    FOLLOW_MS = 50
 
     def __init__(self, groups: Sequence[PathGroup], bounds: tuple[float, float, float, float] | None,
                  version: int = 0) -> None:
@@ -234,6 +264,12 @@ class PathLayer(pg.GraphicsObject):
         self._settle.setSingleShot(True)
         self._settle.setInterval(self.SETTLE_MS)
         self._settle.timeout.connect(self.request)
+        self._soon = QTimer(self)   # the end of this turn: the signals of one step (x, then y) asked once
+        self._soon.setSingleShot(True)
+        self._soon.setInterval(0)
+        self._soon.timeout.connect(self.request)
+        self._last_change = float("-inf")   # time.monotonic() of the last view change
+        self._burst_start = float("-inf")   # ... and of the first after a quiet spell
 
     # --- geometry --------------------------------------------------------------------------
     def _bounds_rect(self) -> QRectF:
@@ -284,9 +320,18 @@ class PathLayer(pg.GraphicsObject):
                        float(view.devicePixelRatioF()), self.version)
 
     def view_changed(self) -> None:
-        """Pan, zoom or resize: a new picture once the view has settled (at once when there is none yet)."""
+        """Pan, zoom or resize: a new picture at once when there is none yet; at the end of this turn for the changes
+        just after a quiet spell (:data:`FOLLOW_MS`); else once the view has settled (the steps of a drag)."""
+        now = time.monotonic()
+        if now - self._last_change >= self.SETTLE_MS / 1000:
+            self._burst_start = now
+        self._last_change = now
         if self.image is None:
             self.request()
+        elif self._soon.isActive():
+            pass   # another signal of the same turn
+        elif now - self._burst_start <= self.FOLLOW_MS / 1000 and not self._settle.isActive():
+            self._soon.start()   # a newer view than the one being drawn: the renderer drops the older
         else:
             self._settle.start()
 
@@ -295,6 +340,7 @@ class PathLayer(pg.GraphicsObject):
         if key is None or key == self.wanted or (key == self.image_key and self.wanted is None):
             return
         self._settle.stop()
+        self._soon.stop()
         self.wanted = key
         self._renderer.request(self.groups, key)
 
@@ -319,6 +365,7 @@ class PathLayer(pg.GraphicsObject):
     def stop(self) -> None:
         """No more pictures (the item leaves the plot)."""
         self._settle.stop()
+        self._soon.stop()
         self._renderer.cancel()
 
     # --- painting --------------------------------------------------------------------------
