@@ -248,3 +248,67 @@ def test_the_banner_is_in_place_before_the_traces_are_drawn(qtbot, tmp_path, mon
     assert seen["banner"] == (True, win.banner.text() if hasattr(win.banner, "text") else "")
     assert seen["size"] == win.traces.size().toTuple()
     win.close()
+
+
+def test_the_first_run_that_arrives_has_its_traces_drawn_in_a_turn_of_their_own(qtbot, tmp_path, monkeypatch):
+    """The first run shown while a set loads: the table, molecule and label panel show it in one turn, the traces
+    are drawn in the next, each turn painted apart (together, with the paint, they were the longest turn of a
+    10,000-run open, 113-144 ms: bench/bench_window_scale.py)."""
+    import threading
+
+    import basinmark.core.sets as core_sets
+    from basinmark.gui.main_window import MainWindow
+    from basinmark.gui.traces import TracesView
+
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES * 2)
+    gate = threading.Event()
+    real_open = core_sets.open_set
+
+    def slow(path, *args, on_run=None, cancel=None, **kwargs):   # runs arrive; the load ends when the gate opens
+        tset = real_open(path, *args, **kwargs)
+        for traj in tset.runs.values():
+            if on_run is not None:
+                on_run(traj)
+        gate.wait(30)
+        return tset
+
+    monkeypatch.setattr(core_sets, "open_set", slow)
+    where: list[str] = []
+    turn = {"now": ""}
+    real_draw = TracesView._draw_monitors
+
+    def counting_draw(self):
+        if self is win.traces:
+            where.append(turn["now"])
+        return real_draw(self)
+
+    seen_in_first_turn = {}
+
+    def named(name):
+        real = getattr(MainWindow, name)
+
+        def run(self, *args):
+            turn["now"] = name
+            try:
+                return real(self, *args)
+            finally:
+                turn["now"] = ""
+                if name == "_show_first_run" and self.state.traj is not None:
+                    seen_in_first_turn.update(molecule=self.molecule._traj is self.state.traj,
+                                              panel=self.label_panel.shown_run == self.state.run_id)
+        return run
+
+    monkeypatch.setattr(TracesView, "_draw_monitors", counting_draw)
+    for name in ("_show_first_run", "_draw_first_traces"):
+        if hasattr(MainWindow, name):
+            monkeypatch.setattr(MainWindow, name, named(name))
+    win = _window(qtbot, tmp_path)
+    win.open_set(root, use_cache=False)
+    qtbot.waitUntil(lambda: win.state.traj is not None and bool(win.traces.curves), timeout=20000)
+    assert where and where[0] == "_draw_first_traces", where
+    assert seen_in_first_turn == {"molecule": True, "panel": True}
+    assert not win.traces._held
+    with qtbot.waitSignal(win.set_loaded, timeout=30000):
+        gate.set()
+    assert not win.traces._held and win.traces.threshold_lines
+    win.close()
