@@ -312,3 +312,37 @@ def test_the_first_run_that_arrives_has_its_traces_drawn_in_a_turn_of_their_own(
         gate.set()
     assert not win.traces._held and win.traces.threshold_lines
     win.close()
+
+
+def test_the_first_run_to_arrive_reaches_the_window_without_waiting_for_the_next_poll(qtbot, tmp_path, monkeypatch):
+    """Runs are taken from the loader every LoadJob.ARRIVALS_MS; the first is taken as soon as it arrives (on
+    average half a poll sooner: 30 ms of the 0.5 s target for the first run from the cache)."""
+    import threading
+
+    import basinmark.core.sets as core_sets
+    from basinmark.gui.loader import LoadJob
+
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+    gate = threading.Event()
+    real_open = core_sets.open_set
+
+    def slow(path, *args, on_run=None, cancel=None, **kwargs):
+        tset = real_open(path, *args, **kwargs)
+        for traj in tset.runs.values():
+            if on_run is not None:
+                on_run(traj)
+        gate.wait(30)
+        return tset
+
+    monkeypatch.setattr(core_sets, "open_set", slow)
+    monkeypatch.setattr(LoadJob, "ARRIVALS_MS", 60_000)   # the poll never comes during the test
+    win = _window(qtbot, tmp_path)
+    win.open_set(root, use_cache=False)
+    try:
+        qtbot.waitUntil(lambda: win.state.run_id != "", timeout=5000)
+        assert win.run_table.model.n_rows >= 1
+    finally:
+        with qtbot.waitSignal(win.set_loaded, timeout=30000):
+            gate.set()
+    assert win.run_table.model.n_rows == len(OUTCOMES)
+    win.close()

@@ -51,6 +51,7 @@ class SetLoader(QObject):
     progress = Signal(str, int, int)     # phase ("Loading" | "Classifying"), done, total
     done = Signal(object)                # {"tset", "rules", "classification", "rules_error", "error", "cancelled",
     #                                       "quick": QuickOpen | None}
+    first_arrived = Signal()             # the first run is in ``arrived`` (the others wait for LoadJob's poll)
 
     def __init__(self, path: str | Path, rules_file: str | Path | None = None, *, use_cache: bool = True) -> None:
         super().__init__()
@@ -59,6 +60,7 @@ class SetLoader(QObject):
         self.use_cache = use_cache
         self._cancel = threading.Event()
         self.arrived: deque = deque()   # runs ready to show; LoadJob takes them in the window's thread
+        self._told_first = False
 
     def cancel(self) -> None:
         self._cancel.set()
@@ -71,6 +73,12 @@ class SetLoader(QObject):
         from basinmark.core.sets import beside_a_window, open_set, rules_path
 
         progress = ProgressThrottle(self.progress.emit)
+
+        def arrive(traj) -> None:
+            self.arrived.append(traj)
+            if not self._told_first:
+                self._told_first = True
+                self.first_arrived.emit()
         out = {"path": self.path, "tset": None, "rules": None, "classification": None, "rules_error": "",
                "error": "", "cancelled": False, "quick": None, "use_cache": self.use_cache}
         try:
@@ -80,7 +88,7 @@ class SetLoader(QObject):
                 if self.use_cache:
                     from basinmark.core.quick_open import quick_open
 
-                    quick = quick_open(self.path, on_run=self.arrived.append, changes=changes)
+                    quick = quick_open(self.path, on_run=arrive, changes=changes)
                 if quick is not None:
                     tset = quick.tset
                     out["quick"] = quick
@@ -88,7 +96,7 @@ class SetLoader(QObject):
                 else:
                     tset = open_set(self.path, use_cache=self.use_cache, cancel=self._cancel.is_set,
                                     progress=lambda d, t, _r: progress("Loading", d, t),
-                                    on_run=self.arrived.append)
+                                    on_run=arrive)
             tset.warnings.extend(changes)
             # every run's content hash is worked out here, off the window's thread, also when no rules classify the
             # runs (classification asks for them first): the label table built when the load ends asks for all
@@ -165,6 +173,12 @@ class RulesWorker(QObject):
     def run(self) -> None:
         out = {"path": self.tset.root, "tset": self.tset, "error": "", "cancelled": False, "rules_only": True}
         progress = ProgressThrottle(self.progress.emit)
+
+        def arrive(traj) -> None:
+            self.arrived.append(traj)
+            if not self._told_first:
+                self._told_first = True
+                self.first_arrived.emit()
         try:
             out.update(classify_with_rules(self.tset, self.rules_file, lambda d, t, _r: progress("Classifying", d, t),
                                            cancel=self._cancel.is_set))
@@ -222,6 +236,9 @@ class LoadJob(QObject):
         self._arrivals = QTimer(self)
         self._arrivals.setInterval(self.ARRIVALS_MS)
         self._arrivals.timeout.connect(self._take_arrivals)
+        first = getattr(self.worker, "first_arrived", None)
+        if first is not None:   # the first run is taken at once, not at the next poll (queued: the worker's thread)
+            first.connect(self._take_arrivals)
 
     def start(self) -> None:
         if hasattr(self.worker, "arrived"):
