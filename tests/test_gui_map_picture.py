@@ -208,6 +208,36 @@ def test_a_burst_of_steps_asks_for_one_picture_then_one_when_it_settles(qtbot, m
     assert during + 1 <= len(asked) <= during + 2 and asked[-1] == layer.current_key()
 
 
+@pytest.mark.parametrize("seed", range(4))
+def test_random_pans_zooms_and_resizes_end_with_a_picture_of_the_view_as_it_is(qtbot, seed):
+    """Random view changes at random pauses (single steps, bursts, waits longer and shorter than the settle delay):
+    whatever the order, the pictures delivered are never older than one shown before, and once the changes stop
+    the picture shown is of the view as it is then."""
+    import random
+
+    rng = random.Random(seed)
+    data, labels = _zigzags()
+    canvas = _canvas(qtbot, data, labels, picture=True)
+    layer = canvas.layer
+    vb = canvas.plot_item.vb
+    delivered = []
+    layer.delivered.connect(lambda g, k, im: delivered.append(g))
+    for _ in range(25):
+        kind = rng.choice(["zoom", "pan", "resize", "wait"])
+        if kind == "zoom":
+            f = rng.choice([0.8, 1.25])
+            vb.scaleBy((f, f))
+        elif kind == "pan":
+            vb.translateBy(x=rng.uniform(-0.3, 0.3), y=rng.uniform(-0.3, 0.3))
+        elif kind == "resize":
+            canvas.resize(rng.randrange(300, 480), rng.randrange(240, 360))
+        qtbot.wait(rng.choice([0, 5, 20, 45, 80, 150]))
+    qtbot.waitUntil(canvas.drawn, timeout=10000)
+    assert layer.image_key == layer.current_key() and layer.wanted is None
+    shown = [g for g in delivered]
+    assert shown == sorted(shown)   # the renderer numbers its pictures in the order asked
+
+
 def test_only_the_newest_view_is_drawn():
     got = []
     r = map_layer.LatestRenderer(lambda g, k, im: got.append((g, k, im)))
