@@ -31,6 +31,66 @@ def _window(qtbot, tmp_path: Path, extras: bool = False):
     return win
 
 
+def _gated_open(monkeypatch):
+    """The core's open_set replaced by one whose runs reach the window at once and whose load ends only when the
+    returned event is set (the window's loader calls it in its thread)."""
+    import threading
+
+    import basinmark.core.sets as core_sets
+
+    gate = threading.Event()
+    real_open = core_sets.open_set
+
+    def slow(path, *args, on_run=None, cancel=None, **kwargs):
+        tset = real_open(path, *args, **kwargs)
+        for traj in tset.runs.values():
+            if on_run is not None:
+                on_run(traj)
+        gate.wait(30)
+        return tset
+
+    monkeypatch.setattr(core_sets, "open_set", slow)
+    return gate
+
+
+class _TracesTurns:
+    """Which of the window's methods ``names`` was running each time the traces of ``self.win`` drew their
+    monitors (``where``: "" outside them); ``after(name, window)`` is called as each of them returns."""
+
+    def __init__(self, monkeypatch, names, after=None) -> None:
+        from basinmark.gui.main_window import MainWindow
+        from basinmark.gui.traces import TracesView
+
+        self.where: list[str] = []
+        self.now = ""
+        self.win = None
+        real_draw = TracesView._draw_monitors
+        turns = self
+
+        def counting_draw(view):
+            if turns.win is not None and view is turns.win.traces:
+                turns.where.append(turns.now)
+            return real_draw(view)
+
+        def named(name):
+            real = getattr(MainWindow, name)
+
+            def run(window, *args):
+                turns.now = name
+                try:
+                    return real(window, *args)
+                finally:
+                    turns.now = ""
+                    if after is not None:
+                        after(name, window)
+            return run
+
+        monkeypatch.setattr(TracesView, "_draw_monitors", counting_draw)
+        for name in names:
+            if hasattr(MainWindow, name):
+                monkeypatch.setattr(MainWindow, name, named(name))
+
+
 def test_traces_are_drawn_once_when_a_load_ends(qtbot, tmp_path, monkeypatch):
     """Set, journal, rules and monitors all change at the end of a load: the traces are rebuilt once, not once
     per change (three times before)."""
@@ -160,38 +220,13 @@ def test_the_traces_are_drawn_in_a_turn_of_their_own(qtbot, tmp_path, monkeypatc
     """Drawing the traces of the run shown, and the paint that follows, made the first turn that ends a load the
     longest one of a 10,000-run open (115-144 ms with the paint, bench/bench_window_scale.py): they get a turn of
     their own, after the set, journal and rules are in place and painted, before the label table."""
-    from basinmark.gui.main_window import MainWindow
-    from basinmark.gui.traces import TracesView
-
     root = make_toy_set(tmp_path / "toyset", OUTCOMES * 2)
-    where: list[str] = []
-    turn = {"now": ""}
-    real_draw = TracesView._draw_monitors
-
-    def counting_draw(self):
-        if self is win.traces:
-            where.append(turn["now"])
-        return real_draw(self)
-
-    def named(name):
-        real = getattr(MainWindow, name)
-
-        def run(self, *args):
-            turn["now"] = name
-            try:
-                return real(self, *args)
-            finally:
-                turn["now"] = ""
-        return run
-
-    monkeypatch.setattr(TracesView, "_draw_monitors", counting_draw)
-    for name in ("_on_loaded", "_draw_traces", "_end_load", "_finish_load"):
-        monkeypatch.setattr(MainWindow, name, named(name))
-    win = _window(qtbot, tmp_path)
+    turns = _TracesTurns(monkeypatch, ("_on_loaded", "_draw_traces", "_end_load", "_finish_load"))
+    win = turns.win = _window(qtbot, tmp_path)
     win.open_set(root, use_cache=False)
     qtbot.waitUntil(lambda: not win.busy, timeout=20000)
-    ending = [w for w in where if w]
-    assert ending == ["_draw_traces"], where
+    ending = [w for w in turns.where if w]
+    assert ending == ["_draw_traces"], turns.where
     assert win.traces.threshold_lines and win.state.traj is not None
     win.close()
 
@@ -254,62 +289,26 @@ def test_the_first_run_that_arrives_has_its_traces_drawn_in_a_turn_of_their_own(
     """The first run shown while a set loads: the table, molecule and label panel show it in one turn, the traces
     are drawn in the next, each turn painted apart (together, with the paint, they were the longest turn of a
     10,000-run open, 113-144 ms: bench/bench_window_scale.py)."""
-    import threading
-
-    import basinmark.core.sets as core_sets
-    from basinmark.gui.main_window import MainWindow
-    from basinmark.gui.traces import TracesView
-
     root = make_toy_set(tmp_path / "toyset", OUTCOMES * 2)
-    gate = threading.Event()
-    real_open = core_sets.open_set
-
-    def slow(path, *args, on_run=None, cancel=None, **kwargs):   # runs arrive; the load ends when the gate opens
-        tset = real_open(path, *args, **kwargs)
-        for traj in tset.runs.values():
-            if on_run is not None:
-                on_run(traj)
-        gate.wait(30)
-        return tset
-
-    monkeypatch.setattr(core_sets, "open_set", slow)
-    where: list[str] = []
-    turn = {"now": ""}
-    real_draw = TracesView._draw_monitors
-
-    def counting_draw(self):
-        if self is win.traces:
-            where.append(turn["now"])
-        return real_draw(self)
-
+    gate = _gated_open(monkeypatch)
     seen_in_first_turn = {}
 
-    def named(name):
-        real = getattr(MainWindow, name)
+    def after(name, window):
+        if name == "_show_first_run" and window.state.traj is not None:
+            seen_in_first_turn.update(molecule=window.molecule._traj is window.state.traj,
+                                      panel=window.label_panel.shown_run == window.state.run_id)
 
-        def run(self, *args):
-            turn["now"] = name
-            try:
-                return real(self, *args)
-            finally:
-                turn["now"] = ""
-                if name == "_show_first_run" and self.state.traj is not None:
-                    seen_in_first_turn.update(molecule=self.molecule._traj is self.state.traj,
-                                              panel=self.label_panel.shown_run == self.state.run_id)
-        return run
-
-    monkeypatch.setattr(TracesView, "_draw_monitors", counting_draw)
-    for name in ("_show_first_run", "_draw_first_traces"):
-        if hasattr(MainWindow, name):
-            monkeypatch.setattr(MainWindow, name, named(name))
-    win = _window(qtbot, tmp_path)
+    turns = _TracesTurns(monkeypatch, ("_show_first_run", "_draw_first_traces"), after)
+    win = turns.win = _window(qtbot, tmp_path)
     win.open_set(root, use_cache=False)
-    qtbot.waitUntil(lambda: win.state.traj is not None and bool(win.traces.curves), timeout=20000)
-    assert where and where[0] == "_draw_first_traces", where
-    assert seen_in_first_turn == {"molecule": True, "panel": True}
-    assert not win.traces._held
-    with qtbot.waitSignal(win.set_loaded, timeout=30000):
-        gate.set()
+    try:
+        qtbot.waitUntil(lambda: win.state.traj is not None and bool(win.traces.curves), timeout=20000)
+        assert turns.where and turns.where[0] == "_draw_first_traces", turns.where
+        assert seen_in_first_turn == {"molecule": True, "panel": True}
+        assert not win.traces._held
+    finally:
+        with qtbot.waitSignal(win.set_loaded, timeout=30000):
+            gate.set()
     assert not win.traces._held and win.traces.threshold_lines
     win.close()
 
@@ -317,24 +316,10 @@ def test_the_first_run_that_arrives_has_its_traces_drawn_in_a_turn_of_their_own(
 def test_the_first_run_to_arrive_reaches_the_window_without_waiting_for_the_next_poll(qtbot, tmp_path, monkeypatch):
     """Runs are taken from the loader every LoadJob.ARRIVALS_MS; the first is taken as soon as it arrives (on
     average half a poll sooner: 30 ms of the 0.5 s target for the first run from the cache)."""
-    import threading
-
-    import basinmark.core.sets as core_sets
     from basinmark.gui.loader import LoadJob
 
     root = make_toy_set(tmp_path / "toyset", OUTCOMES)
-    gate = threading.Event()
-    real_open = core_sets.open_set
-
-    def slow(path, *args, on_run=None, cancel=None, **kwargs):
-        tset = real_open(path, *args, **kwargs)
-        for traj in tset.runs.values():
-            if on_run is not None:
-                on_run(traj)
-        gate.wait(30)
-        return tset
-
-    monkeypatch.setattr(core_sets, "open_set", slow)
+    gate = _gated_open(monkeypatch)
     monkeypatch.setattr(LoadJob, "ARRIVALS_MS", 60_000)   # the poll never comes during the test
     win = _window(qtbot, tmp_path)
     win.open_set(root, use_cache=False)
