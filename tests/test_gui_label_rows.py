@@ -156,3 +156,24 @@ def test_a_change_of_rules_or_many_runs_rebuilds_the_whole_table(win):
     assert st.labels_delta is None and (st.labels["final_label"] == "left").all()
     pd.testing.assert_frame_equal(st.labels.reset_index(drop=True), _whole(st).reset_index(drop=True),
                                   check_dtype=False)
+
+
+def test_a_label_table_built_ahead_is_taken_only_while_what_it_was_built_from_stands(win):
+    """The turn that ends a load builds the label table ahead (AppState.prepare_labels) and announces it a turn later:
+    the table built ahead is taken when nothing changed meanwhile, and dropped when something did (a hand label, other
+    rules), so the table shown is always the one a build from scratch gives."""
+    st = win.state
+    st.prepare_labels()
+    ahead = st._prepared[1]
+    st.refresh_labels(whole=True)
+    assert st.labels is ahead   # taken: nothing changed
+    st.prepare_labels()
+    st.journal.record("toy-002", "right", content_hash=st.tset["toy-002"].content_hash, reason="meanwhile")
+    st.refresh_labels(whole=True)
+    assert st.label_row("toy-002")["final_label"] == "right"   # dropped: the journal moved on
+    st.prepare_labels()
+    stale = st._prepared[1]
+    st.set_rules(st.rules, st.classification.copy())   # other rules: dropped again
+    assert st.labels is not stale
+    pd.testing.assert_frame_equal(st.labels.reset_index(drop=True), _whole(st).reset_index(drop=True),
+                                  check_dtype=False)

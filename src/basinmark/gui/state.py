@@ -19,6 +19,11 @@ from basinmark.core.model import Trajectory, TrajectorySet
 from basinmark.gui.label_table import LABEL_COLUMNS, build_label_table, journal_notes
 
 
+def _same_basis(a: tuple, b: tuple) -> bool:
+    """Two label-table bases (AppState._basis) alike: the same objects, and the same counts."""
+    return len(a) == len(b) and all(x is y or (type(x) is int and type(y) is int and x == y) for x, y in zip(a, b))
+
+
 class AppState(QObject):
     set_changed = Signal()
     run_changed = Signal(str)          # run id, "" when none
@@ -50,6 +55,7 @@ class AppState(QObject):
         self.run_errors: dict[str, str] = {}
         self._labels_held = 0        # inside labels_batch(): refresh_labels waits for the end
         self._labels_stale = False
+        self._prepared: tuple | None = None   # (basis, table) built ahead by prepare_labels, not announced yet
         #: the runs whose rows the last refresh_labels changed (a hand label, undo or note), or None when the whole
         #: table was built again; views may update just those rows
         self.labels_delta: frozenset[str] | None = None
@@ -68,6 +74,7 @@ class AppState(QObject):
 
     def set_set(self, tset: TrajectorySet | None) -> None:
         self.tset = tset
+        self._prepared = None
         self.classification = None
         self._results.clear()
         self.user_monitors = []
@@ -291,6 +298,20 @@ class AppState(QObject):
         if runs is not None:
             self._update_label_rows(runs)
             return
+        basis = self._basis()
+        prepared, self._prepared = self._prepared, None
+        self.labels = prepared[1] if prepared is not None and _same_basis(prepared[0], basis) else self._whole_table()
+        self.labels_delta = None
+        self._labels_basis = basis
+        self.labels_changed.emit()
+
+    def prepare_labels(self) -> None:
+        """Build the whole label table now, to be announced by the next :meth:`refresh_labels` (the end of a load
+        builds it in one turn and rebuilds the views in the next); dropped there when what it was built from
+        (journal and how far it was read, classification, rules, set) changed meanwhile."""
+        self._prepared = (self._basis(), self._whole_table())
+
+    def _whole_table(self) -> pd.DataFrame:
         jstate = None
         if self.journal is not None and self.tset is not None:
             if self.blind_labeler:
@@ -300,10 +321,7 @@ class AppState(QObject):
             else:
                 jstate = self.journal.state(current_hashes=dict(self.tset.content_hashes()))
         notes = journal_notes(self.journal, self.blind_labeler) if self.tset is not None else {}
-        self.labels = build_label_table(self.run_ids, self.classification, jstate, notes)
-        self.labels_delta = None
-        self._labels_basis = self._basis()
-        self.labels_changed.emit()
+        return build_label_table(self.run_ids, self.classification, jstate, notes)
 
     def _index_rows(self) -> None:
         if getattr(self, "_rows_of", None) is not self.labels:
