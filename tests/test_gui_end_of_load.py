@@ -310,6 +310,52 @@ def test_the_banner_is_in_place_before_the_traces_are_drawn(qtbot, tmp_path, mon
     win.close()
 
 
+def test_the_traces_are_not_painted_again_before_their_turn(qtbot, tmp_path, monkeypatch):
+    """Between the first turn that ends a load and the traces' own turn the traces show what they showed before: when
+    the banner appears in the first turn it moves them, and they were painted again with those old plots (a 52 ms
+    paint in the longest end turn at 10,000 runs), only to be drawn anew a turn later.  They are not painted until
+    their turn."""
+    from PySide6.QtCore import QEvent, QObject
+
+    from basinmark.gui.main_window import MainWindow
+
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES * 2)
+    (root / "ts-guess.xyz").write_text("3\nsingle geometry\nC 0 0 0\nH 0 0 1.1\nH 0 1.1 0\n")   # a banner
+    state = {"between": False, "paints": 0, "resized": 0}
+
+    class Paints(QObject):
+        def eventFilter(self, obj, event):
+            if state["between"]:
+                if event.type() == QEvent.Type.Paint:
+                    state["paints"] += 1
+                elif event.type() == QEvent.Type.Resize:
+                    state["resized"] += 1
+            return False
+
+    real_loaded, real_draw = MainWindow._on_loaded, MainWindow._draw_traces
+
+    def loaded(self, result):
+        state["between"] = True   # (a paint never comes inside the turn itself)
+        real_loaded(self, result)
+
+    def draw(self):
+        state["between"] = False
+        real_draw(self)
+
+    monkeypatch.setattr(MainWindow, "_on_loaded", loaded)
+    monkeypatch.setattr(MainWindow, "_draw_traces", draw)
+    win = _window(qtbot, tmp_path)
+    watcher = Paints()
+    win.traces.glw.viewport().installEventFilter(watcher)
+    win.traces.glw.installEventFilter(watcher)
+    win.open_set(root, use_cache=False)
+    qtbot.waitUntil(lambda: not win.busy, timeout=20000)
+    assert win.banner.isVisible()
+    assert state["resized"], "the banner did not move the traces: the test shows nothing"
+    assert state["paints"] == 0
+    win.close()
+
+
 def test_the_first_run_that_arrives_has_its_traces_drawn_in_a_turn_of_their_own(qtbot, tmp_path, monkeypatch):
     """The first run shown while a set loads: the table, molecule and label panel show it in one turn, the traces
     are drawn in the next, each turn painted apart (together, with the paint, they were the longest turn of a

@@ -696,8 +696,8 @@ class MainWindow(QMainWindow):
         hold = contextlib.ExitStack()
         hold.enter_context(self._map_held(not result.get("rules_only")))
         hold.enter_context(self.state.labels_batch())
-        traces_hold = contextlib.ExitStack()   # the traces are drawn in a turn of their own (_draw_traces)
-        traces_hold.enter_context(self.traces.held())
+        traces_hold = contextlib.ExitStack()   # the traces are drawn in a turn of their own (_draw_traces), and not
+        traces_hold.enter_context(self.traces.held(frozen=True))   # painted until then (the banner moves them here)
         self._draw_first_traces()   # a first run's traces not drawn yet: they wait for that turn instead
         try:
             if not result.get("rules_only"):
