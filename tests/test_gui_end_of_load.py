@@ -179,8 +179,8 @@ def _profiled_end_of_load(qtbot, tmp_path: Path, n: int) -> list[int]:
             calls[0] += 1
 
     turns = []
-    for turn in (lambda: win._on_loaded(result), getattr(win, "_draw_traces", None), getattr(win, "_build_labels", None),
-                 getattr(win, "_end_load", None)):
+    for turn in (lambda: win._on_loaded(result), getattr(win, "_draw_traces", None),
+                 getattr(win, "_build_labels", None), getattr(win, "_end_load", None)):
         if turn is None:
             continue
         calls[0] = 0
