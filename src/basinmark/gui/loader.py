@@ -74,11 +74,12 @@ class SetLoader(QObject):
 
         progress = ProgressThrottle(self.progress.emit)
 
-        def arrive(traj) -> None:
+        def arrive(traj) -> None:   # the first run is said at once (first_arrived); the rest wait for the poll
             self.arrived.append(traj)
             if not self._told_first:
                 self._told_first = True
                 self.first_arrived.emit()
+
         out = {"path": self.path, "tset": None, "rules": None, "classification": None, "rules_error": "",
                "error": "", "cancelled": False, "quick": None, "use_cache": self.use_cache}
         try:
@@ -173,12 +174,6 @@ class RulesWorker(QObject):
     def run(self) -> None:
         out = {"path": self.tset.root, "tset": self.tset, "error": "", "cancelled": False, "rules_only": True}
         progress = ProgressThrottle(self.progress.emit)
-
-        def arrive(traj) -> None:
-            self.arrived.append(traj)
-            if not self._told_first:
-                self._told_first = True
-                self.first_arrived.emit()
         try:
             out.update(classify_with_rules(self.tset, self.rules_file, lambda d, t, _r: progress("Classifying", d, t),
                                            cancel=self._cancel.is_set))
