@@ -88,3 +88,64 @@ def test_index_built_in_small_pieces_is_the_same(piece, chunk, monkeypatch):
         px, py = data.x[k] + rng.normal(scale=0.03), data.y[k] + rng.normal(scale=0.03)
         if np.isfinite(px) and np.isfinite(py):
             assert pieces.nearest(px, py, 0.005, 0.005) == whole.nearest(px, py, 0.005, 0.005)
+
+
+def _crowd(n_runs: int, seed: int = 3, exact_copies: bool = False) -> MapData:
+    """Many runs along nearly the same path (some exactly the same: ties): the middle of a dense map."""
+    rng = np.random.default_rng(seed)
+    base = np.cumsum(rng.normal(scale=0.05, size=(200, 2)), axis=0)
+    offsets = rng.uniform(-0.1, 0.1, size=(n_runs, 1, 2))
+    wiggle = rng.normal(scale=0.002, size=(n_runs, 200, 2))
+    if exact_copies:
+        offsets[::3] = 0.0
+        wiggle[::3] = 0.0
+    xy = (base[None] + offsets + wiggle).reshape(-1, 2)
+    ends = np.arange(1, n_runs + 1) * 200
+    return MapData([f"c{i}" for i in range(n_runs)], xy[:, 0].copy(), xy[:, 1].copy(), ends - 200, ends,
+                   MapAxis("a", (1, 2)), MapAxis("b", (1, 3)))
+
+
+def test_a_click_on_a_crowded_map_works_in_small_blocks():
+    """Where thousands of paths pass near a click, the pieces near it are measured a block at a time: every array of
+    the search stays small (measured at 10,000 runs: 9,900 page faults, ~40 MB of fresh memory, per click when the
+    whole candidate set was measured at once)."""
+    import tracemalloc
+
+    data = _crowd(2000)
+    index = PathIndex(data)
+    sx = sy = 0.01
+    px, py = data.x[100] + 0.003, data.y[100]
+    brute = nearest_on_paths(data, px, py, sx, sy)
+    tracemalloc.start()
+    try:
+        got = index.nearest(px, py, sx, sy, 8.0)
+        _now, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert got is not None and got[:2] == brute[:2] and got[2] == pytest.approx(brute[2], rel=1e-12)
+    hx, hy = 8 * sx, 8 * sy
+    b = index.boxes
+    near = np.count_nonzero((b[:, 0] - hx <= px) & (px <= b[:, 1] + hx) & (b[:, 2] - hy <= py) & (py <= b[:, 3] + hy))
+    assert near * (PathIndex.CHUNK + 1) > 100_000   # a crowded click: many candidates
+    assert peak < 6_000_000, peak
+
+
+@settings(max_examples=25, deadline=None)
+@given(st.integers(0, 10_000), st.floats(0.2, 20.0), st.sampled_from([1, 3, 64]))
+def test_blocked_picks_are_the_same_as_one_block(seed, zoom, block):
+    """The same run, frame and distance block by block as all at once, ties included (identical paths)."""
+    rng = np.random.default_rng(seed)
+    data = _crowd(60, seed, exact_copies=True) if seed % 2 else _walks(rng, 60, 1.0)
+    index = PathIndex(data)
+    fx = np.isfinite(data.x) & np.isfinite(data.y)
+    sx = sy = (np.ptp(data.x[fx]) or 1.0) / (800 * zoom)
+    for _ in range(20):
+        k = int(rng.choice(np.flatnonzero(fx)))
+        px, py = data.x[k] + rng.normal(scale=4 * sx), data.y[k] + rng.normal(scale=4 * sy)
+        with pytest.MonkeyPatch.context() as m:
+            m.setattr(PathIndex, "BLOCK_BOXES", 10 ** 9)
+            whole = index.nearest(px, py, sx, sy, 8.0)
+        with pytest.MonkeyPatch.context() as m:
+            m.setattr(PathIndex, "BLOCK_BOXES", block)
+            blocked = index.nearest(px, py, sx, sy, 8.0)
+        assert blocked == whole

@@ -350,20 +350,36 @@ class PathIndex:
         if near.size == 0:
             return None
         c = self.CHUNK
-        idx = (near[:, None] * c + np.arange(c + 1)).ravel()
-        idx = idx[idx < self.n]
         data = self.data
-        points = idx[np.isfinite(data.x[idx]) & np.isfinite(data.y[idx])]
-        segs = idx[idx < self.n - 1]
-        hit = _nearest_among(data, segs[self.seg_ok[segs]], points, px, py, sx, sy)
+        seg: tuple[float, int] | None = None   # (squared pixels, frame index) of the nearest segment so far
+        point: tuple[float, int] | None = None   # ... and of the nearest point
+        # the boxes a block at a time, in order: every array stays small (all at once, a click in the middle of a
+        # 10,000-run map made ~40 MB of arrays, 9,900 page faults a click); strictly nearer replaces, so ties go to
+        # the first, as they did all at once
+        for b0 in range(0, near.size, self.BLOCK_BOXES):
+            block = near[b0:b0 + self.BLOCK_BOXES]
+            idx = (block[:, None] * c + np.arange(c + 1)).ravel()
+            idx = idx[idx < self.n]
+            points = idx[np.isfinite(data.x[idx]) & np.isfinite(data.y[idx])]
+            segs = idx[idx < self.n - 1]
+            s_hit, p_hit = _nearest_parts(data, segs[self.seg_ok[segs]], points, px, py, sx, sy)
+            if s_hit is not None and (seg is None or s_hit[0] < seg[0]):
+                seg = s_hit
+            if p_hit is not None and (point is None or p_hit[0] < point[0]):
+                point = p_hit
+        hit = _nearest_of(data, seg, point)
         return hit if hit is not None and hit[2] <= radius_px else None
 
+    #: boxes measured per block of a click's search (our own choice, measured at 10,000 runs: a click in the middle of
+    #: the map took 41-62 ms with 512, 52-82 ms with 128, 45-72 ms with 2,048, 120-195 ms all at once)
+    BLOCK_BOXES = 512
 
-def _nearest_among(data: "MapData", seg_starts: np.ndarray, points: np.ndarray, px: float, py: float,
-                   sx: float, sy: float) -> tuple[int, int, float] | None:
-    """The nearest of the given segments (i -> i + 1, by first index) and points, in screen pixels (the rule of
-    :func:`nearest_on_paths`: a segment wins a tie with a point; the nearer end of the segment is the frame)."""
-    best: tuple[float, int] | None = None
+
+def _nearest_parts(data: "MapData", seg_starts: np.ndarray, points: np.ndarray, px: float, py: float,
+                   sx: float, sy: float) -> tuple[tuple[float, int] | None, tuple[float, int] | None]:
+    """The nearest of the given segments (i -> i + 1, by first index; the frame is the nearer end) and the nearest of
+    the given points, each as (squared distance in screen pixels, frame index) or None; ties to the first given."""
+    seg = point = None
     if seg_starts.size:
         ax, ay = (data.x[seg_starts] - px) / sx, (data.y[seg_starts] - py) / sy
         bx, by = (data.x[seg_starts + 1] - px) / sx, (data.y[seg_starts + 1] - py) / sy
@@ -374,13 +390,22 @@ def _nearest_among(data: "MapData", seg_starts: np.ndarray, points: np.ndarray, 
         cx, cy = ax + t * dx, ay + t * dy
         d2 = cx * cx + cy * cy
         k = int(np.argmin(d2))
-        best = (float(d2[k]), int(seg_starts[k]) + (1 if t[k] > 0.5 else 0))
+        seg = (float(d2[k]), int(seg_starts[k]) + (1 if t[k] > 0.5 else 0))
     if points.size:
         x, y = (data.x[points] - px) / sx, (data.y[points] - py) / sy
         p2 = x * x + y * y
         k = int(np.argmin(p2))
-        if best is None or p2[k] < best[0]:
-            best = (float(p2[k]), int(points[k]))
+        point = (float(p2[k]), int(points[k]))
+    return seg, point
+
+
+def _nearest_of(data: "MapData", seg: tuple[float, int] | None,
+                point: tuple[float, int] | None) -> tuple[int, int, float] | None:
+    """(run index, frame index, distance in pixels) of the nearer of a segment and a point (the rule of
+    :func:`nearest_on_paths`: a segment wins a tie with a point)."""
+    best = seg
+    if point is not None and (best is None or point[0] < best[0]):
+        best = point
     if best is None:
         return None
     idx = best[1]
