@@ -8,6 +8,7 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 from PySide6.QtCore import QPoint, QSettings, Qt
+from PySide6.QtWidgets import QApplication
 
 from basinmark.core.geometry import distance
 from basinmark.gui.colours import outcome_colour
@@ -288,3 +289,27 @@ def test_finite_range_skips_nan_and_infinity(x, y, want):
     d = MapData(["r"], np.array(x), np.array(y), np.array([0]), np.array([3]), MapAxis("a", (1, 2)),
                 MapAxis("b", (1, 3)))
     assert d.finite_range() == want
+
+
+def test_a_map_tabbed_behind_the_traces_waits_until_its_tab_is_shown(win, monkeypatch):
+    """Tabbed behind the traces (where the window puts it), the map reports itself visible to Qt at a place off the
+    screen: it was measured after every load and drawn again after every hand label though nobody saw it (at 10,000
+    runs 1.2 s of a worker and a 55-60 ms turn after each load).  It waits until its tab is brought to the front."""
+    from basinmark.gui import map_view
+
+    panel = win.map_panel
+    traces, dock = win.docks["traces"], win.docks["map"]
+    assert dock in win.tabifiedDockWidgets(traces)
+    traces.raise_()
+    QApplication.processEvents()
+    built = []
+    real = map_view.MapData.build
+    monkeypatch.setattr(map_view.MapData, "build", staticmethod(lambda *a, **k: built.append(1) or real(*a, **k)))
+    panel.refresh()
+    st_ = win.state
+    st_.journal.record("toy-004", "right", content_hash=st_.tset["toy-004"].content_hash, reason="behind")
+    st_.refresh_labels()
+    assert built == [] and panel.stale
+    dock.raise_()   # its tab to the front
+    QApplication.processEvents()
+    assert built and not panel.stale and panel.canvas.counts["right"] == 2

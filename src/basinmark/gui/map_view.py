@@ -394,6 +394,7 @@ class MapPanel(QWidget):
         self.computed.connect(self._on_computed)
         self._axes: list[MapAxis] = []
         self.stale = True  # state changed while hidden: draw again when shown
+        self._on_screen: bool | None = None   # as the dock last said (visibilityChanged); None: not told yet
         self._held = 0     # inside held(): refreshing waits for a turn of its own after it
         self._later = QTimer(self)
         self._later.setSingleShot(True)
@@ -496,11 +497,25 @@ class MapPanel(QWidget):
             yield
         finally:
             self._held -= 1
-            if not self._held and self.stale and self.isVisible():
+            if not self._held and self.stale and self.on_screen():
                 self._later.start()
 
+    def on_screen(self) -> bool:
+        """Shown to the user.  Not ``isVisible()`` alone: tabbed behind the traces, the map's dock is visible to Qt at
+        a place off the screen, and the map was measured and drawn again for nobody (its dock's ``visibilityChanged``
+        says when its tab comes to the front or goes behind)."""
+        if not self.isVisible():
+            return False
+        return self._on_screen if self._on_screen is not None else not self.visibleRegion().isEmpty()
+
+    def dock_visibility(self, visible: bool) -> None:
+        """The dock's ``visibilityChanged``: brought to the front, the map is drawn if something changed meanwhile."""
+        self._on_screen = visible
+        if visible and self.stale and not self._held:
+            self.refresh()
+
     def _on_labels(self) -> None:
-        if self._held or not self.isVisible():
+        if self._held or not self.on_screen():
             self.stale = True
         elif self.canvas.data is not None:
             delta = getattr(self.state, "labels_delta", None)
@@ -527,7 +542,7 @@ class MapPanel(QWidget):
 
         While the panel is hidden (closed, or behind another tab) the work waits until it is shown.
         """
-        if not (force or self.isVisible()) or (self._held and not force):
+        if not (force or self.on_screen()) or (self._held and not force):
             self.stale = True
             return
         self._later.stop()
@@ -645,6 +660,7 @@ def install_map_dock(window: QMainWindow) -> QDockWidget:
         window.tabifyDockWidget(docks["traces"], dock)
         docks["traces"].raise_()
     docks["map"] = dock
+    dock.visibilityChanged.connect(panel.dock_visibility)
     window.map_panel = panel
     act = dock.toggleViewAction()
     act.setText("&Map of Runs")
