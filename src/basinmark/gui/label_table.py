@@ -145,6 +145,20 @@ def build_label_table(run_ids: Sequence[str], classification: pd.DataFrame | Non
     }, columns=LABEL_COLUMNS)
 
 
+def final_label_map(labels: pd.DataFrame | None, blank: str | None = None) -> dict[str, str]:
+    """Every run's final label by run id; a run without one gets ``blank``, or is left out when ``blank`` is None.
+
+    The columns are taken out whole (one conversion each): read cell by cell, pandas text columns cost two Python
+    calls a cell, 60 ms at 10,000 runs in the turn that shows the map (measured)."""
+    if labels is None or labels.empty:
+        return {}
+    runs = labels["run"].to_numpy(dtype=object, na_value=None).tolist()
+    finals = labels["final_label"].to_numpy(dtype=object, na_value=None).tolist()
+    if blank is None:
+        return {str(r): str(f) for r, f in zip(runs, finals) if isinstance(f, str) and f}
+    return {str(r): (str(f) if isinstance(f, str) and f else blank) for r, f in zip(runs, finals)}
+
+
 def final_label_counts(final_labels: Iterable, products: Sequence[str] = ()) -> dict[str, int]:
     """Runs per final label: the products first (listed even at 0), then the fixed labels, then any other label
     in name order; a run without a label counts as ``unclassified``.

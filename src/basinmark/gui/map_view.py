@@ -32,7 +32,7 @@ from PySide6.QtWidgets import (QComboBox, QDockWidget, QGraphicsRectItem, QHBoxL
 
 from basinmark.gui.colours import basin_colour, outcome_colour
 from basinmark.gui.flow_layout import flow_row
-from basinmark.gui.label_table import UNCLASSIFIED, final_label_counts
+from basinmark.gui.label_table import UNCLASSIFIED, final_label_counts, final_label_map
 from basinmark.gui.map_layer import PathGroup, PathLayer
 
 from basinmark.gui.map_data import (NO_LABEL, _finite, MAX_DRAW_POINTS, PICK_RADIUS_PX, MapAxis, added_monitor_name, map_axes, MapData, decimated_indices, draw_points, grouped_paths, nearest_on_paths, basin_regions, thinning_note, INDEX_FROM_POINTS)  # noqa: F401  (some re-exported)
@@ -447,10 +447,7 @@ class MapPanel(QWidget):
 
     # --- state ----------------------------------------------------------------------------
     def final_labels(self) -> dict[str, str]:
-        lab = self.state.labels
-        if lab is None or lab.empty:
-            return {}
-        return {str(r): (str(f) if isinstance(f, str) and f else NO_LABEL) for r, f in zip(lab["run"], lab["final_label"])}
+        return final_label_map(self.state.labels, blank=NO_LABEL)
 
     def _on_set(self) -> None:
         self.cache.clear()

@@ -27,6 +27,7 @@ from PySide6.QtWidgets import (QCheckBox, QComboBox, QDockWidget, QHBoxLayout, Q
 
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.kept_axis import kept_axes
+from basinmark.gui.label_table import final_label_map
 from basinmark.gui.plot_theme import theme_axes, theme_legend
 
 #: grid of the classifier's regions (cells per side; enough for a smooth-looking boundary at figure sizes)
@@ -383,10 +384,7 @@ class OriginsPanel(QWidget):
         return False
 
     def labels(self) -> dict[str, str]:
-        lab = self.state.labels
-        if lab is None or lab.empty:
-            return {}
-        return {str(r): str(f) for r, f in zip(lab["run"], lab["final_label"]) if isinstance(f, str) and f}
+        return final_label_map(self.state.labels)
 
     @property
     def busy(self) -> bool:

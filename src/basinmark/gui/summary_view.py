@@ -29,7 +29,7 @@ from basinmark.core.tst import MAX_DDG_KCAL
 from basinmark.core.units import convert_energy
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.flow_layout import flow_row
-from basinmark.gui.label_table import final_label_counts
+from basinmark.gui.label_table import final_label_counts, final_label_map
 from basinmark.gui.kept_axis import kept_axes
 from basinmark.gui.plot_theme import theme_axes, theme_legend, warning_colour
 
@@ -674,7 +674,7 @@ class SummaryPanel(QWidget):
         if rules is None or rules.time_gap is None or cls is None or "time_gap_fs" not in cls:
             return
         products = set(rules.products)
-        final = dict(zip(labels["run"], labels["final_label"]))
+        final = final_label_map(labels)
         gaps = cls[[final.get(r) in products for r in cls["run"]]]
         cf = rules.time_gap.concerted_fs
         self.gap_stats = concerted_fraction(gaps["time_gap_fs"], cf)
