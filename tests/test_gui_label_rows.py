@@ -8,6 +8,7 @@ import random
 import pandas as pd
 import pytest
 from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QApplication
 
 from basinmark.gui import label_table
 from basinmark.gui.label_table import build_label_table, journal_notes
@@ -87,7 +88,8 @@ def _check(win, model: Model, mode: str) -> None:
         if rt.proxy.sort_order == Qt.SortOrder.DescendingOrder:
             keys = [-k for k in keys]
         assert keys == sorted(keys)
-    # the map colours every run by its final label
+    # the map colours every run by its final label (drawn in the turn after the labels changed)
+    QApplication.processEvents()
     labels = win.map_panel.canvas.labels
     assert all(labels[r] == model.final(r) for r in st.run_ids)
 

@@ -113,12 +113,45 @@ def test_marker_moves_with_the_frame(win):
     assert (mx[0], my[0]) == (pytest.approx(x[5]), pytest.approx(y[5]))
 
 
-def test_hand_label_recolours_the_map(win):
+def test_hand_label_recolours_the_map(win, qtbot):
     st_ = win.state
     st_.journal.record("toy-003", "left", content_hash=st_.tset["toy-003"].content_hash, reason="looks reactive")
     st_.refresh_labels()
-    assert win.map_panel.canvas.counts["left"] == 4
+    qtbot.waitUntil(lambda: win.map_panel.canvas.counts.get("left") == 4)
     assert "recrossing" not in win.map_panel.canvas.counts
+
+
+def test_labels_recolour_the_map_in_a_turn_of_their_own(win, qtbot, monkeypatch):
+    """The label's own turn (table, panel, journal) stays short: at 10,000 runs regrouping the map's paths took
+    a third of it (26 of 67 ms under a profiler).  Two labels in one turn are drawn once, both shown."""
+    st_, canvas = win.state, win.map_panel.canvas
+    calls = []
+    real = canvas.set_labels
+    monkeypatch.setattr(canvas, "set_labels", lambda labels: (calls.append(dict(labels)), real(labels)))
+    st_.journal.record("toy-003", "left", content_hash=st_.tset["toy-003"].content_hash)
+    st_.refresh_labels()
+    assert calls == []
+    st_.journal.record("toy-002", "recrossing", content_hash=st_.tset["toy-002"].content_hash)
+    st_.refresh_labels()
+    assert calls == []
+    qtbot.waitUntil(lambda: bool(calls))
+    qtbot.wait(30)
+    assert len(calls) == 1
+    assert calls[0]["toy-003"] == "left" and calls[0]["toy-002"] == "recrossing"
+    assert canvas.counts["left"] == 4 and canvas.counts["recrossing"] == 1 and "right" not in canvas.counts
+
+
+def test_labels_waiting_for_their_turn_give_way_to_a_new_map(win, qtbot, monkeypatch):
+    """Labels asked for before the map is measured again are not drawn over the newer map afterwards."""
+    st_, panel = win.state, win.map_panel
+    st_.journal.record("toy-003", "left", content_hash=st_.tset["toy-003"].content_hash)
+    st_.refresh_labels()
+    panel.refresh(force=True)   # a new map of the same labels (other axes, rules or set), in this turn
+    calls = []
+    monkeypatch.setattr(panel.canvas, "set_labels", lambda labels: calls.append(labels))
+    qtbot.wait(50)
+    assert calls == []
+    assert panel.canvas.counts["left"] == 4
 
 
 def test_axis_choice_and_added_monitor(win):

@@ -333,9 +333,8 @@ def test_paths_are_never_stroked_on_the_windows_thread(win, qtbot, monkeypatch):
     qtbot.waitUntil(canvas.drawn, timeout=20000)
     canvas.repaint()
     win.state.journal.record("toy-003", "left", content_hash=win.state.tset["toy-003"].content_hash, reason="x")
-    win.state.refresh_labels()   # recoloured: drawn again in the worker
-    qtbot.waitUntil(canvas.drawn, timeout=20000)
-    assert canvas.counts["left"] == 4
+    win.state.refresh_labels()   # recoloured (in the next turn): drawn again in the worker
+    qtbot.waitUntil(lambda: canvas.counts.get("left") == 4 and canvas.drawn(), timeout=20000)
     # only the current run's highlight (one run) is a curve on the window's thread
     longest = max(win.state.tset[r].n_frames for r in win.state.tset.run_ids)
     assert all(n <= longest for n in stroked_here)

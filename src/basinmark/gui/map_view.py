@@ -400,6 +400,12 @@ class MapPanel(QWidget):
         self._later.setSingleShot(True)
         self._later.setInterval(0)
         self._later.timeout.connect(self.refresh)
+        # new labels are drawn in a turn of their own, after the one that made them (see _on_labels)
+        self._pending_labels: dict[str, str] | None = None
+        self._labels_later = QTimer(self)
+        self._labels_later.setSingleShot(True)
+        self._labels_later.setInterval(0)
+        self._labels_later.timeout.connect(self._apply_labels)
         lay = QVBoxLayout(self)
         lay.setContentsMargins(4, 4, 4, 4)
         self.x_combo = QComboBox(self)
@@ -516,14 +522,28 @@ class MapPanel(QWidget):
             self.stale = True
         elif self.canvas.data is not None:
             delta = getattr(self.state, "labels_delta", None)
-            if delta is not None and self.canvas.labels:   # a few rows changed (a hand label): only theirs
-                labels = dict(self.canvas.labels)
+            base = self._pending_labels if self._pending_labels is not None else self.canvas.labels
+            if delta is not None and base:   # a few rows changed (a hand label): only theirs
+                labels = dict(base)
                 for run in delta:
                     final = (self.state.label_row(run) or {}).get("final_label")
                     labels[run] = final if isinstance(final, str) and final else NO_LABEL
-                self.canvas.set_labels(labels)
             else:
-                self.canvas.set_labels(self.final_labels())
+                labels = self.final_labels()
+            # regrouping every path is a third of a hand label's turn at 10,000 runs (26 of 67 ms under a
+            # profiler): the table, panel and journal show the label in its turn, the map in the next
+            self._pending_labels = labels
+            self._labels_later.start()
+
+    def _apply_labels(self) -> None:
+        labels, self._pending_labels = self._pending_labels, None
+        if labels is not None and self.canvas.data is not None:
+            self.canvas.set_labels(labels)
+
+    def _drop_pending_labels(self) -> None:
+        """The map is drawn anew with the labels as they are now: labels waiting for their turn are older."""
+        self._pending_labels = None
+        self._labels_later.stop()
 
     def _message(self, text: str) -> None:
         self.note.setText(text)
@@ -609,6 +629,7 @@ class MapPanel(QWidget):
             msg = (msg + " " if msg else "") + "No rules: runs are shown without basins or automatic outcomes."
         thin = thinning_note(data, per_run)
         self._message(" ".join(m for m in (msg, thin) if m))
+        self._drop_pending_labels()
         self.canvas.max_points = per_run
         self.canvas.set_data(data, labels, st.rules, groups=groups)
         now = self.final_labels()
