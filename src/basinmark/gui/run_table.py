@@ -425,7 +425,11 @@ class RunFilterProxy(QAbstractProxyModel):
         if n == 0:
             return np.zeros(0, dtype=np.intp)
         if self.only is not None:
-            keep = np.isin(model.column("run"), np.array(sorted(self.only), dtype=object))
+            # one lookup per given run in the model's index (numpy's isin on text compared every given id with
+            # every listed one: 1.3 s per keystroke of a search matching most of 10,000 runs)
+            keep = np.zeros(n, dtype=bool)
+            rows = [r for r in map(model.row_of, self.only) if r is not None]
+            keep[np.array(rows, dtype=np.intp)] = True
         else:
             keep = model.mask(self.mode)
         if self.pinned:
