@@ -141,3 +141,71 @@ def test_mode_projections_become_named_columns_in_run_order():
     assert with_modes.coordinate("mode 2 phase [deg]").circular
     assert with_modes.coordinate("mode 1 velocity [amu^1/2 angstrom/fs]").phrase.startswith("the velocity along mode 1")
     assert any("run-004" in w and "mode file" in w for w in with_modes.warnings)
+
+
+def _ase_aligned(positions: np.ndarray, target: np.ndarray) -> np.ndarray:
+    """Each geometry moved onto ``target`` by ase's own minimize_rotation_and_translation (the reference)."""
+    from ase import Atoms
+    from ase.build import minimize_rotation_and_translation
+
+    ref = Atoms(f"X{target.shape[0]}", positions=target)
+    out = np.empty_like(positions)
+    for k, x in enumerate(positions):
+        atoms = Atoms(f"X{target.shape[0]}", positions=x)
+        minimize_rotation_and_translation(ref, atoms)
+        out[k] = atoms.positions
+    return out
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2, 3])
+def test_aligned_geometries_equal_ase_one_by_one(seed):
+    from scipy.spatial.transform import Rotation
+
+    from basinmark.core.origins_start import aligned_onto
+
+    rng = np.random.default_rng(seed)
+    n_atoms = int(rng.integers(3, 15))
+    base = rng.normal(0, 1.5, (n_atoms, 3))
+    rots = Rotation.random(40, random_state=seed)
+    runs = np.stack([rots[k].apply(base + rng.normal(0, 0.3, base.shape)) + rng.normal(0, 4, 3) for k in range(40)])
+    target = base + rng.normal(0, 0.2, base.shape)
+    np.testing.assert_allclose(aligned_onto(runs, target), _ase_aligned(runs, target), rtol=0, atol=1e-9)
+
+
+def test_default_reference_is_the_run_ase_alignment_picks():
+    rng = np.random.default_rng(21)
+    base = rng.normal(0, 1.5, (9, 3))
+    runs = np.stack([base + rng.normal(0, 0.25, base.shape) + rng.normal(0, 2, 3) for _ in range(60)])
+    rmsd, used = aligned_rmsd(runs)
+    first = _ase_aligned(runs, runs[0])
+    pick = int(np.argmin(np.sqrt(np.mean(np.sum((first - np.median(first, axis=0)) ** 2, axis=-1), axis=1))))
+    np.testing.assert_array_equal(used, runs[pick])
+    moved = _ase_aligned(runs, runs[pick])
+    want = np.sqrt(np.mean(np.sum((moved - runs[pick]) ** 2, axis=-1), axis=1))
+    np.testing.assert_allclose(rmsd, want, rtol=0, atol=1e-9)
+
+
+def test_alignment_python_work_does_not_grow_with_runs():
+    """Aligning 10,000 runs one by one (a Python loop of small LAPACK calls, each letting go of Python's lock
+    and taking it straight back) kept the window's thread from running for 170-470 ms at a time while the
+    starting conditions were analysed.  Done on whole arrays, its Python calls do not grow with the runs."""
+    import sys
+
+    def calls(n_runs: int) -> int:
+        rng = np.random.default_rng(5)
+        runs = rng.normal(0, 1.5, (n_runs, 8, 3))
+        count = [0]
+
+        def hook(frame, event, arg):
+            if event == "call":
+                count[0] += 1
+
+        sys.setprofile(hook)
+        try:
+            aligned_rmsd(runs)
+        finally:
+            sys.setprofile(None)
+        return count[0]
+
+    few, many = calls(20), calls(400)
+    assert many < 1.5 * few + 50, f"20 runs: {few} Python calls, 400 runs: {many}"

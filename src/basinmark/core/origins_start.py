@@ -96,6 +96,41 @@ class StartingConditions:
 
 # --- the transition-state check ---------------------------------------------------------------------------
 
+def aligned_onto(positions: np.ndarray, target: np.ndarray) -> np.ndarray:
+    """Each geometry of ``positions`` ``(R, N, 3)`` moved onto ``target`` ``(N, 3)``: rotated about its centroid by
+    the rotation of least RMSD and put on the target's centroid.
+
+    The quaternion method of ase's ``minimize_rotation_and_translation`` (Melander et al., J. Chem. Theory Comput.
+    2015, 11, 1055), done for every geometry at once; tests/test_origins_start.py holds it to ase's own, geometry by
+    geometry.  Written out because ase aligns one pair per call: 10,000 calls, each a small LAPACK call that lets go
+    of Python's lock and takes it straight back, kept the window's thread waiting 170-470 ms at a time (measured)
+    and took seconds; here the work is a few array operations (one batched eigen-decomposition)."""
+    p = np.asarray(positions, dtype=np.float64)
+    p = p - p.mean(axis=1, keepdims=True)
+    t = np.asarray(target, dtype=np.float64)
+    c0 = t.mean(axis=0)
+    t = t - c0
+    r = np.einsum("kni,nj->kij", p, t)   # r[k, i, j] = sum over atoms of p_i t_j (ase's R_ij)
+    r11, r12, r13 = r[:, 0, 0], r[:, 0, 1], r[:, 0, 2]
+    r21, r22, r23 = r[:, 1, 0], r[:, 1, 1], r[:, 1, 2]
+    r31, r32, r33 = r[:, 2, 0], r[:, 2, 1], r[:, 2, 2]
+    f = np.stack([
+        np.stack([r11 + r22 + r33, r23 - r32, r31 - r13, r12 - r21], axis=-1),
+        np.stack([r23 - r32, r11 - r22 - r33, r12 + r21, r13 + r31], axis=-1),
+        np.stack([r31 - r13, r12 + r21, -r11 + r22 - r33, r23 + r32], axis=-1),
+        np.stack([r12 - r21, r13 + r31, r23 + r32, -r11 - r22 + r33], axis=-1),
+    ], axis=1)
+    w, v = np.linalg.eigh(f)
+    q = np.take_along_axis(v, np.argmax(w, axis=1)[:, None, None], axis=2)[:, :, 0]   # most positive eigenvalue's
+    q0, q1, q2, q3 = q[:, 0], q[:, 1], q[:, 2], q[:, 3]
+    rot = np.stack([
+        np.stack([q0**2 + q1**2 - q2**2 - q3**2, 2 * (q1 * q2 - q0 * q3), 2 * (q1 * q3 + q0 * q2)], axis=-1),
+        np.stack([2 * (q1 * q2 + q0 * q3), q0**2 - q1**2 + q2**2 - q3**2, 2 * (q2 * q3 - q0 * q1)], axis=-1),
+        np.stack([2 * (q1 * q3 - q0 * q2), 2 * (q2 * q3 + q0 * q1), q0**2 - q1**2 - q2**2 + q3**2], axis=-1),
+    ], axis=1)
+    return np.einsum("knj,kij->kni", p, rot) + c0
+
+
 def aligned_rmsd(positions: np.ndarray, reference: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
     """RMSD (Å) of each geometry ``(R, N, 3)`` from ``reference`` after the best translation and rotation, and
     the reference used.
@@ -104,31 +139,18 @@ def aligned_rmsd(positions: np.ndarray, reference: np.ndarray | None = None) -> 
     onto the first run).  A real run rather than a mean: runs started at two transition states would put a mean
     halfway between them, within the limit of both, whereas from one run of either group the other group is the
     whole distance away."""
-    from ase import Atoms
-    from ase.build import minimize_rotation_and_translation
-
     positions = np.asarray(positions, dtype=np.float64)
-    n = positions.shape[1]
-
-    def aligned_onto(target: np.ndarray) -> np.ndarray:
-        ref = Atoms(f"X{n}", positions=target)
-        out = np.empty_like(positions)
-        for k, x in enumerate(positions):
-            atoms = Atoms(f"X{n}", positions=x)
-            minimize_rotation_and_translation(ref, atoms)  # moves atoms onto ref (Kabsch, via quaternions)
-            out[k] = atoms.positions
-        return out
 
     def rmsd_to(moved: np.ndarray, target: np.ndarray) -> np.ndarray:
         return np.sqrt(np.mean(np.sum((moved - target) ** 2, axis=-1), axis=1))
 
     if reference is None:
-        first = aligned_onto(positions[0])
+        first = aligned_onto(positions, positions[0])
         middle = np.median(first, axis=0)
         reference = positions[int(np.argmin(rmsd_to(first, middle)))]
     reference = np.asarray(reference, dtype=np.float64)
-    moved = aligned_onto(reference)
-    # ase moves the atoms onto the reference's centroid, so the difference is taken as it stands
+    moved = aligned_onto(positions, reference)
+    # moved onto the reference's centroid (as ase does), so the difference is taken as it stands
     return rmsd_to(moved, reference), reference
 
 
