@@ -264,9 +264,12 @@ def goodman_intervals(counts: Sequence[int], confidence: float = 0.95) -> np.nda
 
 def _clean_labels(labels: Iterable) -> tuple[list[str], int]:
     """Labels as strings, and how many were missing (None, NaN, empty)."""
+    if isinstance(labels, pd.Series):   # taken out whole: a text column read cell by cell costs two calls a cell
+        labels = labels.to_numpy(dtype=object, na_value=None).tolist()
     out, missing = [], 0
     for value in labels:
-        if value is None or (isinstance(value, float) and math.isnan(value)) or str(value).strip() == "":
+        if value is None or value is pd.NA or (isinstance(value, float) and math.isnan(value)) \
+                or str(value).strip() == "":
             missing += 1
         else:
             out.append(str(value))
