@@ -36,6 +36,8 @@ class Replay:
         self.pending: list[dict] | None = None  # members of a batch under way (not counted yet)
         self.pending_begin: int | None = None
         self.notes: dict[str, dict] = {}  # run -> its latest note event (kept apart: notes never change labels)
+        #: one label per run of a source, kept until the next event counts (see :meth:`side`)
+        self._sides: dict[str, pd.DataFrame] = {}
 
     # --- applying events -----------------------------------------------------------------
     def apply(self, event: dict) -> None:
@@ -54,6 +56,7 @@ class Replay:
 
     def _apply(self, event: dict) -> None:
         self.events.append(event)
+        self._sides.clear()
         kind = event.get("kind")
         if kind == "note":
             run = event.get("run")
@@ -142,7 +145,16 @@ class Replay:
         return df
 
     def side(self, which: str) -> pd.DataFrame:
-        """One label per run: ``final``, ``auto``, ``hand``, or the latest by a named labeler."""
+        """One label per run: ``final``, ``auto``, ``hand``, or the latest by a named labeler.
+
+        Built once per state of the journal (the review asks for several sources at a time, each a pass over every
+        run's events: 43 ms at 10,000 runs); the caller gets a copy of its own."""
+        kept = self._sides.get(which)
+        if kept is None:
+            kept = self._sides[which] = self._build_side(which)
+        return kept.copy()
+
+    def _build_side(self, which: str) -> pd.DataFrame:
         rows = []
         for run, stack in self.stacks.items():
             if which == "final":
