@@ -296,8 +296,9 @@ class AppState(QObject):
         self._labels_stale = False
         runs = None if whole else self._changed_runs()
         if runs is not None:
-            self._update_label_rows(runs)
-            return
+            if runs:
+                self._update_label_rows(runs)
+            return   # no event since the table was built: it stands as it is
         basis = self._basis()
         prepared, self._prepared = self._prepared, None
         self.labels = prepared[1] if prepared is not None and _same_basis(prepared[0], basis) else self._whole_table()
