@@ -272,3 +272,22 @@ def test_labels_refreshed_with_nothing_new_change_nothing(setup):
     import pandas as pd
 
     pd.testing.assert_frame_equal(st.labels, before)
+
+
+def test_choosing_both_sources_compares_once(setup, monkeypatch):
+    """Choosing A and B together compared after each of them (two comparisons at 10,000 runs: 221 ms)."""
+    win, dock, root, other = setup
+    j = win.state.journal
+    hashes = dict(win.state.tset.content_hashes())
+    for run, lab in zip(RUNS, BO):
+        j.record(run, lab, content_hash=hashes[run], labeler="bo")
+    panel = win.review_panel
+    panel.refresh_sources()
+    panel.set_sources(("person", "ann"), ("person", "bo"))
+    panel.compare()
+    compared = []
+    real = panel.compare
+    monkeypatch.setattr(panel, "compare", lambda: (compared.append(1), real())[1])
+    panel.set_sources(("person", "bo"), ("person", "ann"))
+    assert len(compared) == 1
+    assert panel.review.name_a == "bo" and list(panel.queue["run"]) == DISAGREE
