@@ -60,3 +60,24 @@ def test_what_a_caller_gets_is_its_own(tmp_path):
         again = j.labels("final")
         assert again.loc["r1", "label"] == "teal" and again.loc["r2", "labeler"] == "bo"
         pd.testing.assert_frame_equal(again, j.labels("final"))
+
+
+def test_source_counts_equal_the_sources_built_whole(tmp_path):
+    """How many runs each source labels, in one pass over the runs (the review lists every source with its count
+    when shown: five sources built whole for that took 215 ms at 10,000 runs with two labelers)."""
+    import random
+
+    rnd = random.Random(4)
+    with _journal(tmp_path) as j:
+        for _ in range(60):
+            run = f"r{rnd.randrange(9)}"
+            if rnd.random() < 0.2:
+                try:
+                    j.undo(run, labeler=rnd.choice(["ana", "bo"]))
+                except Exception:  # nothing to undo on that run
+                    pass
+            else:
+                j.record(run, rnd.choice(["amber", "teal"]), content_hash=f"h{run[1:]}",
+                         source=rnd.choice(["hand", "hand", "import"]), labeler=rnd.choice(["ana", "bo", "cy"]))
+        names = ["final", "auto", "hand", "ana", "bo", "cy", "nobody"]
+        assert j.source_counts(names) == {w: len(j.labels(w)) for w in names}

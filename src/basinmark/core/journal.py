@@ -619,6 +619,11 @@ class LabelJournal:
         """One label per run from ``final``, ``auto``, ``hand`` or a named labeler (index: run)."""
         return self._replay.side(which)
 
+    def source_counts(self, names) -> dict[str, int]:
+        """How many runs each of ``names`` (``final``, ``auto``, ``hand`` or a labeler, as :meth:`labels` takes them)
+        labels: ``len(self.labels(name))`` for each, in one pass."""
+        return self._replay.source_counts(names)
+
     def labelers(self) -> list[str]:
         return self._replay.labelers()
 

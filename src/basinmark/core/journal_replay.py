@@ -154,6 +154,25 @@ class Replay:
             kept = self._sides[which] = self._build_side(which)
         return kept.copy()
 
+    def source_counts(self, names) -> dict[str, int]:
+        """How many runs each source of ``names`` (as :meth:`side` takes them) labels, in one pass over the runs."""
+        names = list(names)
+        people = {w for w in names if w not in ("final", "auto", "hand")}
+        n_final = n_auto = n_hand = 0
+        by: dict[str, int] = dict.fromkeys(people, 0)
+        for stack in self.stacks.values():
+            if not stack:
+                continue
+            n_final += 1   # a run with any label event in force has a final label
+            hand = [e.get("source") in HAND_SOURCES for e in stack]
+            n_hand += any(hand)
+            n_auto += not all(hand)
+            if people:
+                for name in {e.get("labeler") for e in stack} & people:
+                    by[name] += 1
+        fixed = {"final": n_final, "auto": n_auto, "hand": n_hand}
+        return {w: fixed[w] if w in fixed else by[w] for w in names}
+
     def _build_side(self, which: str) -> pd.DataFrame:
         rows = []
         for run, stack in self.stacks.items():
