@@ -69,7 +69,7 @@ def test_two_journals_list_exactly_the_disagreements(setup):
     review = panel.compare()
     assert review is not None and review.n == len(RUNS)
     assert list(panel.queue["run"]) == DISAGREE
-    shown = [panel.queue_view.item(r, 0).text() for r in range(panel.queue_view.rowCount())]
+    shown = [panel.queue_view.text(r, 0) for r in range(panel.queue_view.rowCount())]
     assert shown == DISAGREE
     # reference library: scikit-learn's Cohen's kappa over the same label pairs
     ref = cohen_kappa_score(ANN, BO)
@@ -291,3 +291,37 @@ def test_choosing_both_sources_compares_once(setup, monkeypatch):
     panel.set_sources(("person", "bo"), ("person", "ann"))
     assert len(compared) == 1
     assert panel.review.name_a == "bo" and list(panel.queue["run"]) == DISAGREE
+
+
+def test_a_long_queue_is_asked_only_for_the_rows_on_screen(setup, qtbot, monkeypatch):
+    """2,048 disagreements at 10,000 runs were listed as 14,000 table items, made in the comparing turn (100 ms);
+    the queue's cells are now asked for when shown, and every row is still there to select and decide."""
+    import pandas as pd
+
+    from basinmark.core.review import DISAGREEMENT_COLUMNS
+    from basinmark.gui import review_view
+
+    win, dock, root, other = setup
+    dock.show()
+    dock.raise_()
+    panel = win.review_panel
+    panel.set_sources(("final",), ("file", str(other)))
+    review = panel.compare()
+    n = 3000
+    review.disagreements = pd.DataFrame([[f"x-{i:05d}", "left", "ann", "", "right", "bo", "why"] for i in range(n)],
+                                        columns=DISAGREEMENT_COLUMNS)
+    asked = [0]
+    real = review_view.QueueModel.data
+
+    def counting(self, index, role=Qt.ItemDataRole.DisplayRole):
+        asked[0] += 1
+        return real(self, index, role)
+
+    monkeypatch.setattr(review_view.QueueModel, "data", counting)
+    panel.refresh_queue()
+    qtbot.wait(50)
+    assert panel.queue_view.rowCount() == n
+    assert asked[0] < n, f"{asked[0]} cells asked for a queue of {n} rows"
+    assert panel.queue_view.text(n - 1, 0) == f"x-{n - 1:05d}" and panel.queue_view.text(0, 6) == "why"
+    tip = panel.queue_view.model().index(0, 0).data(Qt.ItemDataRole.ToolTipRole)
+    assert tip == "this run is not in the open set"
