@@ -265,3 +265,29 @@ def test_narrow_summary_stacks_its_plots_and_the_wheel_scrolls_past_them(win, qt
     at = QPointF(panel.plots.mapFromScene(centre))
     wheel(Qt.KeyboardModifier.ControlModifier)
     assert panel.p_out.viewRange() != before, "Ctrl+wheel should zoom the plot"
+
+
+def test_a_long_convergence_is_drawn_thinned_with_its_start_and_end(win):
+    """At 10,000 runs the convergence curve and its band were drawn through every run (the band's fill alone 37 ms
+    of the summary's showing turn).  Drawn now through at most DRAW_POINTS points: every run of the noisy start,
+    then evenly spaced runs, and always the last; every point drawn is the core's own value at that run."""
+    import pandas as pd
+
+    from basinmark.gui.summary_view import DRAW_POINTS
+
+    panel = win.summary_panel
+    n = 6000
+    rng = np.random.default_rng(2)
+    labels = pd.DataFrame({"run": [f"r{i:05d}" for i in range(n)],
+                           "final_label": rng.choice(["left", "right", "recrossing"], n, p=[0.5, 0.3, 0.2])})
+    core = build_summary(labels, ["left", "right"])
+    panel._draw_convergence(core)
+    x, y = panel.conv_curve.getData()
+    assert len(x) <= DRAW_POINTS
+    conv = core.convergence
+    assert x[-1] == conv["n"].iloc[-1]
+    start = conv["n"].to_numpy(float)[:100]
+    np.testing.assert_array_equal(x[:100], start)
+    at = {float(k): v for k, v in zip(conv["n"].to_numpy(float), conv["ratio"].to_numpy(float))}
+    want = np.array([at[float(k)] for k in x])
+    np.testing.assert_allclose(y[np.isfinite(want)], want[np.isfinite(want)])
