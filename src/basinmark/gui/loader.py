@@ -53,11 +53,15 @@ class SetLoader(QObject):
     #                                       "quick": QuickOpen | None}
     first_arrived = Signal()             # the first run is in ``arrived`` (the others wait for LoadJob's poll)
 
-    def __init__(self, path: str | Path, rules_file: str | Path | None = None, *, use_cache: bool = True) -> None:
+    def __init__(self, path: str | Path, rules_file: str | Path | None = None, *, use_cache: bool = True,
+                 journal: tuple[Path | None, str | None] | None = None) -> None:
+        """``journal``: (where the window keeps this set's journal if not in the set folder, the labeler) to open an
+        existing journal here (:meth:`open_journal`); None opens none."""
         super().__init__()
         self.path = Path(path)
         self.rules_file = Path(rules_file) if rules_file else None
         self.use_cache = use_cache
+        self.journal_ask = journal
         self._cancel = threading.Event()
         self.arrived: deque = deque()   # runs ready to show; LoadJob takes them in the window's thread
         self._told_first = False
@@ -109,11 +113,56 @@ class SetLoader(QObject):
             # during classification stops it
             out.update(classify_with_rules(tset, rules_file, lambda d, t, _r: progress("Classifying", d, t),
                                            cancel=None if self.cancelled else self._cancel.is_set))
+            out["journal"] = self.open_journal(tset, out.get("rules"))
         except BasinmarkError as exc:
             out["error"] = str(exc)
         except Exception as exc:  # the window must survive anything a broken folder does
             out["error"] = f"{self.path}: could not be opened ({type(exc).__name__}: {exc})"
+        if out.get("error") and out.get("journal") is not None:
+            close_opened(out.pop("journal"))
         self.done.emit(out)
+
+    def open_journal(self, tset, rules) -> "OpenedJournal | None":
+        """The set's label journal opened for labeling here, off the window's thread (reading, checking and replaying
+        20,000 events took 254-282 ms, in the turn that ends the load), when it exists and opens without a question;
+        else None, and the window opens it itself (a new journal, a lock to offer to break, a read-only fallback)."""
+        from basinmark.core.journal import LabelJournal
+        from basinmark.core.labels import all_labels
+        from basinmark.core.not_a_set import holds_no_runs
+        from basinmark.core.sets import journal_path
+
+        if self.journal_ask is None or holds_no_runs(tset):   # not a set: nothing is written into the folder
+            return None
+        elsewhere, labeler = self.journal_ask
+        path = elsewhere or journal_path(tset.root)
+        if not path.is_file():
+            return None
+        try:
+            journal = LabelJournal.open(path, set_id=tset.name, labeler=labeler,
+                                        allowed=all_labels(rules) if rules is not None else None)
+        except Exception:  # noqa: BLE001 -- the window opens it again and says why (or offers to break a lock)
+            return None
+        return OpenedJournal(path, labeler, rules, journal)
+
+
+class OpenedJournal:
+    """A journal the loader opened, with what it was opened for (the window takes it only if that is what it would
+    open itself, else closes it: :func:`close_opened`)."""
+
+    def __init__(self, path: Path, labeler: str | None, rules, journal) -> None:
+        self.path, self.labeler, self.rules, self.journal = path, labeler, rules, journal
+
+    def fits(self, path: Path, labeler: str | None, rules) -> bool:
+        return self.path == path and self.labeler == labeler and self.rules is rules
+
+
+def close_opened(opened: "OpenedJournal | None") -> None:
+    """Close a journal the loader opened that nobody takes (its lock released)."""
+    if opened is not None:
+        try:
+            opened.journal.close()
+        except Exception:  # noqa: BLE001 -- closing must never stop what comes next
+            pass
 
 
 def classify_with_rules(tset, rules_file, progress=None, cancel=None) -> dict:

@@ -30,7 +30,7 @@ from basinmark.gui.gc_guard import freeze_survivors, thaw
 from basinmark.gui.goto_run import GotoRunDialog
 from basinmark.gui.icons import icon
 from basinmark.gui.label_panel import Banner, LabelPanel
-from basinmark.gui.loader import FileCheckWorker, LoadJob, RulesWorker, SetLoader
+from basinmark.gui.loader import FileCheckWorker, LoadJob, RulesWorker, SetLoader, close_opened
 from basinmark.gui.molecule_view import MoleculeView
 from basinmark.gui.playback import PlaybackBar, PlaybackController
 from basinmark.gui.lock_dialog import open_or_offer_break
@@ -532,7 +532,9 @@ class MainWindow(QMainWindow):
             # before the new set's runs arrive (gui/gc_guard.py)
             thaw()
         self.setWindowTitle(f"{path.name} — basinmark")
-        job = LoadJob(SetLoader(path, rules_file, use_cache=use_cache), self)
+        # the set's journal, when it has one, is opened by the loader (off this thread); see _open_journal
+        ask = (journal_elsewhere.remembered(self.settings, path), self.label_panel.labeler_name or None)
+        job = LoadJob(SetLoader(path, rules_file, use_cache=use_cache, journal=ask), self)
         job.progress.connect(self._on_progress)
         job.run_loaded.connect(self._on_first_runs)
         self._auto_run = ""
@@ -675,8 +677,10 @@ class MainWindow(QMainWindow):
         journal and the rules in place; the next draws the traces once (:meth:`_draw_traces`); the next rebuilds the
         label table and every view of it (:meth:`_end_load`); the last ends the job (:meth:`_finish_load`).  Each
         turn stays short on a large set; the window is busy until the last."""
+        opened = result.pop("journal", None)   # the set's journal, opened by the loader (or None)
         if result.get("error") or (not result.get("rules_only") and not result.get("cancelled")
                                    and holds_no_runs(result["tset"])):
+            close_opened(opened)
             self.job = None
             self._busy(False)
             if result.get("error"):
@@ -719,7 +723,8 @@ class MainWindow(QMainWindow):
                                        + (" …" if n > 3 else "") + ".")
                 if said:
                     self._messages["set"] = " ".join(said)
-                self._open_journal(tset, result.get("rules"))
+                self._open_journal(tset, result.get("rules"), opened)
+                opened = None
             if result.get("rules_error"):
                 self._messages["rules"] = result["rules_error"]
             else:
@@ -728,11 +733,13 @@ class MainWindow(QMainWindow):
                 self.state.set_rules(result.get("rules"), result.get("classification"),
                                      result.get("rules_error", ""))
         except BaseException:
+            close_opened(opened)   # not taken (an error before the journal's turn): its lock is released
             self.job = None
             self._busy(False)
             traces_hold.close()
             hold.close()
             raise
+        close_opened(opened)   # a rules-only result carries none; a set's was taken above
         self._ending = (result, hold, traces_hold)
         # the banner now, not in the last turn: shown or changed there, it pushed every panel down, and the traces
         # were laid out and drawn again, their axes too (a 55 ms paint at 10,000 runs)
@@ -842,15 +849,27 @@ class MainWindow(QMainWindow):
             self._messages["files"] = said
             self._show_banner()
 
-    def _open_journal(self, tset: TrajectorySet, rules) -> None:
+    def _open_journal(self, tset: TrajectorySet, rules, opened=None) -> None:
+        """Open the set's journal for labeling, or take the one the loader opened (``opened``) if it is the journal
+        this would open (same file, labeler and rules); one that is not is closed."""
         elsewhere = journal_elsewhere.remembered(self.settings, tset.root)  # Save Labels Elsewhere…
         path = elsewhere or journal_path(tset.root)
         allowed = all_labels(rules) if rules is not None else None
         name = self.label_panel.labeler_name or None
+        if opened is not None and not opened.fits(path, name, rules):
+            close_opened(opened)
+            opened = None
+
+        def opener() -> LabelJournal:
+            nonlocal opened
+            if opened is not None:
+                journal, opened = opened.journal, None
+                return journal
+            return LabelJournal.open(path, set_id=tset.name, labeler=name, allowed=allowed)
+
         try:
             # a lock left by a program that is gone: offered to break (recorded), else read-only below
-            journal = open_or_offer_break(self, path, lambda: LabelJournal.open(path, set_id=tset.name, labeler=name,
-                                                                                allowed=allowed))
+            journal = open_or_offer_break(self, path, opener)
             self._messages.pop("journal", None)
             msg = ""
         except JournalLockedError as exc:

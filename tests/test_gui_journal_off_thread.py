@@ -1,0 +1,128 @@
+"""A set's existing label journal is opened (read, checked, replayed) by the loader's thread, not the window's.
+
+At 10,000 runs with two people's labels on every run (20,000 events) opening it took 254-282 ms, in the turn that
+ends the load: the window's longest freeze.  The loader opens it when it exists and opens without a question; the
+window takes it only if it is the journal it would open itself, and otherwise closes it and opens its own (lock
+offers, read-only fallbacks, a journal kept elsewhere stay the window's).  No lock may be left behind."""
+
+from __future__ import annotations
+
+import threading
+from pathlib import Path
+
+import pytest
+from PySide6.QtCore import QSettings
+
+from basinmark.core.journal import LabelJournal
+from basinmark.core.journal_lock import read_lock
+from basinmark.core.sets import journal_path, open_set
+
+from gui_fixtures import make_toy_set
+
+pytestmark = pytest.mark.gui
+
+OUTCOMES = ["left", "right", "recrossing", "unfinished", "left", "right"]
+
+
+def _window(qtbot, tmp_path: Path):
+    from basinmark.gui.main_window import MainWindow
+
+    win = MainWindow(QSettings(str(tmp_path / "s.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(win)
+    win.show()
+    return win
+
+
+def _labelled_set(tmp_path: Path) -> Path:
+    root = make_toy_set(tmp_path / "toyset", OUTCOMES)
+    hashes = dict(open_set(root, use_cache=False).content_hashes())
+    with LabelJournal.open(journal_path(root), labeler="ana") as j:
+        j.record("toy-002", "left", content_hash=hashes["toy-002"], reason="looked twice")
+    return root
+
+
+@pytest.fixture
+def opens(monkeypatch):
+    """Which thread opened a journal for writing, per call."""
+    seen = []
+    real = LabelJournal.open.__func__
+
+    def spy(cls, path, *args, **kw):
+        if not kw.get("readonly"):
+            seen.append(threading.current_thread() is threading.main_thread())
+        return real(cls, path, *args, **kw)
+
+    monkeypatch.setattr(LabelJournal, "open", classmethod(spy))
+    return seen
+
+
+def test_an_existing_journal_is_opened_by_the_loader(qtbot, tmp_path, opens):
+    root = _labelled_set(tmp_path)
+    opens.clear()
+    win = _window(qtbot, tmp_path)
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(root, use_cache=False)
+    assert opens == [False], "the journal was opened on the window's thread"
+    j = win.state.journal
+    assert j is not None and not j.readonly
+    assert win.state.label_row("toy-002")["hand_label"] == "left"
+    # labels are saved as before, and the journal is this window's alone
+    j.record("toy-003", "left", content_hash=win.state.tset["toy-003"].content_hash)
+    assert read_lock(j.path) is not None
+    win.close()
+
+
+def test_a_set_without_a_journal_gets_one_from_the_window(qtbot, tmp_path, opens):
+    root = make_toy_set(tmp_path / "fresh", OUTCOMES)
+    win = _window(qtbot, tmp_path)
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(root, use_cache=False)
+    assert opens == [True] and win.state.journal is not None and not win.state.journal.readonly
+    win.close()
+
+
+def test_a_journal_in_use_elsewhere_is_left_to_the_window(qtbot, tmp_path, opens):
+    root = _labelled_set(tmp_path)
+    other = LabelJournal.open(journal_path(root), labeler="bo")   # another program holds the lock
+    opens.clear()
+    try:
+        win = _window(qtbot, tmp_path)
+        with qtbot.waitSignal(win.set_loaded, timeout=20000):
+            win.open_set(root, use_cache=False)
+        assert win.state.journal is not None and win.state.journal.readonly
+        assert "Read-only" in win.state.journal_message
+        assert opens == [False, True]   # tried by the loader, then by the window (which says why it cannot)
+        win.close()
+    finally:
+        other.close()
+
+
+def test_a_journal_opened_for_a_load_that_is_replaced_is_closed(qtbot, tmp_path):
+    first = _labelled_set(tmp_path / "a")
+    second = _labelled_set(tmp_path / "b")
+    win = _window(qtbot, tmp_path)
+    win.open_set(first, use_cache=False)
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(second, use_cache=False)
+    qtbot.wait(200)
+    assert win.state.tset.root == second
+    assert read_lock(journal_path(first)) is None, "the replaced load's journal is still locked"
+    win.close()
+    assert read_lock(journal_path(second)) is None
+
+
+def test_a_journal_opened_for_a_failed_load_is_closed(qtbot, tmp_path, monkeypatch):
+    from basinmark.gui import loader
+
+    root = _labelled_set(tmp_path)
+
+    def broken(*_a, **_k):
+        raise RuntimeError("classification broke")
+
+    monkeypatch.setattr(loader, "classify_with_rules", broken)
+    win = _window(qtbot, tmp_path)
+    with qtbot.waitSignal(win.load_failed, timeout=20000):
+        win.open_set(root, use_cache=False)
+    qtbot.wait(100)
+    assert read_lock(journal_path(root)) is None
+    win.close()
