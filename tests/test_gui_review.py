@@ -325,3 +325,17 @@ def test_a_long_queue_is_asked_only_for_the_rows_on_screen(setup, qtbot, monkeyp
     assert panel.queue_view.text(n - 1, 0) == f"x-{n - 1:05d}" and panel.queue_view.text(0, 6) == "why"
     tip = panel.queue_view.model().index(0, 0).data(Qt.ItemDataRole.ToolTipRole)
     assert tip == "this run is not in the open set"
+
+
+def test_showing_the_review_compares_in_a_turn_of_its_own(setup, qtbot, monkeypatch):
+    """Shown for the first time, the review listed its sources and compared them in one turn (128 ms at 10,000
+    runs with two people's labels); the comparison now comes in the next turn, and still comes by itself."""
+    win, dock, root, other = setup
+    panel = win.review_panel
+    compared = []
+    real = panel.compare
+    monkeypatch.setattr(panel, "compare", lambda: (compared.append(1), real())[1])
+    dock.toggleViewAction().trigger()
+    assert compared == []
+    qtbot.waitUntil(lambda: panel.review is not None, timeout=3000)
+    assert compared == [1]

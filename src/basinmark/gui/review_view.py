@@ -15,7 +15,7 @@ import math
 from pathlib import Path
 
 import pandas as pd
-from PySide6.QtCore import QAbstractTableModel, QEvent, QModelIndex, QSignalBlocker, Qt, Signal
+from PySide6.QtCore import QAbstractTableModel, QEvent, QModelIndex, QSignalBlocker, Qt, QTimer, Signal
 from PySide6.QtGui import QAction, QBrush, QColor, QFont, QKeySequence, QPalette
 from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFormLayout, QHBoxLayout,
                                QHeaderView, QLabel, QLineEdit, QPushButton, QTableView, QTableWidget,
@@ -641,12 +641,17 @@ def install_review_dock(window) -> QDockWidget:
     show.setToolTip("Compare two label sources and decide their disagreements (Ctrl+Shift+V)")
     menu.addAction(show)
 
+    def compare_if_none() -> None:
+        if panel.review is None and window.state.journal is not None and dock.isVisible():
+            panel.compare()
+
     def on_visible(visible: bool) -> None:
         if visible:
             dock.raise_()
             panel.refresh_sources()
-            if panel.review is None and window.state.journal is not None:
-                panel.compare()
+            # compared in the next turn: with the sources listed in this one, showing the review of 10,000 runs and
+            # two people's labels was one 128 ms turn
+            QTimer.singleShot(0, panel, compare_if_none)
             panel.queue_view.setFocus()
 
     dock.visibilityChanged.connect(on_visible)
