@@ -470,7 +470,8 @@ class ReviewPanel(QWidget):
             self.queue_view.selectRow(target)
         self.queue_view.blockSignals(False)
         if target is not None and follow:
-            self._selected()
+            # the run is drawn in the next turn (with the queue in this one: 152 ms at 10,000 runs), if still selected
+            QTimer.singleShot(0, self, self._selected)
         self._update_enabled()
 
     # --- deciding --------------------------------------------------------------------------
