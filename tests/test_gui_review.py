@@ -47,6 +47,24 @@ def _open(qtbot, tmp_path, root) -> MainWindow:
     return win
 
 
+def _bo_labels_too(win) -> LabelJournal:
+    """bo's labels recorded in the open journal beside ann's (two people of one journal); the journal."""
+    j = win.state.journal
+    hashes = dict(win.state.tset.content_hashes())
+    for run, lab in zip(RUNS, BO):
+        j.record(run, lab, content_hash=hashes[run], labeler="bo")
+    return j
+
+
+def _ann_against_bo(win):
+    """bo's labels recorded too, and the review panel comparing ann (A) with bo (B): the panel and its review."""
+    _bo_labels_too(win)
+    panel = win.review_panel
+    panel.refresh_sources()
+    panel.set_sources(("person", "ann"), ("person", "bo"))
+    return panel, panel.compare()
+
+
 @pytest.fixture
 def setup(qtbot, tmp_path):
     from basinmark.core.sets import open_set
@@ -128,14 +146,7 @@ def test_decisions_by_key_write_review_events_and_complete(setup, qtbot):
 
 def test_two_labelers_of_one_journal_and_export(setup, tmp_path):
     win, dock, root, other = setup
-    j = win.state.journal
-    hashes = dict(win.state.tset.content_hashes())
-    for run, lab in zip(RUNS, BO):
-        j.record(run, lab, content_hash=hashes[run], labeler="bo")
-    panel = win.review_panel
-    panel.refresh_sources()
-    panel.set_sources(("person", "ann"), ("person", "bo"))
-    review = panel.compare()
+    panel, review = _ann_against_bo(win)
     assert list(panel.queue["run"]) == DISAGREE
     assert review.kappa == pytest.approx(cohen_kappa_score(ANN, BO), abs=1e-12)  # scikit-learn reference
     assert set(panel.queue["labeler_a"]) == {"ann"} and set(panel.queue["labeler_b"]) == {"bo"}
@@ -246,10 +257,7 @@ def test_a_hidden_review_asks_for_no_label_sources_until_used(setup, qtbot, monk
     asked = []
     real = panel.source_entries
     monkeypatch.setattr(panel, "source_entries", lambda: (asked.append(1), real())[1])
-    j = win.state.journal
-    hashes = dict(win.state.tset.content_hashes())
-    for run, lab in zip(RUNS, BO):
-        j.record(run, lab, content_hash=hashes[run], labeler="bo")
+    j = _bo_labels_too(win)
     win.state.set_journal(j)   # what opening a set does with its journal
     assert asked == []
     panel.set_sources(("person", "ann"), ("person", "bo"))   # used while hidden: the sources are listed first
@@ -278,14 +286,7 @@ def test_labels_refreshed_with_nothing_new_change_nothing(setup):
 def test_choosing_both_sources_compares_once(setup, monkeypatch):
     """Choosing A and B together compared after each of them (two comparisons at 10,000 runs: 221 ms)."""
     win, dock, root, other = setup
-    j = win.state.journal
-    hashes = dict(win.state.tset.content_hashes())
-    for run, lab in zip(RUNS, BO):
-        j.record(run, lab, content_hash=hashes[run], labeler="bo")
-    panel = win.review_panel
-    panel.refresh_sources()
-    panel.set_sources(("person", "ann"), ("person", "bo"))
-    panel.compare()
+    panel, _review = _ann_against_bo(win)
     compared = []
     real = panel.compare
     monkeypatch.setattr(panel, "compare", lambda: (compared.append(1), real())[1])
