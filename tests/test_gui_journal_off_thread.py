@@ -126,3 +126,19 @@ def test_a_journal_opened_for_a_failed_load_is_closed(qtbot, tmp_path, monkeypat
     qtbot.wait(100)
     assert read_lock(journal_path(root)) is None
     win.close()
+
+
+def test_a_journal_opened_for_another_labeler_is_closed_and_opened_again(qtbot, tmp_path, opens):
+    """The labeler changed while the set loaded: the loader's journal (opened for the old name) is not taken."""
+    root = _labelled_set(tmp_path)
+    opens.clear()
+    win = _window(qtbot, tmp_path)
+    win.label_panel.labeler_name = "ana"
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(root, use_cache=False)
+        win.label_panel.labeler_name = "cy"
+    assert opens == [False, True]
+    j = win.state.journal
+    assert j is not None and not j.readonly and j.labeler == "cy"
+    win.close()
+    assert read_lock(journal_path(root)) is None

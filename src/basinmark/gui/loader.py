@@ -156,11 +156,18 @@ class OpenedJournal:
         return self.path == path and self.labeler == labeler and self.rules is rules
 
 
+    def take(self):
+        """The journal, handed over once: afterwards :func:`close_opened` leaves it to whoever took it."""
+        journal, self.journal = self.journal, None
+        return journal
+
+
 def close_opened(opened: "OpenedJournal | None") -> None:
-    """Close a journal the loader opened that nobody takes (its lock released)."""
-    if opened is not None:
+    """Close a journal the loader opened that nobody took (its lock released); one taken is left alone."""
+    journal = opened.take() if opened is not None else None
+    if journal is not None:
         try:
-            opened.journal.close()
+            journal.close()
         except Exception:  # noqa: BLE001 -- closing must never stop what comes next
             pass
 

@@ -858,14 +858,11 @@ class MainWindow(QMainWindow):
         name = self.label_panel.labeler_name or None
         if opened is not None and not opened.fits(path, name, rules):
             close_opened(opened)
-            opened = None
 
         def opener() -> LabelJournal:
-            nonlocal opened
-            if opened is not None:
-                journal, opened = opened.journal, None
-                return journal
-            return LabelJournal.open(path, set_id=tset.name, labeler=name, allowed=allowed)
+            taken = opened.take() if opened is not None else None
+            return taken if taken is not None else LabelJournal.open(path, set_id=tset.name, labeler=name,
+                                                                     allowed=allowed)
 
         try:
             # a lock left by a program that is gone: offered to break (recorded), else read-only below
