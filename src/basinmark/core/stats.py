@@ -23,6 +23,8 @@ from typing import Iterable, Mapping, Sequence
 import numpy as np
 import pandas as pd
 
+from basinmark.core.cells import column_values, is_blank
+
 from basinmark.core.units import convert_energy
 
 #: molar gas constant R = N_A·k_B in joule per mole per kelvin (CODATA 2018: 8.314462618..., exact since the
@@ -264,12 +266,11 @@ def goodman_intervals(counts: Sequence[int], confidence: float = 0.95) -> np.nda
 
 def _clean_labels(labels: Iterable) -> tuple[list[str], int]:
     """Labels as strings, and how many were missing (None, NaN, empty)."""
-    if isinstance(labels, pd.Series):   # taken out whole: a text column read cell by cell costs two calls a cell
-        labels = labels.to_numpy(dtype=object, na_value=None).tolist()
+    if isinstance(labels, pd.Series):
+        labels = column_values(labels)
     out, missing = [], 0
     for value in labels:
-        if value is None or value is pd.NA or (isinstance(value, float) and math.isnan(value)) \
-                or str(value).strip() == "":
+        if is_blank(value):
             missing += 1
         else:
             out.append(str(value))

@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from basinmark.core import stats
+from basinmark.core.cells import column_values, is_blank
 from basinmark.core.classify import flag_words
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.tst import Experiment, TSTEstimate
@@ -462,7 +463,7 @@ def flag_warnings(labels: pd.DataFrame) -> list[SummaryWarning]:
             f"than the rules allow){seen}. Their outcomes may be artefacts of a poor integration: look at "
             f"them and exclude the bad ones.", runs[drift.to_numpy()]))
     tally: Counter = Counter()
-    for fl in _cells(flags[counted & ~by_hand]):
+    for fl in column_values(flags[counted & ~by_hand]):
         tally.update(f for f in fl.split(";") if f and f not in ("energy_drift", "data_changed"))
     if tally:
         waiting = counted & ~by_hand & flags.apply(lambda f: bool(set(f.split(";")) & set(tally)))
@@ -482,19 +483,11 @@ def _runs(labels: pd.DataFrame) -> np.ndarray:
 
 def _final_text(value) -> str | None:
     """A final label as the outcome table reads it (None when missing: None, NaN, pandas' NA or blank)."""
-    if value is None or value is pd.NA or (isinstance(value, float) and math.isnan(value)) or str(value).strip() == "":
-        return None
-    return str(value)
-
-
-def _cells(column: pd.Series) -> list:
-    """A column's values as plain Python objects, missing ones as None (one conversion: read cell by cell, a
-    pandas text column costs two calls a cell, measured at 10,000 runs)."""
-    return column.to_numpy(dtype=object, na_value=None).tolist()
+    return None if is_blank(value) else str(value)
 
 
 def _label_mask(final: pd.Series, names: set[str]) -> np.ndarray:
-    return np.fromiter((_final_text(v) in names for v in _cells(final)), dtype=bool, count=len(final))
+    return np.fromiter((_final_text(v) in names for v in column_values(final)), dtype=bool, count=len(final))
 
 
 def attribute_reliability(counts: dict, products: Sequence[str], labels: pd.DataFrame, **kw) -> list[SummaryWarning]:
@@ -595,7 +588,7 @@ def build_summary(
         tst = TSTEstimate.pair(a, b, ddg, unit, temperature, origin="the ΔΔG‡ given")
     if tst is not None:
         tst.check_products(products)
-    final = _cells(labels["final_label"])
+    final = column_values(labels["final_label"])
     order = products + [name for name in FIXED_ORDER if name in set(map(str, final))]
     table = stats.outcome_table(final, confidence, method, order=order)
     counts = dict(zip(table["label"], table["count"].astype(int)))

@@ -21,6 +21,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFormL
                                QHeaderView, QLabel, QLineEdit, QPushButton, QTableView, QTableWidget,
                                QTableWidgetItem, QVBoxLayout, QWidget)
 
+from basinmark.core.cells import is_missing
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.review import SE_METHOD, Review, compare_labels, people, render_markdown
 from basinmark.core.text import printable
@@ -88,8 +89,7 @@ class QueueModel(QAbstractTableModel):
             return None
         if role == Qt.ItemDataRole.DisplayRole:
             value = self._rows[index.row()][index.column()]
-            return "" if value is None or value is pd.NA or (isinstance(value, float) and value != value) \
-                else printable(value)
+            return "" if is_missing(value) else printable(value)
         if role == Qt.ItemDataRole.ToolTipRole and index.column() == 0 and self._elsewhere[index.row()]:
             return self.NOT_IN_SET
         return None
