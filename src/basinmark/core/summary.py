@@ -19,7 +19,7 @@ import numpy as np
 import pandas as pd
 
 from basinmark.core import stats
-from basinmark.core.cells import column_values, is_blank
+from basinmark.core.cells import label_texts
 from basinmark.core.classify import flag_words
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.tst import Experiment, TSTEstimate
@@ -50,7 +50,7 @@ class SummaryWarning(str):
 
     def __new__(cls, text: str, run_ids: Sequence[str] = ()) -> "SummaryWarning":
         obj = super().__new__(cls, str(text))
-        obj.run_ids = tuple(str(r) for r in run_ids)
+        obj.run_ids = tuple(map(str, run_ids))
         return obj
 
     def __reduce__(self):  # keep the run ids through pickle and copy
@@ -445,32 +445,34 @@ def flag_warnings(labels: pd.DataFrame) -> list[SummaryWarning]:
     if "flags" not in labels:
         return []
     runs = _runs(labels)
-    final = labels["final_label"]
-    counted = final.notna() & (final.astype(str).str.strip() != "") & (final != "excluded")
-    flags = labels["flags"].fillna("").astype(str)
-    if "hand_label" in labels:
-        hand = labels["hand_label"]
-        by_hand = hand.notna() & (hand.astype(str).str.strip() != "")  # "" means no hand label too
-    else:
-        by_hand = pd.Series(False, index=labels.index)
+    final = label_texts(labels["final_label"])
+    counted = ~pd.isna(final) & (final != "excluded")
+    by_hand = ~pd.isna(label_texts(labels["hand_label"])) if "hand_label" in labels else np.zeros(len(final), bool)
+    # runs share a handful of distinct flag texts: each distinct text is split once (no call per run)
+    codes, texts = pd.factorize(labels["flags"].fillna("").astype(str), use_na_sentinel=False)
+    parts = [str(t).split(";") for t in texts]
     out = []
-    drift = counted & flags.str.split(";").apply(lambda f: "energy_drift" in f)
+    drift = counted & np.isin(codes, [i for i, p in enumerate(parts) if "energy_drift" in p])
     if drift.any():
         n, looked = int(drift.sum()), int((drift & by_hand).sum())
         seen = f"; {looked} of them kept by hand" if looked else ", none of them looked at by hand"
         out.append(SummaryWarning(
             f"{n} counted run{'s' if n != 1 else ''} failed the energy check (total energy drifted more "
             f"than the rules allow){seen}. Their outcomes may be artefacts of a poor integration: look at "
-            f"them and exclude the bad ones.", runs[drift.to_numpy()]))
+            f"them and exclude the bad ones.", runs[drift]))
+    unlooked = counted & ~by_hand
+    per_text = np.bincount(codes[unlooked], minlength=len(texts))
     tally: Counter = Counter()
-    for fl in column_values(flags[counted & ~by_hand]):
-        tally.update(f for f in fl.split(";") if f and f not in ("energy_drift", "data_changed"))
+    for p, k in zip(parts, per_text.tolist()):
+        if k:
+            tally.update({f: k * p.count(f) for f in p if f and f not in ("energy_drift", "data_changed")})
     if tally:
-        waiting = counted & ~by_hand & flags.apply(lambda f: bool(set(f.split(";")) & set(tally)))
+        waiting = unlooked & np.isin(codes, [i for i, p in enumerate(parts)
+                                             if any(f and f not in ("energy_drift", "data_changed") for f in p)])
         n = int(waiting.sum())
         listed = ", ".join(f"{flag_words(name)} {k}" for name, k in sorted(tally.items()))
         out.append(SummaryWarning(f"{n} counted run{'s' if n != 1 else ''} flagged for a look ({listed}) "
-                                  f"{'have' if n != 1 else 'has'} no hand label yet.", runs[waiting.to_numpy()]))
+                                  f"{'have' if n != 1 else 'has'} no hand label yet.", runs[waiting]))
     return out
 
 
@@ -481,13 +483,9 @@ def _runs(labels: pd.DataFrame) -> np.ndarray:
     return np.asarray([str(r) for r in labels.index], dtype=object)
 
 
-def _final_text(value) -> str | None:
-    """A final label as the outcome table reads it (None when missing: None, NaN, pandas' NA or blank)."""
-    return None if is_blank(value) else str(value)
-
-
-def _label_mask(final: pd.Series, names: set[str]) -> np.ndarray:
-    return np.fromiter((_final_text(v) in names for v in column_values(final)), dtype=bool, count=len(final))
+def _label_mask(final: np.ndarray, names: set[str]) -> np.ndarray:
+    """Which of ``final`` (from :func:`label_texts`) are one of ``names``."""
+    return pd.Series(final, dtype=object).isin(list(names)).to_numpy()
 
 
 def attribute_reliability(counts: dict, products: Sequence[str], labels: pd.DataFrame, **kw) -> list[SummaryWarning]:
@@ -512,7 +510,7 @@ def attribute_reliability(counts: dict, products: Sequence[str], labels: pd.Data
     probe = stats.reliability_warnings({token.get(str(k), str(k)): v for k, v in counts.items()},
                                        [token[p] for p in products], **tkw)
     runs = _runs(labels)
-    final = labels["final_label"].reset_index(drop=True)
+    final = label_texts(labels["final_label"])
     out = []
     for i, text in enumerate(texts):
         if len(probe) != len(texts):  # cannot happen while the checks read counts only; then say nothing
@@ -588,8 +586,9 @@ def build_summary(
         tst = TSTEstimate.pair(a, b, ddg, unit, temperature, origin="the ΔΔG‡ given")
     if tst is not None:
         tst.check_products(products)
-    final = column_values(labels["final_label"])
-    order = products + [name for name in FIXED_ORDER if name in set(map(str, final))]
+    final = label_texts(labels["final_label"])  # None where there is no label
+    present = set(pd.unique(final[~pd.isna(final)]))
+    order = products + [name for name in FIXED_ORDER if name in present]
     table = stats.outcome_table(final, confidence, method, order=order)
     counts = dict(zip(table["label"], table["count"].astype(int)))
     n_excluded, n_missing = table.attrs["n_excluded"], table.attrs["n_missing"]
@@ -625,7 +624,7 @@ def build_summary(
                                      pair=(a, b) if a and b else None)
     run_ids = _runs(labels)
     if n_missing:
-        blank = np.fromiter((_final_text(v) is None for v in final), dtype=bool, count=len(labels))
+        blank = pd.isna(final)
         warnings.append(SummaryWarning(f"{n_missing} run{'s have' if n_missing != 1 else ' has'} no label yet and "
                                        f"{'are' if n_missing != 1 else 'is'} not counted.", run_ids[blank]))
     if "data_changed" in labels:
