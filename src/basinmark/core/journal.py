@@ -260,7 +260,7 @@ class LabelJournal:
         n_aside = len(lines) - res.good_lines
         self.warnings.append(
             (f"{n_aside} line(s) from line {res.good_lines + 1} on ({len(aside)} bytes) were moved to {side.name}"
-             if side else "no line had to be set aside") + f"; recorded as a 'recovered' event")
+             if side else "no line had to be set aside") + "; recorded as a 'recovered' event")
         witness = getattr(res, "witness", None)
         return [{"kind": "recovered", "source": "hand", "labeler": self.labeler, "reason": reason,
                  "problems": [str(p) for p in res.problems[:100]], "problem_count": len(res.problems),
@@ -524,6 +524,11 @@ class LabelJournal:
         ev["label_a"], ev["label_b"] = label_a, label_b
         ev["reviewer"] = ev["labeler"]
         return self._write([ev])[0]
+
+    def review_decisions(self) -> set[tuple]:
+        """``(run, label A, label B)`` of every review decision recorded (:meth:`adjudicate`), undone or not: the
+        disagreements a reviewer has already looked at.  Kept as events are read and written, not searched for."""
+        return set(self._replay.review_decisions)
 
     def note(self, run_id: str, text: str, *, labeler: str | None = None) -> dict:
         """Record ``text`` as the run's note (free text beside the labels, which it never changes); an empty

@@ -38,6 +38,8 @@ class Replay:
         self.notes: dict[str, dict] = {}  # run -> its latest note event (kept apart: notes never change labels)
         #: one label per run of a source, kept until the next event counts (see :meth:`side`)
         self._sides: dict[str, pd.DataFrame] = {}
+        #: (run, label A, label B) of every review decision, kept as events are applied (see LabelJournal)
+        self.review_decisions: set[tuple] = set()
 
     # --- applying events -----------------------------------------------------------------
     def apply(self, event: dict) -> None:
@@ -68,6 +70,8 @@ class Replay:
             return
         if kind != "label" and kind != "undo":
             return
+        if kind == "label" and event.get("source") == "review":
+            self.review_decisions.add((event.get("run"), event.get("label_a"), event.get("label_b")))
         run = event.get("run")
         if not isinstance(run, str):
             return

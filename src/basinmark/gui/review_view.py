@@ -21,7 +21,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDockWidget, QFormL
                                QHeaderView, QLabel, QLineEdit, QPushButton, QTableView, QTableWidget,
                                QTableWidgetItem, QVBoxLayout, QWidget)
 
-from basinmark.core.cells import is_missing
+from basinmark.core.cells import column_values, is_missing
 from basinmark.core.errors import BasinmarkError
 from basinmark.core.review import SE_METHOD, Review, compare_labels, people, render_markdown
 from basinmark.core.text import printable
@@ -44,14 +44,12 @@ def settled_runs(journal, review: Review) -> set[str]:
     """Runs of the review's disagreements that the journal already holds a decision for (same two labels)."""
     if journal is None or not len(review.disagreements):
         return set()
-    wanted = {(r.run, r.label_a, r.label_b) for r in review.disagreements.itertuples(index=False)}
-    done = set()
-    for ev in journal.events:
-        if ev.get("kind") == "label" and ev.get("source") == "review":
-            key = (ev.get("run"), ev.get("label_a"), ev.get("label_b"))
-            if key in wanted:
-                done.add(key[0])
-    return done
+    decided = journal.review_decisions()
+    if not decided:
+        return set()
+    dis = review.disagreements
+    keys = zip(column_values(dis["run"]), column_values(dis["label_a"]), column_values(dis["label_b"]))
+    return {key[0] for key in keys if key in decided}
 
 
 class QueueModel(QAbstractTableModel):
