@@ -382,6 +382,7 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--runs", type=int, default=2000)
     ap.add_argument("--frames", type=int, default=400)
+    ap.add_argument("--atoms", type=int, default=12, help="atoms per frame (e.g. 1000 for a large molecule)")
     ap.add_argument("--keep", metavar="DIR", help="generate into DIR (kept) or reuse the set already there")
     ap.add_argument("--why", action="store_true",
                     help="sample the window thread's stack and print what ran in each gap longer than 100 ms")
@@ -397,7 +398,7 @@ def main() -> None:
     try:
         if not (root / "runs").is_dir():
             t0 = time.perf_counter()
-            size = generate(root, args.runs, args.frames)
+            size = generate(root, args.runs, args.frames, args.atoms)
             print(f"generated {args.runs} runs ({size / 1e6:.0f} MB) in {time.perf_counter() - t0:.1f} s")
         (root / "basins.toml").write_text(RULES, encoding="utf-8")
         for extra in (".basinmark-cache", "basinmark-labels.jsonl", "basinmark-labels.jsonl.head"):
