@@ -76,13 +76,14 @@ def test_in_set_order_touches_each_run_id_a_few_times():
     labels = synthetic_labels(N)
     # the set holds all but the last 100 labeled runs, plus 100 runs nobody labeled
     ids = CountingIds(list(labels["run"][: N - 100]) + [f"new{i}" for i in range(100)], budget=10 * N)
-    out, notes = in_set_order(labels, ids)
-    assert len(out) == N + 100
+    out, warnings = in_set_order(labels, ids)
+    assert len(out) == N
     assert list(out["run"][: N - 100]) == list(labels["run"][: N - 100])  # the set's order
-    assert list(out["run"][N - 100: N]) == [f"new{i}" for i in range(100)]  # then the unlabeled runs
-    assert out["final_label"][N - 100: N].isna().all()
-    assert list(out["run"][N:]) == list(labels["run"][N - 100:])  # then labeled runs missing from the set
-    assert any("100 labeled runs are not in the set folder" in n for n in notes)
+    assert list(out["run"][N - 100:]) == [f"new{i}" for i in range(100)]  # then the unlabeled runs
+    assert out["final_label"][N - 100:].isna().all()
+    # labeled runs missing from the set are not counted, and said (the labeled ones among the last 100)
+    gone = labels["run"][N - 100:][labels["final_label"][N - 100:].notna()]
+    assert len(warnings) == 1 and str(warnings[0]).startswith(f"{len(gone)} runs labeled in the journal are not in")
     assert ids.touched <= 10 * N
 
 

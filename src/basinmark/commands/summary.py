@@ -190,26 +190,27 @@ def stale_auto_labels(labels: pd.DataFrame, classified: pd.DataFrame) -> list[st
                            f"run `basinmark classify SET` again before trusting the counts.", differ)]
 
 
-def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame, list[str]]:
-    """Labels ordered as the set's runs (unlabeled runs added with no label), plus notes."""
-    notes = []
+def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame, list]:
+    """Labels ordered as the set's runs (unlabeled runs added with no label), plus warnings.
+
+    Labels of runs that are not in the set are left out (the set folder says which runs are counted, as in the
+    window) and named in a warning: they stay in the journal."""
+    from basinmark.core.summary import outside_set_warning
+
     labels = labels.drop_duplicates("run", keep="last").set_index("run", drop=False)
     # one hashed membership test per side (linear in runs + labels; sets of 10^5 runs are ordinary)
     ids = pd.Index(list(run_ids))
     has_label = ids.isin(labels.index)
     known = list(ids[has_label])
     missing = list(ids[~has_label])
-    gone = list(labels.index[~labels.index.isin(ids)])
+    labeled = labels["final_label"].notna().to_numpy() if "final_label" in labels else True
+    gone = sorted(labels.index[~labels.index.isin(ids) & labeled])
     parts = [labels.loc[known]]
     if missing:
         parts.append(pd.DataFrame({"run": missing, "final_label": [None] * len(missing)}))
-    if gone:
-        parts.append(labels.loc[gone])
-        notes.append(f"{len(gone)} labeled run{'s are' if len(gone) != 1 else ' is'} not in the set folder "
-                     f"(or failed to load) and {'are' if len(gone) != 1 else 'is'} still counted: "
-                     + ", ".join(gone[:5]) + (" ..." if len(gone) > 5 else ""))
-    out = pd.concat(parts, ignore_index=True) if parts else labels.reset_index(drop=True)
-    return out, notes
+    out = pd.concat(parts, ignore_index=True)
+    said = outside_set_warning(gone)
+    return out, [said] if said is not None else []
 
 
 def make_summary(args):
@@ -244,8 +245,8 @@ def make_summary(args):
         labels = labels.merge(classified[["run", "flags"]], on="run", how="left")
         extra += stale_auto_labels(labels, classified)
         notes += classified.attrs["notes"]
-    labels, order_notes = in_set_order(labels, tset.run_ids)
-    notes += order_notes
+    labels, outside = in_set_order(labels, tset.run_ids)
+    extra += outside
     if rules is not None:
         products = list(rules.products)
     else:

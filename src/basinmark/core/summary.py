@@ -68,6 +68,22 @@ def as_warning(text: str, run_ids: Sequence[str] | None = None) -> SummaryWarnin
     return SummaryWarning(text, run_ids)
 
 
+def outside_set_warning(runs: Sequence[str], shown: int = 5) -> SummaryWarning | None:
+    """The plain sentence for labels the journal holds for runs that are not in the set (None when there are none).
+
+    Such labels are not counted: the set folder says which runs the ratio is about.  The sentence names the first
+    runs (they are not in the set, so it gives no run ids to filter a table of the set's runs by)."""
+    if not len(runs):
+        return None
+    n, runs = len(runs), [str(r) for r in runs]
+    names = ", ".join(runs[:shown]) + (f" and {n - shown} more" if n > shown else "")
+    many = n != 1
+    return SummaryWarning(
+        f"{n} run{'s' if many else ''} labeled in the journal {'are' if many else 'is'} not in this set ({names}): "
+        f"moved, renamed or removed from the set folder, or failed to load. {'Their' if many else 'Its'} labels "
+        f"stay in the journal but are not shown or counted here.")
+
+
 def run_ids_of(warning: str) -> tuple[str, ...]:
     """The run ids a warning names (none for a plain string)."""
     return tuple(getattr(warning, "run_ids", ()) or ())

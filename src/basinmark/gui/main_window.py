@@ -22,6 +22,7 @@ from basinmark.core.model import TrajectorySet
 from basinmark.core.not_a_set import holds_no_runs, not_a_set_message
 from basinmark.core.rules_keep import round_as_shown
 from basinmark.core.sets import journal_path, rules_path
+from basinmark.core.summary import outside_set_warning
 from basinmark.gui import labeler as labeler_dialog
 from basinmark.gui.actions import build_actions, viewer_actions
 from basinmark.gui import journal_elsewhere
@@ -323,6 +324,7 @@ class MainWindow(QMainWindow):
         st.rules_changed.connect(self._on_rules)
         st.monitors_changed.connect(self._on_monitors)
         st.labels_changed.connect(self._update_status)
+        st.labels_changed.connect(self._outside_notice)
         self.molecule.picks_changed.connect(st.set_picks)
         st.picks_changed.connect(self.molecule.set_picks)
         st.picks_changed.connect(lambda _p: self._update_status())
@@ -785,6 +787,7 @@ class MainWindow(QMainWindow):
         self._finishing = None
         self.job = None
         self._busy(False)
+        self._outside_notice()
         tset = result["tset"]
         if result.get("rules_only") and result.get("rules") is None:
             # other rules failed to load or classify: keep the ones in use, and say so
@@ -908,8 +911,17 @@ class MainWindow(QMainWindow):
             self._messages.pop(key, None)
         self._show_banner()
 
+    def _outside_notice(self) -> None:
+        """The banner's line for labels the journal holds for runs not in the set (said once the set is whole: while
+        it loads, runs still to come would look missing)."""
+        st = self.state
+        said = None if st.loading else outside_set_warning(st.labels_outside)
+        text = str(said) if said is not None else None
+        if self._messages.get("outside") != text:
+            self.set_notice("outside", text)
+
     def _show_banner(self) -> None:
-        order = ("error", "files", "journal", "journal_warn", "rules", "rules_edited", "set")
+        order = ("error", "files", "journal", "journal_warn", "outside", "rules", "rules_edited", "set")
         self.banner.show_message("\n".join(self._messages[k] for k in order if self._messages.get(k)))
 
     # --- reacting to state ------------------------------------------------------------------

@@ -55,7 +55,9 @@ class AppState(QObject):
         self.run_errors: dict[str, str] = {}
         self._labels_held = 0        # inside labels_batch(): refresh_labels waits for the end
         self._labels_stale = False
-        self._prepared: tuple | None = None   # (basis, table) built ahead by prepare_labels, not announced yet
+        self._prepared: tuple | None = None   # (basis, table, outside) built ahead by prepare_labels, not announced
+        #: runs the journal holds a label for that are not in the set (not shown or counted; the window says so)
+        self.labels_outside: list[str] = []
         #: the runs whose rows the last refresh_labels changed (a hand label, undo or note), or None when the whole
         #: table was built again; views may update just those rows
         self.labels_delta: frozenset[str] | None = None
@@ -301,7 +303,8 @@ class AppState(QObject):
             return   # no event since the table was built: it stands as it is
         basis = self._basis()
         prepared, self._prepared = self._prepared, None
-        self.labels = prepared[1] if prepared is not None and _same_basis(prepared[0], basis) else self._whole_table()
+        fresh = prepared[1:] if prepared is not None and _same_basis(prepared[0], basis) else self._whole_table()
+        self.labels, self.labels_outside = fresh
         self.labels_delta = None
         self._labels_basis = basis
         self.labels_changed.emit()
@@ -310,9 +313,10 @@ class AppState(QObject):
         """Build the whole label table now, to be announced by the next :meth:`refresh_labels` (the end of a load
         builds it in one turn and rebuilds the views in the next); dropped there when what it was built from
         (journal and how far it was read, classification, rules, set) changed meanwhile."""
-        self._prepared = (self._basis(), self._whole_table())
+        self._prepared = (self._basis(), *self._whole_table())
 
-    def _whole_table(self) -> pd.DataFrame:
+    def _whole_table(self) -> tuple[pd.DataFrame, list[str]]:
+        """The label table of the set's runs, and the runs the journal labels that are not in the set."""
         jstate = None
         if self.journal is not None and self.tset is not None:
             if self.blind_labeler:
@@ -322,7 +326,11 @@ class AppState(QObject):
             else:
                 jstate = self.journal.state(current_hashes=dict(self.tset.content_hashes()))
         notes = journal_notes(self.journal, self.blind_labeler) if self.tset is not None else {}
-        return build_label_table(self.run_ids, self.classification, jstate, notes)
+        outside: list[str] = []
+        if jstate is not None and len(jstate) and "final_label" in jstate:
+            labeled = jstate["run"][jstate["final_label"].notna().to_numpy()].astype(str)
+            outside = sorted(labeled[~labeled.isin(self.run_ids)].tolist())
+        return build_label_table(self.run_ids, self.classification, jstate, notes), outside
 
     def _index_rows(self) -> None:
         if getattr(self, "_rows_of", None) is not self.labels:

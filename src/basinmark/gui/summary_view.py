@@ -22,7 +22,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QAbstractScrollArea, QApplicat
                                QWidget)
 
 from basinmark.core.errors import BasinmarkError
-from basinmark.core.summary import Summary, build_summary, run_ids_of
+from basinmark.core.summary import Summary, build_summary, outside_set_warning, run_ids_of
 from basinmark.core.timing import (COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, commit_time_histogram,
                                    concerted_fraction, gap_mode)
 from basinmark.core.tst import MAX_DDG_KCAL
@@ -659,6 +659,9 @@ class SummaryPanel(QWidget):
                              "are hidden")
             try:
                 extra = [self._tst_warning] if self._tst_warning else []
+                outside = None if getattr(st, "loading", False) else outside_set_warning(st.labels_outside)
+                if outside is not None:
+                    extra.append(outside)
                 kw = self.settings()
                 if self.tst_problem:
                     extra.append(f"TST comparison left out: {self.tst_problem}")
