@@ -90,3 +90,31 @@ def test_a_set_whose_journal_labels_only_its_own_runs_says_nothing(tmp_path, qtb
     assert "not in this set" not in win.banner.text()
     assert win.state.labels_outside == []
     win.close()
+
+
+def test_runs_without_a_journal_label_count_alike_in_the_window_and_the_cli(tmp_path, qtbot, capsys):
+    """A journal with hand labels on some runs and no automatic ones (the set never classified into it, or runs
+    added since): the window shows and counts the other runs by the rules' automatic labels, computed in memory;
+    `basinmark summary` counted them as unlabeled (4 runs against 6).  Both now count them alike, and the CLI says
+    that those labels were computed in memory, not recorded."""
+    root = make_toy_set(tmp_path / "partly", OUTCOMES)
+    hashes = dict(open_set(root, use_cache=False).content_hashes())
+    with LabelJournal.open(journal_path(root), labeler="mara") as j:
+        j.record_batch([{"run_id": r, "label": "left", "content_hash": h} for r, h in hashes.items()][:4],
+                       source="hand")
+    cli = _cli_summary(root, capsys)
+    assert cli["n_counted"] == len(OUTCOMES) and cli["n_unlabeled"] == 0
+    assert any(n.startswith("2 runs of the set have no label in the journal") for n in cli["notes"]), cli["notes"]
+    win = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(win)
+    dock = install_summary_dock(win)
+    win.show()
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(root, use_cache=False)
+    qtbot.waitUntil(lambda: not win.busy, timeout=20000)
+    dock.show()
+    win.summary_panel.ensure_current()
+    s = win.summary_panel.summary
+    assert s.n_counted == cli["n_counted"]
+    assert {r.label: int(r.count) for r in s.table.itertuples()} == {r["label"]: r["count"] for r in cli["outcomes"]}
+    win.close()

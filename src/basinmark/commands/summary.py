@@ -213,6 +213,32 @@ def in_set_order(labels: pd.DataFrame, run_ids: list[str]) -> tuple[pd.DataFrame
     return out, [said] if said is not None else []
 
 
+def fill_unlabeled(labels: pd.DataFrame, tset, rules, classified: pd.DataFrame | None = None) -> tuple[pd.DataFrame, int]:
+    """Runs of the set with no label in the journal get the rules' automatic label, computed in memory (only those
+    runs are classified, unless ``classified`` already holds them), as the window shows and counts them.  Returns
+    the table and how many runs got a label."""
+    from basinmark.core.model import TrajectorySet
+
+    missing = labels["final_label"].isna().to_numpy()
+    runs = [r for r in labels["run"][missing].astype(str) if r in tset]
+    if not runs:
+        return labels, 0
+    if classified is None:
+        part = TrajectorySet(tset.root, {r: tset[r] for r in runs}, metadata=dict(tset.metadata))
+        classified = classify_in_memory(part, rules)
+    now = dict(zip(classified["run"].astype(str), classified["outcome"]))
+    flags = dict(zip(classified["run"].astype(str), classified["flags"])) if "flags" in classified else {}
+    labels = labels.copy()
+    rows = labels.index[missing]
+    values = [now.get(str(r)) for r in labels.loc[rows, "run"]]
+    labels.loc[rows, "final_label"] = values
+    labels["auto_label"] = labels["auto_label"] if "auto_label" in labels else None
+    labels.loc[rows, "auto_label"] = values
+    if "flags" in labels:
+        labels.loc[rows, "flags"] = [flags.get(str(r), "") for r in labels.loc[rows, "run"]]
+    return labels, sum(v is not None for v in values)
+
+
 def make_summary(args):
     """Open the set and its labels and build the :class:`~basinmark.core.summary.Summary`."""
     from basinmark.commands._output import progress_printer
@@ -247,6 +273,14 @@ def make_summary(args):
         notes += classified.attrs["notes"]
     labels, outside = in_set_order(labels, tset.run_ids)
     extra += outside
+    if rules is not None:
+        labels, filled = fill_unlabeled(labels, tset, rules, classified if args.recheck else None)
+        if filled:
+            many = filled != 1
+            notes.append(f"{filled} run{'s' if many else ''} of the set {'have' if many else 'has'} no label in the "
+                         f"journal: {'their' if many else 'its'} automatic label{'s were' if many else ' was'} "
+                         "computed in memory from the rules, as the window shows them; run `basinmark classify SET` "
+                         "to record them")
     if rules is not None:
         products = list(rules.products)
     else:
