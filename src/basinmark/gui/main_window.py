@@ -705,6 +705,7 @@ class MainWindow(QMainWindow):
         traces_hold = contextlib.ExitStack()   # the traces are drawn in a turn of their own (_draw_traces), and not
         traces_hold.enter_context(self.traces.held(frozen=True))   # painted until then (the banner moves them here)
         self._draw_first_traces()   # a first run's traces not drawn yet: they wait for that turn instead
+        ahead = None   # the label table the loader built beside opening the journal
         try:
             if not result.get("rules_only"):
                 keep = self.state.run_id if self.state.run_id != getattr(self, "_auto_run", "") else ""
@@ -725,6 +726,7 @@ class MainWindow(QMainWindow):
                                        + (" …" if n > 3 else "") + ".")
                 if said:
                     self._messages["set"] = " ".join(said)
+                ahead = opened.labels if opened is not None else None
                 self._open_journal(tset, result.get("rules"), opened)
                 opened = None
             if result.get("rules_error"):
@@ -734,6 +736,8 @@ class MainWindow(QMainWindow):
             if not (result.get("rules_only") and result.get("rules") is None):
                 self.state.set_rules(result.get("rules"), result.get("classification"),
                                      result.get("rules_error", ""))
+            if not result.get("rules_only"):
+                self.state.offer_labels(ahead)   # taken only if built from this journal, classification and set
         except BaseException:
             close_opened(opened)   # not taken (an error before the journal's turn): its lock is released
             self.job = None
