@@ -28,6 +28,7 @@ from basinmark.core.timing import (COMMIT_DEFINITIONS, DEFAULT_COMMIT_COLUMN, co
                                    concerted_fraction, gap_mode)
 from basinmark.core.tst import MAX_DDG_KCAL
 from basinmark.core.units import convert_energy
+from basinmark.gui.band import band_item
 from basinmark.gui.colours import outcome_colour
 from basinmark.gui.flow_layout import flow_row
 from basinmark.gui.label_table import final_label_counts, final_label_map
@@ -866,11 +867,9 @@ class SummaryPanel(QWidget):
         band.setAlpha(60)
         ok = np.isfinite(lo) & np.isfinite(hi)
         if ok.sum() >= 2:
-            c_lo = pg.PlotDataItem(n[ok], lo[ok], pen=pg.mkPen(band))
-            c_hi = pg.PlotDataItem(n[ok], hi[ok], pen=pg.mkPen(band))
-            p.addItem(c_lo)
-            p.addItem(c_hi)
-            p.addItem(pg.FillBetweenItem(c_lo, c_hi, brush=pg.mkBrush(band)))
+            p.addItem(band_item(n[ok], lo[ok], hi[ok], pg.mkBrush(band)))
+            p.addItem(pg.PlotDataItem(n[ok], lo[ok], pen=pg.mkPen(band)))
+            p.addItem(pg.PlotDataItem(n[ok], hi[ok], pen=pg.mkPen(band)))
         return ok
 
     def _draw_kappa_convergence(self, s: Summary) -> None:

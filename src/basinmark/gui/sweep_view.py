@@ -18,6 +18,7 @@ from PySide6.QtWidgets import (QComboBox, QDockWidget, QDoubleSpinBox, QFormLayo
                                QPushButton, QSpinBox, QVBoxLayout, QWidget)
 
 from basinmark.core.rules import BOUNDS, MONITOR_UNITS
+from basinmark.gui.band import band_item
 from basinmark.gui.colours import trace_colour
 from basinmark.gui.movie import find_menu
 from basinmark.gui.kept_axis import kept_axes
@@ -262,11 +263,9 @@ class SweepView(QWidget):
         if ok.sum() >= 2:
             band = QColor(colour)
             band.setAlpha(60)
-            c_lo = pg.PlotDataItem(x[ok], lo[ok], pen=pg.mkPen(band))
-            c_hi = pg.PlotDataItem(x[ok], hi[ok], pen=pg.mkPen(band))
-            self.plot.addItem(c_lo)
-            self.plot.addItem(c_hi)
-            self.plot.addItem(pg.FillBetweenItem(c_lo, c_hi, brush=pg.mkBrush(band)))
+            self.plot.addItem(band_item(x[ok], lo[ok], hi[ok], pg.mkBrush(band)))
+            self.plot.addItem(pg.PlotDataItem(x[ok], lo[ok], pen=pg.mkPen(band)))
+            self.plot.addItem(pg.PlotDataItem(x[ok], hi[ok], pen=pg.mkPen(band)))
         self.plot.plot(x[ok], y[ok], pen=pg.mkPen(colour, width=2), symbol="o", symbolSize=5,
                        symbolBrush=colour, symbolPen=pg.mkPen(colour))
         v = self.current_value()
