@@ -42,6 +42,18 @@ def _cli_summary(root, capsys) -> dict:
     return json.loads(capsys.readouterr().out)
 
 
+def _opened(qtbot, tmp_path, root):
+    """The window with its summary dock, the set at ``root`` loaded."""
+    win = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(win)
+    dock = install_summary_dock(win)
+    win.show()
+    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+        win.open_set(root, use_cache=False)
+    qtbot.waitUntil(lambda: not win.busy, timeout=20000)
+    return win, dock
+
+
 def test_cli_summary_counts_only_the_runs_of_the_set_and_names_the_others(root, capsys):
     out = _cli_summary(root, capsys)
     assert out["n_runs"] == len(OUTCOMES)
@@ -55,13 +67,7 @@ def test_cli_summary_counts_only_the_runs_of_the_set_and_names_the_others(root, 
 
 def test_window_says_so_and_counts_what_the_cli_counts(root, qtbot, tmp_path, capsys):
     cli = _cli_summary(root, capsys)
-    win = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(win)
-    dock = install_summary_dock(win)
-    win.show()
-    with qtbot.waitSignal(win.set_loaded, timeout=20000):
-        win.open_set(root, use_cache=False)
-    qtbot.waitUntil(lambda: not win.busy, timeout=20000)
+    win, dock = _opened(qtbot, tmp_path, root)
     banner = win.banner.text()
     assert "3 runs labeled in the journal are not in this set" in banner and "toy-099" in banner
     assert win.state.labels_outside == sorted(GONE)
@@ -81,12 +87,7 @@ def test_a_set_whose_journal_labels_only_its_own_runs_says_nothing(tmp_path, qtb
     hashes = dict(open_set(root, use_cache=False).content_hashes())
     with LabelJournal.open(journal_path(root), labeler="mara") as j:
         j.record_batch([{"run_id": r, "label": "left", "content_hash": h} for r, h in hashes.items()], source="hand")
-    win = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(win)
-    win.show()
-    with qtbot.waitSignal(win.set_loaded, timeout=20000):
-        win.open_set(root, use_cache=False)
-    qtbot.waitUntil(lambda: not win.busy, timeout=20000)
+    win, _dock = _opened(qtbot, tmp_path, root)
     assert "not in this set" not in win.banner.text()
     assert win.state.labels_outside == []
     win.close()
@@ -105,13 +106,7 @@ def test_runs_without_a_journal_label_count_alike_in_the_window_and_the_cli(tmp_
     cli = _cli_summary(root, capsys)
     assert cli["n_counted"] == len(OUTCOMES) and cli["n_unlabeled"] == 0
     assert any(n.startswith("2 runs of the set have no label in the journal") for n in cli["notes"]), cli["notes"]
-    win = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(win)
-    dock = install_summary_dock(win)
-    win.show()
-    with qtbot.waitSignal(win.set_loaded, timeout=20000):
-        win.open_set(root, use_cache=False)
-    qtbot.waitUntil(lambda: not win.busy, timeout=20000)
+    win, dock = _opened(qtbot, tmp_path, root)
     dock.show()
     win.summary_panel.ensure_current()
     s = win.summary_panel.summary
