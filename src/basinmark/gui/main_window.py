@@ -23,6 +23,7 @@ from basinmark.core.not_a_set import holds_no_runs, not_a_set_message
 from basinmark.core.rules_keep import round_as_shown
 from basinmark.core.sets import journal_path, rules_path
 from basinmark.core.summary import outside_set_warning
+from basinmark.gui import give_way
 from basinmark.gui import labeler as labeler_dialog
 from basinmark.gui.actions import build_actions, viewer_actions
 from basinmark.gui import journal_elsewhere
@@ -109,6 +110,7 @@ class MainWindow(QMainWindow):
         super().__init__(parent)
         if sys.getswitchinterval() > SWITCH_INTERVAL_S:
             sys.setswitchinterval(SWITCH_INTERVAL_S)
+        give_way.install(QApplication.instance())   # the window's workers hold back while a person acts
         self.settings = settings or default_settings()
         self.state = AppState(self)
         self.job: LoadJob | None = None

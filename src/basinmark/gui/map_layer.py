@@ -29,6 +29,8 @@ import pyqtgraph as pg
 from PySide6.QtCore import QLineF, QPointF, QRectF, QTimer, Signal
 from PySide6.QtGui import QColor, QImage, QPainter, QPaintEngine, QPen
 
+from basinmark.gui.give_way import give_way
+
 #: points drawn per Qt call in the worker: ~1-3 ms of opaque stroking each, the longest the worker holds Python's lock
 #: (our own choice, measured at 10,000 runs: 5,000 cost no more in all than 20,000)
 CHUNK_POINTS = 5_000
@@ -168,7 +170,7 @@ def render_paths(groups: Sequence[PathGroup], key: ViewKey, cancelled: Callable[
                     if cancelled():
                         return None
                     _draw_piece(painter, px[s:e], py[s:e], segments)
-                    time.sleep(0)   # Python's lock offered to the window's thread, which may be waiting for it
+                    give_way()   # Python's lock offered to the window's thread; held back while a person acts
             finally:
                 painter.end()
             over.setOpacity(alpha)

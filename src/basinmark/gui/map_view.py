@@ -30,6 +30,7 @@ from PySide6.QtGui import QAction, QColor, QKeySequence, QPalette
 from PySide6.QtWidgets import (QComboBox, QDockWidget, QGraphicsRectItem, QHBoxLayout, QLabel, QMainWindow,
                                QVBoxLayout, QWidget)
 
+from basinmark.gui.give_way import OWN_WORK
 from basinmark.gui.colours import basin_colour, outcome_colour
 from basinmark.gui.flow_layout import flow_row
 from basinmark.gui.label_table import UNCLASSIFIED, final_label_counts, final_label_map
@@ -55,6 +56,7 @@ class MapCanvas(pg.PlotWidget):
     def __init__(self, parent: QWidget | None = None, max_points: int = MAX_DRAW_POINTS) -> None:
         super().__init__(parent, axisItems=kept_axes())
         self.setObjectName("mapCanvas")
+        self.setProperty(OWN_WORK, True)   # a click here waits for this map's own workers: they do not hold back
         self.max_points = max_points
         self.data: MapData | None = None
         self.labels: dict[str, str] = {}

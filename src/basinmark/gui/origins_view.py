@@ -232,17 +232,22 @@ def run_analysis(tset, rules, labels: dict, modes_path: str | None, include, set
     work stops with :class:`basinmark.core.origins.AnalysisCancelled`."""
     from basinmark.core.origins import AnalysisCancelled, analyse
     from basinmark.core.origins_start import starting_conditions
+    from basinmark.gui.give_way import give_way
+
+    def stop() -> bool:   # asked after every run read and every fit: a person acting in the window goes first
+        give_way()
+        return cancelled is not None and cancelled()
 
     def reading(done: int, total: int) -> None:
         if progress is not None:
             progress(done, total, "reading the starting conditions")
-        if cancelled is not None and cancelled():
+        if stop():
             raise AnalysisCancelled()
 
     start = starting_conditions(tset, rules.monitor_indices() if rules is not None else {}, progress=reading)
     if modes_path:
         start = start.with_modes(load_modes(modes_path))
-    return analyse(start, labels, settings, include=include, progress=progress, cancelled=cancelled), start
+    return analyse(start, labels, settings, include=include, progress=progress, cancelled=stop), start
 
 
 class OriginsPanel(QWidget):

@@ -1,0 +1,102 @@
+"""The window's worker threads hold back while a person acts (gui/give_way.py).
+
+Found at 10,000 runs: bringing the summary to the front while the map's workers still measured, drew and indexed
+took a turn of 95-144 ms against 37-58 ms with nothing beside it; choosing the review's sources while the starting
+conditions were analysed, 94-123 ms.  Python runs one thread at a time, and a worker doing numpy work takes its lock
+back after every call, so the window's thread waited at each of its own hand-overs."""
+
+from __future__ import annotations
+
+import threading
+
+import pytest
+from PySide6.QtCore import QSettings, Qt
+from PySide6.QtTest import QTest
+
+from basinmark.gui import give_way
+from gui_fixtures import make_toy_set
+
+pytestmark = pytest.mark.gui
+
+
+@pytest.fixture(autouse=True)
+def _quiet():
+    give_way._until = 0.0
+    yield
+    give_way._until = 0.0
+
+
+def _waited_in_a_thread(max_wait_s: float = give_way.MAX_WAIT_S) -> float:
+    out = []
+    th = threading.Thread(target=lambda: out.append(give_way.give_way(max_wait_s)))
+    th.start()
+    th.join(5)
+    return out[0]
+
+
+def test_a_worker_waits_while_the_person_acts_and_not_otherwise():
+    assert _waited_in_a_thread() < 0.05 and not give_way.holding()
+    give_way.acting(0.2)
+    assert give_way.holding()
+    waited = _waited_in_a_thread()
+    assert 0.1 <= waited <= 0.45, waited
+    give_way.acting(10.0)   # typing on and on: the work must still come
+    assert 0.25 <= _waited_in_a_thread(max_wait_s=0.3) <= 0.8
+
+
+def test_keys_clicks_and_shown_panels_mark_the_persons_actions(qtbot, tmp_path):
+    from basinmark.gui.main_window import MainWindow
+
+    win = MainWindow(QSettings(str(tmp_path / "s.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(win)
+    win.show()
+    qtbot.waitExposed(win)
+    for act in (lambda: QTest.keyClick(win.run_table.view, Qt.Key.Key_Down),
+                lambda: QTest.mouseClick(win.run_table.search, Qt.MouseButton.LeftButton),
+                lambda: (win.docks["label"].hide(), win.docks["label"].show())):
+        give_way._until = 0.0
+        act()
+        assert give_way.holding()
+    win.close()
+
+
+def test_the_maps_measuring_gives_way_on_its_worker_thread(qtbot, tmp_path, monkeypatch):
+    """Every 64 runs measured and every piece of the pick index offers to give way, from the map's own thread."""
+    import basinmark.gui.map_data as map_data
+    from basinmark.core.sets import open_set
+
+    root = make_toy_set(tmp_path / "toyset", ["left", "right"] * 70)
+    tset = open_set(root, use_cache=False)
+    seen = []
+    monkeypatch.setattr(map_data, "give_way", lambda: seen.append(threading.current_thread().name))
+    from basinmark.core.rules import load_rules
+
+    rules = load_rules(root / "basins.toml", n_atoms=tset.n_atoms)
+    axes = map_data.map_axes(rules)
+    assert len(axes) >= 2, "the toy rules give two map axes"
+    t = threading.Thread(target=lambda: map_data.MapData.build(tset, axes[0], axes[1]), name="worker")
+    t.start()
+    t.join(20)
+    assert seen.count("worker") >= 2 * (140 // map_data.GIVE_WAY_RUNS + 1) - 1
+
+
+def test_a_click_on_the_map_does_not_hold_back_the_maps_own_workers(qtbot, tmp_path):
+    """The map's picture and pick index are what a person clicking or zooming the map waits for."""
+    from basinmark.gui.app import install_extras
+    from basinmark.gui.main_window import MainWindow
+
+    win = MainWindow(QSettings(str(tmp_path / "s.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(win)
+    install_extras(win)
+    win.show()
+    qtbot.waitExposed(win)
+    canvas = win.map_panel.canvas
+    win.docks["map"].show()
+    win.docks["map"].raise_()
+    qtbot.waitUntil(canvas.isVisible, timeout=5000)
+    give_way._until = 0.0
+    QTest.mouseClick(canvas.viewport(), Qt.MouseButton.LeftButton)
+    assert not give_way.holding()
+    QTest.mouseClick(win.run_table.view.viewport(), Qt.MouseButton.LeftButton)   # elsewhere: they do
+    assert give_way.holding()
+    win.close()
