@@ -100,3 +100,25 @@ def test_a_click_on_the_map_does_not_hold_back_the_maps_own_workers(qtbot, tmp_p
     QTest.mouseClick(win.run_table.view.viewport(), Qt.MouseButton.LeftButton)   # elsewhere: they do
     assert give_way.holding()
     win.close()
+
+
+def test_a_panel_shown_marks_it_before_its_own_work(qtbot, tmp_path, monkeypatch):
+    """Qt shows a dock's children before the dock: the summary's showEvent (its numbers) ran before the dock's Show
+    event marked the moment, so the workers went on through that turn."""
+    from basinmark.gui.app import install_extras
+    from basinmark.gui.main_window import MainWindow
+    from basinmark.gui.summary_view import SummaryPanel
+
+    win = MainWindow(QSettings(str(tmp_path / "s.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(win)
+    install_extras(win)
+    win.show()
+    qtbot.waitExposed(win)
+    seen = []
+    real = SummaryPanel.showEvent
+    monkeypatch.setattr(SummaryPanel, "showEvent", lambda self, ev: (seen.append(give_way.holding()), real(self, ev)))
+    give_way._until = 0.0
+    win.docks["summary"].show()
+    win.docks["summary"].raise_()
+    assert seen and seen[0] is True
+    win.close()

@@ -79,7 +79,9 @@ def install(app) -> None:
         def eventFilter(self, obj, event) -> bool:  # noqa: N802 (Qt's name)
             kind = event.type()
             if kind == show:   # a panel brought to the front (not every small widget: a map's labels as it draws)
-                if isinstance(obj, QDockWidget):
+                # the panel's own widget: Qt shows a dock's children before the dock itself, so the dock's Show event
+                # came after the panel's showEvent had done its work (the summary's, at 10,000 runs)
+                if isinstance(obj, QDockWidget) or (isinstance(obj, QWidget) and isinstance(obj.parent(), QDockWidget)):
                     acting()
                 return False
             if kind not in kinds or not isinstance(obj, QWidget):
