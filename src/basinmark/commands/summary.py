@@ -232,7 +232,8 @@ def fill_unlabeled(labels: pd.DataFrame, tset, rules, classified: pd.DataFrame |
     rows = labels.index[missing]
     values = [now.get(str(r)) for r in labels.loc[rows, "run"]]
     labels.loc[rows, "final_label"] = values
-    labels["auto_label"] = labels["auto_label"] if "auto_label" in labels else None
+    if "auto_label" not in labels:
+        labels["auto_label"] = None
     labels.loc[rows, "auto_label"] = values
     if "flags" in labels:
         labels.loc[rows, "flags"] = [flags.get(str(r), "") for r in labels.loc[rows, "run"]]

@@ -456,6 +456,10 @@ def _energy(x: float) -> str:
     return f"{x:.2f}"
 
 
+#: flags that are not a reason to look at a run (the energy check has its own warning; data_changed is the journal's)
+_NOT_A_LOOK = ("energy_drift", "data_changed")
+
+
 def flag_warnings(labels: pd.DataFrame) -> list[SummaryWarning]:
     """Warnings about flagged runs that are still counted (see :func:`build_summary`), with their run ids."""
     if "flags" not in labels:
@@ -481,10 +485,9 @@ def flag_warnings(labels: pd.DataFrame) -> list[SummaryWarning]:
     tally: Counter = Counter()
     for p, k in zip(parts, per_text.tolist()):
         if k:
-            tally.update({f: k * p.count(f) for f in p if f and f not in ("energy_drift", "data_changed")})
+            tally.update({f: k * p.count(f) for f in p if f and f not in _NOT_A_LOOK})
     if tally:
-        waiting = unlooked & np.isin(codes, [i for i, p in enumerate(parts)
-                                             if any(f and f not in ("energy_drift", "data_changed") for f in p)])
+        waiting = unlooked & np.isin(codes, [i for i, p in enumerate(parts) if any(f and f not in _NOT_A_LOOK for f in p)])
         n = int(waiting.sum())
         listed = ", ".join(f"{flag_words(name)} {k}" for name, k in sorted(tally.items()))
         out.append(SummaryWarning(f"{n} counted run{'s' if n != 1 else ''} flagged for a look ({listed}) "

@@ -24,6 +24,14 @@ def _same_basis(a: tuple, b: tuple) -> bool:
     return len(a) == len(b) and all(x is y or (type(x) is int and type(y) is int and x == y) for x, y in zip(a, b))
 
 
+def label_basis(journal, classification, rules, tset, blind_labeler: str = "") -> tuple:
+    """What a label table is built from, compared by identity (:func:`_same_basis`): the journal and how far it was
+    read, classification, rules, set and its size, blind labeling."""
+    events = journal.events if journal is not None and hasattr(journal, "events") else []
+    return (journal, len(events), events[-1] if events else None, classification, rules, tset,
+            len(tset) if tset is not None else 0, blind_labeler)
+
+
 def whole_label_table(tset, journal, classification, blind_labeler: str = "") -> tuple[pd.DataFrame, list[str]]:
     """The label table of every run of ``tset`` (see build_label_table), and the runs ``journal`` labels that are not
     in the set.  No Qt: the loader builds it ahead on its own thread (:class:`LabelsAhead`)."""
@@ -49,9 +57,7 @@ class LabelsAhead:
     the journal: at 10,000 runs with 20,000 events it was the longest turn that ends a load, 86-108 ms)."""
 
     def __init__(self, tset, journal, classification, rules) -> None:
-        events = journal.events if journal is not None and hasattr(journal, "events") else []
-        self.basis = (journal, len(events), events[-1] if events else None, classification, rules, tset,
-                      len(tset) if tset is not None else 0, "")
+        self.basis = label_basis(journal, classification, rules, tset)
         self.table, self.outside = whole_label_table(tset, journal, classification)
 
     def basis_matches(self, basis: tuple) -> bool:
@@ -267,9 +273,7 @@ class AppState(QObject):
     def _basis(self) -> tuple:
         """What the label table was built from (compared by identity): journal and how far it was read,
         classification, rules, set and its size, blind labeling."""
-        events = self.journal.events if self.journal is not None and hasattr(self.journal, "events") else []
-        return (self.journal, len(events), events[-1] if events else None, self.classification, self.rules,
-                self.tset, len(self.tset) if self.tset is not None else 0, self.blind_labeler)
+        return label_basis(self.journal, self.classification, self.rules, self.tset, self.blind_labeler)
 
     def _changed_runs(self) -> list[str] | None:
         """The runs named by journal events since the table was built, when nothing else changed (then only their
