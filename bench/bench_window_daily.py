@@ -7,8 +7,9 @@ run (``ana``, and ``bo`` who differs on about a fifth), so that the review compa
 
 Actions, in order: sort by each column of the run table; each quick filter; type a search and clear it; move to the
 next run and to the end of the table; bring each analysis dock to the front (the map, summary, review, sensitivity,
-starting conditions, rules), waiting for its background work to end; in the review, choose the two people and
-compare them.  A 2 ms heartbeat timer on the window's thread records the gaps (bench_window_scale.Watch).
+starting conditions, rules), for a second and until its own work is shown (the map's picture, the summary's
+plots); in the review, choose the two people and compare them, while the starting-conditions analysis (minutes of
+fits at this size) still runs in its own process, as it would when a person goes on working.  A 2 ms heartbeat timer on the window's thread records the gaps (bench_window_scale.Watch).
 
     QT_QPA_PLATFORM=offscreen .venv/bin/python bench/bench_window_daily.py [--runs 2000] [--keep DIR]
 """
@@ -122,6 +123,9 @@ def main() -> None:
                 until=lambda p=panel: not getattr(p, "busy", False))
         review = docks["review"].findChild(ReviewPanel)
         docks["review"].raise_()
+        origins = win.origins_panel if hasattr(win, "origins_panel") else None
+        print(f"  (the starting-conditions analysis {'still runs' if origins is not None and origins.busy else 'has ended'}"
+              " while the review is used)")
         act("review: choose ana and bo", lambda: review.set_sources(("person", "ana"), ("person", "bo")))
         act("review: compare", review.compare)
         done = review.review

@@ -122,3 +122,91 @@ def test_a_panel_shown_marks_it_before_its_own_work(qtbot, tmp_path, monkeypatch
     win.docks["summary"].raise_()
     assert seen and seen[0] is True
     win.close()
+
+
+# --- imports made by a worker give way too ---------------------------------------------------------------------
+# Found at 10,000 runs (bench/bench_window_daily.py): choosing the review's sources right after the starting-conditions
+# tab came up took a turn of 87-126 ms, because that tab's worker was importing scikit-learn and SciPy (about 1 s of
+# module bodies), and an import had no point at which to wait.
+
+def _write_modules(folder, stem: str) -> str:
+    (folder / f"{stem}_outer.py").write_text(f"import {stem}_inner\nVALUE = {stem}_inner.VALUE + 1\n")
+    (folder / f"{stem}_inner.py").write_text("VALUE = 41\n")
+    return f"{stem}_outer"
+
+
+def _import_in_a_thread(name: str, giving_way: bool) -> tuple[float, int]:
+    import importlib
+    import time
+
+    out = []
+
+    def work():
+        t0 = time.monotonic()
+        if giving_way:
+            with give_way.imports_give_way():
+                mod = importlib.import_module(name)
+        else:
+            mod = importlib.import_module(name)
+        out.append((time.monotonic() - t0, mod.VALUE))
+
+    th = threading.Thread(target=work)
+    th.start()
+    th.join(5)
+    return out[0]
+
+
+@pytest.fixture
+def module_folder(tmp_path, monkeypatch):
+    import sys
+
+    monkeypatch.syspath_prepend(str(tmp_path))
+    before = set(sys.modules)
+    yield tmp_path
+    for name in set(sys.modules) - before:
+        if name.startswith("bm_gw_"):
+            del sys.modules[name]
+
+
+def test_a_workers_imports_wait_while_the_person_acts(module_folder):
+    name = _write_modules(module_folder, "bm_gw_a")
+    give_way.acting(0.3)
+    waited, value = _import_in_a_thread(name, giving_way=True)
+    assert value == 42
+    assert 0.2 <= waited <= 0.9, waited   # held back at the first module it looked for, then went on
+
+
+def test_imports_wait_only_on_a_worker_that_asked_and_only_while_the_person_acts(module_folder):
+    import importlib
+    import time
+
+    quiet, value = _import_in_a_thread(_write_modules(module_folder, "bm_gw_b"), giving_way=True)
+    assert value == 42 and quiet < 0.1, quiet                    # nobody acts: no wait
+    give_way.acting(0.5)
+    other, _ = _import_in_a_thread(_write_modules(module_folder, "bm_gw_c"), giving_way=False)
+    assert other < 0.1, other                                    # a worker that did not ask is not held back
+    t0 = time.monotonic()
+    with give_way.imports_give_way():                            # the window's own thread never waits for itself
+        assert importlib.import_module(_write_modules(module_folder, "bm_gw_d")).VALUE == 42
+    assert time.monotonic() - t0 < 0.1
+    assert not give_way.imports_giving_way()
+
+
+def test_the_starting_conditions_worker_imports_giving_way(monkeypatch):   # (a mode file's reader imports SciPy)
+    from basinmark.core import origins_process, origins_start
+    from basinmark.gui import origins_view
+
+    seen = []
+
+    class Fits:   # (the fits themselves run in a process of their own: tests/test_origins_process.py)
+        @staticmethod
+        def analyse(*_a, **_k):
+            seen.append(give_way.imports_giving_way())
+
+    monkeypatch.setattr(origins_start, "starting_conditions", lambda *a, **k: seen.append(give_way.imports_giving_way()))
+    monkeypatch.setattr(origins_process, "shared_process", lambda: Fits)
+    th = threading.Thread(target=lambda: origins_view.run_analysis(object(), None, {}, None, None, None))
+    th.start()
+    th.join(5)
+    assert seen == [True, True]
+    assert not give_way.imports_giving_way()

@@ -87,6 +87,9 @@ class AnalysisCancelled(OriginsError):
     def __init__(self) -> None:
         super().__init__("The analysis was cancelled before it ended.")
 
+    def __reduce__(self):  # made again without arguments when it comes back from a worker process
+        return (type(self), ())
+
 
 class Work:
     """Counts the fits of an analysis against the total, reports them, and stops the analysis when asked.

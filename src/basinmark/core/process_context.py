@@ -130,7 +130,12 @@ def _running(pid: int) -> bool:
     return True
 
 
-def worker_context(preload: list[str]):
+#: what the fork server imports once for every worker it forks (the readers).  One fork server serves the whole
+#: program, and the first pool to start it decides what it preloads, so every pool asks for the same list
+PRELOAD = ["basinmark.core.sets", "basinmark.core.io"]
+
+
+def worker_context(preload: list[str] = PRELOAD):
     """Workers forked from a small server process that has imported ``preload`` once (not from the caller,
     which may be a window with threads of its own, where forking is unsafe); spawned where there is none.
     Either way the caller's main script is not imported in them."""

@@ -396,8 +396,7 @@ def use_processes(plan: SetPlan, workers: int | None = None, processes: bool | N
 def _new_pool(n_workers: int) -> ProcessPoolExecutor:
     """A process pool of our workers (:mod:`basinmark.core.process_context`: the readers preloaded, never the
     caller's script, a lower priority than the caller)."""
-    return ProcessPoolExecutor(max_workers=n_workers, mp_context=worker_context(["basinmark.core.sets",
-                                                                                   "basinmark.core.io"]),
+    return ProcessPoolExecutor(max_workers=n_workers, mp_context=worker_context(),
                                initializer=lower_priority, initargs=(os.getpid(),))
 
 

@@ -9,11 +9,18 @@ So the window's thread marks the moments a person acts (:func:`acting`: a key, a
 application-wide event filter, :func:`install`) and the workers, between pieces of their work, wait until the window
 has been quiet for :data:`QUIET_S` (:func:`give_way`), never longer than :data:`MAX_WAIT_S` at one point, so that
 work a person waits for still comes.  The waiting is a sleep: no CPU, Python's lock let go.
+
+A worker's first import of a large library (the starting-conditions analysis imports scikit-learn and SciPy: about a
+thousand modules, ~1 s) has no such place of its own, so a worker may ask that its imports give way too
+(:func:`imports_give_way`): before each module it imports, it waits as above.
 """
 
 from __future__ import annotations
 
+import sys
+import threading
 import time
+from contextlib import contextmanager
 
 #: how long after a person's action the workers hold back (our own choice: the turn that a click or a shown panel
 #: starts was over within this at 10,000 runs, 37-68 ms; short, so that a map clicked or zoomed is not kept waiting)
@@ -48,6 +55,45 @@ def give_way(max_wait_s: float = MAX_WAIT_S) -> float:
                 time.sleep(0)
             return now - start
         time.sleep(min(wait, 0.02))
+
+
+_local = threading.local()   # .imports: whether this thread's imports give way
+
+
+class _ImportsGiveWay:
+    """A finder first on ``sys.meta_path`` that finds nothing: Python asks it before each module is imported (never
+    for one already imported), and it waits there while the person acts, on the threads that asked for it.
+
+    It waits before the module is looked for, holding only the import locks of the modules being imported (one the
+    window's thread wants would keep it waiting at most until the worker goes on: :data:`MAX_WAIT_S`)."""
+
+    @staticmethod
+    def find_spec(name, path=None, target=None):  # the finder protocol of importlib
+        if getattr(_local, "imports", False) and threading.current_thread() is not threading.main_thread():
+            give_way()
+        return None
+
+    @staticmethod
+    def invalidate_caches() -> None:
+        return None
+
+
+def imports_giving_way() -> bool:
+    """Whether this thread's imports give way."""
+    return bool(getattr(_local, "imports", False))
+
+
+@contextmanager
+def imports_give_way():
+    """Within this, the imports made by this thread (a worker; never the window's) wait while the person acts."""
+    if not any(isinstance(f, _ImportsGiveWay) for f in sys.meta_path):
+        sys.meta_path.insert(0, _ImportsGiveWay())
+    before = imports_giving_way()
+    _local.imports = True
+    try:
+        yield
+    finally:
+        _local.imports = before
 
 
 #: a widget property: clicks and keys on a view whose own workers' pictures the person waits for (the map) do not

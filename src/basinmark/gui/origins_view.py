@@ -230,7 +230,16 @@ def run_analysis(tset, rules, labels: dict, modes_path: str | None, include, set
 
     ``progress(done, total, stage)`` hears of every run read and every fit; when ``cancelled()`` turns true the
     work stops with :class:`basinmark.core.origins.AnalysisCancelled`."""
-    from basinmark.core.origins import AnalysisCancelled, analyse
+    from basinmark.gui.give_way import imports_give_way
+
+    # what it imports (SciPy for a mode file: ~0.2 s of module bodies) waits while the person acts too
+    with imports_give_way():
+        return _analyse(tset, rules, labels, modes_path, include, settings, progress, cancelled)
+
+
+def _analyse(tset, rules, labels, modes_path, include, settings, progress, cancelled):
+    from basinmark.core import origins_process
+    from basinmark.core.origins import AnalysisCancelled
     from basinmark.core.origins_start import starting_conditions
     from basinmark.gui.give_way import give_way
 
@@ -247,7 +256,9 @@ def run_analysis(tset, rules, labels: dict, modes_path: str | None, include, set
     start = starting_conditions(tset, rules.monitor_indices() if rules is not None else {}, progress=reading)
     if modes_path:
         start = start.with_modes(load_modes(modes_path))
-    return analyse(start, labels, settings, include=include, progress=progress, cancelled=stop), start
+    # the fits in a process of their own: on this thread they held Python's lock from the window (origins_process)
+    return origins_process.shared_process().analyse(start, labels, settings, include=include, progress=progress,
+                                                    cancelled=stop), start
 
 
 class OriginsPanel(QWidget):
