@@ -31,6 +31,7 @@ from pathlib import Path
 
 import numpy as np
 
+from basinmark.core.give_way import give_way
 from basinmark.core.model import LoadFailure, SourceFile, Trajectory
 
 SEGMENT_VERSION = "3"  # 3: segments with checksums; 2 was one snapshot per set plus one .npz per run
@@ -179,6 +180,8 @@ def _read_segment(entry: Path, root: Path | None, verify: bool, index: dict | No
     root = Path(root) if root is not None else Path(old_root or ".")
     runs: list[Trajectory] = []
     for r in index["runs"]:
+        # a segment is ~160 ms of Python at 128 runs, read beside the window: it waits while the window is busy
+        give_way()
         a, b = r["rows"]
         f0, f1 = r["frames"]
         numbers = np.asarray(r["numbers"], dtype=np.int16)

@@ -99,6 +99,10 @@ def default_settings() -> QSettings:
     return QSettings("basinmark", "basinmark")
 
 
+#: how long the set's readers hold back when its first run arrives and again when it is shown (our choice: the
+#: first run's turns, shown, drawn and each painted, took 35-43 ms of the window's work each at 10,000 runs)
+FIRST_RUN_HOLD_S = 0.2
+
 class MainWindow(QMainWindow):
     """One window over one set at a time."""
 
@@ -554,6 +558,9 @@ class MainWindow(QMainWindow):
         self.state.add_runs(trajs, show_first=False)
         if not self.state.run_id and not self._first_timer.isActive():
             self._first_timer.start()
+            # the first run is what the person waits for: the threads reading the rest of the set (a cached set's
+            # segments, core/set_cache.py) wait meanwhile, or its turns took 2-5x their own time (at 10,000 runs)
+            give_way.acting(FIRST_RUN_HOLD_S)
         freeze_survivors(collect_young=False)   # the runs so far: left out of later full collections (gc_guard.py)
 
     def _show_first_run(self) -> None:
@@ -563,6 +570,7 @@ class MainWindow(QMainWindow):
             return
         # the table, molecule and label panel show it in this turn; its traces are drawn in the next, each turn
         # painted apart (together, with their paint, the longest turn of a 10,000-run open: 113-144 ms)
+        give_way.acting(FIRST_RUN_HOLD_S)   # through its traces' turn and paint
         hold = contextlib.ExitStack()
         hold.enter_context(self.traces.held())
         try:
