@@ -176,3 +176,36 @@ def write_doubtful_set(folder: Path) -> dict[str, str]:
     outcome = write_toy_set(folder, velocities=None, **FEW_RUNS)
     displace_start(folder, "run-002")
     return outcome
+
+
+def origins_window(qtbot, tmp_path: Path, root: Path, settings):
+    """(window, Origins dock): a window with the Origins tab (analysing with ``settings``), on the set ``root``
+    read from its files, fully loaded; the tab not yet shown."""
+    from PySide6.QtCore import QSettings
+
+    from basinmark.gui.main_window import MainWindow
+    from basinmark.gui.origins_view import install_origins_dock
+
+    w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
+    qtbot.addWidget(w)
+    dock = install_origins_dock(w)
+    w.origins_panel.settings = settings
+    w.show()
+    qtbot.waitExposed(w)
+    with qtbot.waitSignal(w.set_loaded, timeout=60000):
+        w.open_set(root, use_cache=False)
+    qtbot.waitUntil(lambda: not w.state.loading, timeout=60000)
+    return w, dock
+
+
+def window_with_origins(qtbot, tmp_path: Path, settings, n: int = 30, seed: int = 2):
+    """A window on a toy set (:func:`write_toy_set`) whose Origins tab, analysing with ``settings``, is brought to
+    the front and has shown its result."""
+    root = tmp_path / "toy"
+    write_toy_set(root, n=n, seed=seed)
+    w, dock = origins_window(qtbot, tmp_path, root, settings)
+    with qtbot.waitSignal(w.origins_panel.updated, timeout=120000):
+        dock.show()
+        dock.raise_()
+    w.origins_panel.wait(120)  # a refresh asked while the first ran
+    return w

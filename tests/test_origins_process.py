@@ -13,8 +13,7 @@ import time
 
 import numpy as np
 import pytest
-from origins_sets import MONITORS, toy_set, write_toy_set
-from PySide6.QtCore import QSettings
+from origins_sets import MONITORS, toy_set, window_with_origins
 
 from basinmark.core import origins
 from basinmark.core.origins import AnalysisCancelled, Settings, analyse
@@ -85,27 +84,11 @@ def test_an_error_of_the_analysis_is_the_callers_error(toy, process):
 
 @pytest.mark.gui
 def test_the_window_does_not_fit_in_its_own_process(qtbot, tmp_path, monkeypatch):
-    from basinmark.gui.main_window import MainWindow
-    from basinmark.gui.origins_view import install_origins_dock
-
     def here(*_a, **_k):
         raise AssertionError("fitted in the window's process")
 
     monkeypatch.setattr(origins, "analyse", here)
-    root = tmp_path / "toy"
-    write_toy_set(root, n=30, seed=2)
-    w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(w)
-    dock = install_origins_dock(w)
-    w.origins_panel.settings = QUICK
-    w.show()
-    qtbot.waitExposed(w)
-    with qtbot.waitSignal(w.set_loaded, timeout=30000):
-        w.open_set(root, use_cache=False)
-    with qtbot.waitSignal(w.origins_panel.updated, timeout=120000):
-        dock.show()
-        dock.raise_()
-    w.origins_panel.wait(120)
+    w = window_with_origins(qtbot, tmp_path, QUICK)
     assert w.origins_panel.error == ""
     assert w.origins_panel.analysis is not None and w.origins_panel.analysis.classified
     w.close()

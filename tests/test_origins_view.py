@@ -4,13 +4,11 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from origins_sets import write_toy_set
-from PySide6.QtCore import QPoint, QPointF, QSettings, Qt
+from origins_sets import window_with_origins
+from PySide6.QtCore import QPoint, QPointF, Qt
 
 from basinmark.core.origins import Settings
 from basinmark.gui.colours import outcome_colour
-from basinmark.gui.main_window import MainWindow
-from basinmark.gui.origins_view import install_origins_dock
 
 pytestmark = pytest.mark.gui
 
@@ -19,20 +17,7 @@ QUICK = Settings(n_repeats=1, n_permutations=19, importance_repeats=2, C=1.0)  #
 
 @pytest.fixture
 def win(qtbot, tmp_path):
-    root = tmp_path / "toy"
-    write_toy_set(root, n=30, seed=2)
-    w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(w)
-    dock = install_origins_dock(w)
-    w.origins_panel.settings = QUICK
-    w.show()
-    qtbot.waitExposed(w)
-    with qtbot.waitSignal(w.set_loaded, timeout=30000):
-        w.open_set(root, use_cache=False)
-    with qtbot.waitSignal(w.origins_panel.updated, timeout=120000):
-        dock.show()
-        dock.raise_()
-    w.origins_panel.wait(120)  # a refresh asked while the first ran
+    w = window_with_origins(qtbot, tmp_path, QUICK)
     yield w
     w.close()
 

@@ -9,13 +9,11 @@ import time
 
 import numpy as np
 import pytest
-from origins_sets import make_phase_demo, write_doubtful_set
-from PySide6.QtCore import QPoint, QPointF, QSettings, Qt, QTimer
+from origins_sets import make_phase_demo, origins_window, write_doubtful_set
+from PySide6.QtCore import QPoint, QPointF, Qt, QTimer
 
 import basinmark.gui.origins_view as view
 from basinmark.core.origins import Settings, work_total
-from basinmark.gui.main_window import MainWindow
-from basinmark.gui.origins_view import install_origins_dock
 
 pytestmark = pytest.mark.gui
 
@@ -30,16 +28,7 @@ def demo(tmp_path_factory):
 
 
 def _window(qtbot, tmp_path, root, settings):
-    w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(w)
-    dock = install_origins_dock(w)
-    w.origins_panel.settings = settings
-    w.show()
-    qtbot.waitExposed(w)
-    with qtbot.waitSignal(w.set_loaded, timeout=60000):
-        w.open_set(root, use_cache=False)
-    qtbot.waitUntil(lambda: not w.state.loading, timeout=60000)
-    return w, dock
+    return origins_window(qtbot, tmp_path, root, settings)
 
 
 def _show(qtbot, dock, panel):
