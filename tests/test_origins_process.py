@@ -92,3 +92,30 @@ def test_the_window_does_not_fit_in_its_own_process(qtbot, tmp_path, monkeypatch
     assert w.origins_panel.error == ""
     assert w.origins_panel.analysis is not None and w.origins_panel.analysis.classified
     w.close()
+
+
+def test_the_bar_says_the_fits_are_starting_while_the_process_starts(monkeypatch):
+    """The process's first analysis imports scikit-learn (~1-2 s) before its first fit: the bar said "200 of 200
+    runs read, Reading the starting conditions" meanwhile, as if reading had stalled."""
+    import threading
+
+    from basinmark.core import origins_process, origins_start
+    from basinmark.core.origins import work_total
+    from basinmark.gui import origins_view
+
+    heard = []
+
+    class Fits:
+        @staticmethod
+        def analyse(*_a, **_k):
+            heard.append("fits")
+
+    monkeypatch.setattr(origins_start, "starting_conditions", lambda *a, **k: None)
+    monkeypatch.setattr(origins_process, "shared_process", lambda: Fits)
+    th = threading.Thread(target=lambda: origins_view.run_analysis(object(), None, {}, None, None, QUICK,
+                                                                   progress=lambda *a: heard.append(a)))
+    th.start()
+    th.join(5)
+    assert heard[-1] == "fits"
+    done, total, stage = heard[-2]
+    assert (done, total) == (0, work_total(QUICK)) and stage.startswith("starting the fits")

@@ -256,6 +256,10 @@ def _analyse(tset, rules, labels, modes_path, include, settings, progress, cance
     start = starting_conditions(tset, rules.monitor_indices() if rules is not None else {}, progress=reading)
     if modes_path:
         start = start.with_modes(load_modes(modes_path))
+    if progress is not None:   # (the process's first analysis loads scikit-learn before its first fit: ~1-2 s)
+        from basinmark.core.origins import Settings, work_total
+
+        progress(0, work_total(settings or Settings()), "starting the fits")
     # the fits in a process of their own: on this thread they held Python's lock from the window (origins_process)
     return origins_process.shared_process().analyse(start, labels, settings, include=include, progress=progress,
                                                     cancelled=stop), start
