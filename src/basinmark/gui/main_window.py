@@ -103,6 +103,7 @@ def default_settings() -> QSettings:
 #: first run's turns, shown, drawn and each painted, took 35-43 ms of the window's work each at 10,000 runs)
 FIRST_RUN_HOLD_S = 0.2
 
+
 class MainWindow(QMainWindow):
     """One window over one set at a time."""
 

@@ -243,7 +243,7 @@ def _analyse(tset, rules, labels, modes_path, include, settings, progress, cance
     from basinmark.core.origins_start import starting_conditions
     from basinmark.gui.give_way import give_way
 
-    def stop() -> bool:   # asked after every run read and every fit: a person acting in the window goes first
+    def stop() -> bool:   # asked after every run read: a person acting in the window goes first
         give_way()
         return cancelled is not None and cancelled()
 
@@ -260,9 +260,10 @@ def _analyse(tset, rules, labels, modes_path, include, settings, progress, cance
         from basinmark.core.origins import Settings, work_total
 
         progress(0, work_total(settings or Settings()), "starting the fits")
-    # the fits in a process of their own: on this thread they held Python's lock from the window (origins_process)
+    # the fits in a process of their own: on this thread they held Python's lock from the window (origins_process);
+    # they need not give way, so the process is asked only whether to stop
     return origins_process.shared_process().analyse(start, labels, settings, include=include, progress=progress,
-                                                    cancelled=stop), start
+                                                    cancelled=cancelled), start
 
 
 class OriginsPanel(QWidget):
