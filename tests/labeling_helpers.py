@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 from pathlib import Path
+from typing import Callable
 
 from PySide6.QtCore import QPoint, QSettings, Qt
 from PySide6.QtTest import QTest
@@ -27,13 +28,18 @@ def make_root(tmp_path: Path) -> Path:
     return make_toy_set(tmp_path / "toyset", OUTCOMES, drift_runs=DRIFT)
 
 
-def open_window(qtbot, tmp_path: Path, root: Path, settings: QSettings | None = None) -> MainWindow:
+def open_window(qtbot, tmp_path: Path, root: Path, settings: QSettings | None = None,
+                install: Callable[[MainWindow], object] | None = None, timeout_ms: int = 20000) -> MainWindow:
+    """A window on ``root`` read from its files (until ``set_loaded``); ``install(win)`` adds panels before it is
+    shown."""
     win = MainWindow(settings or settings_at(tmp_path / "settings.ini"))
     qtbot.addWidget(win)
+    if install is not None:
+        install(win)
     win.show()
     qtbot.waitExposed(win)
     win.activateWindow()
-    with qtbot.waitSignal(win.set_loaded, timeout=20000):
+    with qtbot.waitSignal(win.set_loaded, timeout=timeout_ms):
         win.open_set(root, use_cache=False)
     return win
 

@@ -181,21 +181,19 @@ def write_doubtful_set(folder: Path) -> dict[str, str]:
 def origins_window(qtbot, tmp_path: Path, root: Path, settings):
     """(window, Origins dock): a window with the Origins tab (analysing with ``settings``), on the set ``root``
     read from its files, fully loaded; the tab not yet shown."""
-    from PySide6.QtCore import QSettings
+    from labeling_helpers import open_window
 
-    from basinmark.gui.main_window import MainWindow
     from basinmark.gui.origins_view import install_origins_dock
 
-    w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(w)
-    dock = install_origins_dock(w)
-    w.origins_panel.settings = settings
-    w.show()
-    qtbot.waitExposed(w)
-    with qtbot.waitSignal(w.set_loaded, timeout=60000):
-        w.open_set(root, use_cache=False)
+    docks = []
+
+    def install(w) -> None:
+        docks.append(install_origins_dock(w))
+        w.origins_panel.settings = settings
+
+    w = open_window(qtbot, tmp_path, root, install=install, timeout_ms=60000)
     qtbot.waitUntil(lambda: not w.state.loading, timeout=60000)
-    return w, dock
+    return w, docks[0]
 
 
 def window_with_origins(qtbot, tmp_path: Path, settings, n: int = 30, seed: int = 2):

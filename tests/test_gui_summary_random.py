@@ -9,14 +9,14 @@ import random
 
 import numpy as np
 import pytest
-from PySide6.QtCore import QSettings, Qt
+from PySide6.QtCore import Qt
 from PySide6.QtTest import QTest
 
 from basinmark.core.summary import build_summary
 from basinmark.gui.app import install_extras
-from basinmark.gui.main_window import MainWindow
 
 from gui_fixtures import make_toy_set
+from labeling_helpers import open_window
 
 pytestmark = pytest.mark.gui
 
@@ -33,13 +33,7 @@ def _model(win):
 def test_random_actions_keep_the_summary_equal_to_the_core(qtbot, tmp_path, seed):
     rng = random.Random(seed)
     root = make_toy_set(tmp_path / "toyset", OUTCOMES)
-    win = MainWindow(QSettings(str(tmp_path / "s.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(win)
-    install_extras(win)
-    win.show()
-    qtbot.waitExposed(win)
-    with qtbot.waitSignal(win.set_loaded, timeout=20000):
-        win.open_set(root, use_cache=False)
+    win = open_window(qtbot, tmp_path, root, install=install_extras)
     qtbot.waitUntil(lambda: not win.busy, timeout=20000)
     win.label_panel.set_labeler("kim")
     panel, view = win.summary_panel, win.run_table.view

@@ -6,13 +6,12 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from PySide6.QtCore import QSettings
 
 from basinmark.core.summary import build_summary
-from basinmark.gui.main_window import MainWindow
 from basinmark.gui.summary_view import install_summary_dock
 
 from gui_fixtures import make_toy_set
+from labeling_helpers import open_window
 
 pytestmark = pytest.mark.gui
 
@@ -22,13 +21,7 @@ OUTCOMES = ["left", "right", "recrossing", "left", "left", "right", "unfinished"
 @pytest.fixture
 def win(qtbot, tmp_path):
     root = make_toy_set(tmp_path / "toyset", OUTCOMES)
-    w = MainWindow(QSettings(str(tmp_path / "settings.ini"), QSettings.Format.IniFormat))
-    qtbot.addWidget(w)
-    install_summary_dock(w)
-    w.show()
-    qtbot.waitExposed(w)
-    with qtbot.waitSignal(w.set_loaded, timeout=20000):
-        w.open_set(root, use_cache=False)
+    w = open_window(qtbot, tmp_path, root, install=install_summary_dock)
     qtbot.waitUntil(lambda: not w.busy, timeout=20000)
     yield w
     w.close()
